@@ -1,0 +1,245 @@
+package callgraph
+
+import (
+	"github.com/culprithq/culprit/traces"
+	"gonum.org/v1/gonum/graph"
+	"gonum.org/v1/gonum/graph/iterator"
+)
+
+// NodeID identifies a Tree node. The root is node 0, a virtual node above
+// every path's first frame. A child's ID is always greater than its parent's.
+type NodeID int32
+
+// Root is the ID of the tree's virtual root.
+const Root NodeID = 0
+
+type treeNode struct {
+	frame       traces.FrameID
+	parent      NodeID
+	firstChild  NodeID // 0 = none (the root is never a child)
+	nextSibling NodeID
+	depth       int32
+}
+
+// Tree is a weighted calling-context tree. Build one with NewTree.
+type Tree struct {
+	src   *traces.Source
+	nodes []treeNode
+	nv    int
+	self  []int64 // len(nodes)*nv: values of paths ending at the node
+	total []int64 // len(nodes)*nv: self plus all descendants
+	leaf  []NodeID
+}
+
+var _ graph.WeightedDirected = (*Tree)(nil)
+
+// NewTree merges the paths of src by common prefix.
+func NewTree(src *traces.Source) *Tree {
+	nv := len(src.ValueTypes)
+	t := &Tree{
+		src:   src,
+		nodes: make([]treeNode, 1, len(src.Paths)/4+16),
+		nv:    nv,
+		leaf:  make([]NodeID, len(src.Paths)),
+	}
+	index := make(map[uint64]NodeID, len(src.Paths)/4+16)
+	for pi := range src.Paths {
+		p := &src.Paths[pi]
+		cur := Root
+		for _, f := range p.Frames {
+			key := uint64(uint32(cur))<<32 | uint64(uint32(f))
+			child, ok := index[key]
+			if !ok {
+				child = NodeID(len(t.nodes))
+				parent := &t.nodes[cur]
+				t.nodes = append(t.nodes, treeNode{
+					frame:       f,
+					parent:      cur,
+					nextSibling: parent.firstChild,
+					depth:       t.nodes[cur].depth + 1,
+				})
+				t.nodes[cur].firstChild = child
+				index[key] = child
+			}
+			cur = child
+		}
+		t.leaf[pi] = cur
+	}
+	t.self = make([]int64, len(t.nodes)*nv)
+	for pi := range src.Paths {
+		base := int(t.leaf[pi]) * nv
+		for v, x := range src.Paths[pi].Values {
+			t.self[base+v] += x
+		}
+	}
+	t.total = append([]int64(nil), t.self...)
+	for n := len(t.nodes) - 1; n > 0; n-- {
+		pb := int(t.nodes[n].parent) * nv
+		for v := 0; v < nv; v++ {
+			t.total[pb+v] += t.total[n*nv+v]
+		}
+	}
+	return t
+}
+
+// Source returns the source the tree was built from.
+func (t *Tree) Source() *traces.Source { return t.src }
+
+// Len returns the number of nodes, the virtual root included.
+func (t *Tree) Len() int { return len(t.nodes) }
+
+// Leaf returns the node where path index i of the source ends.
+func (t *Tree) Leaf(path int) NodeID { return t.leaf[path] }
+
+// Frame returns the frame of node n (0 for the root).
+func (t *Tree) Frame(n NodeID) traces.FrameID { return t.nodes[n].frame }
+
+// Parent returns the parent of n; the root's parent is the root.
+func (t *Tree) Parent(n NodeID) NodeID { return t.nodes[n].parent }
+
+// Depth returns the number of frames on n's path (0 for the root).
+func (t *Tree) Depth(n NodeID) int { return int(t.nodes[n].depth) }
+
+// Children returns n's children, most recently created first.
+func (t *Tree) Children(n NodeID) []NodeID {
+	var out []NodeID
+	for c := t.nodes[n].firstChild; c != 0; c = t.nodes[c].nextSibling {
+		out = append(out, c)
+	}
+	return out
+}
+
+// Self returns value v summed over the paths that end at n.
+func (t *Tree) Self(n NodeID, v int) int64 { return t.self[int(n)*t.nv+v] }
+
+// Total returns value v summed over the paths through n. For a Spans
+// source nested spans are counted at every level (see traces.Kind).
+func (t *Tree) Total(n NodeID, v int) int64 { return t.total[int(n)*t.nv+v] }
+
+// Path returns the frames from the root's first child down to n.
+func (t *Tree) Path(n NodeID) []traces.FrameID {
+	out := make([]traces.FrameID, t.nodes[n].depth)
+	for i := len(out) - 1; n != Root; i-- {
+		out[i] = t.nodes[n].frame
+		n = t.nodes[n].parent
+	}
+	return out
+}
+
+// Walk calls visit for every node but the root in depth-first pre-order,
+// children in creation order. It uses no recursion, so arbitrarily deep
+// trees are safe. If visit returns false the node's subtree is skipped.
+func (t *Tree) Walk(visit func(n NodeID) bool) {
+	// Children are linked newest first, so pushing them in link order
+	// leaves the oldest on top of the stack.
+	stack := make([]NodeID, 0, 64)
+	pushChildren := func(n NodeID) {
+		for c := t.nodes[n].firstChild; c != 0; c = t.nodes[c].nextSibling {
+			stack = append(stack, c)
+		}
+	}
+	pushChildren(Root)
+	for len(stack) > 0 {
+		n := stack[len(stack)-1]
+		stack = stack[:len(stack)-1]
+		if visit(n) {
+			pushChildren(n)
+		}
+	}
+}
+
+// Node implements graph.Graph. IDs are NodeIDs.
+func (t *Tree) Node(id int64) graph.Node {
+	if id < 0 || id >= int64(len(t.nodes)) {
+		return nil
+	}
+	return TreeNode{tree: t, id: NodeID(id)}
+}
+
+// Nodes implements graph.Graph, in ID order.
+func (t *Tree) Nodes() graph.Nodes {
+	ns := make([]graph.Node, len(t.nodes))
+	for i := range ns {
+		ns[i] = TreeNode{tree: t, id: NodeID(i)}
+	}
+	return iterator.NewOrderedNodes(ns)
+}
+
+// From implements graph.Directed: the children of id.
+func (t *Tree) From(id int64) graph.Nodes {
+	if id < 0 || id >= int64(len(t.nodes)) {
+		return graph.Empty
+	}
+	var ns []graph.Node
+	for c := t.nodes[id].firstChild; c != 0; c = t.nodes[c].nextSibling {
+		ns = append(ns, TreeNode{tree: t, id: c})
+	}
+	return iterator.NewOrderedNodes(ns)
+}
+
+// To implements graph.Directed: the parent of id, if any.
+func (t *Tree) To(id int64) graph.Nodes {
+	if id <= 0 || id >= int64(len(t.nodes)) {
+		return graph.Empty
+	}
+	return iterator.NewOrderedNodes([]graph.Node{TreeNode{tree: t, id: t.nodes[id].parent}})
+}
+
+// HasEdgeFromTo implements graph.Directed.
+func (t *Tree) HasEdgeFromTo(uid, vid int64) bool {
+	return vid > 0 && vid < int64(len(t.nodes)) && uid >= 0 && int64(t.nodes[vid].parent) == uid
+}
+
+// HasEdgeBetween implements graph.Graph.
+func (t *Tree) HasEdgeBetween(xid, yid int64) bool {
+	return t.HasEdgeFromTo(xid, yid) || t.HasEdgeFromTo(yid, xid)
+}
+
+// Edge implements graph.Graph.
+func (t *Tree) Edge(uid, vid int64) graph.Edge { return t.WeightedEdge(uid, vid) }
+
+// WeightedEdge implements graph.Weighted. The weight is the child's total
+// of the source's default value.
+func (t *Tree) WeightedEdge(uid, vid int64) graph.WeightedEdge {
+	if !t.HasEdgeFromTo(uid, vid) {
+		return nil
+	}
+	return weightedEdge{
+		from: TreeNode{tree: t, id: NodeID(uid)},
+		to:   TreeNode{tree: t, id: NodeID(vid)},
+		w:    float64(t.Total(NodeID(vid), t.src.DefaultValue)),
+	}
+}
+
+// Weight implements graph.Weighted.
+func (t *Tree) Weight(xid, yid int64) (float64, bool) {
+	if xid == yid {
+		return 0, true
+	}
+	if e := t.WeightedEdge(xid, yid); e != nil {
+		return e.Weight(), true
+	}
+	return 0, false
+}
+
+// TreeNode is a graph.Node of a Tree.
+type TreeNode struct {
+	tree *Tree
+	id   NodeID
+}
+
+// ID implements graph.Node.
+func (n TreeNode) ID() int64 { return int64(n.id) }
+
+// Frame returns the node's frame; the zero frame for the root.
+func (n TreeNode) Frame() traces.Frame { return n.tree.src.Frames[n.tree.nodes[n.id].frame] }
+
+type weightedEdge struct {
+	from, to graph.Node
+	w        float64
+}
+
+func (e weightedEdge) From() graph.Node         { return e.from }
+func (e weightedEdge) To() graph.Node           { return e.to }
+func (e weightedEdge) ReversedEdge() graph.Edge { return weightedEdge{from: e.to, to: e.from, w: e.w} }
+func (e weightedEdge) Weight() float64          { return e.w }

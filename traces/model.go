@@ -1,0 +1,411 @@
+package traces
+
+import (
+	"sort"
+	"strconv"
+	"strings"
+)
+
+// ValueType names one kind of value carried by every path, for example
+// cpu/nanoseconds or samples/count.
+type ValueType struct {
+	Type string `json:"type"`
+	Unit string `json:"unit"`
+}
+
+func (v ValueType) String() string { return v.Type + "/" + v.Unit }
+
+// Kind tells how a source's path values relate to each other.
+type Kind uint8
+
+const (
+	// Profile sources hold sampled stacks: a path's values belong to its
+	// leaf alone, so the values of all paths add up to the source's total.
+	Profile Kind = iota + 1
+	// Spans sources hold one path per span: a path's values include the
+	// time of every path below it (a span's duration contains its children).
+	Spans
+)
+
+func (k Kind) String() string {
+	switch k {
+	case Profile:
+		return "profile"
+	case Spans:
+		return "spans"
+	}
+	return "unknown"
+}
+
+// SpanKind is the OpenTelemetry span kind (OTLP enum values).
+type SpanKind uint8
+
+// Span kinds, numbered as in OTLP's trace.proto.
+const (
+	SpanKindUnspecified SpanKind = 0
+	SpanKindInternal    SpanKind = 1
+	SpanKindServer      SpanKind = 2
+	SpanKindClient      SpanKind = 3
+	SpanKindProducer    SpanKind = 4
+	SpanKindConsumer    SpanKind = 5
+)
+
+func (k SpanKind) String() string {
+	switch k {
+	case SpanKindInternal:
+		return "internal"
+	case SpanKindServer:
+		return "server"
+	case SpanKindClient:
+		return "client"
+	case SpanKindProducer:
+		return "producer"
+	case SpanKindConsumer:
+		return "consumer"
+	}
+	return "unspecified"
+}
+
+// Protocol is what a span's semantic-convention attributes say about the
+// outbound call it records.
+type Protocol uint8
+
+// Protocols recognised on client and producer spans.
+const (
+	ProtocolNone      Protocol = iota
+	ProtocolDatabase           // db.system.name / db.system
+	ProtocolRPC                // rpc.system.name / rpc.system
+	ProtocolHTTP               // http.request.method / http.method / url.full
+	ProtocolMessaging          // messaging.system
+)
+
+func (p Protocol) String() string {
+	switch p {
+	case ProtocolDatabase:
+		return "database"
+	case ProtocolRPC:
+		return "rpc"
+	case ProtocolHTTP:
+		return "http"
+	case ProtocolMessaging:
+		return "messaging"
+	}
+	return ""
+}
+
+// FrameID indexes Source.Frames. Frames are interned: equal frames share an ID.
+type FrameID int32
+
+// Frame is one element of a call path: a function at a line, or a span.
+// Frame is comparable and is interned by value.
+type Frame struct {
+	// Function is the fully qualified function name (Go: import path,
+	// receiver and name), or for a span the most code-like name available.
+	Function string
+	// File is the source file as the producer wrote it; may be empty.
+	File string
+	// Line is the line being executed in this frame: for every frame but
+	// the leaf, the line that called the next frame (the call site). 0 if unknown.
+	Line int64
+
+	// The fields below are set only for span frames.
+
+	// SpanKind is the span's kind; SpanKindUnspecified for profile frames.
+	SpanKind SpanKind
+	// Protocol classifies a client/producer span by its attributes.
+	Protocol Protocol
+	// System is db.system.name, rpc.system.name, messaging.system or "http".
+	System string
+	// Service is the resource's service.name.
+	Service string
+	// Span marks a frame made from a span (as opposed to a stack frame).
+	Span bool
+}
+
+// CallID indexes Source.Calls; 0 means the path carries no call details.
+type CallID int32
+
+// Call holds the details of an outbound call recorded by a client span.
+// Calls are interned by value. Statement is the raw text as recorded: it
+// may contain literals and must be fingerprinted before it is shown.
+type Call struct {
+	System    string // database, RPC or messaging system, or "http"
+	Statement string // db.query.text / db.statement, raw
+	Summary   string // db.query.summary, or the operation and target
+	Operation string // db.operation.name, rpc.method, HTTP method, ...
+	Peer      string // server.address[:port], service.peer.name, URL host
+	Batch     bool   // db.operation.batch.size > 1
+}
+
+// RequestID indexes Source.Requests; 0 means the path's request is unknown.
+type RequestID int32
+
+// Label is one pprof label (string or numeric) or span-derived label.
+type Label struct {
+	Key   string
+	Value string // string label value; empty for numeric labels
+	Num   int64  // numeric label value
+	Unit  string // unit of a numeric label; may be empty
+	IsNum bool
+}
+
+// LabelSet is an interned, sorted set of labels. The nil *LabelSet is the
+// empty set. LabelSets are shared between paths and must not be modified.
+type LabelSet struct {
+	Labels []Label // sorted by Key, then Value, then Num
+}
+
+// Get returns the first string value of key, or "" when it is absent.
+func (s *LabelSet) Get(key string) (string, bool) {
+	if s == nil {
+		return "", false
+	}
+	for _, l := range s.Labels {
+		if l.Key == key && !l.IsNum {
+			return l.Value, true
+		}
+	}
+	return "", false
+}
+
+func (s *LabelSet) String() string {
+	if s == nil {
+		return ""
+	}
+	var b strings.Builder
+	for i, l := range s.Labels {
+		if i > 0 {
+			b.WriteByte(',')
+		}
+		b.WriteString(l.Key)
+		b.WriteByte('=')
+		if l.IsNum {
+			b.WriteString(strconv.FormatInt(l.Num, 10))
+			b.WriteString(l.Unit)
+		} else {
+			b.WriteString(l.Value)
+		}
+	}
+	return b.String()
+}
+
+// Path is one weighted call path, root first.
+type Path struct {
+	// Frames lists the path's frames from the root (outermost caller) to
+	// the leaf. The slice may share backing storage with other paths.
+	Frames []FrameID
+	// Values holds one value per Source.ValueTypes entry.
+	Values []int64
+	// Labels are the sample's labels; nil when it has none.
+	Labels *LabelSet
+	// Request is the request (trace) this path belongs to, if known.
+	Request RequestID
+	// Call carries the outbound call details of a client span leaf.
+	Call CallID
+}
+
+// Input describes one file a source was read from.
+type Input struct {
+	Name   string `json:"name"`
+	Format string `json:"format"`
+	Bytes  int64  `json:"bytes"`
+	SHA256 string `json:"sha256"`
+}
+
+// Source is the common in-memory model every reader produces: a set of
+// weighted call paths over interned frames.
+//
+// Invariants (checked by Validate): every path has len(ValueTypes) values
+// and at least one frame; every FrameID, CallID and RequestID is in range;
+// Frames[0], Calls[0] and Requests[0] are the zero entries standing for
+// "none".
+type Source struct {
+	Kind       Kind
+	ValueTypes []ValueType
+	// DefaultValue indexes ValueTypes: the value reported unless the user
+	// chooses another.
+	DefaultValue int
+	// PeriodType and Period describe the sampling period of a profile
+	// (for Go CPU profiles cpu/nanoseconds and 10,000,000).
+	PeriodType ValueType
+	Period     int64
+	// DurationNanos is the wall-clock time the data covers (the sum over
+	// merged profiles, or the span of timestamps of a trace set).
+	DurationNanos int64
+
+	Frames   []Frame
+	Calls    []Call
+	Requests []string // request keys (trace IDs as hex); [0] is ""
+	Paths    []Path
+
+	Inputs   []Input
+	Warnings Warnings
+
+	frameIndex   map[Frame]FrameID
+	callIndex    map[Call]CallID
+	requestIndex map[string]RequestID
+	labelIndex   map[string]*LabelSet
+}
+
+// NewSource returns an empty source of the given kind, ready for Intern calls.
+func NewSource(kind Kind, types []ValueType) *Source {
+	return &Source{
+		Kind:         kind,
+		ValueTypes:   types,
+		Frames:       []Frame{{}},
+		Calls:        []Call{{}},
+		Requests:     []string{""},
+		frameIndex:   map[Frame]FrameID{},
+		callIndex:    map[Call]CallID{},
+		requestIndex: map[string]RequestID{},
+		labelIndex:   map[string]*LabelSet{},
+	}
+}
+
+func (s *Source) ensureIndexes() {
+	if s.frameIndex != nil {
+		return
+	}
+	s.frameIndex = make(map[Frame]FrameID, len(s.Frames))
+	for i, f := range s.Frames {
+		if i > 0 {
+			s.frameIndex[f] = FrameID(i)
+		}
+	}
+	s.callIndex = make(map[Call]CallID, len(s.Calls))
+	for i, c := range s.Calls {
+		if i > 0 {
+			s.callIndex[c] = CallID(i)
+		}
+	}
+	s.requestIndex = make(map[string]RequestID, len(s.Requests))
+	for i, r := range s.Requests {
+		if i > 0 {
+			s.requestIndex[r] = RequestID(i)
+		}
+	}
+	s.labelIndex = map[string]*LabelSet{}
+	if len(s.Frames) == 0 {
+		s.Frames = []Frame{{}}
+	}
+	if len(s.Calls) == 0 {
+		s.Calls = []Call{{}}
+	}
+	if len(s.Requests) == 0 {
+		s.Requests = []string{""}
+	}
+}
+
+// InternFrame returns the ID of f, adding it if it is new.
+func (s *Source) InternFrame(f Frame) FrameID {
+	s.ensureIndexes()
+	if id, ok := s.frameIndex[f]; ok {
+		return id
+	}
+	id := FrameID(len(s.Frames))
+	s.Frames = append(s.Frames, f)
+	s.frameIndex[f] = id
+	return id
+}
+
+// InternCall returns the ID of c, adding it if it is new. The zero Call is ID 0.
+func (s *Source) InternCall(c Call) CallID {
+	if c == (Call{}) {
+		return 0
+	}
+	s.ensureIndexes()
+	if id, ok := s.callIndex[c]; ok {
+		return id
+	}
+	id := CallID(len(s.Calls))
+	s.Calls = append(s.Calls, c)
+	s.callIndex[c] = id
+	return id
+}
+
+// InternRequest returns the ID of the request key, adding it if it is new.
+// The empty key is ID 0 (unknown request).
+func (s *Source) InternRequest(key string) RequestID {
+	if key == "" {
+		return 0
+	}
+	s.ensureIndexes()
+	if id, ok := s.requestIndex[key]; ok {
+		return id
+	}
+	id := RequestID(len(s.Requests))
+	s.Requests = append(s.Requests, key)
+	s.requestIndex[key] = id
+	return id
+}
+
+// InternLabels sorts labels and returns the shared set equal to them.
+// An empty list gives nil.
+func (s *Source) InternLabels(labels []Label) *LabelSet {
+	if len(labels) == 0 {
+		return nil
+	}
+	s.ensureIndexes()
+	sort.Slice(labels, func(i, j int) bool {
+		a, b := labels[i], labels[j]
+		if a.Key != b.Key {
+			return a.Key < b.Key
+		}
+		if a.Value != b.Value {
+			return a.Value < b.Value
+		}
+		return a.Num < b.Num
+	})
+	var key strings.Builder
+	for _, l := range labels {
+		key.WriteString(l.Key)
+		key.WriteByte(0)
+		key.WriteString(l.Value)
+		key.WriteByte(0)
+		key.WriteString(strconv.FormatInt(l.Num, 10))
+		key.WriteByte(0)
+		key.WriteString(l.Unit)
+		if l.IsNum {
+			key.WriteByte(1)
+		}
+		key.WriteByte(0)
+	}
+	k := key.String()
+	if set, ok := s.labelIndex[k]; ok {
+		return set
+	}
+	set := &LabelSet{Labels: append([]Label(nil), labels...)}
+	s.labelIndex[k] = set
+	return set
+}
+
+// RequestCount returns the number of distinct known requests.
+func (s *Source) RequestCount() int { return len(s.Requests) - 1 }
+
+// Total returns the sum of value index v over all paths. For a Spans
+// source this double-counts nested spans; see Kind.
+func (s *Source) Total(v int) int64 {
+	var t int64
+	for i := range s.Paths {
+		t += s.Paths[i].Values[v]
+	}
+	return t
+}
+
+// ValueIndex returns the index of the value type named name (its Type, or
+// "type/unit"); "" selects DefaultValue. The error lists the valid names.
+func (s *Source) ValueIndex(name string) (int, error) {
+	if name == "" {
+		return s.DefaultValue, nil
+	}
+	for i, vt := range s.ValueTypes {
+		if vt.Type == name || vt.String() == name {
+			return i, nil
+		}
+	}
+	names := make([]string, len(s.ValueTypes))
+	for i, vt := range s.ValueTypes {
+		names[i] = vt.Type
+	}
+	return 0, &ValueError{Name: name, Valid: names}
+}

@@ -1,0 +1,18 @@
+package traces
+
+// Options control how inputs are read. The zero value reads with
+// DefaultLimits, stops at the first unreadable input, repairs span
+// problems with warnings, and decodes on all cores.
+type Options struct {
+	Limits Limits
+	// KeepGoing skips unreadable files and malformed lines, recording each
+	// as a warning, instead of failing the run.
+	KeepGoing bool
+	// Strict turns every repair of span data (orphans, duplicates, cycles,
+	// negative durations, clock skew) into an error.
+	Strict bool
+	// Workers is the number of decoding goroutines; 0 means GOMAXPROCS.
+	Workers int
+	// Service keeps only spans of this service.name; "" keeps all.
+	Service string
+}

@@ -1,0 +1,440 @@
+package traces
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"io"
+	"runtime"
+	"slices"
+	"strings"
+	"sync"
+)
+
+// FormatOTLPJSON is the Input.Format of inputs read by SpanCollector.
+const FormatOTLPJSON = "otlp-json"
+
+// Warning kinds recorded while reading OTLP/JSON inputs.
+const (
+	// WarnMalformedLine is a line (or document) that did not decode and was
+	// skipped because Options.KeepGoing is set.
+	WarnMalformedLine = "malformed-line"
+	// WarnMalformedDocument is a multi-line JSON document that did not
+	// decode and was skipped because Options.KeepGoing is set.
+	WarnMalformedDocument = "malformed-document"
+	// WarnInvalidID is a span skipped because its trace, span or parent ID
+	// is missing, all zero, or neither 16/8 bytes of hex nor base64.
+	WarnInvalidID = "invalid-id"
+)
+
+// defaultBlockSize is how many bytes of JSON lines the reader hands to a
+// decoding worker at a time (more when a single line is longer).
+const defaultBlockSize = 512 << 10
+
+// SpanCollector gathers spans from any number of OTLP/JSON inputs and
+// assembles them into one Source. Spans of one trace may be spread over
+// any number of lines and inputs.
+//
+// A SpanCollector is not safe for concurrent use: call Add for one input
+// at a time (each Add decodes in parallel by itself), then Source.
+type SpanCollector struct {
+	opts      Options
+	limits    Limits
+	workers   int
+	blockSize int
+
+	// frames, calls and strs intern what the decoded spans refer to;
+	// index 0 of each stands for "none".
+	frames     []Frame
+	frameIndex map[Frame]int32
+	calls      []Call
+	callIndex  map[Call]int32
+	strs       []string
+	strIndex   map[string]int32
+
+	spans    spanStore
+	inputs   []Input
+	warnings Warnings
+}
+
+// NewSpanCollector returns an empty collector reading with opts. Zero
+// limits take their defaults; Workers 0 means GOMAXPROCS.
+func NewSpanCollector(opts Options) *SpanCollector {
+	w := opts.Workers
+	if w <= 0 {
+		w = runtime.GOMAXPROCS(0)
+	}
+	return &SpanCollector{
+		opts:       opts,
+		limits:     opts.Limits.withDefaults(),
+		workers:    w,
+		blockSize:  defaultBlockSize,
+		frames:     []Frame{{}},
+		frameIndex: map[Frame]int32{},
+		calls:      []Call{{}},
+		callIndex:  map[Call]int32{},
+		strs:       []string{""},
+		strIndex:   map[string]int32{},
+	}
+}
+
+// LooksLikeOTLPJSON reports whether the first bytes of an input look like
+// OTLP/JSON: a '{' after an optional UTF-8 byte order mark and whitespace.
+// It does not validate anything beyond that first byte.
+func LooksLikeOTLPJSON(prefix []byte) bool {
+	prefix = bytes.TrimPrefix(prefix, []byte(utf8BOM))
+	for _, b := range prefix {
+		switch b {
+		case ' ', '\t', '\r', '\n':
+			continue
+		case '{':
+			return true
+		}
+		return false
+	}
+	return false
+}
+
+// utf8BOM is the UTF-8 byte order mark.
+const utf8BOM = "\xEF\xBB\xBF"
+
+// Add decodes one already-decompressed input: JSON lines with one export
+// request (TracesData / ExportTraceServiceRequest) per line, or one JSON
+// document (possibly several, one after another) spanning many lines. A
+// file whose first non-blank line is a complete JSON value is read as JSON
+// lines. name is used in errors and warnings.
+//
+// On error nothing of this input is kept. A malformed line is an error
+// (*ParseError naming name, the line and the byte column) unless
+// Options.KeepGoing is set, in which case it is skipped with a
+// "malformed-line" warning. Exceeding a limit is always an error wrapping
+// ErrLimit.
+func (c *SpanCollector) Add(name string, r io.Reader) error {
+	input := int32(len(c.inputs))
+	cr := &countingReader{r: r, max: c.limits.MaxBytes}
+	mark, frames, calls, strs := c.spans.len(), len(c.frames), len(c.calls), len(c.strs)
+	var ws Warnings
+	if err := c.read(name, input, cr, &ws); err != nil {
+		c.spans.truncate(mark)
+		for _, f := range c.frames[frames:] {
+			delete(c.frameIndex, f)
+		}
+		for _, k := range c.calls[calls:] {
+			delete(c.callIndex, k)
+		}
+		for _, s := range c.strs[strs:] {
+			delete(c.strIndex, s)
+		}
+		c.frames, c.calls, c.strs = slices.Delete(c.frames, frames, len(c.frames)),
+			slices.Delete(c.calls, calls, len(c.calls)), slices.Delete(c.strs, strs, len(c.strs))
+		return err
+	}
+	c.inputs = append(c.inputs, Input{Name: name, Format: FormatOTLPJSON, Bytes: cr.n})
+	c.warnings.Merge(ws)
+	return nil
+}
+
+// countingReader counts the bytes read and fails once more than max were.
+type countingReader struct {
+	r   io.Reader
+	n   int64
+	max int64
+}
+
+// Read reads from the underlying reader, counting the bytes.
+func (cr *countingReader) Read(p []byte) (int, error) {
+	n, err := cr.r.Read(p)
+	cr.n += int64(n)
+	if cr.max > 0 && cr.n > cr.max {
+		return n, errInputTooLarge
+	}
+	return n, err
+}
+
+// errInputTooLarge is turned into a limit error naming the input by read.
+var errInputTooLarge = errors.New("input too large")
+
+// job is one unit of decoding work: a block of complete lines, or one JSON
+// document. result receives exactly one batch.
+type job struct {
+	data   []byte
+	pooled bool  // data's array may be reused once the batch is merged
+	line   int64 // line number of data[0]
+	col    int64 // byte column of data[0] (documents only; 1 for blocks)
+	doc    bool
+	result chan *batch
+}
+
+// batch is what a worker made of one job: spans with frame, call and
+// route indices local to the batch, the values those indices refer to,
+// warnings in input order, and the first fatal error.
+type batch struct {
+	spans    []spanRec
+	frames   []Frame
+	calls    []Call
+	strs     []string
+	warnings []Warning
+	err      error
+}
+
+// read runs the reading pipeline for one input: a reader goroutine cuts
+// the input into jobs, c.workers goroutines decode them, and this
+// goroutine merges the batches in input order, so the result does not
+// depend on the number of workers.
+func (c *SpanCollector) read(name string, input int32, r io.Reader, ws *Warnings) error {
+	order := make(chan *job, 2*c.workers)
+	free := make(chan []byte, 2*c.workers+2)     // block buffers to reuse
+	spare := make(chan []spanRec, 2*c.workers+2) // batch span buffers to reuse
+	jobs := make(chan *job, c.workers)
+	done := make(chan struct{})
+	var wg sync.WaitGroup
+
+	wg.Add(1)
+	go func() {
+		defer wg.Done()
+		defer close(order)
+		defer close(jobs)
+		c.split(name, r, order, jobs, done, free)
+	}()
+	for range c.workers {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			d := newDecoder(c, name, spare)
+			for {
+				select {
+				case j, ok := <-jobs:
+					if !ok {
+						return
+					}
+					j.result <- d.run(j)
+				case <-done:
+					return
+				}
+			}
+		}()
+	}
+
+	var err error
+	for j := range order {
+		b := <-j.result
+		if b.err != nil {
+			err = b.err
+			break
+		}
+		if err = c.merge(name, input, b, ws); err != nil {
+			break
+		}
+		if j.pooled {
+			select {
+			case free <- j.data[:cap(j.data)]:
+			default:
+			}
+		}
+		select {
+		case spare <- b.spans[:0]:
+		default:
+		}
+	}
+	close(done)
+	wg.Wait()
+	return err
+}
+
+// split reads r and sends jobs. Every job goes to order (in input order)
+// and, unless it carries a reader error, to jobs.
+func (c *SpanCollector) split(name string, r io.Reader, order, jobs chan<- *job, done <-chan struct{}, free chan []byte) {
+	send := func(j *job) bool {
+		select {
+		case order <- j:
+		case <-done:
+			return false
+		}
+		select {
+		case jobs <- j:
+			return true
+		case <-done:
+			return false
+		}
+	}
+	fail := func(err error) {
+		j := &job{result: make(chan *batch, 1)}
+		j.result <- &batch{err: err}
+		select {
+		case order <- j:
+		case <-done:
+		}
+	}
+
+	br := &blockReader{r: r, size: c.blockSize, maxLine: c.limits.MaxLineBytes, maxBytes: c.limits.MaxBytes, name: name, line: 1, free: free}
+	// Read blocks until the first non-blank line is seen, to choose
+	// between JSON lines and a document.
+	var head []*job
+	first := true
+	lines := false
+	for {
+		data, line, err := br.next()
+		if err != nil {
+			fail(err)
+			return
+		}
+		if data == nil {
+			break
+		}
+		if first {
+			data = bytes.TrimPrefix(data, []byte(utf8BOM))
+			first = false
+		}
+		head = append(head, &job{data: data, line: line, col: 1, pooled: true, result: make(chan *batch, 1)})
+		if l := firstNonBlankLine(data); l != nil {
+			lines = isCompleteJSON(l)
+			break
+		}
+	}
+	if lines {
+		for _, j := range head {
+			if !send(j) {
+				return
+			}
+		}
+		for {
+			data, line, err := br.next()
+			if err != nil {
+				fail(err)
+				return
+			}
+			if data == nil {
+				return
+			}
+			if !send(&job{data: data, line: line, col: 1, pooled: true, result: make(chan *batch, 1)}) {
+				return
+			}
+		}
+	}
+
+	// A document: read it whole, then cut it into top-level values.
+	var doc []byte
+	startLine := int64(1)
+	if len(head) > 0 {
+		startLine = head[0].line
+	}
+	for _, j := range head {
+		doc = append(doc, j.data...)
+	}
+	for {
+		data, _, err := br.next()
+		if err != nil {
+			fail(err)
+			return
+		}
+		if data == nil {
+			break
+		}
+		doc = append(doc, data...)
+	}
+	line, col := startLine, int64(1)
+	pos := 0
+	for pos < len(doc) {
+		// Skip whitespace, tracking the position.
+		for pos < len(doc) && isSpace(doc[pos]) {
+			if doc[pos] == '\n' {
+				line++
+				col = 1
+			} else {
+				col++
+			}
+			pos++
+		}
+		if pos == len(doc) {
+			return
+		}
+		end, deep := scanJSON(doc[pos:], c.limits.MaxDepth)
+		rec := doc[pos : pos+end]
+		if deep >= 0 {
+			fail(depthError(name, rec, line, col, deep, c.limits.MaxDepth))
+			return
+		}
+		if !send(&job{data: rec, line: line, col: col, doc: true, result: make(chan *batch, 1)}) {
+			return
+		}
+		nl := countLines(rec)
+		if nl > 0 {
+			line += int64(nl)
+			col = int64(len(rec) - bytes.LastIndexByte(rec, '\n'))
+		} else {
+			col += int64(len(rec))
+		}
+		pos += end
+	}
+}
+
+// merge adds a batch's spans to the collector, interning what they refer to.
+func (c *SpanCollector) merge(name string, input int32, b *batch, ws *Warnings) error {
+	fmap := make([]int32, len(b.frames))
+	for i, f := range b.frames {
+		id, ok := c.frameIndex[f]
+		if !ok {
+			if len(c.frames)-1 >= c.limits.MaxFrames {
+				line := 0
+				for _, s := range b.spans {
+					if s.frame == int32(i) {
+						line = clampLine(s.line)
+						break
+					}
+				}
+				return &ParseError{File: name, Line: line,
+					Err: fmt.Errorf("%w: more than %d distinct frames", ErrLimit, c.limits.MaxFrames)}
+			}
+			f = Frame{Function: strings.Clone(f.Function), File: strings.Clone(f.File), Line: f.Line,
+				SpanKind: f.SpanKind, Protocol: f.Protocol, System: strings.Clone(f.System),
+				Service: strings.Clone(f.Service), Span: f.Span}
+			id = int32(len(c.frames))
+			c.frames = append(c.frames, f)
+			c.frameIndex[f] = id
+		}
+		fmap[i] = id
+	}
+	cmap := make([]int32, len(b.calls))
+	for i, k := range b.calls {
+		id, ok := c.callIndex[k]
+		if !ok {
+			k = Call{System: strings.Clone(k.System), Statement: strings.Clone(k.Statement),
+				Summary: strings.Clone(k.Summary), Operation: strings.Clone(k.Operation),
+				Peer: strings.Clone(k.Peer), Batch: k.Batch}
+			id = int32(len(c.calls))
+			c.calls = append(c.calls, k)
+			c.callIndex[k] = id
+		}
+		cmap[i] = id
+	}
+	smap := make([]int32, len(b.strs))
+	for i, s := range b.strs {
+		id, ok := c.strIndex[s]
+		if !ok {
+			s = strings.Clone(s)
+			id = int32(len(c.strs))
+			c.strs = append(c.strs, s)
+			c.strIndex[s] = id
+		}
+		smap[i] = id
+	}
+	for _, s := range b.spans {
+		s.frame = fmap[s.frame]
+		if s.call >= 0 {
+			s.call = cmap[s.call]
+		} else {
+			s.call = 0
+		}
+		if s.route >= 0 {
+			s.route = smap[s.route]
+		} else {
+			s.route = 0
+		}
+		s.input = input
+		c.spans.push(s)
+	}
+	for _, w := range b.warnings {
+		ws.Add(w)
+	}
+	return nil
+}

@@ -1,0 +1,413 @@
+package traces
+
+import (
+	"bytes"
+	"encoding/binary"
+	"errors"
+	"fmt"
+	"math"
+	"reflect"
+	"strconv"
+	"strings"
+
+	json "github.com/goccy/go-json"
+)
+
+// decoder turns jobs into batches; each worker goroutine has its own.
+type decoder struct {
+	c       *SpanCollector
+	name    string
+	b       *batch
+	frameIx map[Frame]int32
+	callIx  map[Call]int32
+	strIx   map[string]int32
+	attrs   attrSet
+	memo    memo
+	spare   chan []spanRec // span buffers of merged batches
+	req     jsonRequest    // reused for every record that is one object
+}
+
+func newDecoder(c *SpanCollector, name string, spare chan []spanRec) *decoder {
+	return &decoder{c: c, name: name, spare: spare, frameIx: map[Frame]int32{}, callIx: map[Call]int32{}, strIx: map[string]int32{}}
+}
+
+// run decodes one job.
+func (d *decoder) run(j *job) *batch {
+	// Decoded strings refer to the job's data, whose array is reused
+	// once the batch is merged: nothing may carry over to the next job.
+	d.b = &batch{}
+	select {
+	case d.b.spans = <-d.spare:
+	default:
+	}
+	d.memo = memo{}
+	clear(d.frameIx)
+	clear(d.callIx)
+	clear(d.strIx)
+	if j.doc {
+		d.record(j.data, j.line, j.col, true)
+		return d.b
+	}
+	data, line := j.data, j.line
+	for len(data) > 0 && d.b.err == nil {
+		var l []byte
+		if i := bytes.IndexByte(data, '\n'); i >= 0 {
+			l, data = data[:i], data[i+1:]
+		} else {
+			l, data = data, nil
+		}
+		if n := len(l); n > 0 && l[n-1] == '\r' {
+			l = l[:n-1]
+		}
+		if len(l) > d.c.limits.MaxLineBytes {
+			d.b.err = lineLimitError(d.name, line, d.c.limits.MaxLineBytes)
+			break
+		}
+		d.record(l, line, 1, false)
+		line++
+	}
+	return d.b
+}
+
+// record decodes one JSON value: a line, or a document starting at line
+// and byte column col. The decoded strings refer to rec.
+func (d *decoder) record(rec []byte, line, col int64, doc bool) {
+	start := 0
+	for start < len(rec) && isSpace(rec[start]) {
+		start++
+	}
+	if start == len(rec) {
+		return // blank line
+	}
+	if !doc && bytes.Count(rec, []byte{'{'})+bytes.Count(rec, []byte{'['}) > d.c.limits.MaxDepth {
+		// (Nesting is at most the number of brackets.)
+		if _, deep := scanJSON(rec[start:], d.c.limits.MaxDepth); deep >= 0 {
+			d.b.err = depthError(d.name, rec, line, col, start+deep, d.c.limits.MaxDepth)
+			return
+		}
+	}
+	var err error
+	if rec[start] == '[' {
+		var reqs []jsonRequest
+		if err = unmarshal(rec, &reqs); err == nil {
+			err = d.requests(reqs, line)
+		}
+	} else {
+		d.req.reset()
+		if err = unmarshal(rec, &d.req); err == nil {
+			err = d.requests([]jsonRequest{d.req}, line)
+		}
+	}
+	if err != nil {
+		// The decoder may have left data beyond the lengths that reset
+		// clears: start afresh.
+		d.req = jsonRequest{}
+		pe := decodeFailure(d.name, rec, line, col, err)
+		if !d.c.opts.KeepGoing {
+			d.b.err = pe
+			return
+		}
+		kind := WarnMalformedLine
+		if doc {
+			kind = WarnMalformedDocument
+		}
+		d.b.warnings = append(d.b.warnings, Warning{Kind: kind, File: d.name, Line: pe.Line,
+			Message: pe.Err.Error() + " (skipped)"})
+	}
+}
+
+// unmarshal decodes rec into v; decoded strings refer to rec. A panic of
+// the JSON decoder (a bug in it, which no input may turn into a crash) is
+// returned as an error.
+func unmarshal(rec []byte, v any) (err error) {
+	defer func() {
+		if p := recover(); p != nil {
+			err = fmt.Errorf("JSON decoder failure: %v", p)
+		}
+	}()
+	return json.UnmarshalNoEscape(rec, v, json.DecodeNoCopyString())
+}
+
+// requests converts the spans of decoded requests and adds them to the
+// batch, or returns the reason why the record is malformed. A record is
+// taken whole or not at all.
+func (d *decoder) requests(reqs []jsonRequest, line int64) error {
+	mark := len(d.b.spans)
+	markWarn := len(d.b.warnings)
+	for i := range reqs {
+		for j := range reqs[i].ResourceSpans {
+			rs := &reqs[i].ResourceSpans[j]
+			service := resourceService(rs.Resource.Attributes)
+			for _, scopes := range [2][]jsonScopeSpans{rs.ScopeSpans, rs.InstrumentationLibrarySpans} {
+				for k := range scopes {
+					for m := range scopes[k].Spans {
+						if err := d.span(&scopes[k].Spans[m], service, line); err != nil {
+							d.b.spans = d.b.spans[:mark]
+							d.b.warnings = d.b.warnings[:markWarn]
+							return err
+						}
+						if d.b.err != nil {
+							return nil
+						}
+					}
+				}
+			}
+		}
+	}
+	return nil
+}
+
+// decodeFailure turns a decoding error into a ParseError with the line,
+// column and an excerpt of where it happened.
+func decodeFailure(name string, rec []byte, line, col int64, err error) *ParseError {
+	at := -1
+	msg := "malformed JSON: " + err.Error()
+	var se *json.SyntaxError
+	var te *json.UnmarshalTypeError
+	var ve *valueError
+	switch {
+	case errors.As(err, &se):
+		at = int(se.Offset) - 1
+		msg = "malformed JSON: " + se.Error()
+	case errors.As(err, &te):
+		field := te.Field
+		if field == "" {
+			field = "top level"
+		}
+		msg = fmt.Sprintf("not OTLP/JSON: %s: unexpected JSON %s", field, te.Value)
+		if te.Type == reflect.TypeFor[json.Number]() {
+			msg = "not OTLP/JSON: invalid integer " + strings.TrimPrefix(te.Value, "string ")
+		}
+		switch _, quoted, _ := strings.Cut(te.Value, " "); {
+		case te.Offset > 0:
+			at = valueStart(rec, int(te.Offset))
+		case strings.HasPrefix(quoted, `"`):
+			// No offset: point at the first use of the value.
+			at = bytes.Index(rec, []byte(quoted))
+		case te.Field != "":
+			// Or at the first use of the field's key.
+			at = bytes.Index(rec, []byte(`"`+te.Field[strings.LastIndexByte(te.Field, '.')+1:]+`"`))
+		}
+	case errors.As(err, &ve):
+		at = bytes.Index(rec, ve.raw)
+		msg = "not OTLP/JSON: " + ve.Error()
+	}
+	pe := &ParseError{File: name, Line: clampLine(line), Err: &decodeError{msg: msg, err: err}}
+	if at >= 0 {
+		l, c := position(rec, line, col, at)
+		pe.Line, pe.Offset = clampLine(l), c
+		pe.Snippet = snippet(rec, at)
+	} else {
+		pe.Snippet = snippet(rec, 0)
+	}
+	return pe
+}
+
+// valueStart returns the index of the first byte of the JSON value that
+// ends at rec[end-1] (for an object or array: that starts there).
+func valueStart(rec []byte, end int) int {
+	end = min(end, len(rec))
+	if end <= 0 {
+		return 0
+	}
+	i := end - 1
+	switch rec[i] {
+	case '{', '[':
+		return i
+	case '"':
+		for j := i - 1; j >= 0; j-- {
+			if rec[j] != '"' {
+				continue
+			}
+			bs := 0
+			for k := j - 1; k >= 0 && rec[k] == '\\'; k-- {
+				bs++
+			}
+			if bs%2 == 0 {
+				return j
+			}
+		}
+		return i
+	}
+	for i > 0 && isLiteralByte(rec[i-1]) {
+		i--
+	}
+	return i
+}
+
+func isLiteralByte(c byte) bool {
+	return '0' <= c && c <= '9' || 'a' <= c && c <= 'z' || 'A' <= c && c <= 'Z' || c == '-' || c == '+' || c == '.'
+}
+
+// decodeError is a decoding error with a message fit for users.
+type decodeError struct {
+	msg string
+	err error
+}
+
+// Error returns the message for users.
+func (e *decodeError) Error() string { return e.msg }
+
+// Unwrap returns the decoder's own error.
+func (e *decodeError) Unwrap() error { return e.err }
+
+// resourceService returns the resource's service.name, or "".
+func resourceService(attrs []jsonKeyValue) string {
+	for i := range attrs {
+		if attrs[i].Key == "service.name" {
+			return attrs[i].Value.text()
+		}
+	}
+	return ""
+}
+
+// nanos converts a timestamp: ns since the Unix epoch, 0 when absent.
+func nanos(n json.Number) (int64, error) {
+	if n == "" {
+		return 0, nil
+	}
+	if len(n) <= 18 {
+		// Fast path: up to 18 digits cannot overflow.
+		var v int64
+		i := 0
+		for ; i < len(n) && '0' <= n[i] && n[i] <= '9'; i++ {
+			v = v*10 + int64(n[i]-'0')
+		}
+		if i == len(n) {
+			return v, nil
+		}
+	}
+	v, ok := parseInt(string(n))
+	if !ok || v < 0 {
+		return 0, &valueError{what: "invalid timestamp", raw: []byte(n)}
+	}
+	return v, nil
+}
+
+// span converts one decoded span and adds it to the batch. It returns an
+// error when the span is malformed (the record is then dropped), and sets
+// d.b.err when Strict forbids skipping a span with invalid IDs.
+func (d *decoder) span(sp *jsonSpan, service string, line int64) error {
+	start, err := nanos(sp.Start)
+	if err != nil {
+		return err
+	}
+	end, err := nanos(sp.End)
+	if err != nil {
+		return err
+	}
+	var trace, id, parent [16]byte
+	tn, sn, pn := parseID(&trace, sp.TraceID), parseID(&id, sp.SpanID), parseID(&parent, sp.ParentSpanID)
+	var problem string
+	switch {
+	case tn != 16 || trace == [16]byte{}:
+		problem = "trace ID " + describeID(sp.TraceID, tn)
+	case sn != 8 || id == [16]byte{}:
+		problem = "span ID " + describeID(sp.SpanID, sn)
+	case pn != 0 && pn != 8:
+		problem = "parent span ID " + describeID(sp.ParentSpanID, pn)
+	}
+	if problem != "" {
+		msg := fmt.Sprintf("span %q skipped: invalid %s", truncate(sp.Name, 60), problem)
+		if d.c.opts.Strict {
+			d.b.err = &ParseError{File: d.name, Line: clampLine(line), Err: fmt.Errorf("%w: %s: %s", ErrSpanRepair, WarnInvalidID, msg)}
+			return nil
+		}
+		d.b.warnings = append(d.b.warnings, Warning{Kind: WarnInvalidID, File: d.name, Line: clampLine(line), Message: msg})
+		return nil
+	}
+
+	d.attrs = attrSet{}
+	for i := range sp.Attributes {
+		if k := attrIndex(sp.Attributes[i].Key); k >= 0 && d.attrs[k] == nil {
+			d.attrs[k] = &sp.Attributes[i].Value
+		}
+	}
+	frame, call, route := spanDetails(SpanKind(sp.Kind), sp.Name, service, &d.attrs, &d.memo)
+
+	rec := spanRec{
+		traceHi: binary.BigEndian.Uint64(trace[:8]), traceLo: binary.BigEndian.Uint64(trace[8:]),
+		id: binary.BigEndian.Uint64(id[:8]), start: start, end: end,
+		line: line, call: -1, route: -1,
+	}
+	if pn == 8 {
+		rec.parent = binary.BigEndian.Uint64(parent[:8])
+	}
+	fi, ok := d.frameIx[frame]
+	if !ok {
+		fi = int32(len(d.b.frames))
+		d.b.frames = append(d.b.frames, frame)
+		d.frameIx[frame] = fi
+	}
+	rec.frame = fi
+	if call != (Call{}) {
+		ci, ok := d.callIx[call]
+		if !ok {
+			ci = int32(len(d.b.calls))
+			d.b.calls = append(d.b.calls, call)
+			d.callIx[call] = ci
+		}
+		rec.call = ci
+	}
+	if route != "" {
+		ri, ok := d.strIx[route]
+		if !ok {
+			ri = int32(len(d.b.strs))
+			d.b.strs = append(d.b.strs, route)
+			d.strIx[route] = ri
+		}
+		rec.route = ri
+	}
+	d.b.spans = append(d.b.spans, rec)
+	return nil
+}
+
+// describeID says what is wrong with an ID that parseID returned n for.
+func describeID(s string, n int) string {
+	switch {
+	case n < 0:
+		return fmt.Sprintf("%q (neither hex nor base64 of the right length)", truncate(s, 40))
+	case n == 0:
+		return "(missing)"
+	case n == 8 || n == 16:
+		return fmt.Sprintf("%q (%d bytes, all zero or of the wrong length)", truncate(s, 40), n)
+	}
+	return fmt.Sprintf("%q (%d bytes)", truncate(s, 40), n)
+}
+
+// text returns the value as text: strings as they are, numbers and
+// booleans formatted, and "" for bytes, arrays, key-value lists, the
+// empty value and invalid integers.
+func (v *jsonAnyValue) text() string {
+	switch {
+	case v.IntValue != "":
+		if n, ok := parseInt(string(v.IntValue)); ok {
+			return strconv.FormatInt(n, 10)
+		}
+		return ""
+	case v.DoubleValue.set:
+		return strconv.FormatFloat(v.DoubleValue.v, 'g', -1, 64)
+	case v.BoolValue != nil:
+		return strconv.FormatBool(*v.BoolValue)
+	}
+	return v.StringValue
+}
+
+// integer returns the value as an integer: an int, an integral double, or
+// a string holding a decimal integer.
+func (v *jsonAnyValue) integer() (int64, bool) {
+	switch {
+	case v.IntValue != "":
+		return parseInt(string(v.IntValue))
+	case v.DoubleValue.set:
+		f := v.DoubleValue.v
+		if f == math.Trunc(f) && f >= math.MinInt64 && f < math.MaxInt64 {
+			return int64(f), true
+		}
+		return 0, false
+	case v.StringValue != "":
+		n, err := strconv.ParseInt(strings.TrimSpace(v.StringValue), 10, 64)
+		return n, err == nil
+	}
+	return 0, false
+}

@@ -1,0 +1,240 @@
+package traces
+
+import (
+	"bufio"
+	"bytes"
+	"compress/gzip"
+	"crypto/sha256"
+	"encoding/hex"
+	"errors"
+	"fmt"
+	"io"
+	"strings"
+
+	"github.com/google/pprof/profile"
+)
+
+// Loader reads any number of inputs, sniffing each one's format, and
+// merges them into sources: all profiles into one Profile source, all
+// span files into one Spans source. Loader is not safe for concurrent use.
+type Loader struct {
+	opts     Options
+	profiles *profileAppender
+	spans    *SpanCollector
+	inputs   []Input
+	warnings Warnings
+	kinds    map[Kind]string // first input name of each kind
+}
+
+// NewLoader returns a Loader using opts.
+func NewLoader(opts Options) *Loader {
+	opts.Limits = opts.Limits.withDefaults()
+	return &Loader{opts: opts, kinds: map[Kind]string{}}
+}
+
+var gzipMagic = []byte{0x1f, 0x8b}
+
+// Add reads one input. name labels it in errors and in the report. With
+// Options.KeepGoing, an unreadable input is recorded as a warning and Add
+// returns nil.
+func (l *Loader) Add(name string, r io.Reader) error {
+	err := l.add(name, r)
+	if err != nil && l.opts.KeepGoing && !errors.Is(err, ErrMismatch) {
+		l.warnings.Add(Warning{Kind: "skipped-input", File: name, Message: err.Error()})
+		return nil
+	}
+	return err
+}
+
+func (l *Loader) add(name string, r io.Reader) error {
+	hash := sha256.New()
+	counted := &countingReader{r: io.TeeReader(r, hash)}
+	br := bufio.NewReaderSize(counted, 64<<10)
+	head, err := br.Peek(2)
+	if err != nil && !errors.Is(err, io.EOF) {
+		return &ParseError{File: name, Err: err}
+	}
+	var body io.Reader = br
+	if bytes.Equal(head, gzipMagic) {
+		zr, err := gzip.NewReader(br)
+		if err != nil {
+			return &ParseError{File: name, Err: fmt.Errorf("decompressing: %w", err)}
+		}
+		body = &ratioLimitReader{r: zr, compressed: counted, limits: l.opts.Limits, name: name}
+	}
+	body = &sizeLimitReader{r: body, max: l.opts.Limits.MaxBytes, name: name}
+	bb := bufio.NewReaderSize(body, 64<<10)
+	prefix, err := bb.Peek(512)
+	if err != nil && !errors.Is(err, io.EOF) && !errors.Is(err, bufio.ErrBufferFull) {
+		return readError(name, err)
+	}
+	if len(prefix) == 0 {
+		return &ParseError{File: name, Err: fmt.Errorf("%w: the input is empty", ErrFormat)}
+	}
+
+	in := Input{Name: name}
+	switch {
+	case LooksLikeOTLPJSON(prefix):
+		in.Format = "otlp-json"
+		if err := l.checkKind(Spans, name); err != nil {
+			return err
+		}
+		if l.spans == nil {
+			l.spans = NewSpanCollector(l.opts)
+		}
+		if err := l.spans.Add(name, bb); err != nil {
+			return err
+		}
+	default:
+		in.Format = "pprof"
+		data, err := io.ReadAll(bb)
+		if err != nil {
+			return readError(name, err)
+		}
+		p, err := profile.ParseData(data)
+		if err != nil {
+			return &ParseError{File: name, Err: fmt.Errorf("%w: neither OTLP/JSON nor a pprof profile (%s)",
+				ErrFormat, strings.TrimPrefix(err.Error(), "parsing profile: "))}
+		}
+		if err := l.checkKind(Profile, name); err != nil {
+			return err
+		}
+		if l.profiles == nil {
+			l.profiles = newProfileAppender(l.opts.Limits)
+		}
+		if err := l.profiles.add(name, p); err != nil {
+			return err
+		}
+	}
+	// Drain what the decoder did not read so that the digest covers the file.
+	if _, err := io.Copy(io.Discard, counted); err != nil {
+		return readError(name, err)
+	}
+	in.Bytes = counted.n
+	in.SHA256 = hex.EncodeToString(hash.Sum(nil))
+	l.inputs = append(l.inputs, in)
+	return nil
+}
+
+func (l *Loader) checkKind(k Kind, name string) error {
+	for other, first := range l.kinds {
+		if other != k {
+			return fmt.Errorf("%s is a %s input but %s is a %s input; culprit analyses profiles and traces in separate runs: %w",
+				name, k, first, other, ErrMismatch)
+		}
+	}
+	if _, ok := l.kinds[k]; !ok {
+		l.kinds[k] = name
+	}
+	return nil
+}
+
+// Source returns the merged source of everything added. It fails when
+// nothing readable was added.
+func (l *Loader) Source() (*Source, error) {
+	var src *Source
+	switch {
+	case l.profiles != nil && l.profiles.src != nil:
+		src = l.profiles.src
+	case l.spans != nil:
+		s, err := l.spans.Source()
+		if err != nil {
+			return nil, err
+		}
+		src = s
+	default:
+		if l.warnings.Len() > 0 {
+			return nil, fmt.Errorf("no readable input (%s)", strings.Join(l.warnings.Strings(), "; "))
+		}
+		return nil, errors.New("no input")
+	}
+	src.Inputs = l.inputs
+	src.Warnings.Merge(l.warnings)
+	if err := src.Validate(); err != nil {
+		return nil, err
+	}
+	return src, nil
+}
+
+// Validate checks the Source invariants documented on the type.
+func (s *Source) Validate() error {
+	if len(s.ValueTypes) == 0 {
+		return errors.New("source has no value types")
+	}
+	if s.DefaultValue < 0 || s.DefaultValue >= len(s.ValueTypes) {
+		return fmt.Errorf("default value index %d out of range", s.DefaultValue)
+	}
+	for i := range s.Paths {
+		p := &s.Paths[i]
+		if len(p.Values) != len(s.ValueTypes) {
+			return fmt.Errorf("path %d has %d values for %d value types", i, len(p.Values), len(s.ValueTypes))
+		}
+		if len(p.Frames) == 0 {
+			return fmt.Errorf("path %d has no frames", i)
+		}
+		for _, f := range p.Frames {
+			if f <= 0 || int(f) >= len(s.Frames) {
+				return fmt.Errorf("path %d has frame %d out of range", i, f)
+			}
+		}
+		if p.Call < 0 || int(p.Call) >= len(s.Calls) {
+			return fmt.Errorf("path %d has call %d out of range", i, p.Call)
+		}
+		if p.Request < 0 || int(p.Request) >= len(s.Requests) {
+			return fmt.Errorf("path %d has request %d out of range", i, p.Request)
+		}
+	}
+	return nil
+}
+
+func readError(name string, err error) error {
+	var pe *ParseError
+	if errors.As(err, &pe) {
+		return err
+	}
+	if errors.Is(err, ErrLimit) {
+		return fmt.Errorf("%s: %w", name, err)
+	}
+	if errors.Is(err, io.ErrUnexpectedEOF) {
+		return &ParseError{File: name, Err: errors.New("truncated input (unexpected end of compressed data)")}
+	}
+	return &ParseError{File: name, Err: err}
+}
+
+// sizeLimitReader fails once more than max bytes have been read.
+type sizeLimitReader struct {
+	r    io.Reader
+	n    int64
+	max  int64
+	name string
+}
+
+func (s *sizeLimitReader) Read(p []byte) (int, error) {
+	n, err := s.r.Read(p)
+	s.n += int64(n)
+	if s.n > s.max {
+		return n, fmt.Errorf("decompressed size exceeds %d bytes (raise it with --max-bytes): %w", s.max, ErrLimit)
+	}
+	return n, err
+}
+
+// ratioLimitReader fails when decompressed output outgrows the compressed
+// input by more than the configured ratio (a gzip bomb). Small inputs get
+// a 1 MiB allowance so that tiny, very compressible files still read.
+type ratioLimitReader struct {
+	r          io.Reader
+	out        int64
+	compressed *countingReader
+	limits     Limits
+	name       string
+}
+
+func (z *ratioLimitReader) Read(p []byte) (int, error) {
+	n, err := z.r.Read(p)
+	z.out += int64(n)
+	if z.out > 1<<20 && z.out > z.limits.MaxRatio*z.compressed.n {
+		return n, fmt.Errorf("decompresses to more than %d times its compressed size (a gzip bomb? raise it with --max-ratio): %w",
+			z.limits.MaxRatio, ErrLimit)
+	}
+	return n, err
+}

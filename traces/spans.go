@@ -1,0 +1,539 @@
+package traces
+
+import (
+	"cmp"
+	"encoding/binary"
+	"encoding/hex"
+	"fmt"
+	"math/bits"
+	"slices"
+)
+
+// Warning kinds recorded while assembling traces. With Options.Strict each
+// is an error wrapping ErrSpanRepair instead.
+const (
+	// WarnOrphanSpan is a span whose parent is in none of the inputs; it
+	// is treated as the root of a partial trace.
+	WarnOrphanSpan = "orphan-span"
+	// WarnDuplicateSpanID is a span whose trace and span IDs were already
+	// seen; the first one read is kept and the later ones skipped.
+	WarnDuplicateSpanID = "duplicate-span-id"
+	// WarnParentCycle is a span found on a cycle of parent links; it
+	// becomes a root, which breaks the cycle.
+	WarnParentCycle = "parent-cycle"
+	// WarnNegativeDuration is a span that ends before it starts; its
+	// duration is taken as 0.
+	WarnNegativeDuration = "negative-duration"
+	// WarnMissingTimestamp is a span without a start or end time; it is
+	// given the one it has (or its parent's start), and duration 0.
+	WarnMissingTimestamp = "missing-timestamp"
+	// WarnClockSkew is a span that starts before its parent or ends after
+	// it by more than max(1 ms, 1% of the parent's duration); it is moved,
+	// with its descendants, into its parent (and cut to the parent's
+	// duration if it is longer).
+	WarnClockSkew = "clock-skew"
+)
+
+// skewMinNanos is the smallest tolerance for clock skew: 1 ms (common
+// practice for clocks synchronised by NTP on one network).
+const skewMinNanos = 1_000_000
+
+// spanRec is a decoded span as the collector keeps it until assembly:
+// fixed-size IDs, times in ns since the Unix epoch, and indices into the
+// collector's interned frames, calls and strings.
+type spanRec struct {
+	traceHi, traceLo uint64 // trace ID, big-endian halves
+	id               uint64 // span ID, big-endian
+	parent           uint64 // parent span ID; 0 for a root
+	start, end       int64
+	line             int64 // line of the input the span was read from
+	frame            int32
+	call             int32 // 0: none (in a batch: -1)
+	route            int32 // http.route; 0: none (in a batch: -1)
+	input            int32 // index into SpanCollector.inputs
+}
+
+// spanStore holds spans in fixed-size chunks, so that growing it never
+// copies nor over-allocates more than one chunk.
+type spanStore struct {
+	chunks [][]spanRec
+	n      int
+}
+
+const spanChunk = 4096
+
+func (s *spanStore) len() int { return s.n }
+
+func (s *spanStore) push(r spanRec) {
+	if s.n == len(s.chunks)*spanChunk {
+		s.chunks = append(s.chunks, make([]spanRec, 0, spanChunk))
+	}
+	c := &s.chunks[s.n/spanChunk]
+	*c = append(*c, r)
+	s.n++
+}
+
+func (s *spanStore) at(i int) *spanRec { return &s.chunks[i/spanChunk][i%spanChunk] }
+
+// truncate drops every span from index n on.
+func (s *spanStore) truncate(n int) {
+	if n >= s.n {
+		return
+	}
+	k := (n + spanChunk - 1) / spanChunk
+	clear(s.chunks[k:])
+	s.chunks = s.chunks[:k]
+	if k > 0 && n%spanChunk != 0 {
+		s.chunks[k-1] = s.chunks[k-1][:n%spanChunk]
+	}
+	s.n = n
+}
+
+// sortedKeys returns the keys of the stored spans ordered by trace ID,
+// span ID and input order (so that of spans with the same IDs the first
+// read comes first). It distributes the keys into buckets by the top bits
+// of the trace ID (random in practice), then sorts each bucket.
+func sortedKeys(store *spanStore) []spanKey {
+	n := store.len()
+	b := min(max(bits.Len(uint(n)), 1), 20)
+	shift := 64 - b
+	start := make([]int32, 1<<b+1)
+	for i := range n {
+		start[store.at(i).traceHi>>shift+1]++
+	}
+	for i := 1; i < len(start); i++ {
+		start[i] += start[i-1]
+	}
+	keys := make([]spanKey, n)
+	next := slices.Clone(start[:len(start)-1])
+	for i := range n {
+		r := store.at(i)
+		bucket := r.traceHi >> shift
+		keys[next[bucket]] = spanKey{r.traceHi, r.traceLo, r.id, int32(i)}
+		next[bucket]++
+	}
+	for i := 0; i+1 < len(start); i++ {
+		if start[i+1]-start[i] > 1 {
+			slices.SortFunc(keys[start[i]:start[i+1]], compareKeys)
+		}
+	}
+	return keys
+}
+
+func compareKeys(a, b spanKey) int {
+	switch {
+	case a.traceHi != b.traceHi:
+		return cmp.Compare(a.traceHi, b.traceHi)
+	case a.traceLo != b.traceLo:
+		return cmp.Compare(a.traceLo, b.traceLo)
+	case a.id != b.id:
+		return cmp.Compare(a.id, b.id)
+	}
+	return cmp.Compare(a.seq, b.seq)
+}
+
+// spanKey orders spans for assembly.
+type spanKey struct {
+	traceHi, traceLo, id uint64
+	seq                  int32 // index in the store: input order
+}
+
+// node is a span during assembly.
+type node struct {
+	rec        spanRec
+	parent     int32 // index in the trace's nodes, -1 for a root
+	start, end int64 // repaired times
+	shift      int64 // how far the span and its descendants were moved
+	framesAt   int32 // its path's frames in the arena
+	framesLen  int32
+	entryRoute int32 // route of the first span of its path
+	keep       bool  // emitted as a path (its service is selected)
+	state      uint8 // cycle search: 0 new, 1 on the current walk, 2 done
+}
+
+// assembler holds the state of one Source call.
+type assembler struct {
+	c        *SpanCollector
+	src      *Source
+	ws       Warnings
+	arena    []FrameID // collector frame IDs until the paths are built
+	frameMap []FrameID // collector frame ID → source frame ID (0: not yet)
+	callMap  []CallID
+	labels   map[int32]*LabelSet
+	minStart int64 // of the paths' spans that have times
+	maxEnd   int64
+	timed    bool // whether minStart and maxEnd are set
+
+	// Scratch space reused for every trace.
+	walk, count, children, topo, emit []int32
+
+	// Output storage, carved into the paths' slices.
+	values []int64
+	frames []FrameID
+}
+
+// outputChunk is how many frame IDs of path storage are allocated at once.
+const outputChunk = 1 << 14
+
+// grow returns s with length n, reusing its array when it is large enough.
+func grow(s []int32, n int) []int32 {
+	if cap(s) < n {
+		return make([]int32, n, max(n, 2*cap(s)))
+	}
+	s = s[:n]
+	clear(s)
+	return s
+}
+
+// Source assembles the spans of every input added so far into traces and
+// returns them as a Source of Kind Spans: one path per span, from the
+// outermost ancestor in the same service down to the span, with values
+// [duration in ns, 1 call]. Paths are ordered by trace ID, start time and
+// span ID, so the result does not depend on input order or Workers
+// (except which of several spans with the same ID is kept: the first read).
+//
+// Broken trace structure is repaired and recorded in the Source's
+// warnings, or with Options.Strict returned as a *ParseError (wrapping
+// ErrSpanRepair) naming the input and line of the span concerned. A path
+// deeper than Limits.MaxDepth is an error wrapping ErrLimit. Source does
+// not change the collector and may be called again after more Adds.
+func (c *SpanCollector) Source() (*Source, error) {
+	src := NewSource(Spans, []ValueType{{Type: "duration", Unit: "nanoseconds"}, {Type: "calls", Unit: "count"}})
+	src.DefaultValue = 0
+	src.Inputs = append([]Input(nil), c.inputs...)
+	src.Warnings.Merge(c.warnings)
+	src.Paths = make([]Path, 0, c.spans.len())
+
+	keys := sortedKeys(&c.spans)
+	n := len(keys)
+	as := &assembler{c: c, src: src, frameMap: make([]FrameID, len(c.frames)),
+		callMap: make([]CallID, len(c.calls)), labels: map[int32]*LabelSet{}}
+	var nodes []node
+	for i := 0; i < n; {
+		j := i + 1
+		for j < n && keys[j].traceHi == keys[i].traceHi && keys[j].traceLo == keys[i].traceLo {
+			j++
+		}
+		nodes = nodes[:0]
+		for k := i; k < j; k++ {
+			r := c.spans.at(int(keys[k].seq))
+			if len(nodes) > 0 && nodes[len(nodes)-1].rec.id == r.id {
+				kept := &nodes[len(nodes)-1].rec
+				if err := as.repair(r, WarnDuplicateSpanID, fmt.Sprintf("span %s of trace %s also read at %s:%d; the first one is kept",
+					spanIDString(r.id), traceIDString(r), c.inputs[kept.input].Name, kept.line)); err != nil {
+					return nil, err
+				}
+				continue
+			}
+			nodes = append(nodes, node{rec: *r, keep: c.selected(r)})
+		}
+		if err := as.trace(nodes); err != nil {
+			return nil, err
+		}
+		i = j
+	}
+	if as.timed {
+		src.DurationNanos = max(0, as.maxEnd-as.minStart)
+	}
+	src.Warnings.Merge(as.ws)
+	return src, nil
+}
+
+// selected reports whether r's service is the one Options.Service keeps.
+func (c *SpanCollector) selected(r *spanRec) bool {
+	return c.opts.Service == "" || c.frames[r.frame].Service == c.opts.Service
+}
+
+// repair records a repair of r's data as a warning, or returns it as an
+// error in strict mode. Repairs of spans whose service is not selected
+// are neither recorded nor errors.
+func (as *assembler) repair(r *spanRec, kind, msg string) error {
+	if !as.c.selected(r) {
+		return nil
+	}
+	name := as.c.inputs[r.input].Name
+	if as.c.opts.Strict {
+		return &ParseError{File: name, Line: clampLine(r.line), Err: fmt.Errorf("%w: %s: %s", ErrSpanRepair, kind, msg)}
+	}
+	as.ws.Add(Warning{Kind: kind, File: name, Line: clampLine(r.line), Message: msg})
+	return nil
+}
+
+// trace assembles the spans of one trace, sorted by span ID without
+// duplicates, and appends their paths to the source.
+func (as *assembler) trace(nodes []node) error {
+	// Link parents.
+	for i := range nodes {
+		nd := &nodes[i]
+		nd.parent = -1
+		p := nd.rec.parent
+		if p == 0 {
+			continue
+		}
+		k := findSpan(nodes, p)
+		if k < 0 {
+			if err := as.repair(&nd.rec, WarnOrphanSpan, fmt.Sprintf("parent %s of span %s (trace %s) is missing; the span is taken as a root",
+				spanIDString(p), spanIDString(nd.rec.id), traceIDString(&nd.rec))); err != nil {
+				return err
+			}
+			continue
+		}
+		nd.parent = int32(k)
+	}
+
+	// Break cycles of parent links. The span of a cycle that starts first
+	// (then the lowest span ID) becomes a root.
+	for i := range nodes {
+		walk := as.walk[:0]
+		k := int32(i)
+		for k >= 0 && nodes[k].state == 0 {
+			nodes[k].state = 1
+			walk = append(walk, k)
+			k = nodes[k].parent
+		}
+		if k >= 0 && nodes[k].state == 1 {
+			cycle := walk[slices.Index(walk, k):]
+			best := cycle[0]
+			for _, m := range cycle[1:] {
+				a, b := &nodes[m].rec, &nodes[best].rec
+				if a.start < b.start || a.start == b.start && a.id < b.id {
+					best = m
+				}
+			}
+			r := &nodes[best].rec
+			if err := as.repair(r, WarnParentCycle, fmt.Sprintf("span %s (trace %s) is on a cycle of %d parent links; it is taken as a root",
+				spanIDString(r.id), traceIDString(r), len(cycle))); err != nil {
+				return err
+			}
+			nodes[best].parent = -1
+		}
+		for _, m := range walk {
+			nodes[m].state = 2
+		}
+		as.walk = walk
+	}
+
+	// Order the spans parents first: children lists in CSR form, then a
+	// breadth-first walk from the roots.
+	count := grow(as.count, len(nodes)+1)
+	for i := range nodes {
+		if p := nodes[i].parent; p >= 0 {
+			count[p+1]++
+		}
+	}
+	for i := 1; i < len(count); i++ {
+		count[i] += count[i-1]
+	}
+	children := grow(as.children, int(count[len(nodes)]))
+	topo := as.topo[:0]
+	for i := range nodes {
+		if p := nodes[i].parent; p >= 0 {
+			children[count[p]] = int32(i)
+			count[p]++ // count[p] now ends p's children
+		} else {
+			topo = append(topo, int32(i))
+		}
+	}
+	for q := 0; q < len(topo); q++ {
+		k := topo[q]
+		end := count[k]
+		begin := int32(0)
+		if k > 0 {
+			begin = count[k-1]
+		}
+		topo = append(topo, children[begin:end]...)
+	}
+	as.count, as.children, as.topo = count, children, topo
+
+	emit := as.emit[:0]
+	for _, k := range topo {
+		if err := as.place(nodes, k); err != nil {
+			return err
+		}
+		if nodes[k].keep {
+			emit = append(emit, k)
+		}
+	}
+	as.emit = emit
+	if len(emit) == 0 {
+		as.arena = as.arena[:0]
+		return nil
+	}
+	slices.SortFunc(emit, func(x, y int32) int {
+		if r := cmp.Compare(nodes[x].start, nodes[y].start); r != 0 {
+			return r
+		}
+		return cmp.Compare(nodes[x].rec.id, nodes[y].rec.id)
+	})
+
+	req := as.src.InternRequest(traceIDString(&nodes[emit[0]].rec))
+	for _, k := range emit {
+		nd := &nodes[k]
+		if len(as.values)+2 > cap(as.values) {
+			as.values = make([]int64, 0, 2*outputChunk)
+		}
+		v := as.values[len(as.values) : len(as.values)+2 : len(as.values)+2]
+		as.values = as.values[:len(as.values)+2]
+		v[0], v[1] = nd.end-nd.start, 1
+
+		n := int(nd.framesLen)
+		if len(as.frames)+n > cap(as.frames) {
+			as.frames = make([]FrameID, 0, max(outputChunk, n))
+		}
+		at := len(as.frames)
+		for _, cf := range as.arena[nd.framesAt : nd.framesAt+nd.framesLen] {
+			sf := as.frameMap[cf]
+			if sf == 0 {
+				sf = as.src.InternFrame(as.c.frames[cf])
+				as.frameMap[cf] = sf
+			}
+			as.frames = append(as.frames, sf)
+		}
+		p := Path{Frames: as.frames[at:len(as.frames):len(as.frames)], Values: v, Request: req}
+		if cid := nd.rec.call; cid != 0 {
+			sc := as.callMap[cid]
+			if sc == 0 {
+				sc = as.src.InternCall(as.c.calls[cid])
+				as.callMap[cid] = sc
+			}
+			p.Call = sc
+		}
+		if r := nd.entryRoute; r != 0 {
+			set, ok := as.labels[r]
+			if !ok {
+				set = as.src.InternLabels([]Label{{Key: "http.route", Value: as.c.strs[r]}})
+				as.labels[r] = set
+			}
+			p.Labels = set
+		}
+		as.src.Paths = append(as.src.Paths, p)
+		if nd.start != 0 || nd.end != 0 {
+			if !as.timed || nd.start < as.minStart {
+				as.minStart = nd.start
+			}
+			as.maxEnd = max(as.maxEnd, nd.end)
+			as.timed = true
+		}
+	}
+	as.arena = as.arena[:0]
+	return nil
+}
+
+// findSpan returns the index of the span with ID id in nodes (sorted by
+// span ID), or -1.
+func findSpan(nodes []node, id uint64) int {
+	lo, hi := 0, len(nodes)
+	for lo < hi {
+		m := int(uint(lo+hi) >> 1)
+		if nodes[m].rec.id < id {
+			lo = m + 1
+		} else {
+			hi = m
+		}
+	}
+	if lo < len(nodes) && nodes[lo].rec.id == id {
+		return lo
+	}
+	return -1
+}
+
+// place repairs the times of span k, whose parent is already placed, and
+// lays out its path's frames in the arena.
+func (as *assembler) place(nodes []node, k int32) error {
+	nd := &nodes[k]
+	r := &nd.rec
+	var par *node
+	if nd.parent >= 0 {
+		par = &nodes[nd.parent]
+		nd.shift = par.shift
+	}
+	start, end := r.start, r.end
+	switch {
+	case start == 0 && end == 0:
+		if par != nil {
+			start, end = par.start-nd.shift, par.start-nd.shift
+		}
+		if err := as.repair(r, WarnMissingTimestamp, fmt.Sprintf("span %s (trace %s) has no start or end time; its duration is taken as 0",
+			spanIDString(r.id), traceIDString(r))); err != nil {
+			return err
+		}
+	case start == 0 || end == 0:
+		start = max(start, end)
+		end = start
+		if err := as.repair(r, WarnMissingTimestamp, fmt.Sprintf("span %s (trace %s) lacks its start or end time; its duration is taken as 0",
+			spanIDString(r.id), traceIDString(r))); err != nil {
+			return err
+		}
+	case end < start:
+		if err := as.repair(r, WarnNegativeDuration, fmt.Sprintf("span %s (trace %s) ends %d ns before it starts; its duration is taken as 0",
+			spanIDString(r.id), traceIDString(r), start-end)); err != nil {
+			return err
+		}
+		end = start
+	}
+	start += nd.shift
+	end += nd.shift
+	if par != nil && (r.start != 0 || r.end != 0) {
+		ps, pe := par.start, par.end
+		tol := max(skewMinNanos, (pe-ps)/100)
+		// Work started by a PRODUCER span, and CONSUMER spans, may
+		// legitimately end after their parent.
+		async := as.c.frames[par.rec.frame].SpanKind == SpanKindProducer || as.c.frames[r.frame].SpanKind == SpanKindConsumer
+		// (Differences, not sums: times near the int64 limit must not wrap.)
+		early := start < ps && ps-start > tol
+		late := !async && end > pe && end-pe > tol
+		if early || late {
+			where, by := "before", ps-start
+			if !early {
+				where, by = "after", end-pe
+			}
+			if err := as.repair(r, WarnClockSkew, fmt.Sprintf("span %s (trace %s) lies %d ns %s its parent %s; it is moved into the parent",
+				spanIDString(r.id), traceIDString(r), by, where, spanIDString(par.rec.id))); err != nil {
+				return err
+			}
+			var move int64
+			switch {
+			case !async && end-start > pe-ps:
+				end = start + (pe - ps) // longer than its parent: cut
+				move = ps - start
+			case early:
+				move = ps - start
+			default:
+				move = pe - end
+			}
+			start += move
+			end += move
+			nd.shift += move
+		}
+	}
+	nd.start, nd.end = start, end
+
+	// Frames: the parent's path if the parent is in the same service.
+	nd.framesAt = int32(len(as.arena))
+	nd.entryRoute = r.route
+	if par != nil && as.c.frames[par.rec.frame].Service == as.c.frames[r.frame].Service {
+		as.arena = append(as.arena, as.arena[par.framesAt:par.framesAt+par.framesLen]...)
+		nd.entryRoute = par.entryRoute
+	}
+	as.arena = append(as.arena, FrameID(r.frame))
+	nd.framesLen = int32(len(as.arena)) - nd.framesAt
+	if int(nd.framesLen) > as.c.limits.MaxDepth {
+		return &ParseError{File: as.c.inputs[r.input].Name, Line: clampLine(r.line),
+			Err: fmt.Errorf("%w: span %s (trace %s) is nested %d spans deep, more than %d", ErrLimit,
+				spanIDString(r.id), traceIDString(r), nd.framesLen, as.c.limits.MaxDepth)}
+	}
+	return nil
+}
+
+func traceIDString(r *spanRec) string {
+	var b [16]byte
+	binary.BigEndian.PutUint64(b[:8], r.traceHi)
+	binary.BigEndian.PutUint64(b[8:], r.traceLo)
+	return hex.EncodeToString(b[:])
+}
+
+func spanIDString(id uint64) string {
+	var b [8]byte
+	binary.BigEndian.PutUint64(b[:], id)
+	return hex.EncodeToString(b[:])
+}
