@@ -1,0 +1,582 @@
+package attribute
+
+import (
+	"sort"
+	"strconv"
+
+	"github.com/culprithq/culprit/callgraph"
+	"github.com/culprithq/culprit/traces"
+)
+
+// Options control an attribution. The zero value charges exclusively,
+// uses the source's default value and the default label names and
+// finding thresholds.
+type Options struct {
+	// Value names the value type to charge (its type, or type/unit);
+	// "" means the source's default. An unknown name also takes the default:
+	// callers validate names with traces.Source.ValueIndex first.
+	Value string
+	// Inclusive charges every distinct application function above the
+	// boundary instead of only the nearest one.
+	Inclusive bool
+	// EntryLabels are the label keys naming a path's entry point, first
+	// present wins. Nil means DefaultEntryLabels.
+	EntryLabels []string
+	// RequestLabels are the label keys naming a profile sample's request.
+	// Nil means DefaultRequestLabels.
+	RequestLabels []string
+	// ShowLiterals reports raw statements instead of fingerprints.
+	ShowLiterals bool
+	// Thresholds for findings; zero fields take their defaults.
+	Findings FindingOptions
+}
+
+// Default label keys.
+var (
+	DefaultEntryLabels   = []string{"route", "http.route", "endpoint"}
+	DefaultRequestLabels = []string{"request_id", "request", "trace_id"}
+)
+
+// NoAppFramePrefix starts the name of a bucket for boundary cost with no
+// application frame above the boundary.
+const NoAppFramePrefix = "(no application frame) "
+
+// walkState is what the attribution walk knows at each tree node about
+// the path from the root to it. Slices are indexed by tree node.
+type walkState struct {
+	boundary []callgraph.NodeID // first database/network node on the path, 0 if none
+	lastApp  []callgraph.NodeID // nearest application node above the boundary
+	entry    []callgraph.NodeID // deepest entry-point node above the boundary
+	entryApp []callgraph.NodeID // first application node below entry (or from the root)
+	system   []string           // boundary system, refined by more specific drivers below it
+}
+
+func newWalkState(t *callgraph.Tree, c *Classifier) *walkState {
+	n := t.Len()
+	w := &walkState{
+		boundary: make([]callgraph.NodeID, n),
+		lastApp:  make([]callgraph.NodeID, n),
+		entry:    make([]callgraph.NodeID, n),
+		entryApp: make([]callgraph.NodeID, n),
+		system:   make([]string, n),
+	}
+	// A child's ID is always greater than its parent's, so one pass in ID
+	// order sees every parent before its children.
+	for i := 1; i < n; i++ {
+		id := callgraph.NodeID(i)
+		p := t.Parent(id)
+		v := c.Verdict(t.Frame(id))
+		w.boundary[id], w.lastApp[id], w.entry[id], w.entryApp[id], w.system[id] =
+			w.boundary[p], w.lastApp[p], w.entry[p], w.entryApp[p], w.system[p]
+		if w.boundary[p] != 0 {
+			// Below the boundary: only refine a generic system ("sql") with the driver's.
+			if v.Class == Database && isGenericSystem(w.system[p]) && !isGenericSystem(v.System) {
+				w.system[id] = v.System
+			}
+			continue
+		}
+		switch {
+		case v.Class.IsBoundary():
+			w.boundary[id] = id
+			w.system[id] = v.System
+			continue
+		case v.EntryPoint:
+			w.entry[id] = id
+			w.entryApp[id] = 0
+		}
+		if v.Class == Application {
+			w.lastApp[id] = id
+			if w.entryApp[id] == 0 {
+				w.entryApp[id] = id
+			}
+		}
+	}
+	return w
+}
+
+func isGenericSystem(s string) bool { return s == "" || s == "sql" }
+
+type detailKey struct {
+	kind      Kind
+	system    string
+	statement string
+	peer      string
+}
+
+type siteKey struct {
+	file string
+	line int64
+}
+
+// causeAcc accumulates one root cause while paths are charged.
+type causeAcc struct {
+	cause     *Cause
+	details   map[detailKey]*Detail
+	entries   map[string]*EntryShare
+	sites     map[siteKey]int64
+	perReq    map[traces.RequestID]int64 // calls (spans) or samples per request
+	reqCost   map[traces.RequestID]int64 // charged cost per request
+	stmtReq   map[detailKey]map[traces.RequestID]int64
+	recursion int // deepest recursion seen, for recursive-access
+	recCost   int64
+}
+
+// Attribute charges the database and network cost of t's source to root
+// causes, as DESIGN.md ("What attribution means") specifies.
+func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
+	src := t.Source()
+	vi, err := src.ValueIndex(opts.Value)
+	if err != nil {
+		vi = src.DefaultValue
+	}
+	entryLabels := opts.EntryLabels
+	if entryLabels == nil {
+		entryLabels = DefaultEntryLabels
+	}
+	requestLabels := opts.RequestLabels
+	if requestLabels == nil {
+		requestLabels = DefaultRequestLabels
+	}
+	fo := opts.Findings.withDefaults()
+	spans := src.Kind == traces.Spans
+	w := newWalkState(t, c)
+	rec := newRecursionFinder(t, c)
+
+	res := &Result{
+		Inputs:        src.Inputs,
+		Source:        src.Kind.String(),
+		ValueType:     src.ValueTypes[vi],
+		Sampled:       !spans,
+		CPUOnly:       isCPUOnly(src, vi),
+		Inclusive:     opts.Inclusive,
+		DurationNanos: src.DurationNanos,
+		App:           AppInfo{Prefixes: c.rules.App, Detected: c.Detected, RulesFiles: c.rules.Files},
+		Warnings:      src.Warnings.Strings(),
+	}
+	sampleIx := sampleIndex(src, vi)
+	accs := map[string]*causeAcc{}
+	entries := map[string]*EntryTotal{}
+	entryReqs := map[string]map[traces.RequestID]bool{}
+	requests := map[traces.RequestID]bool{}
+	inclusiveKeys := map[callgraph.NodeID][]callgraph.NodeID{}
+	labelReq := map[string]traces.RequestID{}
+	var reqNames []string
+
+	for pi := range src.Paths {
+		p := &src.Paths[pi]
+		leaf := t.Leaf(pi)
+		val := p.Values[vi]
+		samples := int64(1)
+		if sampleIx >= 0 {
+			samples = p.Values[sampleIx]
+		}
+		req := p.Request
+		if req == 0 && !spans {
+			req = requestFromLabels(p.Labels, requestLabels, labelReq, &reqNames)
+		}
+		if req != 0 {
+			requests[req] = true
+		}
+		entryName := entryOf(src, t, w, p, leaf, entryLabels)
+		et := entries[entryName]
+		if et == nil {
+			et = &EntryTotal{Entry: entryName}
+			entries[entryName] = et
+			entryReqs[entryName] = map[traces.RequestID]bool{}
+		}
+		if req != 0 {
+			entryReqs[entryName][req] = true
+		}
+		rootPath := len(p.Frames) == 1
+		if !spans || rootPath {
+			res.Totals.Cost += val
+			res.Totals.Samples += samples
+			if !spans || rootPath {
+				et.Cost += val
+			}
+		}
+		b := w.boundary[leaf]
+		if b == 0 || (spans && b != leaf) {
+			// No boundary (other cost), or a span inside an outbound call.
+			continue
+		}
+		kind := KindDatabase
+		if c.Verdict(t.Frame(b)).Class == Network {
+			kind = KindNetwork
+		}
+		if kind == KindDatabase {
+			res.Totals.Database += val
+			et.Database += val
+		} else {
+			res.Totals.Network += val
+			et.Network += val
+		}
+		res.Totals.BoundarySamples += samples
+		calls := int64(0)
+		if spans {
+			calls = 1
+			if len(p.Values) > 1 {
+				calls = p.Values[1]
+			}
+		}
+		dk := detailOf(src, t, w, p, leaf, b, kind, opts.ShowLiterals)
+
+		var causes []callgraph.NodeID
+		if opts.Inclusive {
+			var ok bool
+			if causes, ok = inclusiveKeys[b]; !ok {
+				causes = appAbove(t, c, b)
+				inclusiveKeys[b] = causes
+			}
+		} else if ra := w.lastApp[b]; ra != 0 {
+			causes = []callgraph.NodeID{ra}
+		}
+		if len(causes) == 0 {
+			res.Totals.Unattributed += val
+			acc := accFor(accs, NoAppFramePrefix+entryName, "", 0, true)
+			acc.add(val, samples, calls, kind, dk, entryName, siteKey{}, req)
+			continue
+		}
+		recFn, depth := rec.at(b)
+		for _, ra := range causes {
+			f := &src.Frames[t.Frame(ra)]
+			acc := accFor(accs, f.Function, f.File, f.Line, false)
+			acc.add(val, samples, calls, kind, dk, entryName, siteKey{f.File, f.Line}, req)
+			if recFn != "" && recFn == f.Function {
+				acc.recCost += val
+				if depth > acc.recursion {
+					acc.recursion = depth
+				}
+			}
+		}
+		if recFn != "" && !containsFunc(src, t, causes, recFn) {
+			// The recursive function is above the root cause: credit it too.
+			acc := accs[recFn]
+			if acc == nil {
+				acc = accFor(accs, recFn, "", 0, false)
+				acc.cause.Kind = kind
+			}
+			acc.recCost += val
+			if depth > acc.recursion {
+				acc.recursion = depth
+			}
+		}
+	}
+
+	res.Totals.Requests = len(requests)
+	if !spans && len(requests) == 0 {
+		res.Totals.Requests = 0
+	}
+	if spans {
+		res.Totals.Other = max(0, res.Totals.Cost-res.Totals.Database-res.Totals.Network)
+	} else {
+		res.Totals.Other = res.Totals.Cost - res.Totals.Database - res.Totals.Network
+	}
+	denom := res.Totals.Database + res.Totals.Network
+	for _, acc := range accs {
+		if acc.cause.Cost == 0 && acc.recCost == 0 {
+			continue
+		}
+		cs := acc.finish(denom, res.Totals.BoundarySamples, !spans, spans)
+		if cs.Cost > 0 {
+			res.Causes = append(res.Causes, cs)
+		}
+	}
+	sortCauses(res.Causes)
+	for name, e := range entries {
+		e.Requests = len(entryReqs[name])
+		res.Entries = append(res.Entries, *e)
+	}
+	sort.Slice(res.Entries, func(i, j int) bool {
+		a, b := res.Entries[i], res.Entries[j]
+		if a.Database+a.Network != b.Database+b.Network {
+			return a.Database+a.Network > b.Database+b.Network
+		}
+		if a.Cost != b.Cost {
+			return a.Cost > b.Cost
+		}
+		return a.Entry < b.Entry
+	})
+	res.Findings = findings(res, accs, fo, denom)
+	return res
+}
+
+func containsFunc(src *traces.Source, t *callgraph.Tree, ns []callgraph.NodeID, fn string) bool {
+	for _, n := range ns {
+		if src.Frames[t.Frame(n)].Function == fn {
+			return true
+		}
+	}
+	return false
+}
+
+func accFor(accs map[string]*causeAcc, fn, file string, line int64, noApp bool) *causeAcc {
+	acc := accs[fn]
+	if acc == nil {
+		acc = &causeAcc{
+			cause:   &Cause{Function: fn, NoAppFrame: noApp},
+			details: map[detailKey]*Detail{},
+			entries: map[string]*EntryShare{},
+			sites:   map[siteKey]int64{},
+			perReq:  map[traces.RequestID]int64{},
+			reqCost: map[traces.RequestID]int64{},
+			stmtReq: map[detailKey]map[traces.RequestID]int64{},
+		}
+		accs[fn] = acc
+	}
+	return acc
+}
+
+func (a *causeAcc) add(val, samples, calls int64, kind Kind, dk detailKey, entry string, site siteKey, req traces.RequestID) {
+	c := a.cause
+	c.Cost += val
+	c.Samples += samples
+	c.Calls += calls
+	if kind == KindDatabase {
+		c.Database += val
+	} else {
+		c.Network += val
+	}
+	d := a.details[dk]
+	if d == nil {
+		d = &Detail{Kind: dk.kind, System: dk.system, Statement: dk.statement, Peer: dk.peer}
+		a.details[dk] = d
+	}
+	d.Cost += val
+	d.Calls += calls
+	d.Samples += samples
+	e := a.entries[entry]
+	if e == nil {
+		e = &EntryShare{Entry: entry}
+		a.entries[entry] = e
+	}
+	e.Cost += val
+	e.Calls += calls
+	if site.file != "" || site.line != 0 {
+		a.sites[site] += val
+	}
+	if req != 0 {
+		n := calls
+		if n == 0 {
+			n = samples
+		}
+		a.perReq[req] += n
+		a.reqCost[req] += val
+		m := a.stmtReq[dk]
+		if m == nil {
+			m = map[traces.RequestID]int64{}
+			a.stmtReq[dk] = m
+		}
+		m[req] += calls
+	}
+}
+
+func (a *causeAcc) finish(denom, boundarySamples int64, sampled, knowsCalls bool) *Cause {
+	c := a.cause
+	switch {
+	case c.Database > 0 && c.Network > 0:
+		c.Kind = KindMixed
+	case c.Network > 0:
+		c.Kind = KindNetwork
+	case c.Database > 0:
+		c.Kind = KindDatabase
+	}
+	if denom > 0 {
+		c.Share = float64(c.Cost) / float64(denom)
+	}
+	if sampled && boundarySamples > 0 {
+		// In the inclusive view a sample counts for several causes; cap k at n.
+		k := min(c.Samples, boundarySamples)
+		c.ShareMargin = 1.96 * BinomialSE(int(k), int(boundarySamples))
+	}
+	c.Requests = len(a.perReq)
+	if len(a.reqCost) > 0 {
+		c.requestCosts = make([]float64, 0, len(a.reqCost))
+		for _, v := range a.reqCost {
+			c.requestCosts = append(c.requestCosts, float64(v))
+		}
+		sort.Float64s(c.requestCosts)
+	}
+	if knowsCalls && len(a.perReq) > 0 {
+		counts := make([]float64, 0, len(a.perReq))
+		for _, n := range a.perReq {
+			counts = append(counts, float64(n))
+		}
+		c.CallsPerRequest = distribution(counts)
+	}
+	for s, cost := range a.sites {
+		c.CallSites = append(c.CallSites, CallSite{File: s.file, Line: s.line, Cost: cost})
+	}
+	sort.Slice(c.CallSites, func(i, j int) bool {
+		x, y := c.CallSites[i], c.CallSites[j]
+		if x.Cost != y.Cost {
+			return x.Cost > y.Cost
+		}
+		if x.File != y.File {
+			return x.File < y.File
+		}
+		return x.Line < y.Line
+	})
+	if len(c.CallSites) > 0 {
+		c.File, c.Line = c.CallSites[0].File, c.CallSites[0].Line
+	}
+	for _, d := range a.details {
+		c.Statements = append(c.Statements, *d)
+	}
+	sort.Slice(c.Statements, func(i, j int) bool {
+		x, y := c.Statements[i], c.Statements[j]
+		if x.Cost != y.Cost {
+			return x.Cost > y.Cost
+		}
+		if x.Statement != y.Statement {
+			return x.Statement < y.Statement
+		}
+		return x.Peer < y.Peer
+	})
+	for _, e := range a.entries {
+		c.EntryPoints = append(c.EntryPoints, *e)
+	}
+	sort.Slice(c.EntryPoints, func(i, j int) bool {
+		x, y := c.EntryPoints[i], c.EntryPoints[j]
+		if x.Cost != y.Cost {
+			return x.Cost > y.Cost
+		}
+		return x.Entry < y.Entry
+	})
+	return c
+}
+
+func sortCauses(cs []*Cause) {
+	sort.Slice(cs, func(i, j int) bool {
+		a, b := cs[i], cs[j]
+		if a.Cost != b.Cost {
+			return a.Cost > b.Cost
+		}
+		if a.Function != b.Function {
+			return a.Function < b.Function
+		}
+		if a.File != b.File {
+			return a.File < b.File
+		}
+		return a.Line < b.Line
+	})
+}
+
+// entryOf names the entry point of a path: a label if present, else the
+// application function just below the deepest entry-point frame, else
+// that frame, else the path's first frame.
+func entryOf(src *traces.Source, t *callgraph.Tree, w *walkState, p *traces.Path, leaf callgraph.NodeID, keys []string) string {
+	for _, k := range keys {
+		if v, ok := p.Labels.Get(k); ok && v != "" {
+			return v
+		}
+	}
+	at := leaf
+	if b := w.boundary[leaf]; b != 0 {
+		at = b
+	}
+	switch {
+	case w.entryApp[at] != 0 && (w.entry[at] == 0 || w.entryApp[at] >= w.entry[at]):
+		return src.Frames[t.Frame(w.entryApp[at])].Function
+	case w.entry[at] != 0:
+		return src.Frames[t.Frame(w.entry[at])].Function
+	}
+	return src.Frames[p.Frames[0]].Function
+}
+
+// detailOf describes the boundary of a path: its statement fingerprint,
+// operation or library function, and its peer.
+func detailOf(src *traces.Source, t *callgraph.Tree, w *walkState, p *traces.Path, leaf, b callgraph.NodeID, kind Kind, literals bool) detailKey {
+	bf := &src.Frames[t.Frame(b)]
+	dk := detailKey{kind: kind, system: w.system[leaf], statement: bf.Function}
+	if p.Call == 0 {
+		return dk
+	}
+	call := &src.Calls[p.Call]
+	if call.System != "" {
+		dk.system = call.System
+	}
+	dk.peer = call.Peer
+	switch {
+	case call.Statement != "" && literals:
+		dk.statement = call.Statement
+	case call.Statement != "":
+		dk.statement = Fingerprint(call.System, call.Statement).Text
+	case call.Summary != "":
+		dk.statement = call.Summary
+	case call.Operation != "":
+		dk.statement = call.Operation
+	}
+	return dk
+}
+
+// appAbove lists the distinct application functions above boundary node b,
+// outermost first (one node per function: the nearest to the boundary).
+func appAbove(t *callgraph.Tree, c *Classifier, b callgraph.NodeID) []callgraph.NodeID {
+	src := t.Source()
+	seen := map[string]bool{}
+	var out []callgraph.NodeID
+	for n := t.Parent(b); n != callgraph.Root; n = t.Parent(n) {
+		f := t.Frame(n)
+		if c.Verdict(f).Class != Application {
+			continue
+		}
+		name := src.Frames[f].Function
+		if !seen[name] {
+			seen[name] = true
+			out = append(out, n)
+		}
+	}
+	for i, j := 0, len(out)-1; i < j; i, j = i+1, j-1 {
+		out[i], out[j] = out[j], out[i]
+	}
+	return out
+}
+
+// sampleIndex returns the value index holding sample counts, -1 for spans
+// (one span = one sample) or when the source has no count value.
+func sampleIndex(src *traces.Source, vi int) int {
+	if src.Kind == traces.Spans {
+		return -1
+	}
+	if src.ValueTypes[vi].Unit == "count" {
+		return vi
+	}
+	for i, vt := range src.ValueTypes {
+		if vt.Unit == "count" && (vt.Type == "samples" || vt.Type == "goroutine" || vt.Type == "contentions") {
+			return i
+		}
+	}
+	return -1
+}
+
+func isCPUOnly(src *traces.Source, vi int) bool {
+	if src.Kind != traces.Profile {
+		return false
+	}
+	return src.ValueTypes[vi].Type == "cpu" || (src.PeriodType.Type == "cpu" && src.ValueTypes[vi].Type == "samples")
+}
+
+func requestFromLabels(ls *traces.LabelSet, keys []string, ids map[string]traces.RequestID, names *[]string) traces.RequestID {
+	for _, k := range keys {
+		if v, ok := ls.Get(k); ok && v != "" {
+			id, ok := ids[v]
+			if !ok {
+				id = traces.RequestID(len(ids) + 1)
+				ids[v] = id
+				*names = append(*names, v)
+			}
+			return id
+		}
+	}
+	return 0
+}
+
+// distribution returns the median, p95 and max of xs (linear
+// interpolation between order statistics).
+func distribution(xs []float64) *Distribution {
+	sort.Float64s(xs)
+	return &Distribution{Median: Quantile(xs, 0.5), P95: Quantile(xs, 0.95), Max: xs[len(xs)-1]}
+}
+
+func itoa(n int64) string { return strconv.FormatInt(n, 10) }

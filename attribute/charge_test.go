@@ -1,0 +1,175 @@
+package attribute
+
+import (
+	"testing"
+)
+
+// Frames with the file shapes Go's runtime/pprof writes (reference
+// pprof-profiles.md §5): GOROOT files for the standard library, the
+// module's own directory for application code.
+const (
+	fMain       = "main.main@/home/ci/shop/main.go:20"
+	fHandler    = "example.com/shop/api.handler@/home/ci/shop/api/api.go:31"
+	fLoadUser   = "example.com/shop/store.loadUser@/home/ci/shop/store/user.go:12"
+	fLoadOrders = "example.com/shop/store.loadOrders@/home/ci/shop/store/orders.go:44"
+	fRender     = "example.com/shop/api.render@/home/ci/shop/api/render.go:9"
+	fWalk       = "example.com/shop/tree.walk@/home/ci/shop/tree/walk.go:17"
+	fQuery      = "database/sql.(*DB).Query@/usr/local/go/src/database/sql/sql.go:1720"
+	fDriver     = "github.com/lib/pq.(*conn).query@/home/ci/go/pkg/mod/github.com/lib/pq@v1.10.9/conn.go:870"
+	fHTTP       = "net/http.(*Client).Do@/usr/local/go/src/net/http/client.go:590"
+	fMux        = "net/http.HandlerFunc.ServeHTTP@/usr/local/go/src/net/http/server.go:2220"
+	fServe      = "net/http.(*conn).serve@/usr/local/go/src/net/http/server.go:2090"
+)
+
+// The worked example of the methods reference §1 ("Calling context trees,
+// not call graphs", constructed, computed by hand): paths
+// main>handler>loadUser>sql.Query ×10, main>handler>loadOrders>sql.Query ×30,
+// main>handler>render ×20, main>walk>walk>walk>sql.Query ×5.
+// Charged: loadUser 10, loadOrders 30, walk 5; database 45 of 65.
+func methodsExample() []fakeStack {
+	return []fakeStack{
+		{frames: []string{fMain, fHandler, fLoadUser, fQuery, fDriver}, count: 10},
+		{frames: []string{fMain, fHandler, fLoadOrders, fQuery, fDriver}, count: 30},
+		{frames: []string{fMain, fHandler, fRender}, count: 20},
+		{frames: []string{fMain, fWalk, fWalk, fWalk, fQuery}, count: 5},
+	}
+}
+
+func TestAttributeMethodsExample(t *testing.T) {
+	data := buildProfile(t, methodsExample())
+	res := rankProfile(t, data, DefaultRules(), Options{Value: "samples"})
+
+	if res.Totals.Cost != 65 || res.Totals.Database != 45 || res.Totals.Network != 0 || res.Totals.Other != 20 {
+		t.Fatalf("totals = %+v, want cost 65, database 45, other 20", res.Totals)
+	}
+	want := []struct {
+		fn   string
+		cost int64
+		line int64
+	}{
+		{"example.com/shop/store.loadOrders", 30, 44},
+		{"example.com/shop/store.loadUser", 10, 12},
+		{"example.com/shop/tree.walk", 5, 17},
+	}
+	if len(res.Causes) != len(want) {
+		t.Fatalf("got %d causes, want %d: %+v", len(res.Causes), len(want), res.Causes)
+	}
+	for i, w := range want {
+		c := res.Causes[i]
+		if c.Function != w.fn || c.Cost != w.cost || c.Line != w.line || c.Kind != KindDatabase {
+			t.Errorf("cause %d = %s cost %d line %d kind %s, want %s cost %d line %d database",
+				i, c.Function, c.Cost, c.Line, c.Kind, w.fn, w.cost, w.line)
+		}
+		if c.Samples != w.cost {
+			t.Errorf("%s: samples %d, want %d", c.Function, c.Samples, w.cost)
+		}
+	}
+	// Share is charged ÷ (database + network), with a binomial margin.
+	lo := causeByName(res, "example.com/shop/store.loadOrders")
+	if got, want := lo.Share, 30.0/45; abs(got-want) > 1e-12 {
+		t.Errorf("share = %v, want %v", got, want)
+	}
+	if lo.ShareMargin <= 0 || lo.ShareMargin > 0.2 {
+		t.Errorf("share margin = %v, want a 95%% binomial margin in (0, 0.2]", lo.ShareMargin)
+	}
+	// The boundary system is refined from database/sql to the driver below it.
+	if got := lo.Statements[0]; got.System != "postgresql" || got.Statement != "database/sql.(*DB).Query" {
+		t.Errorf("detail = %+v, want postgresql via database/sql.(*DB).Query", got)
+	}
+	// Recursion reaching the database is found on the path itself.
+	var rec *Finding
+	for i := range res.Findings {
+		if res.Findings[i].Kind == "recursive-access" {
+			rec = &res.Findings[i]
+		}
+	}
+	if rec == nil || rec.Function != "example.com/shop/tree.walk" || rec.Depth != 3 || rec.Cost != 5 {
+		t.Errorf("recursive-access finding = %+v, want walk, depth 3, cost 5", rec)
+	}
+}
+
+func TestAttributeInclusive(t *testing.T) {
+	data := buildProfile(t, methodsExample())
+	res := rankProfile(t, data, DefaultRules(), Options{Value: "samples", Inclusive: true})
+	// Inclusive: every distinct application frame above the boundary gets
+	// the path once. handler: 10+30 (render reaches no boundary); main: 45;
+	// walk: 5, not 15 (recursion counted once per path; methods reference §1).
+	want := map[string]int64{
+		"main.main":                         45,
+		"example.com/shop/api.handler":      40,
+		"example.com/shop/store.loadOrders": 30,
+		"example.com/shop/store.loadUser":   10,
+		"example.com/shop/tree.walk":        5,
+	}
+	if len(res.Causes) != len(want) {
+		t.Fatalf("got %d causes, want %d", len(res.Causes), len(want))
+	}
+	for fn, cost := range want {
+		c := causeByName(res, fn)
+		if c == nil || c.Cost != cost {
+			t.Errorf("%s: %+v, want cost %d", fn, c, cost)
+		}
+	}
+}
+
+func TestAttributeNoAppFrameAndEntries(t *testing.T) {
+	stacks := []fakeStack{
+		// A library calls the network with no application frame above it.
+		{frames: []string{fServe, fMux, fHTTP}, count: 7},
+		// Through a handler: the entry point is the handler under the mux.
+		{frames: []string{fServe, fMux, fHandler, fHTTP}, count: 3},
+		// The route label names the entry point when present.
+		{frames: []string{fServe, fMux, fHandler, fLoadUser, fQuery}, count: 4, labels: map[string][]string{"http.route": {"/users/{id}"}}},
+	}
+	res := rankProfile(t, buildProfile(t, stacks), DefaultRules(), Options{Value: "samples"})
+	noApp := causeByName(res, NoAppFramePrefix+"net/http.HandlerFunc.ServeHTTP")
+	if noApp == nil || !noApp.NoAppFrame || noApp.Cost != 7 || noApp.Kind != KindNetwork {
+		t.Fatalf("no-app bucket = %+v, want 7 network", noApp)
+	}
+	if res.Totals.Unattributed != 7 {
+		t.Errorf("unattributed = %d, want 7", res.Totals.Unattributed)
+	}
+	h := causeByName(res, "example.com/shop/api.handler")
+	if h == nil || h.Cost != 3 || h.EntryPoints[0].Entry != "example.com/shop/api.handler" {
+		t.Errorf("handler = %+v, want cost 3 under entry handler", h)
+	}
+	u := causeByName(res, "example.com/shop/store.loadUser")
+	if u == nil || u.EntryPoints[0].Entry != "/users/{id}" {
+		t.Errorf("loadUser entries = %+v, want the route label", u)
+	}
+}
+
+func TestAttributeAppPrefix(t *testing.T) {
+	// With --app naming only the store package, the handler is library
+	// code and loadUser is still the root cause; walk's path has no
+	// application frame.
+	rules := DefaultRules()
+	rules.App = []string{"example.com/shop/store."}
+	res := rankProfile(t, buildProfile(t, methodsExample()), rules, Options{Value: "samples"})
+	if c := causeByName(res, "example.com/shop/store.loadUser"); c == nil || c.Cost != 10 {
+		t.Errorf("loadUser = %+v", c)
+	}
+	if res.Totals.Unattributed != 5 {
+		t.Errorf("unattributed = %d, want walk's 5", res.Totals.Unattributed)
+	}
+}
+
+func TestAttributeDeterministic(t *testing.T) {
+	data := buildProfile(t, methodsExample())
+	a := rankProfile(t, data, DefaultRules(), Options{Value: "samples"})
+	for i := 0; i < 5; i++ {
+		b := rankProfile(t, data, DefaultRules(), Options{Value: "samples"})
+		for j := range a.Causes {
+			if a.Causes[j].Function != b.Causes[j].Function || a.Causes[j].Cost != b.Causes[j].Cost {
+				t.Fatalf("run %d differs at %d", i, j)
+			}
+		}
+	}
+}
+
+func abs(x float64) float64 {
+	if x < 0 {
+		return -x
+	}
+	return x
+}

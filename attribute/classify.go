@@ -1,0 +1,333 @@
+package attribute
+
+import (
+	"regexp"
+	"sort"
+	"strings"
+
+	"github.com/culprithq/culprit/traces"
+)
+
+// Verdict is the classification of one frame and why.
+type Verdict struct {
+	Class Class
+	// EntryPoint marks a frame that starts a request: an entry-class frame,
+	// or an application frame matched by an entry rule (main.main, a SERVER span).
+	EntryPoint bool
+	// System is the database or network system of a boundary frame.
+	System string
+	// Rule is the rule that decided, nil when ownership alone decided.
+	Rule *Rule
+	// Reason says in words why the frame is, or is not, application code.
+	Reason string
+}
+
+// Classifier classifies the frames of one source. It is built once per
+// source; Verdict lookups are then constant time.
+type Classifier struct {
+	rules    *Rules
+	verdicts []Verdict // by FrameID
+	// Detected lists what auto-detection took as application code; empty
+	// when App prefixes were given.
+	Detected []Detection
+}
+
+// Detection is one application root found by auto-detection.
+type Detection struct {
+	// Prefix is a package path (Go: module-like prefix, or "main"), or a
+	// class/module prefix for other languages.
+	Prefix string `json:"prefix"`
+	// Functions is the number of distinct functions under the prefix.
+	Functions int `json:"functions"`
+	// Reason says why these frames were taken as the application's.
+	Reason string `json:"reason"`
+}
+
+// NewClassifier classifies every frame of src with rules.
+func NewClassifier(src *traces.Source, rules *Rules) *Classifier {
+	c := &Classifier{rules: rules, verdicts: make([]Verdict, len(src.Frames))}
+	type det struct {
+		reason string
+		funcs  map[string]bool
+	}
+	detected := map[string]*det{}
+	for id := 1; id < len(src.Frames); id++ {
+		f := &src.Frames[id]
+		v := c.classify(f)
+		if v.Class == Application && len(rules.App) == 0 {
+			root := appRoot(f)
+			d := detected[root]
+			if d == nil {
+				d = &det{reason: v.Reason, funcs: map[string]bool{}}
+				detected[root] = d
+			}
+			d.funcs[f.Function] = true
+		}
+		c.verdicts[id] = v
+	}
+	for root, d := range detected {
+		c.Detected = append(c.Detected, Detection{Prefix: root, Functions: len(d.funcs), Reason: d.reason})
+	}
+	sort.Slice(c.Detected, func(i, j int) bool {
+		a, b := c.Detected[i], c.Detected[j]
+		if a.Functions != b.Functions {
+			return a.Functions > b.Functions
+		}
+		return a.Prefix < b.Prefix
+	})
+	return c
+}
+
+// Verdict returns the classification of frame id.
+func (c *Classifier) Verdict(id traces.FrameID) *Verdict { return &c.verdicts[id] }
+
+func (c *Classifier) classify(f *traces.Frame) Verdict {
+	var entryRule *Rule
+	for i := range c.rules.Rules {
+		r := &c.rules.Rules[i]
+		if !r.Matches(f) {
+			continue
+		}
+		switch r.Class {
+		case Database, Network:
+			sys := r.System
+			if f.Span && f.System != "" {
+				sys = f.System
+			}
+			return Verdict{Class: r.Class, System: sys, Rule: r, Reason: "rule " + ruleString(r)}
+		case Entry:
+			if entryRule == nil {
+				entryRule = r
+			}
+			continue
+		case Application:
+			return Verdict{Class: Application, EntryPoint: entryRule != nil, Rule: r, Reason: "rule " + ruleString(r)}
+		case Library:
+			return Verdict{Class: Library, Rule: r, Reason: "rule " + ruleString(r)}
+		}
+	}
+	owned, reason := c.owned(f)
+	if entryRule != nil && owned && len(c.rules.App) == 0 && !f.Span && !strings.HasPrefix(f.Function, "main.") {
+		// A built-in entry rule names framework code: auto-detection must
+		// not take it for the application's.
+		owned = false
+	}
+	switch {
+	case owned:
+		return Verdict{Class: Application, EntryPoint: entryRule != nil, Rule: entryRule, Reason: reason}
+	case entryRule != nil:
+		return Verdict{Class: Entry, EntryPoint: true, Rule: entryRule, Reason: "rule " + ruleString(entryRule)}
+	}
+	return Verdict{Class: Library, Reason: reason}
+}
+
+func ruleString(r *Rule) string {
+	k, p := r.Pattern()
+	return r.Family + " " + k + " " + p
+}
+
+// owned decides whether f is application code, by the App prefixes when
+// given, else by auto-detection.
+func (c *Classifier) owned(f *traces.Frame) (bool, string) {
+	if len(c.rules.App) > 0 {
+		file := slashPath(f.File)
+		for _, p := range c.rules.App {
+			if strings.HasPrefix(f.Function, p) || (file != "" && strings.Contains(file, p)) {
+				return true, "matches --app " + p
+			}
+		}
+		if f.Span && f.SpanKind != traces.SpanKindClient && f.SpanKind != traces.SpanKindProducer && f.File == "" && !looksQualified(f.Function) {
+			return true, "the service's own " + f.SpanKind.String() + " span"
+		}
+		return false, "matches no --app prefix"
+	}
+	return autoOwned(f)
+}
+
+// looksQualified reports whether a span's frame name looks like a code
+// location (a package- or class-qualified function) rather than a free
+// operation name.
+func looksQualified(name string) bool {
+	return strings.Contains(name, "/") && strings.Contains(name, ".") && !strings.Contains(name, " ")
+}
+
+var (
+	// modVersionRe matches a module path segment with a version: the
+	// module cache (…/pkg/mod/host/x@v1.2.3/) and -trimpath builds (host/x@v1.2.3/).
+	modVersionRe = regexp.MustCompile(`@v[0-9]+\.[0-9]+\.[0-9]+[^/]*/`)
+	// goroot matches a Go installation's source tree in a file path.
+	gorootRe = regexp.MustCompile(`(^|/)go[^/]*/src/`)
+)
+
+// autoOwned implements application auto-detection (see DESIGN.md).
+func autoOwned(f *traces.Frame) (bool, string) {
+	file := slashPath(f.File)
+	if f.Span {
+		switch f.SpanKind {
+		case traces.SpanKindClient, traces.SpanKindProducer:
+			return false, "client span"
+		}
+		if f.File != "" {
+			// code.file.path says where the span was made: a dependency's
+			// span is not the application's, whatever its kind.
+			if owned, reason := autoOwned(&traces.Frame{Function: f.Function, File: f.File}); !owned && lang(&traces.Frame{File: f.File}) != langUnknown {
+				return false, reason
+			}
+		}
+		return true, "the service's own " + f.SpanKind.String() + " span"
+	}
+	switch lang(f) {
+	case langGo:
+		switch {
+		case strings.Contains(file, "/pkg/mod/"):
+			return false, "in the Go module cache"
+		case modVersionRe.MatchString(file):
+			return false, "a dependency (module@version path)"
+		case strings.Contains(file, "/vendor/") || strings.HasPrefix(file, "vendor/"):
+			return false, "vendored"
+		case strings.HasPrefix(f.Function, "main."):
+			return true, "package main"
+		case isGoStd(f.Function):
+			if gorootRe.MatchString(file) || file == "" || !strings.Contains(file, "/") || isTrimmedStd(file) {
+				return false, "Go standard library (GOROOT)"
+			}
+			return false, "Go standard library"
+		}
+		return true, "Go code outside GOROOT, the module cache and vendor/"
+	case langJVM:
+		for _, p := range jvmLibraryPrefixes {
+			if strings.HasPrefix(f.Function, p) {
+				return false, "JVM platform or common library (" + p + ")"
+			}
+		}
+		return true, "JVM code outside the platform and common libraries"
+	case langPython:
+		if strings.Contains(file, "site-packages/") || strings.Contains(file, "dist-packages/") || pythonStdRe.MatchString(file) || strings.HasPrefix(file, "<") {
+			return false, "Python standard library or installed package"
+		}
+		return true, "Python code outside site-packages and the standard library"
+	case langNode:
+		if strings.Contains(file, "node_modules/") || strings.HasPrefix(file, "node:") || strings.HasPrefix(file, "internal/") {
+			return false, "Node.js core or node_modules"
+		}
+		return true, "JavaScript outside node_modules and Node.js core"
+	}
+	return false, "unknown language and no --app prefix"
+}
+
+var pythonStdRe = regexp.MustCompile(`/lib/python[0-9.]+/`)
+
+var jvmLibraryPrefixes = []string{
+	"java.", "javax.", "jakarta.", "jdk.", "sun.", "com.sun.", "kotlin.", "kotlinx.", "scala.",
+	"org.springframework.", "org.apache.", "io.netty.", "com.fasterxml.", "org.hibernate.",
+	"com.google.", "io.grpc.", "reactor.", "io.micrometer.", "io.opentelemetry.", "org.eclipse.",
+	"okhttp3.", "okio.", "com.zaxxer.", "org.slf4j.", "ch.qos.", "org.postgresql.", "com.mysql.",
+}
+
+type language uint8
+
+const (
+	langUnknown language = iota
+	langGo
+	langJVM
+	langPython
+	langNode
+)
+
+func lang(f *traces.Frame) language {
+	file := f.File
+	switch {
+	case strings.HasSuffix(file, ".go") || strings.HasSuffix(file, ".s"):
+		return langGo
+	case strings.HasSuffix(file, ".java") || strings.HasSuffix(file, ".kt") || strings.HasSuffix(file, ".scala"):
+		return langJVM
+	case strings.HasSuffix(file, ".py"):
+		return langPython
+	case strings.HasSuffix(file, ".js") || strings.HasSuffix(file, ".ts") || strings.HasSuffix(file, ".mjs") ||
+		strings.HasSuffix(file, ".cjs") || strings.HasPrefix(file, "node:"):
+		return langNode
+	case file == "":
+		// Guess from the name: Go names carry import paths or main.
+		if strings.HasPrefix(f.Function, "main.") || strings.Contains(f.Function, "/") || strings.Contains(f.Function, ".(*") || isGoStd(f.Function) {
+			return langGo
+		}
+	}
+	return langUnknown
+}
+
+// goPackage returns the import path of a Go function name: everything up
+// to the first '.' after the last '/'.
+func goPackage(fn string) string {
+	if i := strings.IndexByte(fn, '['); i >= 0 {
+		fn = fn[:i] // generic instantiation shapes may contain '/' and '.'
+	}
+	slash := strings.LastIndexByte(fn, '/')
+	dot := strings.IndexByte(fn[slash+1:], '.')
+	if dot < 0 {
+		return fn
+	}
+	return fn[:slash+1+dot]
+}
+
+// isGoStd reports whether fn belongs to the Go standard library: its
+// import path's first element has no dot (and it is not package main).
+func isGoStd(fn string) bool {
+	pkg := goPackage(fn)
+	if pkg == "main" || pkg == "" {
+		return false
+	}
+	first := pkg
+	if i := strings.IndexByte(pkg, '/'); i >= 0 {
+		first = pkg[:i]
+	}
+	return !strings.Contains(first, ".")
+}
+
+// isTrimmedStd reports whether a -trimpath file path is in the standard
+// library: its first element has no dot.
+func isTrimmedStd(file string) bool {
+	i := strings.IndexByte(file, '/')
+	return i > 0 && !strings.Contains(file[:i], ".") && !strings.HasPrefix(file, "/")
+}
+
+// appRoot groups an application function under a readable prefix for the
+// detection summary: Go "main" or the first three import path elements of
+// a hosted module path; otherwise the first two name components.
+func appRoot(f *traces.Frame) string {
+	if f.Span {
+		if f.Service != "" {
+			return "service " + f.Service
+		}
+		return "spans"
+	}
+	switch lang(f) {
+	case langGo:
+		pkg := goPackage(f.Function)
+		if pkg == "main" {
+			return "main"
+		}
+		// Common practice: hosted module paths have three elements
+		// (host/owner/repo), others two (host/module).
+		parts := strings.Split(pkg, "/")
+		n := 2
+		switch parts[0] {
+		case "github.com", "gitlab.com", "bitbucket.org", "golang.org":
+			n = 3
+		}
+		if len(parts) > n {
+			parts = parts[:n]
+		}
+		return strings.Join(parts, "/")
+	case langPython, langNode:
+		dir := slashPath(f.File)
+		if i := strings.LastIndexByte(dir, '/'); i >= 0 {
+			return dir[:i+1]
+		}
+		return dir
+	}
+	parts := strings.SplitN(f.Function, ".", 4)
+	if len(parts) > 3 {
+		parts = parts[:3]
+	}
+	return strings.Join(parts, ".")
+}

@@ -1,0 +1,211 @@
+package attribute
+
+import (
+	"fmt"
+	"sort"
+
+	"github.com/culprithq/culprit/callgraph"
+	"gonum.org/v1/gonum/graph/topo"
+)
+
+// FindingOptions are the thresholds of the pattern findings. Zero fields
+// take the defaults in DefaultFindingOptions.
+type FindingOptions struct {
+	// RepeatMin is how many times one statement must be issued from one
+	// root cause within one request to count as repeated.
+	RepeatMin int
+	// PerItemMin is how many network calls to one peer from one root
+	// cause within one request count as per-item calls.
+	PerItemMin int
+	// MinRequestShare is the fraction of the root cause's requests in
+	// which the pattern must occur for a finding.
+	MinRequestShare float64
+}
+
+// DefaultFindingOptions are the documented defaults: 5 per request in at
+// least 10% of the requests where the root cause appears.
+var DefaultFindingOptions = FindingOptions{RepeatMin: 5, PerItemMin: 5, MinRequestShare: 0.10}
+
+func (o FindingOptions) withDefaults() FindingOptions {
+	d := DefaultFindingOptions
+	if o.RepeatMin > 0 {
+		d.RepeatMin = o.RepeatMin
+	}
+	if o.PerItemMin > 0 {
+		d.PerItemMin = o.PerItemMin
+	}
+	if o.MinRequestShare > 0 {
+		d.MinRequestShare = o.MinRequestShare
+	}
+	return d
+}
+
+// recursionFinder confirms recursion reaching a boundary on real paths.
+// Candidates come from the strongly connected components of the function
+// graph (Tarjan's algorithm, via gonum); a merged graph can show cycles
+// that no single path has, so each candidate is confirmed on the path.
+type recursionFinder struct {
+	t          *callgraph.Tree
+	c          *Classifier
+	candidates map[string]bool
+	cache      map[callgraph.NodeID]recursionHit
+}
+
+type recursionHit struct {
+	fn    string
+	depth int
+}
+
+func newRecursionFinder(t *callgraph.Tree, c *Classifier) *recursionFinder {
+	g := callgraph.NewGraph(t, t.Source().DefaultValue)
+	cands := map[string]bool{}
+	for _, scc := range topo.TarjanSCC(g) {
+		if len(scc) > 1 {
+			for _, n := range scc {
+				cands[g.Name(callgraph.FuncID(n.ID()))] = true
+			}
+			continue
+		}
+		id := scc[0].ID()
+		if g.HasEdgeFromTo(id, id) {
+			cands[g.Name(callgraph.FuncID(id))] = true
+		}
+	}
+	return &recursionFinder{t: t, c: c, candidates: cands, cache: map[callgraph.NodeID]recursionHit{}}
+}
+
+// at returns the application function that occurs most often (at least
+// twice) on the path above boundary node b, and how often; "" if none.
+func (r *recursionFinder) at(b callgraph.NodeID) (string, int) {
+	if len(r.candidates) == 0 {
+		return "", 0
+	}
+	if h, ok := r.cache[b]; ok {
+		return h.fn, h.depth
+	}
+	src := r.t.Source()
+	counts := map[string]int{}
+	for n := r.t.Parent(b); n != callgraph.Root; n = r.t.Parent(n) {
+		f := r.t.Frame(n)
+		name := src.Frames[f].Function
+		if r.candidates[name] && r.c.Verdict(f).Class == Application {
+			counts[name]++
+		}
+	}
+	var best recursionHit
+	for fn, k := range counts {
+		if k >= 2 && (k > best.depth || (k == best.depth && fn < best.fn)) {
+			best = recursionHit{fn: fn, depth: k}
+		}
+	}
+	r.cache[b] = best
+	return best.fn, best.depth
+}
+
+// findings derives the pattern findings from the per-cause tallies.
+func findings(res *Result, accs map[string]*causeAcc, o FindingOptions, denom int64) []Finding {
+	var out []Finding
+	share := func(cost int64) float64 {
+		if denom == 0 {
+			return 0
+		}
+		return float64(cost) / float64(denom)
+	}
+	names := make([]string, 0, len(accs))
+	for n := range accs {
+		names = append(names, n)
+	}
+	sort.Strings(names)
+	for _, name := range names {
+		acc := accs[name]
+		if acc.recursion >= 2 {
+			out = append(out, Finding{
+				Kind:     "recursive-access",
+				Function: name,
+				Cost:     acc.recCost,
+				Share:    share(acc.recCost),
+				Depth:    acc.recursion,
+				Evidence: fmt.Sprintf("calls itself (directly or through other functions) up to %d times deep on paths that reach the %s", acc.recursion, boundaryWord(acc)),
+			})
+		}
+		if acc.cause.NoAppFrame {
+			continue
+		}
+		seen := len(acc.perReq)
+		if seen == 0 {
+			continue
+		}
+		for dk, perReq := range acc.stmtReq {
+			min := o.RepeatMin
+			kind := "repeated-statement"
+			if dk.kind == KindNetwork {
+				min = o.PerItemMin
+				kind = "per-item-calls"
+			}
+			var counts []float64
+			for _, n := range perReq {
+				if n >= int64(min) {
+					counts = append(counts, float64(n))
+				}
+			}
+			if len(counts) == 0 || float64(len(counts)) < o.MinRequestShare*float64(seen) {
+				continue
+			}
+			cost := acc.details[dk].Cost
+			f := Finding{
+				Kind:         kind,
+				Function:     name,
+				Cost:         cost,
+				Share:        share(cost),
+				PerRequest:   distribution(counts),
+				Requests:     len(counts),
+				RequestsSeen: seen,
+			}
+			if kind == "per-item-calls" {
+				f.Peer = dk.peer
+				f.Statement = dk.statement
+				f.Evidence = fmt.Sprintf("%.0f calls per request (median; max %.0f) to %s in %d of %d requests",
+					f.PerRequest.Median, f.PerRequest.Max, orUnknown(dk.peer), len(counts), seen)
+			} else {
+				f.Statement = dk.statement
+				f.Evidence = fmt.Sprintf("the same statement %.0f times per request (median; max %.0f) in %d of %d requests",
+					f.PerRequest.Median, f.PerRequest.Max, len(counts), seen)
+			}
+			out = append(out, f)
+		}
+	}
+	sort.Slice(out, func(i, j int) bool {
+		a, b := out[i], out[j]
+		if a.Cost != b.Cost {
+			return a.Cost > b.Cost
+		}
+		if a.Kind != b.Kind {
+			return a.Kind < b.Kind
+		}
+		if a.Function != b.Function {
+			return a.Function < b.Function
+		}
+		if a.Statement != b.Statement {
+			return a.Statement < b.Statement
+		}
+		return a.Peer < b.Peer
+	})
+	return out
+}
+
+func boundaryWord(acc *causeAcc) string {
+	switch {
+	case acc.cause.Database > 0 && acc.cause.Network > 0:
+		return "database and network"
+	case acc.cause.Network > 0:
+		return "network"
+	}
+	return "database"
+}
+
+func orUnknown(s string) string {
+	if s == "" {
+		return "an unnamed peer"
+	}
+	return s
+}
