@@ -1,0 +1,229 @@
+package main
+
+import (
+	"context"
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+func runTest(t *testing.T, stdin string, args ...string) (code int, stdout, stderr string) {
+	t.Helper()
+	s, out, errb := testStreams(stdin)
+	code = run(args, s)
+	return code, out.String(), errb.String()
+}
+
+func TestDemoRanksPlantedCauses(t *testing.T) {
+	code, out, errOut := runTest(t, "", "demo")
+	if code != exitOK {
+		t.Fatalf("exit %d: %s", code, errOut)
+	}
+	lines := strings.Split(out, "\n")
+	var first string
+	for i, l := range lines {
+		if strings.HasPrefix(l, "RANK") && i+1 < len(lines) {
+			first = lines[i+1]
+		}
+	}
+	// The planted heavy report query leads the goroutine profiles; the
+	// pure-CPU function must not appear at all.
+	if !strings.Contains(first, "reports.(*Monthly).Build") {
+		t.Errorf("first row = %q, want the monthly report builder", first)
+	}
+	if strings.Contains(out, "ApplyDiscounts") {
+		t.Error("pure CPU work was charged")
+	}
+	for _, want := range []string{"recursive-access", "catalog.(*Tree).expand", "the denominator of every share", "QuoteEach"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("output lacks %q", want)
+		}
+	}
+}
+
+func TestRankJSON(t *testing.T) {
+	code, out, errOut := runTest(t, "", "demo", "--format", "json", "--limit", "0")
+	if code != exitOK {
+		t.Fatalf("exit %d: %s", code, errOut)
+	}
+	var doc struct {
+		Schema     string
+		ProducedBy struct{ Command, Version string }
+		Totals     struct{ Cost, Database, Network, Other, Unattributed int64 }
+		RootCauses []struct {
+			Function string
+			Kind     string
+			Cost     int64
+			Share    float64
+			Samples  int64
+		}
+		Inputs []struct{ Name, Sha256 string }
+	}
+	if err := json.Unmarshal([]byte(out), &doc); err != nil {
+		t.Fatal(err)
+	}
+	if doc.Schema != "culprit.rank/v1" || !strings.HasPrefix(doc.ProducedBy.Command, "culprit demo") {
+		t.Errorf("schema %q, command %q", doc.Schema, doc.ProducedBy.Command)
+	}
+	tt := doc.Totals
+	if tt.Cost != tt.Database+tt.Network+tt.Other {
+		t.Errorf("totals do not add up: %+v", tt)
+	}
+	var sum int64
+	var shares float64
+	for _, c := range doc.RootCauses {
+		sum += c.Cost
+		shares += c.Share
+	}
+	if sum != tt.Database+tt.Network || shares < 0.999 || shares > 1.001 {
+		t.Errorf("causes sum to %d (shares %.4f), want the denominator %d and 100%%", sum, shares, tt.Database+tt.Network)
+	}
+	if len(doc.Inputs) != 3 || len(doc.Inputs[0].Sha256) != 64 {
+		t.Errorf("inputs = %+v", doc.Inputs)
+	}
+}
+
+func TestUsageErrors(t *testing.T) {
+	tests := []struct {
+		name string
+		args []string
+		code int
+		want string
+	}{
+		{"no inputs", []string{"rank"}, exitUsage, "needs at least 1 input"},
+		{"bad format", []string{"demo", "--format", "xml"}, exitUsage, "must be one of: text"},
+		{"bad value", []string{"demo", "--value", "nope"}, exitUsage, "choose one of: goroutine"},
+		{"bad color", []string{"demo", "--color", "sometimes"}, exitUsage, "auto, always, never"},
+		{"unknown flag", []string{"rank", "--frobnicate", "x"}, exitUsage, "unknown flag"},
+		{"missing file", []string{"rank", "does-not-exist.pb.gz"}, exitError, "does-not-exist.pb.gz"},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			code, _, errOut := runTest(t, "", tt.args...)
+			if code != tt.code || !strings.Contains(errOut, tt.want) {
+				t.Errorf("exit %d, stderr %q; want %d containing %q", code, errOut, tt.code, tt.want)
+			}
+			if strings.Contains(errOut, "goroutine ") && strings.Contains(errOut, "panic") {
+				t.Errorf("stack trace leaked: %s", errOut)
+			}
+		})
+	}
+}
+
+func TestRankFilesDirsStdinAndOutput(t *testing.T) {
+	dir := t.TempDir()
+	if code, _, errOut := runTest(t, "", "demo", "--write", dir); code != exitOK {
+		t.Fatalf("demo --write: %s", errOut)
+	}
+	profile := filepath.Join(dir, "greenhouse-v42.goroutine.1.pb.gz")
+	data, err := os.ReadFile(profile)
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, fromFile, _ := runTest(t, "", "rank", profile)
+	code, fromStdin, errOut := runTest(t, string(data), "rank", "-")
+	if code != exitOK {
+		t.Fatalf("stdin: %s", errOut)
+	}
+	// Same content, other name: only the header line differs.
+	if strings.SplitN(fromFile, "\n", 2)[1] != strings.SplitN(fromStdin, "\n", 2)[1] {
+		t.Error("stdin and file give different reports")
+	}
+
+	// A directory is walked; traces and profiles in one run are refused.
+	code, _, errOut = runTest(t, "", "rank", dir)
+	if code != exitError || !strings.Contains(errOut, "separate runs") {
+		t.Errorf("mixed directory: exit %d, %s", code, errOut)
+	}
+
+	out := filepath.Join(dir, "report.json")
+	if code, _, errOut := runTest(t, "", "rank", profile, "--format", "json", "-o", out); code != exitOK {
+		t.Fatalf("-o: %s", errOut)
+	}
+	if b, err := os.ReadFile(out); err != nil || !json.Valid(b) {
+		t.Errorf("output file: %v", err)
+	}
+	code, _, errOut = runTest(t, "", "rank", profile, "-o", profile)
+	if code != exitUsage || !strings.Contains(errOut, "refusing to write") {
+		t.Errorf("overwrite input: exit %d, %s", code, errOut)
+	}
+	if after, _ := os.ReadFile(profile); string(after) != string(data) {
+		t.Error("input file was modified")
+	}
+	entries, _ := os.ReadDir(dir)
+	for _, e := range entries {
+		if strings.Contains(e.Name(), ".tmp-") {
+			t.Errorf("temporary file left behind: %s", e.Name())
+		}
+	}
+}
+
+func TestColor(t *testing.T) {
+	for _, tt := range []struct {
+		name     string
+		terminal bool
+		noColor  string
+		args     []string
+		want     bool
+	}{
+		{"terminal", true, "", nil, true},
+		{"NO_COLOR", true, "1", nil, false},
+		{"piped", false, "", nil, false},
+		{"always", false, "", []string{"--color", "always"}, true},
+		{"never", true, "", []string{"--color", "never"}, false},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			s, out, _ := testStreams("")
+			s.OutIsTerminal = tt.terminal
+			s.Getenv = func(k string) string {
+				if k == "NO_COLOR" {
+					return tt.noColor
+				}
+				return ""
+			}
+			if code := run(append([]string{"demo"}, tt.args...), s); code != exitOK {
+				t.Fatal(code)
+			}
+			if got := strings.Contains(out.String(), "\x1b["); got != tt.want {
+				t.Errorf("colour = %v, want %v", got, tt.want)
+			}
+		})
+	}
+}
+
+func TestRankFlagsBindIntoOptions(t *testing.T) {
+	s, _, _ := testStreams("")
+	var got *rankOptions
+	cmd := newRankCmd(s, func(_ context.Context, o *rankOptions) error { got = o; return nil })
+	cmd.SetArgs([]string{"--app", "example.com/a/", "--app", "example.com/b/", "--inclusive", "--format", "json", "--limit", "5", "x.pb.gz", "-"})
+	if err := cmd.Execute(); err != nil {
+		t.Fatal(err)
+	}
+	if len(got.analysis.App) != 2 || !got.analysis.Inclusive || got.output.Format != "json" || got.output.Limit != 5 || len(got.inputs) != 2 {
+		t.Errorf("options = %+v", got)
+	}
+	if !strings.Contains(got.command, "--app=example.com/a/ --app=example.com/b/") {
+		t.Errorf("provenance command = %q", got.command)
+	}
+}
+
+func TestRulesCommand(t *testing.T) {
+	code, out, _ := runTest(t, "", "rules")
+	if code != exitOK || !strings.Contains(out, "database/sql.") || !strings.Contains(out, "auto-detected") {
+		t.Errorf("rules: %d %s", code, out)
+	}
+	dir := t.TempDir()
+	runTest(t, "", "demo", "--write", dir)
+	code, out, errOut := runTest(t, "", "rules", filepath.Join(dir, "greenhouse-v42.goroutine.1.pb.gz"))
+	if code != exitOK || !strings.Contains(out, "example.com/greenhouse") || !strings.Contains(out, "package main") {
+		t.Errorf("rules with input: %d %s %s", code, out, errOut)
+	}
+	bad := filepath.Join(dir, "bad.json")
+	os.WriteFile(bad, []byte("{\"rules\": [\n {\"class\": \"nope\", \"function\": \"x\"}]}"), 0o644)
+	code, _, errOut = runTest(t, "", "rules", "--rules", bad)
+	if code != exitError || !strings.Contains(errOut, "bad.json:2:2") {
+		t.Errorf("bad rules file: %d %s", code, errOut)
+	}
+}

@@ -1,0 +1,100 @@
+package main
+
+import (
+	"context"
+	"embed"
+	"fmt"
+	"io"
+	"io/fs"
+	"os"
+	"path"
+	"path/filepath"
+
+	"github.com/culprithq/culprit/report"
+	"github.com/spf13/cobra"
+)
+
+// demoData is the built-in demo data set, made by cmd/culprit-gen (see
+// DEVELOPERS.md): the invented "greenhouse" plant-nursery storefront.
+//
+//go:embed demo/*
+var demoData embed.FS
+
+// demoOptions holds the flags and dependencies of `culprit demo`.
+type demoOptions struct {
+	rank   rankOptions
+	traces bool
+	write  string
+}
+
+func newDemoCmd(s *streams, runF func(context.Context, *demoOptions) error) *cobra.Command {
+	opts := &demoOptions{rank: rankOptions{streams: s}}
+	cmd := &cobra.Command{
+		Use:   "demo",
+		Short: "Rank the built-in demo data (an invented plant-nursery storefront)",
+		Long: `Demo runs rank on data built into culprit: goroutine profiles (or, with
+--traces, OpenTelemetry traces) from a load test of "greenhouse", an invented
+plant-nursery web shop with planted problems: a query per catalogue item, one
+heavy report query, a shipping-rate call per cart line, a recursive category
+walk that queries at every level, and pure CPU work that must not be charged.
+--write DIR saves the demo files so that you can run the other commands on them.`,
+		Example: `  culprit demo
+  culprit demo --traces --format markdown
+  culprit demo --write ./greenhouse && culprit rank ./greenhouse/greenhouse-v42.traces.jsonl.gz`,
+		Args: exactArgs(0),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			opts.rank.command = commandLine(cmd, args)
+			if runF != nil {
+				return runF(cmd.Context(), opts)
+			}
+			return runDemo(cmd.Context(), opts)
+		},
+	}
+	cmd.Flags().BoolVar(&opts.traces, "traces", false, "rank the demo traces instead of the goroutine profiles")
+	cmd.Flags().StringVar(&opts.write, "write", "", "write the demo files into `DIR` and exit")
+	opts.rank.analysis.register(cmd)
+	opts.rank.output.register(cmd, report.Formats)
+	return cmd
+}
+
+func runDemo(ctx context.Context, opts *demoOptions) error {
+	if opts.write != "" {
+		return writeDemo(opts.rank.streams, opts.write)
+	}
+	pattern := "demo/greenhouse-v42.goroutine.*.pb.gz"
+	if opts.traces {
+		pattern = "demo/greenhouse-v42.traces.jsonl.gz"
+	}
+	names, err := fs.Glob(demoData, pattern)
+	if err != nil || len(names) == 0 {
+		return fmt.Errorf("demo data missing from this build (%s)", pattern)
+	}
+	opts.rank.analysis.fsys = demoData
+	opts.rank.inputs = names
+	return runRank(ctx, &opts.rank)
+}
+
+func writeDemo(s *streams, dir string) error {
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return err
+	}
+	entries, err := fs.ReadDir(demoData, "demo")
+	if err != nil {
+		return err
+	}
+	for _, e := range entries {
+		if e.Name() == "README.md" {
+			continue
+		}
+		data, err := demoData.ReadFile(path.Join("demo", e.Name()))
+		if err != nil {
+			return err
+		}
+		dst := filepath.Join(dir, e.Name())
+		if err := writeAtomic(dst, nil, func(w io.Writer) error { _, err := w.Write(data); return err }); err != nil {
+			return err
+		}
+		fmt.Fprintln(s.Err, "wrote "+dst)
+	}
+	return nil
+}

@@ -1,0 +1,117 @@
+package main
+
+import (
+	"context"
+	"io"
+	"strings"
+
+	"github.com/culprithq/culprit/report"
+	"github.com/spf13/cobra"
+	"github.com/spf13/pflag"
+)
+
+// rankOptions holds the flags and dependencies of `culprit rank`.
+type rankOptions struct {
+	streams  *streams
+	analysis analysisFlags
+	output   outputFlags
+	inputs   []string
+	command  string
+}
+
+func newRankCmd(s *streams, runF func(context.Context, *rankOptions) error) *cobra.Command {
+	opts := &rankOptions{streams: s}
+	cmd := &cobra.Command{
+		Use:   "rank INPUT...",
+		Short: "Rank the application functions behind database and network cost",
+		Long: `Rank reads profiles (pprof, gzipped or not) or traces (OTLP/JSON, one export
+request per line or one document), merges them, and charges every database and
+network call's cost to the nearest application function above it: its root
+cause. Each row shows the root cause's share of all database and network cost
+(the denominator is printed), the call site, and the statements or calls it made.
+
+INPUT is a file, a directory (every file below it), or - for standard input.
+Profiles and traces are analysed in separate runs.`,
+		Example: `  # Goroutine profiles taken during a load test
+  culprit rank profiles/
+
+  # Traces exported by an OpenTelemetry pipeline, as JSON for a notebook
+  culprit rank traces.jsonl --format json -o rank.json
+
+  # Name the application code explicitly and show the callers that loop
+  culprit rank --app example.com/shop/ --inclusive cpu.pb.gz`,
+		Args: minArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			opts.inputs = args
+			opts.command = commandLine(cmd, args)
+			if runF != nil {
+				return runF(cmd.Context(), opts)
+			}
+			return runRank(cmd.Context(), opts)
+		},
+	}
+	opts.analysis.register(cmd)
+	opts.output.register(cmd, report.Formats)
+	return cmd
+}
+
+func runRank(ctx context.Context, opts *rankOptions) error {
+	s := opts.streams
+	ropts, err := opts.output.renderOptions(s)
+	if err != nil {
+		return err
+	}
+	format := opts.output.Format
+	if format == "" {
+		format = "text"
+	}
+	renderer, err := report.ForFormat(format)
+	if err != nil {
+		return &usageError{err: err}
+	}
+	rules, err := opts.analysis.rules()
+	if err != nil {
+		return err
+	}
+	src, err := opts.analysis.load(ctx, s, opts.inputs)
+	if err != nil {
+		return err
+	}
+	res, err := opts.analysis.analyse(src, rules)
+	if err != nil {
+		return err
+	}
+	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
+	return opts.output.write(s, opts.inputs, func(w io.Writer) error {
+		return renderer.Render(w, res, ropts)
+	})
+}
+
+// commandLine reconstructs the command for the report's provenance: the
+// command path, the flags the user set (in name order) and the inputs.
+func commandLine(cmd *cobra.Command, args []string) string {
+	parts := []string{cmd.CommandPath()}
+	cmd.Flags().Visit(func(f *pflag.Flag) {
+		if sv, ok := f.Value.(pflag.SliceValue); ok {
+			for _, v := range sv.GetSlice() {
+				parts = append(parts, "--"+f.Name+"="+shellQuote(v))
+			}
+			return
+		}
+		parts = append(parts, "--"+f.Name+"="+shellQuote(f.Value.String()))
+	})
+	for _, a := range args {
+		parts = append(parts, shellQuote(a))
+	}
+	return strings.Join(parts, " ")
+}
+
+func shellQuote(s string) string {
+	if s != "" && strings.IndexFunc(s, func(r rune) bool {
+		return !(r == '/' || r == '.' || r == '-' || r == '_' || r == ':' || r == '=' || r == ',' ||
+			(r >= '0' && r <= '9') || (r >= 'a' && r <= 'z') || (r >= 'A' && r <= 'Z'))
+	}) < 0 {
+		return s
+	}
+	return "'" + strings.ReplaceAll(s, "'", `'\''`) + "'"
+}
