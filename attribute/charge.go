@@ -403,6 +403,7 @@ func (a *causeAcc) finish(denom, boundarySamples int64, sampled, knowsCalls bool
 			counts = append(counts, float64(n))
 		}
 		c.CallsPerRequest = distribution(counts)
+		c.requestCalls = counts // sorted by distribution
 	}
 	for s, cost := range a.sites {
 		c.CallSites = append(c.CallSites, CallSite{File: s.file, Line: s.line, Cost: cost})
@@ -431,7 +432,13 @@ func (a *causeAcc) finish(denom, boundarySamples int64, sampled, knowsCalls bool
 		if x.Statement != y.Statement {
 			return x.Statement < y.Statement
 		}
-		return x.Peer < y.Peer
+		if x.Peer != y.Peer {
+			return x.Peer < y.Peer
+		}
+		if x.Kind != y.Kind {
+			return x.Kind < y.Kind
+		}
+		return x.System < y.System
 	})
 	for _, e := range a.entries {
 		c.EntryPoints = append(c.EntryPoints, *e)

@@ -7,7 +7,6 @@ import (
 	"fmt"
 	"runtime/pprof"
 	"testing"
-	"time"
 
 	"github.com/culprithq/culprit/attribute"
 	"github.com/culprithq/culprit/callgraph"
@@ -19,8 +18,8 @@ import (
 // the database charge.
 //
 //go:noinline
-func queryVarieties(ctx context.Context, db *sql.DB, until time.Time) (n int, err error) {
-	for time.Now().Before(until) {
+func queryVarieties(ctx context.Context, db *sql.DB, rounds int) (n int, err error) {
+	for r := 0; r < rounds; r++ {
 		for id := 1; id <= 50; id++ {
 			var name string
 			var price int
@@ -36,9 +35,9 @@ func queryVarieties(ctx context.Context, db *sql.DB, until time.Time) (n int, er
 // applyDiscounts is pure CPU work: it must not be charged.
 //
 //go:noinline
-func applyDiscounts(until time.Time) uint64 {
+func applyDiscounts(rounds int) uint64 {
 	var acc uint64 = 1469598103934665603
-	for time.Now().Before(until) {
+	for r := 0; r < rounds; r++ {
 		for i := 0; i < 100_000; i++ {
 			acc ^= uint64(i)
 			acc *= 1099511628211
@@ -78,8 +77,11 @@ func TestRealCPUProfile(t *testing.T) {
 	if err := pprof.StartCPUProfile(&buf); err != nil {
 		t.Skipf("CPU profiler unavailable: %v", err)
 	}
-	n, qerr := queryVarieties(ctx, db, time.Now().Add(900*time.Millisecond))
-	sink := applyDiscounts(time.Now().Add(600 * time.Millisecond))
+	// Fixed amounts of work rather than fixed wall time: the CPU profiler
+	// samples CPU time, so a loaded machine must not thin the profile.
+	// About 1 s of queries and 0.5 s of arithmetic on an idle core.
+	n, qerr := queryVarieties(ctx, db, 2000)
+	sink := applyDiscounts(5000)
 	pprof.StopCPUProfile()
 	if qerr != nil {
 		t.Fatal(qerr)

@@ -96,6 +96,10 @@ type Cause struct {
 	// requestCosts holds the charged cost in each request where the cause
 	// appears, ascending; requests without it are implicit zeros.
 	requestCosts []float64
+	// requestCalls holds the calls (spans) or samples in each request where
+	// the cause appears, ascending, so that merged snapshots recompute
+	// calls per request exactly.
+	requestCalls []float64
 }
 
 // RequestCosts returns the cause's charged cost in each request where it

@@ -1,0 +1,604 @@
+package attribute
+
+import (
+	"encoding/json"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"slices"
+	"strings"
+	"sync"
+	"testing"
+
+	"github.com/culprithq/culprit/traces"
+	"gonum.org/v1/gonum/stat/distuv"
+)
+
+// countCause is a root cause of a hand-made profile snapshot.
+type countCause struct {
+	fn      string
+	samples int64
+}
+
+// countSnapshot returns a profile snapshot whose causes have the given
+// sample counts (one sample = one unit of cost), over the given duration
+// and requests (0 = unknown).
+func countSnapshot(durationNanos int64, requests int, causes ...countCause) *Snapshot {
+	s := &Snapshot{Schema: SnapshotSchema, SourceKind: "profile", ValueType: samplesType, Sampled: true, DurationNanos: durationNanos}
+	for _, c := range causes {
+		s.Causes = append(s.Causes, SnapshotCause{Function: c.fn, Identity: Identity(c.fn), Kind: KindDatabase,
+			Cost: c.samples, Database: c.samples, Samples: c.samples})
+		s.Totals.Database += c.samples
+	}
+	s.Totals.Requests = requests
+	s.Totals.BoundarySamples = s.Totals.Database
+	s.Totals.Other = s.Totals.Database / 2
+	s.Totals.Cost = s.Totals.Database + s.Totals.Other
+	s.Totals.Samples = s.Totals.Cost
+	return s
+}
+
+// costCause is a root cause of a hand-made span snapshot: its cost in each
+// request where it appears.
+type costCause struct {
+	fn    string
+	kind  Kind
+	costs []int64
+}
+
+// costSnapshot returns a span snapshot of n requests whose causes have the
+// given per-request costs (the other requests count as zero).
+func costSnapshot(n int, causes ...costCause) *Snapshot {
+	s := &Snapshot{Schema: SnapshotSchema, SourceKind: "spans", ValueType: traces.ValueType{Type: "duration", Unit: "nanoseconds"},
+		DurationNanos: 60e9}
+	s.Totals.Requests = n
+	s.Totals.Samples = int64(n)
+	for _, c := range causes {
+		sc := SnapshotCause{Function: c.fn, Identity: Identity(c.fn), Kind: c.kind, Requests: len(c.costs)}
+		vals := make([]float64, len(c.costs))
+		for i, v := range c.costs {
+			sc.Cost += v
+			vals[i] = float64(v)
+		}
+		slices.Sort(vals)
+		sc.RequestCosts = newCappedValues(vals)
+		sc.Samples, sc.Calls = int64(len(c.costs)), int64(len(c.costs))
+		if c.kind == KindNetwork {
+			sc.Network = sc.Cost
+			s.Totals.Network += sc.Cost
+		} else {
+			sc.Database = sc.Cost
+			s.Totals.Database += sc.Cost
+		}
+		s.Totals.BoundarySamples += sc.Samples
+		s.Causes = append(s.Causes, sc)
+	}
+	s.Totals.Other = int64(n) * 1000
+	s.Totals.Cost = s.Totals.Database + s.Totals.Network + s.Totals.Other
+	return s
+}
+
+func changeOf(t *testing.T, c *Comparison, fn string) Change {
+	t.Helper()
+	for _, ch := range c.Changes {
+		if ch.Function == fn {
+			return ch
+		}
+	}
+	t.Fatalf("no change for %s in %+v", fn, c.Changes)
+	return Change{}
+}
+
+func near(p *float64, want, tol float64) bool { return p != nil && math.Abs(*p-want) <= tol }
+
+func fmtp(p *float64) string {
+	if p == nil {
+		return "nil"
+	}
+	return fmt.Sprintf("%.4f", *p)
+}
+
+// TestCompareWorkedExamples checks the comparison of sample counts against
+// the worked examples of the methods reference §3 ([comp], computed with
+// SciPy and checked by hand): 120 vs 180 samples over equal exposure give
+// RR 1.5 with the exact (Clopper–Pearson mapped) interval (1.184, 1.906)
+// and exact p = 0.0006; 100 vs 130 per 1,000 requests give exact p =
+// 0.0556. The verdicts follow the budget rules of §6.
+func TestCompareWorkedExamples(t *testing.T) {
+	const fn = "example.com/shop/store.loadOrders"
+	sixty := int64(60e9)
+	tests := []struct {
+		name         string
+		base, cand   *Snapshot
+		budget       Budget
+		basis        Basis
+		rel, lo, hi  float64
+		p            float64
+		verdict      Outcome
+		gated        bool
+		baseV, candV float64
+	}{
+		{"120 vs 180, budget 10%", countSnapshot(sixty, 0, countCause{fn, 120}), countSnapshot(sixty, 0, countCause{fn, 180}),
+			Budget{Relative: 0.10, Set: true}, BasisPerSecond, 0.5, 0.184, 0.906, 0.0006, OutcomeRegressed, true, 2, 3},
+		{"120 vs 180, default budget", countSnapshot(sixty, 0, countCause{fn, 120}), countSnapshot(sixty, 0, countCause{fn, 180}),
+			Budget{}, BasisPerSecond, 0.5, 0.184, 0.906, 0.0006, OutcomeRegressed, true, 2, 3},
+		{"120 vs 180, budget 20% straddled", countSnapshot(sixty, 0, countCause{fn, 120}), countSnapshot(sixty, 0, countCause{fn, 180}),
+			Budget{Relative: 0.20, Set: true}, BasisPerSecond, 0.5, 0.184, 0.906, 0.0006, OutcomeInconclusive, false, 2, 3},
+		{"120 vs 180, budget 95% not reached", countSnapshot(sixty, 0, countCause{fn, 120}), countSnapshot(sixty, 0, countCause{fn, 180}),
+			Budget{Relative: 0.95, Set: true}, BasisPerSecond, 0.5, 0.184, 0.906, 0.0006, OutcomeUnchanged, false, 2, 3},
+		// Absolute budget in samples per second: the change's lower bound
+		// is 0.184 × 2/s = 0.368/s.
+		{"120 vs 180, absolute 0.3/s cleared", countSnapshot(sixty, 0, countCause{fn, 120}), countSnapshot(sixty, 0, countCause{fn, 180}),
+			Budget{Relative: 0.10, Absolute: 0.3, Set: true}, BasisPerSecond, 0.5, 0.184, 0.906, 0.0006, OutcomeRegressed, true, 2, 3},
+		{"120 vs 180, absolute 0.5/s straddled", countSnapshot(sixty, 0, countCause{fn, 120}), countSnapshot(sixty, 0, countCause{fn, 180}),
+			Budget{Relative: 0.10, Absolute: 0.5, Set: true}, BasisPerSecond, 0.5, 0.184, 0.906, 0.0006, OutcomeInconclusive, false, 2, 3},
+		{"180 vs 120, improved", countSnapshot(sixty, 0, countCause{fn, 180}), countSnapshot(sixty, 0, countCause{fn, 120}),
+			Budget{Relative: 0.10, Set: true}, BasisPerSecond, -1.0 / 3, 1/1.906 - 1, 1/1.184 - 1, 0.0006, OutcomeImproved, false, 3, 2},
+		{"100 vs 130 per 1,000 requests", countSnapshot(sixty, 1000, countCause{fn, 100}), countSnapshot(2*sixty, 1000, countCause{fn, 130}),
+			Budget{}, BasisPerRequest, 0.3, math.NaN(), math.NaN(), 0.0556, OutcomeUnchanged, false, 0.1, 0.13},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			c := Compare(tt.base, tt.cand, CompareOptions{Budget: tt.budget})
+			if c.Basis != tt.basis {
+				t.Errorf("basis %s, want %s", c.Basis, tt.basis)
+			}
+			ch := changeOf(t, c, fn)
+			if ch.Method != MethodPoisson {
+				t.Errorf("method %s", ch.Method)
+			}
+			if !near(ch.RelativeChange, tt.rel, 1e-9) || !near(ch.PValue, tt.p, 5e-5) {
+				t.Errorf("relative change %s p %s, want %.4f and %.4f", fmtp(ch.RelativeChange), fmtp(ch.PValue), tt.rel, tt.p)
+			}
+			if !math.IsNaN(tt.lo) && (!near(ch.RelLo, tt.lo, 1e-3) || !near(ch.RelHi, tt.hi, 1e-3)) {
+				t.Errorf("interval (%s, %s), want (%.3f, %.3f)", fmtp(ch.RelLo), fmtp(ch.RelHi), tt.lo, tt.hi)
+			}
+			if math.Abs(ch.Base-tt.baseV) > 1e-12 || math.Abs(ch.Candidate-tt.candV) > 1e-12 || math.Abs(ch.Change-(tt.candV-tt.baseV)) > 1e-12 {
+				t.Errorf("values %v → %v (%v), want %v → %v", ch.Base, ch.Candidate, ch.Change, tt.baseV, tt.candV)
+			}
+			// One cause: the q-value is the p-value.
+			if ch.QValue == nil || *ch.QValue != *ch.PValue {
+				t.Errorf("q %s, want p %s", fmtp(ch.QValue), fmtp(ch.PValue))
+			}
+			if ch.Verdict != tt.verdict {
+				t.Errorf("verdict %s, want %s", ch.Verdict, tt.verdict)
+			}
+			if got := len(c.Gate()) > 0; got != tt.gated {
+				t.Errorf("gate tripped %t, want %t", got, tt.gated)
+			}
+			// MDE for counts (methods reference §6): exp(2.8016·√(1/cb + 1/cc)) − 1.
+			wantMDE := math.Exp(2.8016*math.Sqrt(1/float64(ch.BaseSamples)+1/float64(ch.CandSamples))) - 1
+			if !near(ch.MDE, wantMDE, 1e-3) {
+				t.Errorf("MDE %s, want %.4f", fmtp(ch.MDE), wantMDE)
+			}
+		})
+	}
+}
+
+// TestCompareRankTests checks the per-request method against the examples
+// of the methods reference §4: Shier's (Mathematics Learning Support
+// Centre, 2004) tie-free samples {19,22,16,29,24} vs {20,11,17,12} have the
+// exact two-sided p = 0.1111 [pub]; the tied samples {12,15,15,18,20,22}
+// vs {10,12,12,14,15,16} have p = 0.0881 with continuity correction
+// [comp]. Every request carries the cause here, so no zeros are added.
+func TestCompareRankTests(t *testing.T) {
+	const fn = "shop.loadOrders"
+	tests := []struct {
+		name       string
+		base, cand []int64
+		p          float64
+	}{
+		{"exact, no ties", []int64{20, 11, 17, 12}, []int64{19, 22, 16, 29, 24}, 0.1111},
+		{"normal with ties", []int64{10, 12, 12, 14, 15, 16}, []int64{12, 15, 15, 18, 20, 22}, 0.0881},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			b := costSnapshot(len(tt.base), costCause{fn, KindDatabase, tt.base})
+			c := costSnapshot(len(tt.cand), costCause{fn, KindDatabase, tt.cand})
+			cmp := Compare(b, c, CompareOptions{Seed: 1})
+			ch := changeOf(t, cmp, fn)
+			if ch.Method != MethodMWUBootstrap || cmp.Basis != BasisPerRequest {
+				t.Fatalf("method %s basis %s", ch.Method, cmp.Basis)
+			}
+			if !near(ch.PValue, tt.p, 1e-4) {
+				t.Errorf("p = %s, want %.4f", fmtp(ch.PValue), tt.p)
+			}
+			mean := func(x []int64) float64 {
+				s := 0.0
+				for _, v := range x {
+					s += float64(v)
+				}
+				return s / float64(len(x))
+			}
+			if want := mean(tt.cand)/mean(tt.base) - 1; !near(ch.RelativeChange, want, 1e-12) {
+				t.Errorf("relative change %s, want %.4f", fmtp(ch.RelativeChange), want)
+			}
+			if ch.RelLo == nil || ch.RelHi == nil || !(*ch.RelLo <= *ch.RelativeChange && *ch.RelativeChange <= *ch.RelHi) {
+				t.Errorf("bootstrap interval (%s, %s) does not hold the estimate %s", fmtp(ch.RelLo), fmtp(ch.RelHi), fmtp(ch.RelativeChange))
+			}
+			if ch.Verdict != OutcomeUnchanged {
+				t.Errorf("verdict %s, want unchanged (p > 0.05)", ch.Verdict)
+			}
+		})
+	}
+	t.Run("zeros are the requests without the cause", func(t *testing.T) {
+		// The cause appears in 4 of 10 base requests and 5 of 10 candidate
+		// requests: the test sees 6 and 5 zeros, as MannWhitney on the
+		// padded vectors does.
+		b := costSnapshot(10, costCause{fn, KindDatabase, []int64{20, 11, 17, 12}})
+		c := costSnapshot(10, costCause{fn, KindDatabase, []int64{19, 22, 16, 29, 24}})
+		ch := changeOf(t, Compare(b, c, CompareOptions{}), fn)
+		want := MannWhitney([]float64{0, 0, 0, 0, 0, 19, 22, 16, 29, 24}, []float64{0, 0, 0, 0, 0, 0, 20, 11, 17, 12}).PCorrected
+		if !near(ch.PValue, want, 1e-12) {
+			t.Errorf("p = %s, want %.6f", fmtp(ch.PValue), want)
+		}
+		if ch.BaseRequests != 4 || ch.CandRequests != 5 {
+			t.Errorf("requests %d/%d, want 4/5", ch.BaseRequests, ch.CandRequests)
+		}
+		if want := (110.0/10)/(60.0/10) - 1; !near(ch.RelativeChange, want, 1e-12) {
+			t.Errorf("relative change %s, want %.4f", fmtp(ch.RelativeChange), want)
+		}
+	})
+}
+
+// TestCompareBenjaminiHochberg checks that q-values are adjusted across all
+// compared causes (Benjamini & Hochberg, JRSS B 57, 1995: q(i) = min over
+// j ≥ i of m·p(j)/j): a change significant on its own is not significant
+// among five unchanged causes.
+func TestCompareBenjaminiHochberg(t *testing.T) {
+	const hot = "example.com/shop/store.loadOrders"
+	d := int64(60e9)
+	alone := Compare(countSnapshot(d, 0, countCause{hot, 100}), countSnapshot(d, 0, countCause{hot, 135}), CompareOptions{})
+	ch := changeOf(t, alone, hot)
+	if ch.PValue == nil || *ch.PValue >= 0.05 || ch.Verdict != OutcomeRegressed && ch.Verdict != OutcomeInconclusive {
+		t.Fatalf("alone: p %s verdict %s, want significant", fmtp(ch.PValue), ch.Verdict)
+	}
+	others := []countCause{{"example.com/shop/a.f", 200}, {"example.com/shop/b.f", 300}, {"example.com/shop/c.f", 150},
+		{"example.com/shop/d.f", 90}, {"example.com/shop/e.f", 500}}
+	base := countSnapshot(d, 0, append([]countCause{{hot, 100}}, others...)...)
+	cand := countSnapshot(d, 0, append([]countCause{{hot, 135}}, others...)...)
+	fam := Compare(base, cand, CompareOptions{})
+	if len(fam.Changes) != 6 {
+		t.Fatalf("%d changes, want 6", len(fam.Changes))
+	}
+	// Hand computation of the step-up adjustment over the six p-values.
+	ps := make([]float64, len(fam.Changes))
+	for i, c := range fam.Changes {
+		ps[i] = *c.PValue
+	}
+	order := make([]int, len(ps))
+	for i := range order {
+		order[i] = i
+	}
+	slices.SortStableFunc(order, func(a, b int) int { return cmpFloat(ps[a], ps[b]) })
+	want := make([]float64, len(ps))
+	run := 1.0
+	for r := len(order) - 1; r >= 0; r-- {
+		run = math.Min(run, float64(len(ps))*ps[order[r]]/float64(r+1))
+		want[order[r]] = run
+	}
+	for i, c := range fam.Changes {
+		if !near(c.QValue, want[i], 1e-12) {
+			t.Errorf("%s: q %s, want %.6f", c.Function, fmtp(c.QValue), want[i])
+		}
+	}
+	h := changeOf(t, fam, hot)
+	if !near(h.QValue, 6**h.PValue, 1e-12) || h.Verdict != OutcomeUnchanged {
+		t.Errorf("in the family: p %s q %s verdict %s, want q = 6p and unchanged", fmtp(h.PValue), fmtp(h.QValue), h.Verdict)
+	}
+}
+
+func cmpFloat(a, b float64) int {
+	switch {
+	case a < b:
+		return -1
+	case a > b:
+		return 1
+	}
+	return 0
+}
+
+// TestCompareStructure checks basis selection, identity grouping, new and
+// gone causes, ordering, the gate and JSON encoding.
+func TestCompareStructure(t *testing.T) {
+	t.Run("basis", func(t *testing.T) {
+		tests := []struct {
+			name       string
+			base, cand *Snapshot
+			want       Basis
+			baseExp    float64
+		}{
+			{"both know requests", countSnapshot(10e9, 50, countCause{"p.f", 10}), countSnapshot(0, 70, countCause{"p.f", 10}), BasisPerRequest, 50},
+			{"one lacks requests", countSnapshot(10e9, 50, countCause{"p.f", 10}), countSnapshot(20e9, 0, countCause{"p.f", 10}), BasisPerSecond, 10},
+			{"one lacks duration too", countSnapshot(10e9, 50, countCause{"p.f", 10}), countSnapshot(0, 0, countCause{"p.f", 10}), BasisShare, 10},
+		}
+		for _, tt := range tests {
+			t.Run(tt.name, func(t *testing.T) {
+				c := Compare(tt.base, tt.cand, CompareOptions{})
+				if c.Basis != tt.want || c.Base.Exposure != tt.baseExp {
+					t.Errorf("basis %s exposure %v, want %s and %v", c.Basis, c.Base.Exposure, tt.want, tt.baseExp)
+				}
+			})
+		}
+	})
+	t.Run("closures renumbered and added up", func(t *testing.T) {
+		base := countSnapshot(60e9, 0, countCause{"example.com/shop/api.handler.func1", 300}, countCause{"example.com/shop/api.handler.func2", 100})
+		cand := countSnapshot(60e9, 0, countCause{"example.com/shop/api.handler.func3", 310}, countCause{"example.com/shop/api.handler.func1.1", 95})
+		c := Compare(base, cand, CompareOptions{})
+		if len(c.Changes) != 1 {
+			t.Fatalf("%d changes, want 1", len(c.Changes))
+		}
+		ch := c.Changes[0]
+		if ch.Identity != "example.com/shop/api.handler.func*" || ch.Function != "example.com/shop/api.handler.func3" ||
+			ch.BaseSamples != 400 || ch.CandSamples != 405 || len(ch.Functions) != 4 || ch.Verdict != OutcomeUnchanged {
+			t.Errorf("change = %+v", ch)
+		}
+	})
+	t.Run("new, gone, order, gate and JSON", func(t *testing.T) {
+		const (
+			reg   = "example.com/shop/store.loadOrders"
+			imp   = "example.com/shop/store.loadUser"
+			same  = "example.com/shop/api.render"
+			gone  = "example.com/shop/store.oldQuery"
+			fresh = "example.com/shop/store.newQuery"
+			small = "example.com/shop/store.tiny"
+		)
+		base := countSnapshot(60e9, 0, countCause{reg, 200}, countCause{imp, 400}, countCause{same, 300}, countCause{gone, 50}, countCause{small, 40})
+		cand := countSnapshot(60e9, 0, countCause{reg, 400}, countCause{imp, 200}, countCause{same, 305}, countCause{fresh, 120}, countCause{small, 41})
+		c := Compare(base, cand, CompareOptions{})
+		var got []string
+		for _, ch := range c.Changes {
+			got = append(got, string(ch.Verdict)+" "+ch.Function)
+		}
+		want := []string{"regressed " + reg, "new " + fresh, "improved " + imp, "gone " + gone, "unchanged " + same, "unchanged " + small}
+		if !slices.Equal(got, want) {
+			t.Errorf("changes:\n%s\nwant:\n%s", strings.Join(got, "\n"), strings.Join(want, "\n"))
+		}
+		if g := c.Gate(); len(g) != 1 || g[0].Function != reg {
+			t.Errorf("gate = %+v, want only the regression", g)
+		}
+		// A new cause fails only an absolute budget it exceeds (in samples
+		// per second): the new cause has 2/s; the regression's absolute
+		// change has the lower bound 0.69 × 3.33/s ≈ 2.3/s.
+		for _, tt := range []struct {
+			abs  float64
+			want int
+		}{{1, 2}, {2.1, 1}, {3, 0}} {
+			c := Compare(base, cand, CompareOptions{Budget: Budget{Relative: 0.1, Absolute: tt.abs, Set: true}})
+			if g := c.Gate(); len(g) != tt.want {
+				t.Errorf("absolute budget %v: gate = %d changes, want %d", tt.abs, len(g), tt.want)
+			}
+		}
+		nc := changeOf(t, c, fresh)
+		if nc.RelativeChange != nil || nc.RelLo != nil || nc.MDE != nil || nc.PValue == nil || nc.Base != 0 {
+			t.Errorf("new cause = %+v, want no relative change or MDE but a p-value", nc)
+		}
+		b, err := json.Marshal(c)
+		if err != nil {
+			t.Fatalf("encoding: %v", err)
+		}
+		for _, key := range []string{`"basis":"per-second"`, `"changes":[`, `"relativeChange":null`, `"pValue":`, `"qValue":`,
+			`"verdict":"regressed"`, `"mde":`, `"method":"poisson-exact"`, `"unit":"count per second"`, `"warnings":[]`} {
+			if !strings.Contains(string(b), key) {
+				t.Errorf("JSON lacks %s", key)
+			}
+		}
+	})
+	t.Run("zero counts encode", func(t *testing.T) {
+		// No boundary samples at all on one side: nothing to test, no NaN.
+		empty := countSnapshot(0, 0)
+		c := Compare(empty, countSnapshot(0, 0, countCause{"p.f", 3}), CompareOptions{})
+		if _, err := json.Marshal(c); err != nil {
+			t.Fatalf("encoding: %v", err)
+		}
+		if c.Changes[0].Verdict != OutcomeNew {
+			t.Errorf("verdict %s, want new", c.Changes[0].Verdict)
+		}
+	})
+	t.Run("mismatched sides warn", func(t *testing.T) {
+		b := countSnapshot(60e9, 0, countCause{"p.f", 3})
+		c := costSnapshot(5, costCause{"p.f", KindDatabase, []int64{1, 2}})
+		cmp := Compare(b, c, CompareOptions{})
+		if len(cmp.Warnings) == 0 || !strings.Contains(cmp.Warnings[0], "profile source, the candidate a spans source") {
+			t.Errorf("warnings = %q", cmp.Warnings)
+		}
+	})
+	t.Run("deterministic", func(t *testing.T) {
+		b := costSnapshot(40, costCause{"p.f", KindDatabase, []int64{5, 9, 3, 7, 11, 2, 8}}, costCause{"p.g", KindNetwork, []int64{50, 70}})
+		c := costSnapshot(45, costCause{"p.f", KindDatabase, []int64{6, 9, 4, 7, 12, 2, 8, 9}}, costCause{"p.g", KindNetwork, []int64{55}})
+		x, _ := json.Marshal(Compare(b, c, CompareOptions{Seed: 42}))
+		y, _ := json.Marshal(Compare(b, c, CompareOptions{Seed: 42}))
+		if string(x) != string(y) {
+			t.Error("the same seed gave different comparisons")
+		}
+	})
+}
+
+// shopCause describes how a root cause of a simulated, span-traced shop
+// service spends per request: calls per request (fixed, or Poisson with
+// mean lambda; a request with no call lacks the cause) and a log-normal
+// duration per call.
+type shopCause struct {
+	fn       string
+	kind     Kind
+	fixed    int     // calls per request when > 0
+	lambda   float64 // mean calls per request (Poisson) otherwise
+	medianMs float64 // median duration of one call
+	sigma    float64 // log-scale spread of one call's duration
+	rate     float64 // samples per second, for the profile simulation
+}
+
+// shopCauses is the simulated service: an N+1 loop of item queries, one
+// user lookup, a price service called once or twice, an audit write in one
+// request of ten, a rare notification and a heavy-tailed catalogue search
+// (most requests without it).
+var shopCauses = []shopCause{
+	{fn: "example.com/shop/store.loadOrderItems", kind: KindDatabase, lambda: 8, medianMs: 2, sigma: 0.5, rate: 800.0 / 30},
+	{fn: "example.com/shop/store.loadUser", kind: KindDatabase, fixed: 1, medianMs: 3, sigma: 0.8, rate: 400.0 / 30},
+	{fn: "example.com/shop/pricing.fetchPrices", kind: KindNetwork, lambda: 1.5, medianMs: 15, sigma: 0.9, rate: 250.0 / 30},
+	{fn: "example.com/shop/audit.save", kind: KindDatabase, lambda: 0.1, medianMs: 5, sigma: 0.6, rate: 150.0 / 30},
+	{fn: "example.com/shop/notify.send", kind: KindNetwork, lambda: 0.03, medianMs: 40, sigma: 1.0, rate: 60.0 / 30},
+	{fn: "example.com/shop/catalog.search", kind: KindDatabase, lambda: 0.5, medianMs: 20, sigma: 1.2, rate: 300.0 / 30},
+}
+
+// simulateSpans draws n requests of the shop service; the call durations of
+// cause planted (if ≥ 0) are multiplied by factor.
+func simulateSpans(rng *rand.Rand, n, planted int, factor float64) *Snapshot {
+	var causes []costCause
+	for j, sc := range shopCauses {
+		pois := distuv.Poisson{Lambda: math.Max(sc.lambda, 1e-9), Src: rng}
+		cc := costCause{fn: sc.fn, kind: sc.kind}
+		for range n {
+			k := sc.fixed
+			if k == 0 {
+				k = int(pois.Rand())
+			}
+			var cost float64
+			for range k {
+				d := sc.medianMs * 1e6 * math.Exp(sc.sigma*rng.NormFloat64())
+				if j == planted {
+					d *= factor
+				}
+				cost += d
+			}
+			if k > 0 {
+				cc.costs = append(cc.costs, int64(math.Round(cost)))
+			}
+		}
+		if len(cc.costs) > 0 {
+			causes = append(causes, cc)
+		}
+	}
+	return costSnapshot(n, causes...)
+}
+
+// simulateProfile draws Poisson sample counts of the shop service's causes
+// over seconds of profile; the rate of cause planted (if ≥ 0) is multiplied
+// by factor.
+func simulateProfile(rng *rand.Rand, seconds float64, planted int, factor float64) *Snapshot {
+	var causes []countCause
+	for j, sc := range shopCauses {
+		lambda := sc.rate * seconds
+		if j == planted {
+			lambda *= factor
+		}
+		if k := int64(distuv.Poisson{Lambda: lambda, Src: rng}.Rand()); k > 0 {
+			causes = append(causes, countCause{sc.fn, k})
+		}
+	}
+	return countSnapshot(int64(seconds*1e9), 0, causes...)
+}
+
+// simulation is the outcome of many seeded comparisons.
+type simulation struct {
+	pairs, gateTrips int
+	planted          int // pairs where the planted cause was regressed
+	others, unch     int // (cause, pair) cases of other causes; those unchanged
+}
+
+// simulate runs pairs comparisons of base and candidate drawn by draw
+// (candidate with the planted factor), in parallel, each from its own seed.
+func simulate(pairs int, budget Budget, planted int, draw func(rng *rand.Rand, candidate bool) *Snapshot) simulation {
+	var mu sync.Mutex
+	var sim simulation
+	var wg sync.WaitGroup
+	work := make(chan int)
+	for range 2 {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := range work {
+				rng := rand.New(rand.NewPCG(uint64(i), 0x5eed))
+				base, cand := draw(rng, false), draw(rng, true)
+				c := Compare(base, cand, CompareOptions{Budget: budget, Seed: uint64(i)})
+				mu.Lock()
+				sim.pairs++
+				if len(c.Gate()) > 0 {
+					sim.gateTrips++
+				}
+				for _, ch := range c.Changes {
+					if planted >= 0 && ch.Function == shopCauses[planted].fn {
+						if ch.Verdict == OutcomeRegressed {
+							sim.planted++
+						}
+						continue
+					}
+					sim.others++
+					if ch.Verdict == OutcomeUnchanged {
+						sim.unch++
+					}
+				}
+				mu.Unlock()
+			}
+		}()
+	}
+	for i := range pairs {
+		work <- i
+	}
+	close(work)
+	wg.Wait()
+	return sim
+}
+
+// TestCompareCalibration runs seeded A/A and power simulations at demo-like
+// sizes: 150 requests per side for spans (six causes, per-request costs
+// log-normal per call, four causes absent from most requests), and 30 s vs
+// 33 s of profile for sample counts (60 to 800 samples per cause in the
+// base). A/A: base and candidate from the same generator; the gate at a 10 %
+// budget may trip in at most 5 % of pairs (the FDR level; calibrating the
+// gate by A/A pairs is the practice of the methods reference §6). Power: a
+// planted +30 % (per-request mean, or sample rate) on the N+1 cause must be
+// regressed at a 5 % budget in at least 95 % of pairs, and every other cause
+// unchanged in at least 95 % of (cause, pair) cases. These are
+// requirements of the product, not published values.
+func TestCompareCalibration(t *testing.T) {
+	pairs := 200
+	if testing.Short() {
+		pairs = 50
+	}
+	const spansPerSide = 150
+	tests := []struct {
+		name string
+		draw func(factor float64) func(rng *rand.Rand, candidate bool) *Snapshot
+	}{
+		{"spans", func(factor float64) func(rng *rand.Rand, candidate bool) *Snapshot {
+			return func(rng *rand.Rand, candidate bool) *Snapshot {
+				if candidate {
+					return simulateSpans(rng, spansPerSide, 0, factor)
+				}
+				return simulateSpans(rng, spansPerSide, -1, 1)
+			}
+		}},
+		{"profiles", func(factor float64) func(rng *rand.Rand, candidate bool) *Snapshot {
+			return func(rng *rand.Rand, candidate bool) *Snapshot {
+				if candidate {
+					return simulateProfile(rng, 33, 0, factor)
+				}
+				return simulateProfile(rng, 30, -1, 1)
+			}
+		}},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			t.Parallel()
+			aa := simulate(pairs, Budget{Relative: 0.10, Set: true}, -1, tt.draw(1))
+			rate := float64(aa.gateTrips) / float64(aa.pairs)
+			t.Logf("A/A: gate (budget 10%%) tripped in %d of %d pairs (%.1f%%); %d of %d cause comparisons unchanged (%.1f%%)",
+				aa.gateTrips, aa.pairs, 100*rate, aa.unch, aa.others, 100*float64(aa.unch)/float64(aa.others))
+			if rate > 0.05 {
+				t.Errorf("A/A false gate rate %.3f > 0.05", rate)
+			}
+			pw := simulate(pairs, Budget{Relative: 0.05, Set: true}, 0, tt.draw(1.3))
+			power := float64(pw.planted) / float64(pw.pairs)
+			spec := float64(pw.unch) / float64(pw.others)
+			t.Logf("power: +30%% regressed (budget 5%%) in %d of %d pairs (%.1f%%); other causes unchanged in %d of %d cases (%.1f%%)",
+				pw.planted, pw.pairs, 100*power, pw.unch, pw.others, 100*spec)
+			if power < 0.95 {
+				t.Errorf("power %.3f < 0.95", power)
+			}
+			if spec < 0.95 {
+				t.Errorf("other causes unchanged in %.3f < 0.95 of cases", spec)
+			}
+		})
+	}
+}
