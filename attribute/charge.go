@@ -140,7 +140,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 	fo := opts.Findings.withDefaults()
 	spans := src.Kind == traces.Spans
 	w := newWalkState(t, c)
-	rec := newRecursionFinder(t, c)
+	rec := newRecursionFinder(t, c, w)
 
 	res := &Result{
 		Inputs:        src.Inputs,
@@ -196,7 +196,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 			}
 		}
 		b := w.boundary[leaf]
-		if b == 0 || (spans && b != leaf) {
+		if b == 0 || (spans && len(p.Frames) > t.Depth(b)) {
 			// No boundary (other cost), or a span inside an outbound call.
 			continue
 		}

@@ -49,7 +49,7 @@ func ChargeGraph(t *callgraph.Tree, c *Classifier, opts Options, minShare float6
 		p := &src.Paths[pi]
 		leaf := t.Leaf(pi)
 		b := w.boundary[leaf]
-		if b == 0 || (spans && b != leaf) {
+		if b == 0 || (spans && len(p.Frames) > t.Depth(b)) {
 			continue
 		}
 		val := p.Values[vi]

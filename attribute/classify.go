@@ -78,6 +78,10 @@ func NewClassifier(src *traces.Source, rules *Rules) *Classifier {
 	return c
 }
 
+// IsBoundary reports whether frame id is a database or network frame. It
+// suits callgraph.TreeOptions.Cut: attribution needs nothing below a boundary.
+func (c *Classifier) IsBoundary(id traces.FrameID) bool { return c.verdicts[id].Class.IsBoundary() }
+
 // Verdict returns the classification of frame id.
 func (c *Classifier) Verdict(id traces.FrameID) *Verdict { return &c.verdicts[id] }
 

@@ -62,7 +62,7 @@ func Explain(t *callgraph.Tree, c *Classifier, opts Options, pattern *regexp.Reg
 		p := &src.Paths[pi]
 		leaf := t.Leaf(pi)
 		b := w.boundary[leaf]
-		if b == 0 || (spans && b != leaf) {
+		if b == 0 || (spans && len(p.Frames) > t.Depth(b)) {
 			continue
 		}
 		val := p.Values[vi]

@@ -41,14 +41,21 @@ func (o FindingOptions) withDefaults() FindingOptions {
 }
 
 // recursionFinder confirms recursion reaching a boundary on real paths.
-// Candidates come from the strongly connected components of the function
-// graph (Tarjan's algorithm, via gonum); a merged graph can show cycles
+// Candidates come from the strongly connected components (Tarjan's
+// algorithm, via gonum) of the graph of application functions calling
+// application functions above boundaries; a merged graph can show cycles
 // that no single path has, so each candidate is confirmed on the path.
 type recursionFinder struct {
 	t          *callgraph.Tree
 	c          *Classifier
-	candidates map[string]bool
+	funcOf     []int32 // frame → application function index, -1 for others
+	names      []string
+	candidate  []bool // by function index
+	stamp      []int32
+	count      []int32
+	epoch      int32
 	cache      map[callgraph.NodeID]recursionHit
+	candidates int
 }
 
 type recursionHit struct {
@@ -56,46 +63,82 @@ type recursionHit struct {
 	depth int
 }
 
-func newRecursionFinder(t *callgraph.Tree, c *Classifier) *recursionFinder {
-	g := callgraph.NewGraph(t, t.Source().DefaultValue)
-	cands := map[string]bool{}
-	for _, scc := range topo.TarjanSCC(g) {
-		if len(scc) > 1 {
-			for _, n := range scc {
-				cands[g.Name(callgraph.FuncID(n.ID()))] = true
-			}
+func newRecursionFinder(t *callgraph.Tree, c *Classifier, w *walkState) *recursionFinder {
+	src := t.Source()
+	r := &recursionFinder{t: t, c: c, funcOf: make([]int32, len(src.Frames)), cache: map[callgraph.NodeID]recursionHit{}}
+	byName := map[string]int32{}
+	for i := range src.Frames {
+		r.funcOf[i] = -1
+		if i == 0 || c.verdicts[i].Class != Application {
 			continue
 		}
-		id := scc[0].ID()
-		if g.HasEdgeFromTo(id, id) {
-			cands[g.Name(callgraph.FuncID(id))] = true
+		name := src.Frames[i].Function
+		id, ok := byName[name]
+		if !ok {
+			id = int32(len(r.names))
+			byName[name] = id
+			r.names = append(r.names, name)
+		}
+		r.funcOf[i] = id
+	}
+	// Edges between consecutive application frames above a boundary.
+	var edges []uint64
+	selfLoop := make([]bool, len(r.names))
+	for i := 1; i < t.Len(); i++ {
+		n := callgraph.NodeID(i)
+		fn := r.funcOf[t.Frame(n)]
+		if fn < 0 || w.boundary[n] != 0 {
+			continue
+		}
+		above := w.lastApp[t.Parent(n)]
+		if above == 0 {
+			continue
+		}
+		caller := r.funcOf[t.Frame(above)]
+		if caller == fn {
+			selfLoop[fn] = true
+		}
+		edges = append(edges, callgraph.PackEdge(caller, fn))
+	}
+	g := callgraph.NewAdjacency(len(r.names), edges)
+	r.candidate = make([]bool, len(r.names))
+	for _, scc := range topo.TarjanSCC(g) {
+		for _, gn := range scc {
+			fn := gn.ID()
+			if len(scc) > 1 || selfLoop[fn] {
+				r.candidate[fn] = true
+				r.candidates++
+			}
 		}
 	}
-	return &recursionFinder{t: t, c: c, candidates: cands, cache: map[callgraph.NodeID]recursionHit{}}
+	r.stamp = make([]int32, len(r.names))
+	r.count = make([]int32, len(r.names))
+	return r
 }
 
 // at returns the application function that occurs most often (at least
 // twice) on the path above boundary node b, and how often; "" if none.
 func (r *recursionFinder) at(b callgraph.NodeID) (string, int) {
-	if len(r.candidates) == 0 {
+	if r.candidates == 0 {
 		return "", 0
 	}
 	if h, ok := r.cache[b]; ok {
 		return h.fn, h.depth
 	}
-	src := r.t.Source()
-	counts := map[string]int{}
+	r.epoch++
+	best := recursionHit{}
 	for n := r.t.Parent(b); n != callgraph.Root; n = r.t.Parent(n) {
-		f := r.t.Frame(n)
-		name := src.Frames[f].Function
-		if r.candidates[name] && r.c.Verdict(f).Class == Application {
-			counts[name]++
+		fn := r.funcOf[r.t.Frame(n)]
+		if fn < 0 || !r.candidate[fn] {
+			continue
 		}
-	}
-	var best recursionHit
-	for fn, k := range counts {
-		if k >= 2 && (k > best.depth || (k == best.depth && fn < best.fn)) {
-			best = recursionHit{fn: fn, depth: k}
+		if r.stamp[fn] != r.epoch {
+			r.stamp[fn], r.count[fn] = r.epoch, 0
+		}
+		r.count[fn]++
+		k := int(r.count[fn])
+		if k >= 2 && (k > best.depth || (k == best.depth && r.names[fn] < best.fn)) {
+			best = recursionHit{fn: r.names[fn], depth: k}
 		}
 	}
 	r.cache[b] = best

@@ -77,7 +77,7 @@ func rankProfile(t testing.TB, data []byte, rules *Rules, opts Options) *Result 
 	if err != nil {
 		t.Fatal(err)
 	}
-	tree := callgraph.NewTree(src)
+	tree := callgraph.NewTree(src, callgraph.TreeOptions{})
 	return Attribute(tree, NewClassifier(src, rules), opts)
 }
 

@@ -96,7 +96,7 @@ func TestRealCPUProfile(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	res := attribute.Attribute(callgraph.NewTree(src), attribute.NewClassifier(src, attribute.DefaultRules()), attribute.Options{Value: "samples"})
+	res := attribute.Attribute(callgraph.NewTree(src, callgraph.TreeOptions{}), attribute.NewClassifier(src, attribute.DefaultRules()), attribute.Options{Value: "samples"})
 	if !res.CPUOnly {
 		t.Error("a CPU profile must carry the CPU-only caveat")
 	}

@@ -51,7 +51,7 @@ func rankInputs(t testing.TB, rules *Rules, opts Options, inputs ...namedInput) 
 	if err != nil {
 		t.Fatal(err)
 	}
-	return Attribute(callgraph.NewTree(src), NewClassifier(src, rules), opts)
+	return Attribute(callgraph.NewTree(src, callgraph.TreeOptions{}), NewClassifier(src, rules), opts)
 }
 
 func shopRules() *Rules {
@@ -174,7 +174,7 @@ func rankSpans(t testing.TB, src *traces.Source) *Result {
 	if err := src.Validate(); err != nil {
 		t.Fatal(err)
 	}
-	return Attribute(callgraph.NewTree(src), NewClassifier(src, DefaultRules()), Options{})
+	return Attribute(callgraph.NewTree(src, callgraph.TreeOptions{}), NewClassifier(src, DefaultRules()), Options{})
 }
 
 func mustJSON(t testing.TB, v any) string {

@@ -34,7 +34,7 @@ func TestTreeAndGraphMethodsExample(t *testing.T) {
 		"main>walk>walk>walk>sql.Query",
 	}
 	src := source(map[string]int64{order[0]: 10, order[1]: 30, order[2]: 20, order[3]: 5}, order)
-	tree := NewTree(src)
+	tree := NewTree(src, TreeOptions{})
 	// Nodes: root, main, handler, loadUser, sql, loadOrders, sql, render, walk, walk, walk, sql.
 	if tree.Len() != 12 {
 		t.Errorf("tree has %d nodes, want 12", tree.Len())
@@ -81,7 +81,7 @@ func TestTreeAndGraphMethodsExample(t *testing.T) {
 func TestGraphMergedCycle(t *testing.T) {
 	order := []string{"main>A>B>db", "main>B>A>render"}
 	src := source(map[string]int64{order[0]: 1, order[1]: 1}, order)
-	g := NewGraph(NewTree(src), 0)
+	g := NewGraph(NewTree(src, TreeOptions{}), 0)
 	a, _ := g.Lookup("A")
 	b, _ := g.Lookup("B")
 	if !g.HasEdgeFromTo(int64(a), int64(b)) || !g.HasEdgeFromTo(int64(b), int64(a)) {
@@ -102,7 +102,7 @@ func TestGraphMergedCycle(t *testing.T) {
 func TestTreeGonumInterface(t *testing.T) {
 	order := []string{"a>b", "a>c"}
 	src := source(map[string]int64{"a>b": 2, "a>c": 3}, order)
-	tree := NewTree(src)
+	tree := NewTree(src, TreeOptions{})
 	a := tree.Parent(tree.Leaf(0))
 	if !tree.HasEdgeFromTo(int64(a), int64(tree.Leaf(1))) || tree.HasEdgeFromTo(int64(tree.Leaf(0)), int64(a)) {
 		t.Error("edge direction wrong")
@@ -134,7 +134,7 @@ func TestTreeDeepRecursionNoStackOverflow(t *testing.T) {
 		frames[i] = f
 	}
 	src.Paths = append(src.Paths, traces.Path{Frames: frames, Values: []int64{1}})
-	g := NewGraph(NewTree(src), 0)
+	g := NewGraph(NewTree(src, TreeOptions{}), 0)
 	id, _ := g.Lookup("rec")
 	if g.Cum(id) != 1 {
 		t.Errorf("cum = %d, want 1", g.Cum(id))

@@ -33,8 +33,18 @@ type Tree struct {
 
 var _ graph.WeightedDirected = (*Tree)(nil)
 
+// TreeOptions control NewTree. The zero value keeps every frame.
+type TreeOptions struct {
+	// Cut, when set, ends a path at the first frame (from the root) for
+	// which it returns true: the frames below it are merged into that
+	// node. Attribution cuts at database and network boundaries, since
+	// everything below a boundary belongs to the call; this keeps the tree
+	// small for deep driver stacks.
+	Cut func(traces.FrameID) bool
+}
+
 // NewTree merges the paths of src by common prefix.
-func NewTree(src *traces.Source) *Tree {
+func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 	nv := len(src.ValueTypes)
 	t := &Tree{
 		src:   src,
@@ -43,10 +53,21 @@ func NewTree(src *traces.Source) *Tree {
 		leaf:  make([]NodeID, len(src.Paths)),
 	}
 	index := make(map[uint64]NodeID, len(src.Paths)/4+16)
+	cut := opts.Cut
+	var cutAt []bool
+	if cut != nil {
+		cutAt = make([]bool, len(src.Frames))
+		for i := 1; i < len(src.Frames); i++ {
+			cutAt[i] = cut(traces.FrameID(i))
+		}
+	}
 	for pi := range src.Paths {
 		p := &src.Paths[pi]
 		cur := Root
 		for _, f := range p.Frames {
+			if cut != nil && cur != Root && cutAt[t.nodes[cur].frame] {
+				break
+			}
 			key := uint64(uint32(cur))<<32 | uint64(uint32(f))
 			child, ok := index[key]
 			if !ok {
@@ -88,7 +109,8 @@ func (t *Tree) Source() *traces.Source { return t.src }
 // Len returns the number of nodes, the virtual root included.
 func (t *Tree) Len() int { return len(t.nodes) }
 
-// Leaf returns the node where path index i of the source ends.
+// Leaf returns the node where path index i of the source ends: its last
+// frame, or the frame where TreeOptions.Cut ended it.
 func (t *Tree) Leaf(path int) NodeID { return t.leaf[path] }
 
 // Frame returns the frame of node n (0 for the root).

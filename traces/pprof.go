@@ -12,8 +12,37 @@ import (
 type profileAppender struct {
 	src    *Source
 	limits Limits
-	// locFrames caches each location's frames (root-most first) per profile.
-	locFrames map[*profile.Location][]FrameID
+	// locFrames caches each location's frames (root-most first) per
+	// profile, indexed by location ID (IDs are dense in practice; sparse
+	// ones fall back to locFramesMap).
+	locFrames    [][]FrameID
+	locFramesMap map[uint64][]FrameID
+	// frameArena and valueArena hand out path slices in chunks, so that a
+	// profile of a million samples does not make two million allocations.
+	frameArena []FrameID
+	valueArena []int64
+}
+
+const arenaChunk = 1 << 16
+
+// frames copies fs into the arena and returns the copy.
+func (a *profileAppender) frames(fs []FrameID) []FrameID {
+	if len(fs) > cap(a.frameArena)-len(a.frameArena) {
+		a.frameArena = make([]FrameID, 0, max(arenaChunk, len(fs)))
+	}
+	start := len(a.frameArena)
+	a.frameArena = append(a.frameArena, fs...)
+	return a.frameArena[start:len(a.frameArena):len(a.frameArena)]
+}
+
+// values returns a zeroed slice of n values from the arena.
+func (a *profileAppender) values(n int) []int64 {
+	if n > cap(a.valueArena)-len(a.valueArena) {
+		a.valueArena = make([]int64, 0, max(arenaChunk, n))
+	}
+	start := len(a.valueArena)
+	a.valueArena = a.valueArena[:start+n]
+	return a.valueArena[start : start+n : start+n]
 }
 
 func newProfileAppender(limits Limits) *profileAppender {
@@ -50,7 +79,16 @@ func (a *profileAppender) add(name string, p *profile.Profile) error {
 	}
 	src.DurationNanos += p.DurationNanos
 
-	a.locFrames = make(map[*profile.Location][]FrameID, len(p.Location))
+	var maxID uint64
+	for _, l := range p.Location {
+		maxID = max(maxID, l.ID)
+	}
+	a.locFrames, a.locFramesMap = nil, nil
+	if maxID <= uint64(4*len(p.Location)+16) {
+		a.locFrames = make([][]FrameID, maxID+1)
+	} else {
+		a.locFramesMap = make(map[uint64][]FrameID, len(p.Location))
+	}
 	nv := len(src.ValueTypes)
 	var frames []FrameID
 	for _, s := range p.Sample {
@@ -70,7 +108,12 @@ func (a *profileAppender) add(name string, p *profile.Profile) error {
 			return fmt.Errorf("%s: a sample has %d frames, more than the limit of %d (raise it with --max-depth): %w",
 				name, len(frames), a.limits.MaxDepth, ErrLimit)
 		}
-		values := make([]int64, nv)
+		var raw [8]int64
+		values := raw[:0]
+		if nv > len(raw) {
+			values = make([]int64, 0, nv)
+		}
+		values = values[:nv]
 		zero := true
 		for i, v := range s.Value {
 			values[order[i]] = v
@@ -81,9 +124,11 @@ func (a *profileAppender) add(name string, p *profile.Profile) error {
 		if zero {
 			continue
 		}
+		vs := a.values(nv)
+		copy(vs, values)
 		src.Paths = append(src.Paths, Path{
-			Frames: append([]FrameID(nil), frames...),
-			Values: values,
+			Frames: a.frames(frames),
+			Values: vs,
 			Labels: a.labels(s),
 		})
 	}
@@ -97,7 +142,11 @@ func (a *profileAppender) add(name string, p *profile.Profile) error {
 // locationFrames returns the frames of one location, root-most first:
 // pprof lists inlined functions innermost first, the real function last.
 func (a *profileAppender) locationFrames(loc *profile.Location) ([]FrameID, error) {
-	if f, ok := a.locFrames[loc]; ok {
+	if a.locFrames != nil {
+		if f := a.locFrames[loc.ID]; f != nil {
+			return f, nil
+		}
+	} else if f, ok := a.locFramesMap[loc.ID]; ok {
 		return f, nil
 	}
 	var out []FrameID
@@ -123,7 +172,11 @@ func (a *profileAppender) locationFrames(loc *profile.Location) ([]FrameID, erro
 			out = append(out, a.src.InternFrame(f))
 		}
 	}
-	a.locFrames[loc] = out
+	if a.locFrames != nil {
+		a.locFrames[loc.ID] = out
+	} else {
+		a.locFramesMap[loc.ID] = out
+	}
 	return out, nil
 }
 

@@ -6,7 +6,6 @@ import (
 	"regexp"
 
 	"github.com/culprithq/culprit/attribute"
-	"github.com/culprithq/culprit/callgraph"
 	"github.com/culprithq/culprit/report"
 	"github.com/spf13/cobra"
 )
@@ -72,7 +71,8 @@ func runExplain(ctx context.Context, opts *explainOptions) error {
 	if _, err := src.ValueIndex(opts.analysis.Value); err != nil {
 		return usagef("--value: %v", err)
 	}
-	ex := attribute.Explain(callgraph.NewTree(src), attribute.NewClassifier(src, rules), opts.analysis.attributeOptions(), re)
+	tree, cls := buildTree(src, rules)
+	ex := attribute.Explain(tree, cls, opts.analysis.attributeOptions(), re)
 	if opts.output.Limit > 0 && len(ex) > opts.output.Limit {
 		ex = ex[:opts.output.Limit]
 	}

@@ -5,7 +5,6 @@ import (
 	"io"
 
 	"github.com/culprithq/culprit/attribute"
-	"github.com/culprithq/culprit/callgraph"
 	"github.com/spf13/cobra"
 )
 
@@ -61,7 +60,8 @@ func runGraph(ctx context.Context, opts *graphOptions) error {
 	if _, err := src.ValueIndex(opts.analysis.Value); err != nil {
 		return usagef("--value: %v", err)
 	}
-	g := attribute.ChargeGraph(callgraph.NewTree(src), attribute.NewClassifier(src, rules), opts.analysis.attributeOptions(), opts.minShare)
+	tree, cls := buildTree(src, rules)
+	g := attribute.ChargeGraph(tree, cls, opts.analysis.attributeOptions(), opts.minShare)
 	data, err := g.MarshalDOT()
 	if err != nil {
 		return err

@@ -189,9 +189,15 @@ func (f *analysisFlags) analyse(src *traces.Source, rules *attribute.Rules) (*at
 	if _, err := src.ValueIndex(f.Value); err != nil {
 		return nil, usagef("--value: %v", err)
 	}
-	tree := callgraph.NewTree(src)
-	cls := attribute.NewClassifier(src, rules)
+	tree, cls := buildTree(src, rules)
 	return attribute.Attribute(tree, cls, f.attributeOptions()), nil
+}
+
+// buildTree classifies src's frames and builds its calling-context tree,
+// cut at database and network boundaries (nothing below them is needed).
+func buildTree(src *traces.Source, rules *attribute.Rules) (*callgraph.Tree, *attribute.Classifier) {
+	cls := attribute.NewClassifier(src, rules)
+	return callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary}), cls
 }
 
 func (f *analysisFlags) attributeOptions() attribute.Options {

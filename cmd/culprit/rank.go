@@ -2,9 +2,11 @@ package main
 
 import (
 	"context"
+	"fmt"
 	"io"
 	"strings"
 
+	"github.com/culprithq/culprit/attribute"
 	"github.com/culprithq/culprit/report"
 	"github.com/spf13/cobra"
 	"github.com/spf13/pflag"
@@ -17,6 +19,8 @@ type rankOptions struct {
 	output   outputFlags
 	inputs   []string
 	command  string
+	// save names a snapshot file to write beside the report.
+	save string
 }
 
 func newRankCmd(s *streams, runF func(context.Context, *rankOptions) error) *cobra.Command {
@@ -39,7 +43,10 @@ Profiles and traces are analysed in separate runs.`,
   culprit rank traces.jsonl --format json -o rank.json
 
   # Name the application code explicitly and show the callers that loop
-  culprit rank --app example.com/shop/ --inclusive cpu.pb.gz`,
+  culprit rank --app example.com/shop/ --inclusive cpu.pb.gz
+
+  # Save a snapshot of this build for a later comparison
+  culprit rank profiles/ --save v41.snapshot.json`,
 		Args: minArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			opts.inputs = args
@@ -52,6 +59,7 @@ Profiles and traces are analysed in separate runs.`,
 	}
 	opts.analysis.register(cmd)
 	opts.output.register(cmd, report.Formats)
+	cmd.Flags().StringVar(&opts.save, "save", "", "also write a snapshot (culprit.snapshot/v1) to `FILE`, for diff and merge")
 	return cmd
 }
 
@@ -82,6 +90,12 @@ func runRank(ctx context.Context, opts *rankOptions) error {
 		return err
 	}
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
+	if opts.save != "" {
+		snap := attribute.NewSnapshot(res)
+		if err := writeAtomic(opts.save, opts.inputs, snap.Write); err != nil {
+			return fmt.Errorf("writing snapshot: %w", err)
+		}
+	}
 	return opts.output.write(s, opts.inputs, func(w io.Writer) error {
 		return renderer.Render(w, res, ropts)
 	})

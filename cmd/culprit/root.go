@@ -31,6 +31,7 @@ Exit status: 0 success, 1 error, 2 usage error, 3 regression gate tripped.`,
 		newExplainCmd(s, nil),
 		newGraphCmd(s, nil),
 		newRulesCmd(s, nil),
+		newMergeCmd(s, nil),
 		newDemoCmd(s, nil),
 		newVersionCmd(s),
 	)
