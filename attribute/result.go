@@ -31,7 +31,11 @@ type Result struct {
 	Entries   []EntryTotal `json:"entryPoints"`
 	Causes    []*Cause     `json:"rootCauses"`
 	Findings  []Finding    `json:"findings"`
-	Warnings  []string     `json:"warnings"`
+	// Domains rolls root causes up into business domains (--domains);
+	// nil when no domains file was given.
+	Domains     []DomainTotal `json:"domains,omitempty"`
+	DomainsFile string        `json:"domainsFile,omitempty"`
+	Warnings    []string      `json:"warnings"`
 	// DurationNanos is the wall-clock time the input covers, if known.
 	DurationNanos int64 `json:"durationNanos"`
 }
@@ -76,11 +80,13 @@ type Cause struct {
 	Kind Kind   `json:"kind"`
 	// NoAppFrame marks a bucket for boundary cost with no application
 	// frame above it; Function is then "(no application frame) ENTRY".
-	NoAppFrame bool    `json:"noAppFrame,omitempty"`
-	Cost       int64   `json:"cost"`
-	Database   int64   `json:"database"`
-	Network    int64   `json:"network"`
-	Share      float64 `json:"share"`
+	NoAppFrame bool `json:"noAppFrame,omitempty"`
+	// Domain is the business domain (--domains), "" without a domains file.
+	Domain   string  `json:"domain,omitempty"`
+	Cost     int64   `json:"cost"`
+	Database int64   `json:"database"`
+	Network  int64   `json:"network"`
+	Share    float64 `json:"share"`
 	// ShareMargin is the 95% margin of Share (±1.96 binomial standard
 	// errors) for sampled sources; 0 for spans.
 	ShareMargin float64 `json:"shareMargin"`

@@ -224,25 +224,11 @@ func ParseRulesFile(name string, r io.Reader) (*Rules, error) {
 	dec.DisallowUnknownFields()
 	var f rulesFile
 	if err := dec.Decode(&f); err != nil {
-		var se *json.SyntaxError
-		var te *json.UnmarshalTypeError
-		switch {
-		case errors.As(err, &se):
-			return nil, posErr(se.Offset-1, err) // Offset is just past the bad byte
-		case strings.HasPrefix(err.Error(), "json: unknown field "):
-			// Point at the key itself rather than past its value.
-			key := strings.TrimPrefix(err.Error(), "json: unknown field ")
-			if i := bytes.Index(data, []byte(key)); i >= 0 {
-				return nil, posErr(int64(i), err)
-			}
-		case errors.As(err, &te):
-			return nil, posErr(te.Offset, err)
-		}
-		return nil, posErr(dec.InputOffset(), err)
+		return nil, decodeError(name, data, dec, err)
 	}
 	out := &Rules{App: f.App, Files: []string{name}}
 	// Locate each rule's start for error positions.
-	offsets := ruleOffsets(data, len(f.Rules))
+	offsets := arrayOffsets(data, "rules", len(f.Rules))
 	for i, raw := range f.Rules {
 		var r Rule
 		d := json.NewDecoder(bytes.NewReader(raw))
@@ -266,44 +252,26 @@ func ParseRulesFile(name string, r io.Reader) (*Rules, error) {
 	return out, nil
 }
 
-// ruleOffsets finds the byte offset where each element of the top-level
-// "rules" array starts, by walking the token stream.
-func ruleOffsets(data []byte, n int) []int64 {
-	offs := make([]int64, n)
-	dec := json.NewDecoder(bytes.NewReader(data))
-	if t, err := dec.Token(); err != nil || t != json.Delim('{') {
-		return offs
+// decodeError positions a JSON decoding error of file name at the
+// offending byte (a syntax error), value (a type error) or key (an
+// unknown field).
+func decodeError(name string, data []byte, dec *json.Decoder, err error) error {
+	off := dec.InputOffset()
+	var se *json.SyntaxError
+	var te *json.UnmarshalTypeError
+	switch {
+	case errors.As(err, &se):
+		off = se.Offset - 1 // Offset is just past the bad byte
+	case errors.As(err, &te):
+		off = te.Offset
+	case strings.HasPrefix(err.Error(), "json: unknown field "):
+		key := strings.TrimPrefix(err.Error(), "json: unknown field ")
+		if i := bytes.Index(data, []byte(key)); i >= 0 {
+			off = int64(i)
+		}
 	}
-	for dec.More() {
-		key, err := dec.Token()
-		if err != nil {
-			return offs
-		}
-		if key != "rules" {
-			var skip json.RawMessage
-			if dec.Decode(&skip) != nil {
-				return offs
-			}
-			continue
-		}
-		if t, err := dec.Token(); err != nil || t != json.Delim('[') {
-			return offs
-		}
-		for i := 0; dec.More() && i < n; i++ {
-			start := dec.InputOffset()
-			// InputOffset is before the separating comma and whitespace.
-			for start < int64(len(data)) && strings.IndexByte(" \t\r\n,", data[start]) >= 0 {
-				start++
-			}
-			offs[i] = start
-			var skip json.RawMessage
-			if dec.Decode(&skip) != nil {
-				return offs
-			}
-		}
-		return offs
-	}
-	return offs
+	line, col := lineCol(data, off)
+	return &RulesFileError{File: name, Line: line, Column: col, Err: err}
 }
 
 func lineCol(data []byte, off int64) (line, col int) {

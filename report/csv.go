@@ -40,6 +40,7 @@ import (
 //	detail_calls              calls of this detail; empty when the source cannot count them
 //	detail_samples            samples or spans behind detail_cost
 //	value_type, value_unit    what the costs measure, e.g. cpu and nanoseconds
+//	domain                    business domain (--domains); empty without a domains file
 //
 // Numbers are unformatted: integers in base 10, fractions in the shortest
 // representation that round-trips (strconv 'g', -1). Strings are written as
@@ -54,7 +55,7 @@ var csvHeader = []string{
 	"cause_cost", "cause_share", "cause_share_margin", "cause_samples", "cause_calls", "cause_requests",
 	"calls_per_request_median", "calls_per_request_p95", "calls_per_request_max",
 	"detail_kind", "system", "statement", "peer", "detail_cost", "detail_calls", "detail_samples",
-	"value_type", "value_unit",
+	"value_type", "value_unit", "domain",
 }
 
 // Render implements Renderer.
@@ -89,7 +90,7 @@ func (CSV) Render(w io.Writer, r *attribute.Result, opts Options) error {
 		} else {
 			cause = append(cause, "", "", "")
 		}
-		tail := []string{r.ValueType.Type, r.ValueType.Unit}
+		tail := []string{r.ValueType.Type, r.ValueType.Unit, c.Domain}
 		if len(c.Statements) == 0 {
 			row := append(append(cause[:len(cause):len(cause)], "", "", "", "", "", "", ""), tail...)
 			if err := cw.Write(row); err != nil {

@@ -92,6 +92,14 @@ const (
 	chartEntries = 20 // entry points drawn
 )
 
+// htmlDomain is one row of the business-domain table.
+type htmlDomain struct {
+	Domain, Share, Cost string
+	ShareV              float64
+	CostV               int64
+	Causes              int
+}
+
 type htmlPage struct {
 	CSP         string
 	Script      template.JS
@@ -106,6 +114,7 @@ type htmlPage struct {
 	Statements  []htmlStatements
 	Findings    []htmlFinding
 	Entries     []htmlEntry
+	Domains     []htmlDomain
 	EntryChart  *entryChart
 	EntriesMore int
 	Unit        string
@@ -230,6 +239,10 @@ func (HTML) Render(w io.Writer, r *attribute.Result, opts Options) error {
 			hf.Facts = append(hf.Facts, ev)
 		}
 		p.Findings = append(p.Findings, hf)
+	}
+	for _, d := range r.Domains {
+		p.Domains = append(p.Domains, htmlDomain{Domain: clean(d.Domain), Share: Percent(d.Share), ShareV: d.Share,
+			Cost: FormatValue(d.Cost, unit), CostV: d.Cost, Causes: d.Causes})
 	}
 	for _, e := range r.Entries {
 		p.Entries = append(p.Entries, htmlEntry{Entry: entryName(e.Entry),

@@ -104,6 +104,16 @@ func (Markdown) Render(w io.Writer, r *attribute.Result, opts Options) error {
 		}
 	}
 
+	if len(r.Domains) > 0 {
+		fmt.Fprint(bw, "\n## By business domain\n\n")
+		mdRow(bw, []string{"Domain", "Share", "Cost", "Database", "Network", "Root causes"})
+		mdRow(bw, []string{"---", "---:", "---:", "---:", "---:", "---:"})
+		for _, d := range r.Domains {
+			mdRow(bw, []string{mdText(d.Domain), Percent(d.Share), FormatValue(d.Cost, unit),
+				FormatValue(d.Database, unit), FormatValue(d.Network, unit), strconv.Itoa(d.Causes)})
+		}
+	}
+
 	if len(r.Entries) > 0 {
 		fmt.Fprint(bw, "\n## By entry point\n\n")
 		mdRow(bw, []string{"Entry point", "Database", "Network", "Other", "Total", "Requests"})

@@ -142,6 +142,18 @@ func (Text) Render(w io.Writer, r *attribute.Result, opts Options) error {
 			}
 		}
 	}
+	if len(r.Domains) > 0 {
+		fmt.Fprintln(bw)
+		fmt.Fprintln(bw, "By business domain:")
+		tw := tabwriter.NewWriter(bw, 0, 0, 2, ' ', 0)
+		fmt.Fprintln(tw, "  DOMAIN\tSHARE\tCOST\tROOT CAUSES")
+		for _, d := range r.Domains {
+			fmt.Fprintf(tw, "  %s\t%s\t%s\t%d\n", oneLine(d.Domain, 60), Percent(d.Share), FormatValue(d.Cost, unit), d.Causes)
+		}
+		if err := tw.Flush(); err != nil {
+			return err
+		}
+	}
 	if len(r.Entries) > 0 {
 		fmt.Fprintln(bw)
 		fmt.Fprintln(bw, "By entry point:")

@@ -2,6 +2,7 @@ package traces
 
 import (
 	"bufio"
+	"context"
 	"bytes"
 	"compress/gzip"
 	"crypto/sha256"
@@ -39,7 +40,8 @@ var gzipMagic = []byte{0x1f, 0x8b}
 // returns nil.
 func (l *Loader) Add(name string, r io.Reader) error {
 	err := l.add(name, r)
-	if err != nil && l.opts.KeepGoing && !errors.Is(err, ErrMismatch) {
+	if err != nil && l.opts.KeepGoing && !errors.Is(err, ErrMismatch) &&
+		!errors.Is(err, context.Canceled) && !errors.Is(err, context.DeadlineExceeded) {
 		l.warnings.Add(Warning{Kind: "skipped-input", File: name, Message: err.Error()})
 		return nil
 	}

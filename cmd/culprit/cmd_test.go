@@ -7,6 +7,7 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"time"
 )
 
 func runTest(t *testing.T, stdin string, args ...string) (code int, stdout, stderr string) {
@@ -225,5 +226,74 @@ func TestRulesCommand(t *testing.T) {
 	code, _, errOut = runTest(t, "", "rules", "--rules", bad)
 	if code != exitError || !strings.Contains(errOut, "bad.json:2:2") {
 		t.Errorf("bad rules file: %d %s", code, errOut)
+	}
+}
+
+// slowReader yields a valid-looking JSON-lines prefix and then blocks a
+// little on every read, forever: only an interrupt ends the run.
+type slowReader struct{ sent bool }
+
+func (r *slowReader) Read(p []byte) (int, error) {
+	if !r.sent {
+		r.sent = true
+		return copy(p, `{"resourceSpans":[`), nil
+	}
+	time.Sleep(5 * time.Millisecond)
+	return copy(p, " "), nil
+}
+
+func TestInterruptLeavesNoFiles(t *testing.T) {
+	dir := t.TempDir()
+	out := filepath.Join(dir, "report.html")
+	existing := filepath.Join(dir, "kept.html")
+	os.WriteFile(existing, []byte("previous report"), 0o644)
+	for _, target := range []string{out, existing} {
+		s, _, errb := testStreams("")
+		s.In = &slowReader{}
+		// Cancelling the context is what Ctrl-C does (signal.NotifyContext in run).
+		ctx, cancel := context.WithCancel(context.Background())
+		timer := time.AfterFunc(200*time.Millisecond, cancel)
+		code := runContext(ctx, []string{"rank", "-", "--format", "html", "-o", target}, s)
+		timer.Stop()
+		cancel()
+		if code != exitError || !strings.Contains(errb.String(), "interrupted") {
+			t.Errorf("exit %d, stderr %q; want 1 and 'interrupted'", code, errb.String())
+		}
+	}
+	entries, _ := os.ReadDir(dir)
+	if len(entries) != 1 || entries[0].Name() != "kept.html" {
+		t.Errorf("files left: %v", entries)
+	}
+	if b, _ := os.ReadFile(existing); string(b) != "previous report" {
+		t.Error("an existing output file was changed by an interrupted run")
+	}
+}
+
+func TestDomainsFlag(t *testing.T) {
+	code, out, errOut := runTest(t, "", "demo", "--traces", "--format", "json", "--domains", "../../testdata/greenhouse.domains.json")
+	if code != exitOK {
+		t.Fatalf("exit %d: %s", code, errOut)
+	}
+	var doc struct {
+		Domains []struct {
+			Domain string
+			Share  float64
+		}
+		RootCauses []struct{ Function, Domain string }
+	}
+	if err := json.Unmarshal([]byte(out), &doc); err != nil {
+		t.Fatal(err)
+	}
+	if len(doc.Domains) != 4 || doc.Domains[0].Domain != "checkout" {
+		t.Errorf("domains = %+v", doc.Domains)
+	}
+	for _, c := range doc.RootCauses {
+		if strings.Contains(c.Function, "/catalog.") && c.Domain != "catalog" {
+			t.Errorf("%s in domain %q", c.Function, c.Domain)
+		}
+	}
+	code, _, errOut = runTest(t, "", "demo", "--domains", "no-such-domains.json")
+	if code != exitError || !strings.Contains(errOut, "no-such-domains.json") {
+		t.Errorf("missing domains file: %d %s", code, errOut)
 	}
 }

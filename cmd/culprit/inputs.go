@@ -31,6 +31,7 @@ type analysisFlags struct {
 	Service       string
 	Limits        traces.Limits
 	Findings      attribute.FindingOptions
+	DomainsFile   string
 
 	// fsys, when set, is where inputs are opened (the embedded demo data);
 	// names are then taken as given, without directory expansion.
@@ -49,6 +50,7 @@ func (f *analysisFlags) register(cmd *cobra.Command) {
 	fl.BoolVar(&f.KeepGoing, "keep-going", false, "skip unreadable files and lines, listing them as warnings")
 	fl.BoolVar(&f.Strict, "strict", false, "treat every repaired span problem (orphans, duplicates, cycles, skew) as an error")
 	fl.StringVar(&f.Service, "service", "", "keep only spans of this service.name")
+	fl.StringVar(&f.DomainsFile, "domains", "", "JSON `FILE` mapping business domains to function patterns; rolls root causes up by domain")
 	fl.Int64Var(&f.Limits.MaxBytes, "max-bytes", traces.DefaultLimits.MaxBytes, "largest decompressed input in bytes")
 	fl.Int64Var(&f.Limits.MaxRatio, "max-ratio", traces.DefaultLimits.MaxRatio, "largest decompression ratio of a gzip input")
 	fl.IntVar(&f.Limits.MaxLineBytes, "max-line-bytes", traces.DefaultLimits.MaxLineBytes, "longest JSON line in bytes")
@@ -166,11 +168,25 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 			r = fh
 			defer fh.Close()
 		}
-		if err := loader.Add(name, r); err != nil {
+		if err := loader.Add(name, ctxReader{ctx, r}); err != nil {
 			return nil, err
 		}
 	}
 	return loader.Source()
+}
+
+// ctxReader fails its reads once ctx is done, so that an interrupt stops
+// a long read promptly.
+type ctxReader struct {
+	ctx context.Context
+	r   io.Reader
+}
+
+func (c ctxReader) Read(p []byte) (int, error) {
+	if err := c.ctx.Err(); err != nil {
+		return 0, err
+	}
+	return c.r.Read(p)
 }
 
 func (f *analysisFlags) open(name string) (io.ReadCloser, error) {
@@ -190,7 +206,20 @@ func (f *analysisFlags) analyse(src *traces.Source, rules *attribute.Rules) (*at
 		return nil, usagef("--value: %v", err)
 	}
 	tree, cls := buildTree(src, rules)
-	return attribute.Attribute(tree, cls, f.attributeOptions()), nil
+	res := attribute.Attribute(tree, cls, f.attributeOptions())
+	if f.DomainsFile != "" {
+		fh, err := os.Open(f.DomainsFile)
+		if err != nil {
+			return nil, err
+		}
+		defer fh.Close()
+		d, err := attribute.ParseDomainsFile(f.DomainsFile, fh)
+		if err != nil {
+			return nil, err
+		}
+		d.Rollup(res)
+	}
+	return res, nil
 }
 
 // buildTree classifies src's frames and builds its calling-context tree,
