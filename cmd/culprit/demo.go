@@ -10,6 +10,7 @@ import (
 	"path"
 	"path/filepath"
 
+	"github.com/culprithq/culprit/attribute"
 	"github.com/culprithq/culprit/report"
 	"github.com/spf13/cobra"
 )
@@ -24,6 +25,7 @@ var demoData embed.FS
 type demoOptions struct {
 	rank   rankOptions
 	traces bool
+	diff   bool
 	write  string
 }
 
@@ -40,6 +42,7 @@ walk that queries at every level, and pure CPU work that must not be charged.
 --write DIR saves the demo files so that you can run the other commands on them.`,
 		Example: `  culprit demo
   culprit demo --traces --format markdown
+  culprit demo --diff
   culprit demo --write ./greenhouse && culprit rank ./greenhouse/greenhouse-v42.traces.jsonl.gz`,
 		Args: exactArgs(0),
 		RunE: func(cmd *cobra.Command, args []string) error {
@@ -51,6 +54,7 @@ walk that queries at every level, and pure CPU work that must not be charged.
 		},
 	}
 	cmd.Flags().BoolVar(&opts.traces, "traces", false, "rank the demo traces instead of the goroutine profiles")
+	cmd.Flags().BoolVar(&opts.diff, "diff", false, "compare build v41 with v42 (culprit diff) instead of ranking v42")
 	cmd.Flags().StringVar(&opts.write, "write", "", "write the demo files into `DIR` and exit")
 	opts.rank.analysis.register(cmd)
 	opts.rank.output.register(cmd, report.Formats)
@@ -61,15 +65,35 @@ func runDemo(ctx context.Context, opts *demoOptions) error {
 	if opts.write != "" {
 		return writeDemo(opts.rank.streams, opts.write)
 	}
-	pattern := "demo/greenhouse-v42.goroutine.*.pb.gz"
-	if opts.traces {
-		pattern = "demo/greenhouse-v42.traces.jsonl.gz"
-	}
-	names, err := fs.Glob(demoData, pattern)
-	if err != nil || len(names) == 0 {
-		return fmt.Errorf("demo data missing from this build (%s)", pattern)
+	files := func(build string) ([]string, error) {
+		pattern := "demo/greenhouse-" + build + ".goroutine.*.pb.gz"
+		if opts.traces {
+			pattern = "demo/greenhouse-" + build + ".traces.jsonl.gz"
+		}
+		names, err := fs.Glob(demoData, pattern)
+		if err != nil || len(names) == 0 {
+			return nil, fmt.Errorf("demo data missing from this build (%s)", pattern)
+		}
+		return names, nil
 	}
 	opts.rank.analysis.fsys = demoData
+	if opts.diff {
+		base, err := files("v41")
+		if err != nil {
+			return err
+		}
+		cand, err := files("v42")
+		if err != nil {
+			return err
+		}
+		d := &diffOptions{streams: opts.rank.streams, analysis: opts.rank.analysis, output: opts.rank.output,
+			base: base, candidate: cand, alpha: attribute.DefaultAlpha, seed: 1, command: opts.rank.command}
+		return runDiff(ctx, d)
+	}
+	names, err := files("v42")
+	if err != nil {
+		return err
+	}
 	opts.rank.inputs = names
 	return runRank(ctx, &opts.rank)
 }
