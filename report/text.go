@@ -22,6 +22,7 @@ const (
 	ansiNetwork  = "\x1b[35m"
 	ansiNoApp    = "\x1b[33m"
 	ansiBold     = "\x1b[1m"
+	ansiDefault  = "\x1b[39m" // same length as the kind colours
 	ansiReset    = "\x1b[0m"
 )
 
@@ -35,7 +36,7 @@ func (Text) Render(w io.Writer, r *attribute.Result, opts Options) error {
 	unit := r.ValueType.Unit
 	t := r.Totals
 	denom := t.Database + t.Network
-	fmt.Fprintf(bw, "culprit: %s (%s) from %s\n", r.ValueType, r.Source, inputList(r))
+	fmt.Fprintf(bw, "culprit: %s (%s) from %s\n", oneLine(r.ValueType.String(), 80), oneLine(r.Source, 20), oneLine(inputList(r), 200))
 	fmt.Fprintf(bw, "database %s + network %s = %s of %s total: the denominator of every share",
 		FormatValue(t.Database, unit), FormatValue(t.Network, unit), FormatValue(denom, unit), FormatValue(t.Cost, unit))
 	fmt.Fprintf(bw, "; other %s", FormatValue(t.Other, unit))
@@ -65,7 +66,13 @@ func (Text) Render(w io.Writer, r *attribute.Result, opts Options) error {
 		if perReq {
 			hdr += "PER REQ (MED/P95)\t"
 		}
-		hdr += "KIND\tROOT CAUSE\tCALLED FROM"
+		if opts.Color {
+			// tabwriter counts escape codes as width: give the header cells
+			// codes of the same length as the coloured cells below them.
+			hdr += ansiDefault + "KIND" + ansiReset + "\t" + ansiBold + "ROOT CAUSE" + ansiReset + "\tCALLED FROM"
+		} else {
+			hdr += "KIND\tROOT CAUSE\tCALLED FROM"
+		}
 		fmt.Fprintln(tw, hdr)
 		nameWidth := width - 60
 		if nameWidth < 30 {
@@ -104,7 +111,7 @@ func (Text) Render(w io.Writer, r *attribute.Result, opts Options) error {
 				kind = col + kind + ansiReset
 				name = ansiBold + name + ansiReset
 			}
-			row += kind + "\t" + name + "\t" + site(c)
+			row += kind + "\t" + name + "\t" + oneLine(site(c), 80)
 			fmt.Fprintln(tw, row)
 		}
 		if err := tw.Flush(); err != nil {
@@ -123,10 +130,10 @@ func (Text) Render(w io.Writer, r *attribute.Result, opts Options) error {
 				}
 				line := fmt.Sprintf("  %2d.  %s %s", i+1, FormatValue(d.Cost, unit), oneLine(d.Statement, width-20))
 				if d.Peer != "" {
-					line += " → " + d.Peer
+					line += " → " + oneLine(d.Peer, 100)
 				}
 				if d.System != "" {
-					line += " [" + d.System + "]"
+					line += " [" + oneLine(d.System, 40) + "]"
 				}
 				fmt.Fprintln(bw, line)
 			}
@@ -136,7 +143,7 @@ func (Text) Render(w io.Writer, r *attribute.Result, opts Options) error {
 		fmt.Fprintln(bw)
 		fmt.Fprintln(bw, "Findings:")
 		for _, f := range r.Findings {
-			fmt.Fprintf(bw, "  - %s: %s — %s (%s of the denominator)\n", f.Kind, f.Function, f.Evidence, Percent(f.Share))
+			fmt.Fprintf(bw, "  - %s: %s — %s (%s of the denominator)\n", oneLine(f.Kind, 40), oneLine(f.Function, 200), oneLine(f.Evidence, 300), Percent(f.Share))
 			if f.Statement != "" {
 				fmt.Fprintf(bw, "      %s\n", oneLine(f.Statement, width-6))
 			}
@@ -181,9 +188,9 @@ func (Text) Render(w io.Writer, r *attribute.Result, opts Options) error {
 		}
 	}
 	fmt.Fprintln(bw)
-	fmt.Fprintln(bw, AppSummary(r))
+	fmt.Fprintln(bw, oneLine(AppSummary(r), 0))
 	for _, c := range Caveats(r) {
-		fmt.Fprintln(bw, "note: "+c)
+		fmt.Fprintln(bw, "note: "+oneLine(c, 0))
 	}
 	for _, wn := range r.Warnings {
 		fmt.Fprintln(bw, "warning: "+oneLine(wn, 400))
