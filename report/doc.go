@@ -5,7 +5,9 @@
 // table for terminals), markdown (for an incident review), json (the
 // versioned culprit.rank/v1 document), csv (one row per root cause and
 // boundary detail, for notebooks) and html (one self-contained page with
-// inline SVG charts).
+// inline SVG charts). DiffRenderer renders a build comparison in the same
+// five formats (JSON: culprit.diff/v1), and RenderExplanations the paths
+// behind a root cause.
 // Renderers never see raw statements unless the attribution was run with
 // literals shown; they escape every input string for their format.
 package report
