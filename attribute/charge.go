@@ -505,7 +505,7 @@ func detailOf(src *traces.Source, t *callgraph.Tree, w *walkState, p *traces.Pat
 	}
 	dk.peer = call.Peer
 	switch {
-	case call.Statement != "" && literals:
+	case call.Statement != "" && (literals || src.StatementsNormalized):
 		dk.statement = call.Statement
 	case call.Statement != "":
 		dk.statement = Fingerprint(call.System, call.Statement).Text

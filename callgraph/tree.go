@@ -46,13 +46,20 @@ type TreeOptions struct {
 // NewTree merges the paths of src by common prefix.
 func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 	nv := len(src.ValueTypes)
+	// Size for the worst case (no shared prefixes, capped) so that neither
+	// the node slice nor the index map grows while building.
+	frames := 0
+	for i := range src.Paths {
+		frames += len(src.Paths[i].Frames)
+	}
+	est := min(frames, 4*len(src.Paths)+1024, 1<<22)
 	t := &Tree{
 		src:   src,
-		nodes: make([]treeNode, 1, len(src.Paths)/4+16),
+		nodes: make([]treeNode, 1, est+1),
 		nv:    nv,
 		leaf:  make([]NodeID, len(src.Paths)),
 	}
-	index := make(map[uint64]NodeID, len(src.Paths)/4+16)
+	index := make(map[uint64]NodeID, est)
 	cut := opts.Cut
 	var cutAt []bool
 	if cut != nil {

@@ -240,6 +240,9 @@ type Source struct {
 
 	Inputs   []Input
 	Warnings Warnings
+	// StatementsNormalized is true when Call.Statement holds the output of
+	// Options.Statement rather than the raw recorded text.
+	StatementsNormalized bool
 
 	frameIndex   map[Frame]FrameID
 	callIndex    map[Call]CallID

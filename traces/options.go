@@ -15,4 +15,10 @@ type Options struct {
 	Workers int
 	// Service keeps only spans of this service.name; "" keeps all.
 	Service string
+	// Statement, when set, replaces every recorded database statement by
+	// its result as spans are decoded (in parallel), for example with a
+	// fingerprint that removes literals. Calls that then agree are interned
+	// once, which saves memory and time on large trace files. Nil keeps the
+	// raw text. Source.StatementsNormalized records which was done.
+	Statement func(system, raw string) string
 }

@@ -25,6 +25,27 @@ type decoder struct {
 	memo    memo
 	spare   chan []spanRec // span buffers of merged batches
 	req     jsonRequest    // reused for every record that is one object
+	// stmts caches Options.Statement results by system and raw text:
+	// instrumentation mostly records parameterised statements, which
+	// repeat exactly. Bounded; keys are copies, never job data.
+	stmts map[string]string
+}
+
+// maxStatementCache bounds a decoder's statement cache (entries).
+const maxStatementCache = 8192
+
+// statement applies Options.Statement through the cache.
+func (d *decoder) statement(system, raw string) string {
+	key := system + "\x00" + raw // a new string: safe to keep past the job
+	if v, ok := d.stmts[key]; ok {
+		return v
+	}
+	v := d.c.opts.Statement(system, raw)
+	if d.stmts == nil || len(d.stmts) >= maxStatementCache {
+		d.stmts = make(map[string]string, 256)
+	}
+	d.stmts[key] = v
+	return v
 }
 
 func newDecoder(c *SpanCollector, name string, spare chan []spanRec) *decoder {
@@ -324,6 +345,11 @@ func (d *decoder) span(sp *jsonSpan, service string, line int64) error {
 		}
 	}
 	frame, call, route := spanDetails(SpanKind(sp.Kind), sp.Name, service, &d.attrs, &d.memo)
+	if call.Statement != "" && d.c.opts.Statement != nil {
+		// Normalise here, in the parallel decoders, so that calls differing
+		// only in literals intern to one Call.
+		call.Statement = d.statement(frame.System, call.Statement)
+	}
 
 	rec := spanRec{
 		traceHi: binary.BigEndian.Uint64(trace[:8]), traceLo: binary.BigEndian.Uint64(trace[8:]),

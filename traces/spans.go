@@ -199,6 +199,7 @@ func grow(s []int32, n int) []int32 {
 // not change the collector and may be called again after more Adds.
 func (c *SpanCollector) Source() (*Source, error) {
 	src := NewSource(Spans, []ValueType{{Type: "duration", Unit: "nanoseconds"}, {Type: "calls", Unit: "count"}})
+	src.StatementsNormalized = c.opts.Statement != nil
 	src.DefaultValue = 0
 	src.Inputs = append([]Input(nil), c.inputs...)
 	src.Warnings.Merge(c.warnings)

@@ -135,12 +135,18 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 			return nil, err
 		}
 	}
-	loader := traces.NewLoader(traces.Options{
+	opts := traces.Options{
 		Limits:    f.Limits,
 		KeepGoing: f.KeepGoing,
 		Strict:    f.Strict,
 		Service:   f.Service,
-	})
+	}
+	if !f.ShowLiterals {
+		// Fingerprint while decoding: literals never reach memory, and calls
+		// that differ only in literals are held once.
+		opts.Statement = func(system, raw string) string { return attribute.Fingerprint(system, raw).Text }
+	}
+	loader := traces.NewLoader(opts)
 	stdinUsed := false
 	for _, name := range names {
 		if err := ctx.Err(); err != nil {
