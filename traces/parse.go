@@ -2,9 +2,9 @@ package traces
 
 import (
 	"bufio"
-	"context"
 	"bytes"
 	"compress/gzip"
+	"context"
 	"crypto/sha256"
 	"encoding/hex"
 	"errors"
