@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"encoding/json"
+	"io"
 	"os"
 	"path/filepath"
 	"strings"
@@ -295,5 +296,23 @@ func TestDomainsFlag(t *testing.T) {
 	code, _, errOut = runTest(t, "", "demo", "--domains", "no-such-domains.json")
 	if code != exitError || !strings.Contains(errOut, "no-such-domains.json") {
 		t.Errorf("missing domains file: %d %s", code, errOut)
+	}
+}
+
+func TestProgressOnlyOnTerminals(t *testing.T) {
+	var quiet strings.Builder
+	p := startProgress(&quiet, false, 100)
+	io.Copy(io.Discard, p.reader(strings.NewReader("0123456789")))
+	p.Finish()
+	if quiet.Len() != 0 || p.read.Load() != 10 {
+		t.Errorf("piped stderr got %q (read %d)", quiet.String(), p.read.Load())
+	}
+	var term strings.Builder
+	p = startProgress(&term, true, 100)
+	p.read.Store(50)
+	p.print()
+	p.Finish()
+	if !strings.Contains(term.String(), "read 0.0 MiB of 0.0 MiB") || !strings.Contains(term.String(), "left") {
+		t.Errorf("terminal progress = %q", term.String())
 	}
 }

@@ -147,6 +147,14 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 		opts.Statement = func(system, raw string) string { return attribute.Fingerprint(system, raw).Text }
 	}
 	loader := traces.NewLoader(opts)
+	var total int64
+	for _, name := range names {
+		if st, err := os.Stat(name); err == nil && f.fsys == nil && name != "-" {
+			total += st.Size()
+		}
+	}
+	prog := startProgress(s.Err, s.ErrIsTerminal, total)
+	defer prog.Finish()
 	stdinUsed := false
 	for _, name := range names {
 		if err := ctx.Err(); err != nil {
@@ -174,7 +182,7 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 			r = fh
 			defer fh.Close()
 		}
-		if err := loader.Add(name, ctxReader{ctx, r}); err != nil {
+		if err := loader.Add(name, ctxReader{ctx, prog.reader(r)}); err != nil {
 			return nil, err
 		}
 	}

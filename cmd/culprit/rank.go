@@ -96,9 +96,20 @@ func runRank(ctx context.Context, opts *rankOptions) error {
 			return fmt.Errorf("writing snapshot: %w", err)
 		}
 	}
-	return opts.output.write(s, opts.inputs, func(w io.Writer) error {
+	if err := opts.output.write(s, opts.inputs, func(w io.Writer) error {
 		return renderer.Render(w, res, ropts)
-	})
+	}); err != nil {
+		return err
+	}
+	// The text report on stdout already ends with its warnings; otherwise
+	// say them on stderr, where CI logs show them. They are summarised by
+	// kind with a few examples, never one line per problem.
+	if format != "text" || (opts.output.Output != "" && opts.output.Output != "-") {
+		for _, w := range res.Warnings {
+			fmt.Fprintln(s.Err, "culprit: warning: "+w)
+		}
+	}
+	return nil
 }
 
 // commandLine reconstructs the command for the report's provenance: the
