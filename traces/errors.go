@@ -152,7 +152,11 @@ func (ws *Warnings) Strings() []string {
 		if len(s.Examples) > 0 {
 			ex := make([]string, len(s.Examples))
 			for i, e := range s.Examples {
-				ex[i] = e.String()
+				// The kind leads the line already.
+				ex[i] = strings.TrimPrefix(e.String(), e.Kind+": ")
+				if loc, rest, ok := strings.Cut(e.String(), ": "+e.Kind+": "); ok {
+					ex[i] = loc + ": " + rest
+				}
 			}
 			line += " (e.g. " + strings.Join(ex, "; ") + ")"
 		}

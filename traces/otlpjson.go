@@ -25,6 +25,8 @@ const (
 	// WarnInvalidID is a span skipped because its trace, span or parent ID
 	// is missing, all zero, or neither 16/8 bytes of hex nor base64.
 	WarnInvalidID = "invalid-id"
+	// WarnNoSpans is an input that decoded as JSON but held no spans.
+	WarnNoSpans = "no-spans"
 )
 
 // defaultBlockSize is how many bytes of JSON lines the reader hands to a
@@ -130,6 +132,10 @@ func (c *SpanCollector) Add(name string, r io.Reader) error {
 		return err
 	}
 	c.inputs = append(c.inputs, Input{Name: name, Format: FormatOTLPJSON, Bytes: cr.n})
+	if c.spans.len() == mark {
+		// Valid JSON with no spans: an empty export, or not OTLP at all.
+		ws.Add(Warning{Kind: WarnNoSpans, File: name, Message: "no spans (is this OTLP/JSON trace data? it needs resourceSpans → scopeSpans → spans)"})
+	}
 	c.warnings.Merge(ws)
 	return nil
 }

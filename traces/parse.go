@@ -42,7 +42,14 @@ func (l *Loader) Add(name string, r io.Reader) error {
 	err := l.add(name, r)
 	if err != nil && l.opts.KeepGoing && !errors.Is(err, ErrMismatch) &&
 		!errors.Is(err, context.Canceled) && !errors.Is(err, context.DeadlineExceeded) {
-		l.warnings.Add(Warning{Kind: "skipped-input", File: name, Message: err.Error()})
+		msg := err.Error()
+		var pe *ParseError
+		if errors.As(err, &pe) && pe.File == name {
+			msg = strings.TrimPrefix(strings.TrimPrefix(msg, name), ": ")
+		} else {
+			msg = strings.TrimPrefix(msg, name+": ")
+		}
+		l.warnings.Add(Warning{Kind: "skipped-input", File: name, Message: msg})
 		return nil
 	}
 	return err
@@ -52,23 +59,37 @@ func (l *Loader) add(name string, r io.Reader) error {
 	hash := sha256.New()
 	counted := &countingReader{r: io.TeeReader(r, hash)}
 	br := bufio.NewReaderSize(counted, 64<<10)
-	head, err := br.Peek(2)
-	if err != nil && !errors.Is(err, io.EOF) {
-		return &ParseError{File: name, Err: err}
-	}
+	// Unwrap gzip layers (a gzipped .pb.gz is not rare), each inside the
+	// ratio and size limits, so that no decoder downstream ever sees gzip:
+	// the pprof library would decompress it again without a limit.
 	var body io.Reader = br
-	if bytes.Equal(head, gzipMagic) {
-		zr, err := gzip.NewReader(br)
-		if err != nil {
-			return &ParseError{File: name, Err: fmt.Errorf("decompressing: %w", err)}
+	bb := br
+	for layer := 0; ; layer++ {
+		head, err := bb.Peek(2)
+		if err != nil && !errors.Is(err, io.EOF) {
+			return readError(name, err, counted.n)
 		}
-		body = &ratioLimitReader{r: zr, compressed: counted, limits: l.opts.Limits, name: name}
+		if !bytes.Equal(head, gzipMagic) {
+			break
+		}
+		if layer == 3 {
+			return &ParseError{File: name, Err: fmt.Errorf("%w: more than 3 nested gzip layers", ErrFormat)}
+		}
+		zr, err := gzip.NewReader(bb)
+		if err != nil {
+			return readError(name, fmt.Errorf("decompressing: %w", err), counted.n)
+		}
+		body = &sizeLimitReader{r: &ratioLimitReader{r: zr, compressed: counted, limits: l.opts.Limits, name: name},
+			max: l.opts.Limits.MaxBytes, name: name}
+		bb = bufio.NewReaderSize(body, 64<<10)
 	}
-	body = &sizeLimitReader{r: body, max: l.opts.Limits.MaxBytes, name: name}
-	bb := bufio.NewReaderSize(body, 64<<10)
+	if body == io.Reader(br) {
+		body = &sizeLimitReader{r: br, max: l.opts.Limits.MaxBytes, name: name}
+		bb = bufio.NewReaderSize(body, 64<<10)
+	}
 	prefix, err := bb.Peek(512)
 	if err != nil && !errors.Is(err, io.EOF) && !errors.Is(err, bufio.ErrBufferFull) {
-		return readError(name, err)
+		return readError(name, err, counted.n)
 	}
 	if len(prefix) == 0 {
 		return &ParseError{File: name, Err: fmt.Errorf("%w: the input is empty", ErrFormat)}
@@ -85,18 +106,20 @@ func (l *Loader) add(name string, r io.Reader) error {
 			l.spans = NewSpanCollector(l.opts)
 		}
 		if err := l.spans.Add(name, bb); err != nil {
-			return err
+			return readError(name, err, counted.n)
 		}
 	default:
 		in.Format = "pprof"
 		data, err := io.ReadAll(bb)
 		if err != nil {
-			return readError(name, err)
+			return readError(name, err, counted.n)
 		}
 		p, err := profile.ParseData(data)
 		if err != nil {
-			return &ParseError{File: name, Err: fmt.Errorf("%w: neither OTLP/JSON nor a pprof profile (%s)",
-				ErrFormat, strings.TrimPrefix(err.Error(), "parsing profile: "))}
+			return pprofError(name, data, err)
+		}
+		if len(p.SampleType) == 0 {
+			return &ParseError{File: name, Err: errors.New("malformed pprof profile: it has no sample types")}
 		}
 		if err := l.checkKind(Profile, name); err != nil {
 			return err
@@ -110,7 +133,7 @@ func (l *Loader) add(name string, r io.Reader) error {
 	}
 	// Drain what the decoder did not read so that the digest covers the file.
 	if _, err := io.Copy(io.Discard, counted); err != nil {
-		return readError(name, err)
+		return readError(name, err, counted.n)
 	}
 	in.Bytes = counted.n
 	in.SHA256 = hex.EncodeToString(hash.Sum(nil))
@@ -189,7 +212,9 @@ func (s *Source) Validate() error {
 	return nil
 }
 
-func readError(name string, err error) error {
+// readError names the input in a read error; offset is how many bytes of
+// the (compressed) input had been read when it happened.
+func readError(name string, err error, offset int64) error {
 	var pe *ParseError
 	if errors.As(err, &pe) {
 		return err
@@ -197,10 +222,24 @@ func readError(name string, err error) error {
 	if errors.Is(err, ErrLimit) {
 		return fmt.Errorf("%s: %w", name, err)
 	}
-	if errors.Is(err, io.ErrUnexpectedEOF) {
-		return &ParseError{File: name, Err: errors.New("truncated input (unexpected end of compressed data)")}
+	if errors.Is(err, io.ErrUnexpectedEOF) || errors.Is(err, gzip.ErrChecksum) || errors.Is(err, gzip.ErrHeader) {
+		return &ParseError{File: name, Offset: offset, Err: fmt.Errorf("truncated or corrupt gzip stream: %w", err)}
 	}
 	return &ParseError{File: name, Err: err}
+}
+
+// pprofError explains why data is not a profile. profile.ParseData falls
+// back to legacy text formats and then reports only "unrecognized profile
+// format"; the protobuf decoder's own error says more.
+func pprofError(name string, data []byte, err error) error {
+	msg := strings.TrimPrefix(err.Error(), "parsing profile: ")
+	if strings.HasPrefix(msg, "malformed profile: ") {
+		return &ParseError{File: name, Err: fmt.Errorf("malformed pprof profile: %s", strings.TrimPrefix(msg, "malformed profile: "))}
+	}
+	if _, perr := profile.ParseUncompressed(data); perr != nil && msg == "unrecognized profile format" {
+		msg = "protobuf: " + strings.TrimPrefix(perr.Error(), "parsing profile: ")
+	}
+	return &ParseError{File: name, Err: fmt.Errorf("%w: neither OTLP/JSON nor a pprof profile (%s)", ErrFormat, msg)}
 }
 
 // sizeLimitReader fails once more than max bytes have been read.
