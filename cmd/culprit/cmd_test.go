@@ -6,6 +6,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"regexp"
 	"strings"
 	"testing"
 	"time"
@@ -314,5 +315,30 @@ func TestProgressOnlyOnTerminals(t *testing.T) {
 	p.Finish()
 	if !strings.Contains(term.String(), "read 0.0 MiB of 0.0 MiB") || !strings.Contains(term.String(), "left") {
 		t.Errorf("terminal progress = %q", term.String())
+	}
+}
+
+// The demo traces carry raw statements with literals (session tokens,
+// ids, cart numbers). No output format may show them unless asked.
+func TestLiteralsNeverLeak(t *testing.T) {
+	leak := regexp.MustCompile(`(?i)(token = '[0-9a-f]+|where id = [0-9]+|values \([0-9]+)`)
+	for _, format := range []string{"text", "markdown", "json", "csv", "html"} {
+		t.Run(format, func(t *testing.T) {
+			code, out, errOut := runTest(t, "", "demo", "--traces", "--limit", "0", "--format", format)
+			if code != exitOK {
+				t.Fatalf("exit %d: %s", code, errOut)
+			}
+			if m := leak.FindString(out); m != "" {
+				t.Errorf("literal leaked: %q", m)
+			}
+			if !strings.Contains(strings.ToLower(out), "token = ?") {
+				t.Error("the session statement's fingerprint is missing")
+			}
+		})
+	}
+	// --show-literals is the one way to see them (and this check can fail).
+	_, out, _ := runTest(t, "", "demo", "--traces", "--limit", "0", "--format", "csv", "--show-literals")
+	if !leak.MatchString(out) {
+		t.Error("--show-literals shows no literal")
 	}
 }
