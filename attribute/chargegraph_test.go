@@ -1,0 +1,107 @@
+package attribute
+
+import (
+	"strconv"
+	"strings"
+	"testing"
+
+	"github.com/culprithq/culprit/callgraph"
+	"github.com/culprithq/culprit/traces"
+	"gonum.org/v1/gonum/graph/formats/dot"
+	"gonum.org/v1/gonum/graph/formats/dot/ast"
+)
+
+// The attribution graph of the methods reference §1 example, encoded
+// with gonum's DOT encoder, parses back with gonum's DOT parser into the
+// expected nodes, classes and edge weights.
+func TestChargeGraphDOT(t *testing.T) {
+	data := buildProfile(t, methodsExample())
+	l := traces.NewLoader(traces.Options{})
+	if err := l.Add("p.pb.gz", strings.NewReader(string(data))); err != nil {
+		t.Fatal(err)
+	}
+	src, err := l.Source()
+	if err != nil {
+		t.Fatal(err)
+	}
+	cls := NewClassifier(src, DefaultRules())
+	tree := callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary})
+	out, err := ChargeGraph(tree, cls, Options{Value: "samples"}, 0).MarshalDOT()
+	if err != nil {
+		t.Fatal(err)
+	}
+	file, err := dot.ParseString(string(out))
+	if err != nil {
+		t.Fatalf("DOT does not parse: %v\n%s", err, out)
+	}
+	if len(file.Graphs) != 1 || !file.Graphs[0].Directed {
+		t.Fatalf("want one directed graph")
+	}
+	unquote := func(s string) string {
+		if u, err := strconv.Unquote(s); err == nil {
+			return u
+		}
+		return s
+	}
+	nodes := map[string]map[string]string{}
+	edges := map[string]string{}
+	for _, st := range file.Graphs[0].Stmts {
+		switch st := st.(type) {
+		case *ast.NodeStmt:
+			attrs := map[string]string{}
+			for _, a := range st.Attrs {
+				attrs[a.Key] = unquote(a.Val)
+			}
+			nodes[unquote(st.Node.ID)] = attrs
+		case *ast.EdgeStmt:
+			from := unquote(st.From.(*ast.Node).ID)
+			to := unquote(st.To.Vertex.(*ast.Node).ID)
+			for _, a := range st.Attrs {
+				if a.Key == "weight" {
+					edges[from+" -> "+to] = a.Val
+				}
+			}
+		}
+	}
+	wantNodes := map[string]string{
+		"main.main":                         "application",
+		"example.com/shop/api.handler":      "application",
+		"example.com/shop/store.loadUser":   "application",
+		"example.com/shop/store.loadOrders": "application",
+		"example.com/shop/tree.walk":        "application",
+		"database/sql.(*DB).Query":          "database",
+	}
+	if len(nodes) != len(wantNodes) {
+		t.Errorf("nodes = %v, want %d (render reaches no boundary and is absent)", nodes, len(wantNodes))
+	}
+	for n, class := range wantNodes {
+		if nodes[n]["class"] != class {
+			t.Errorf("node %s: attrs %v, want class %s", n, nodes[n], class)
+		}
+	}
+	// Edge weights are the cost charged along them, each path once: the
+	// recursive walk's self-edge carries its 5 samples once, not twice.
+	wantEdges := map[string]string{
+		"main.main -> example.com/shop/api.handler":                         "40",
+		"example.com/shop/api.handler -> example.com/shop/store.loadOrders": "30",
+		"example.com/shop/store.loadOrders -> database/sql.(*DB).Query":     "30",
+		"example.com/shop/store.loadUser -> database/sql.(*DB).Query":       "10",
+		"main.main -> example.com/shop/tree.walk":                           "5",
+		"example.com/shop/tree.walk -> example.com/shop/tree.walk":          "5",
+		"example.com/shop/tree.walk -> database/sql.(*DB).Query":            "5",
+	}
+	for e, w := range wantEdges {
+		if edges[e] != w {
+			t.Errorf("edge %s weight %q, want %s", e, edges[e], w)
+		}
+	}
+	if nodes["main.main"]["cost"] != "45" {
+		t.Errorf("main.main cost = %s, want 45", nodes["main.main"]["cost"])
+	}
+	// Pruning: at 25% of the 45, loadUser (10, 22%) and walk (5) go.
+	pruned, _ := ChargeGraph(tree, cls, Options{Value: "samples"}, 0.25).MarshalDOT()
+	if strings.Contains(string(pruned), "loadUser") || strings.Contains(string(pruned), "tree.walk") ||
+		!strings.Contains(string(pruned), "loadOrders") {
+		t.Errorf("--min-share 0.25 kept the wrong nodes:\n%s", pruned)
+	}
+}
