@@ -424,22 +424,7 @@ func (a *causeAcc) finish(denom, boundarySamples int64, sampled, knowsCalls bool
 	for _, d := range a.details {
 		c.Statements = append(c.Statements, *d)
 	}
-	sort.Slice(c.Statements, func(i, j int) bool {
-		x, y := c.Statements[i], c.Statements[j]
-		if x.Cost != y.Cost {
-			return x.Cost > y.Cost
-		}
-		if x.Statement != y.Statement {
-			return x.Statement < y.Statement
-		}
-		if x.Peer != y.Peer {
-			return x.Peer < y.Peer
-		}
-		if x.Kind != y.Kind {
-			return x.Kind < y.Kind
-		}
-		return x.System < y.System
-	})
+	sortDetails(c.Statements)
 	for _, e := range a.entries {
 		c.EntryPoints = append(c.EntryPoints, *e)
 	}

@@ -183,16 +183,7 @@ func (n *ExplainNode) finish() {
 		for _, d := range x.details {
 			x.Statements = append(x.Statements, *d)
 		}
-		sort.Slice(x.Statements, func(i, j int) bool {
-			a, b := x.Statements[i], x.Statements[j]
-			if a.Cost != b.Cost {
-				return a.Cost > b.Cost
-			}
-			if a.Statement != b.Statement {
-				return a.Statement < b.Statement
-			}
-			return a.Peer < b.Peer
-		})
+		sortDetails(x.Statements)
 		stack = append(stack, x.Children...)
 	}
 }

@@ -217,22 +217,7 @@ func findings(res *Result, accs map[string]*causeAcc, o FindingOptions, denom in
 			out = append(out, f)
 		}
 	}
-	sort.Slice(out, func(i, j int) bool {
-		a, b := out[i], out[j]
-		if a.Cost != b.Cost {
-			return a.Cost > b.Cost
-		}
-		if a.Kind != b.Kind {
-			return a.Kind < b.Kind
-		}
-		if a.Function != b.Function {
-			return a.Function < b.Function
-		}
-		if a.Statement != b.Statement {
-			return a.Statement < b.Statement
-		}
-		return a.Peer < b.Peer
-	})
+	sortFindings(out)
 	return out
 }
 

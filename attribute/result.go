@@ -1,6 +1,10 @@
 package attribute
 
-import "github.com/culprithq/culprit/traces"
+import (
+	"sort"
+
+	"github.com/culprithq/culprit/traces"
+)
 
 // Kind is the kind of cost charged to a root cause.
 type Kind string
@@ -178,4 +182,46 @@ type Finding struct {
 	RequestsSeen int `json:"requestsSeen,omitempty"`
 	// Depth is the deepest recursion seen (recursive-access).
 	Depth int `json:"depth,omitempty"`
+}
+
+// sortDetails orders details by cost (descending), then statement, peer,
+// kind and system: the one order every report and snapshot uses.
+func sortDetails(ds []Detail) {
+	sort.SliceStable(ds, func(i, j int) bool {
+		x, y := ds[i], ds[j]
+		if x.Cost != y.Cost {
+			return x.Cost > y.Cost
+		}
+		if x.Statement != y.Statement {
+			return x.Statement < y.Statement
+		}
+		if x.Peer != y.Peer {
+			return x.Peer < y.Peer
+		}
+		if x.Kind != y.Kind {
+			return x.Kind < y.Kind
+		}
+		return x.System < y.System
+	})
+}
+
+// sortFindings orders findings by cost (descending), then kind, function,
+// statement and peer.
+func sortFindings(fs []Finding) {
+	sort.SliceStable(fs, func(i, j int) bool {
+		a, b := fs[i], fs[j]
+		if a.Cost != b.Cost {
+			return a.Cost > b.Cost
+		}
+		if a.Kind != b.Kind {
+			return a.Kind < b.Kind
+		}
+		if a.Function != b.Function {
+			return a.Function < b.Function
+		}
+		if a.Statement != b.Statement {
+			return a.Statement < b.Statement
+		}
+		return a.Peer < b.Peer
+	})
 }

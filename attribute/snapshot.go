@@ -933,16 +933,7 @@ func mergeStatements(ds []Detail) []Detail {
 		out[j].Calls += d.Calls
 		out[j].Samples += d.Samples
 	}
-	sort.SliceStable(out, func(i, j int) bool {
-		x, y := out[i], out[j]
-		if x.Cost != y.Cost {
-			return x.Cost > y.Cost
-		}
-		if x.Statement != y.Statement {
-			return x.Statement < y.Statement
-		}
-		return x.Peer < y.Peer
-	})
+	sortDetails(out)
 	return out
 }
 
@@ -1014,22 +1005,7 @@ func mergeFindings(snaps []*Snapshot, denom int64) (out []Finding, approx bool) 
 			out[i].Share = float64(out[i].Cost) / float64(denom)
 		}
 	}
-	sort.SliceStable(out, func(i, j int) bool {
-		a, b := out[i], out[j]
-		if a.Cost != b.Cost {
-			return a.Cost > b.Cost
-		}
-		if a.Kind != b.Kind {
-			return a.Kind < b.Kind
-		}
-		if a.Function != b.Function {
-			return a.Function < b.Function
-		}
-		if a.Statement != b.Statement {
-			return a.Statement < b.Statement
-		}
-		return a.Peer < b.Peer
-	})
+	sortFindings(out)
 	return out, approx
 }
 
