@@ -233,8 +233,12 @@ func CheckComparable(base, cand *Snapshot) error {
 // interval of the rate ratio (PoissonRateTest; methods reference §3); the
 // exposure is requests, seconds, or boundary samples for shares.
 // Span sources with per-request costs on the per-request basis are
-// compared on the cost of each request, the requests where the cause is
-// absent counting as zeros (each side has as many values as requests):
+// compared on the cost of each request that went through an entry point
+// reaching the cause (on either side; all requests when entry counts are
+// unknown), so that a shift in the traffic mix between endpoints does not
+// read as a change of the cause. Base and Candidate are then per request
+// of those entry points, and requests where the cause is absent count as
+// zeros (each side has as many values as such requests):
 // per-request costs are skewed and often mostly zero, so the p-value
 // comes from the Mann–Whitney rank test (exact for small tie-free samples,
 // else the tie-corrected normal approximation with continuity correction),
@@ -566,7 +570,13 @@ func compareCause(id string, bg, cg *group, bs, cs *side, perRequest bool, alpha
 
 	if perRequest && (bg == nil || bg.hasVectors()) && (cg == nil || cg.hasVectors()) {
 		st.method = MethodMWUBootstrap
-		nb, nc := bs.snap.Totals.Requests, cs.snap.Totals.Requests
+		// Per request of the entry points that reach the cause (on either
+		// side), so that a shift in the traffic mix between endpoints does
+		// not read as a change of the cause, and requests that cannot reach
+		// it do not dilute the test with zeros.
+		entries := entryNames(bg, cg)
+		nb, nc := entryRequests(bs.snap, entries), entryRequests(cs.snap, entries)
+		st.base, st.cand = normalise(bCost, float64(nb)), normalise(cCost, float64(nc))
 		vb, vc := bg.vector(nb), cg.vector(nc)
 		mw := MannWhitney(vc, vb)
 		st.p = mw.PCorrected
@@ -601,6 +611,38 @@ func compareCause(id string, bg, cg *group, bs, cs *side, perRequest bool, alpha
 	}
 	st.mde = MinDetectableRatio(float64(st.baseN), float64(st.candN), alpha, ComparePower) - 1
 	return st
+}
+
+// entryNames lists the entry points under which the groups' members were
+// charged, on either side.
+func entryNames(gs ...*group) map[string]bool {
+	out := map[string]bool{}
+	for _, g := range gs {
+		if g == nil {
+			continue
+		}
+		for _, m := range g.members {
+			for _, e := range m.EntryPoints {
+				out[e.Entry] = true
+			}
+		}
+	}
+	return out
+}
+
+// entryRequests counts the requests of snap that went through the named
+// entry points; with no entry request counts it falls back to all requests.
+func entryRequests(snap *Snapshot, entries map[string]bool) int {
+	n := 0
+	for _, e := range snap.Entries {
+		if entries[e.Entry] {
+			n += e.Requests
+		}
+	}
+	if n == 0 || n > snap.Totals.Requests {
+		return snap.Totals.Requests
+	}
+	return n
 }
 
 func normalise(cost int64, norm float64) float64 {
