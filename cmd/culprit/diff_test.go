@@ -155,3 +155,35 @@ func TestParseBudget(t *testing.T) {
 		}
 	}
 }
+
+// On the demo traces the planted +35% per-item query loop is the one
+// root cause that regressed; the rest, whose costs did not change between
+// the builds, stay unchanged.
+func TestDiffTracesOnDemo(t *testing.T) {
+	code, out, errOut := runTest(t, "", "demo", "--diff", "--traces", "--format", "json")
+	if code != exitOK {
+		t.Fatalf("exit %d: %s", code, errOut)
+	}
+	var doc struct {
+		Basis   string
+		Changes []struct {
+			Function, Verdict string
+			RelLo, RelHi      *float64
+		}
+	}
+	if err := json.Unmarshal([]byte(out), &doc); err != nil {
+		t.Fatal(err)
+	}
+	if doc.Basis != "per-request" {
+		t.Errorf("basis = %q", doc.Basis)
+	}
+	for _, c := range doc.Changes {
+		loop := strings.HasSuffix(c.Function, "catalog.(*Repo).VarietyByID")
+		switch {
+		case loop && (c.Verdict != "regressed" || c.RelLo == nil || *c.RelLo > 0.35 || *c.RelHi < 0.35):
+			t.Errorf("planted loop: %+v, want regressed with +35%% inside the interval", c)
+		case !loop && c.Verdict != "unchanged":
+			t.Errorf("%s: %s, want unchanged", c.Function, c.Verdict)
+		}
+	}
+}
