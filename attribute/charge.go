@@ -103,21 +103,34 @@ type detailKey struct {
 	peer      string
 }
 
-type siteKey struct {
-	file string
-	line int64
+// entryKey caches a path's entry point: it depends only on the entry
+// nodes the walk found, the path's first frame and its (interned) labels.
+type entryKey struct {
+	entry, entryApp callgraph.NodeID
+	root            traces.FrameID
+	labels          *traces.LabelSet
+}
+
+// entryState is one entry point being totalled.
+type entryState struct {
+	name  string
+	total *EntryTotal
+	reqs  map[traces.RequestID]bool
 }
 
 // causeAcc accumulates one root cause while paths are charged.
+// reqStat is a root cause's tally in one request: calls (spans) or
+// samples, and charged cost.
+type reqStat struct{ n, cost int64 }
+
 type causeAcc struct {
 	cause     *Cause
-	details   map[detailKey]*Detail
-	entries   map[string]*EntryShare
-	sites     map[siteKey]int64
-	perReq    map[traces.RequestID]int64 // calls (spans) or samples per request
-	reqCost   map[traces.RequestID]int64 // charged cost per request
-	stmtReq   map[detailKey]map[traces.RequestID]int64
-	recursion int // deepest recursion seen, for recursive-access
+	details   map[int32]*Detail // by detail ID (see Attribute)
+	entries   map[*entryState]*EntryShare
+	sites     map[traces.FrameID]int64 // the root cause's frame: file and line
+	perReq    map[traces.RequestID]reqStat
+	stmtReq   map[uint64]int64 // (detail ID, request) → calls
+	recursion int              // deepest recursion seen, for recursive-access
 	recCost   int64
 }
 
@@ -155,8 +168,12 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 	}
 	sampleIx := sampleIndex(src, vi)
 	accs := map[string]*causeAcc{}
-	entries := map[string]*EntryTotal{}
-	entryReqs := map[string]map[traces.RequestID]bool{}
+	accOf := map[callgraph.NodeID]*causeAcc{} // root-cause node → its accumulator
+	entryOf := map[entryKey]*entryState{}     // cached entry point per leaf and labels
+	entries := map[string]*entryState{}       // by name
+	detailOf := map[uint64]int32{}            // (leaf, call) → detail ID
+	detailIDs := map[detailKey]int32{}        // detail → ID
+	var detailList []detailKey                // ID → detail
 	requests := map[traces.RequestID]bool{}
 	inclusiveKeys := map[callgraph.NodeID][]callgraph.NodeID{}
 	labelReq := map[string]traces.RequestID{}
@@ -177,15 +194,23 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		if req != 0 {
 			requests[req] = true
 		}
-		entryName := entryOf(src, t, w, p, leaf, entryLabels)
-		et := entries[entryName]
-		if et == nil {
-			et = &EntryTotal{Entry: entryName}
-			entries[entryName] = et
-			entryReqs[entryName] = map[traces.RequestID]bool{}
+		at := leaf
+		if b := w.boundary[leaf]; b != 0 {
+			at = b
 		}
+		ek := entryKey{w.entry[at], w.entryApp[at], p.Frames[0], p.Labels}
+		es := entryOf[ek]
+		if es == nil {
+			name := entryName(src, t, w, p, leaf, entryLabels)
+			if es = entries[name]; es == nil {
+				es = &entryState{name: name, total: &EntryTotal{Entry: name}, reqs: map[traces.RequestID]bool{}}
+				entries[name] = es
+			}
+			entryOf[ek] = es
+		}
+		et := es.total
 		if req != 0 {
-			entryReqs[entryName][req] = true
+			es.reqs[req] = true
 		}
 		rootPath := len(p.Frames) == 1
 		if !spans || rootPath {
@@ -219,7 +244,18 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 				calls = p.Values[1]
 			}
 		}
-		dk := detailOf(src, t, w, p, leaf, b, kind, opts.ShowLiterals)
+		dkey := uint64(uint32(leaf))<<32 | uint64(uint32(p.Call))
+		did, ok := detailOf[dkey]
+		if !ok {
+			dk := detail(src, t, w, p, leaf, b, kind, opts.ShowLiterals)
+			if did, ok = detailIDs[dk]; !ok {
+				did = int32(len(detailList))
+				detailIDs[dk] = did
+				detailList = append(detailList, dk)
+			}
+			detailOf[dkey] = did
+		}
+		dk := &detailList[did]
 
 		var causes []callgraph.NodeID
 		if opts.Inclusive {
@@ -233,16 +269,23 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		}
 		if len(causes) == 0 {
 			res.Totals.Unattributed += val
-			acc := accFor(accs, NoAppFramePrefix+entryName, "", 0, true)
-			acc.add(val, samples, calls, kind, dk, entryName, siteKey{}, req)
+			acc := accFor(accs, NoAppFramePrefix+es.name, true)
+			acc.add(val, samples, calls, kind, did, dk, es, 0, req)
 			continue
 		}
 		recFn, depth := rec.at(b)
 		for _, ra := range causes {
-			f := &src.Frames[t.Frame(ra)]
-			acc := accFor(accs, f.Function, f.File, f.Line, false)
-			acc.add(val, samples, calls, kind, dk, entryName, siteKey{f.File, f.Line}, req)
-			if recFn != "" && recFn == f.Function {
+			acc := accOf[ra]
+			if acc == nil {
+				acc = accFor(accs, src.Frames[t.Frame(ra)].Function, false)
+				accOf[ra] = acc
+			}
+			site := t.Frame(ra)
+			if fr := &src.Frames[site]; fr.File == "" && fr.Line == 0 {
+				site = 0 // no call site known (spans without code.* attributes)
+			}
+			acc.add(val, samples, calls, kind, did, dk, es, site, req)
+			if recFn != "" && recFn == acc.cause.Function {
 				acc.recCost += val
 				if depth > acc.recursion {
 					acc.recursion = depth
@@ -253,7 +296,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 			// The recursive function is above the root cause: credit it too.
 			acc := accs[recFn]
 			if acc == nil {
-				acc = accFor(accs, recFn, "", 0, false)
+				acc = accFor(accs, recFn, false)
 				acc.cause.Kind = kind
 			}
 			acc.recCost += val
@@ -277,15 +320,15 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		if acc.cause.Cost == 0 && acc.recCost == 0 {
 			continue
 		}
-		cs := acc.finish(denom, res.Totals.BoundarySamples, !spans, spans)
+		cs := acc.finish(src, denom, res.Totals.BoundarySamples, !spans, spans)
 		if cs.Cost > 0 {
 			res.Causes = append(res.Causes, cs)
 		}
 	}
 	sortCauses(res.Causes)
-	for name, e := range entries {
-		e.Requests = len(entryReqs[name])
-		res.Entries = append(res.Entries, *e)
+	for _, es := range entries {
+		es.total.Requests = len(es.reqs)
+		res.Entries = append(res.Entries, *es.total)
 	}
 	sort.Slice(res.Entries, func(i, j int) bool {
 		a, b := res.Entries[i], res.Entries[j]
@@ -310,24 +353,25 @@ func containsFunc(src *traces.Source, t *callgraph.Tree, ns []callgraph.NodeID, 
 	return false
 }
 
-func accFor(accs map[string]*causeAcc, fn, file string, line int64, noApp bool) *causeAcc {
+func accFor(accs map[string]*causeAcc, fn string, noApp bool) *causeAcc {
 	acc := accs[fn]
 	if acc == nil {
 		acc = &causeAcc{
 			cause:   &Cause{Function: fn, NoAppFrame: noApp},
-			details: map[detailKey]*Detail{},
-			entries: map[string]*EntryShare{},
-			sites:   map[siteKey]int64{},
-			perReq:  map[traces.RequestID]int64{},
-			reqCost: map[traces.RequestID]int64{},
-			stmtReq: map[detailKey]map[traces.RequestID]int64{},
+			details: map[int32]*Detail{},
+			entries: map[*entryState]*EntryShare{},
+			sites:   map[traces.FrameID]int64{},
+			perReq:  map[traces.RequestID]reqStat{},
+			stmtReq: map[uint64]int64{},
 		}
 		accs[fn] = acc
 	}
 	return acc
 }
 
-func (a *causeAcc) add(val, samples, calls int64, kind Kind, dk detailKey, entry string, site siteKey, req traces.RequestID) {
+// add charges one path: detail ID did (dk), entry point es, and the root
+// cause's frame site (0 for a no-application-frame bucket).
+func (a *causeAcc) add(val, samples, calls int64, kind Kind, did int32, dk *detailKey, es *entryState, site traces.FrameID, req traces.RequestID) {
 	c := a.cause
 	c.Cost += val
 	c.Samples += samples
@@ -337,22 +381,22 @@ func (a *causeAcc) add(val, samples, calls int64, kind Kind, dk detailKey, entry
 	} else {
 		c.Network += val
 	}
-	d := a.details[dk]
+	d := a.details[did]
 	if d == nil {
 		d = &Detail{Kind: dk.kind, System: dk.system, Statement: dk.statement, Peer: dk.peer}
-		a.details[dk] = d
+		a.details[did] = d
 	}
 	d.Cost += val
 	d.Calls += calls
 	d.Samples += samples
-	e := a.entries[entry]
+	e := a.entries[es]
 	if e == nil {
-		e = &EntryShare{Entry: entry}
-		a.entries[entry] = e
+		e = &EntryShare{Entry: es.name}
+		a.entries[es] = e
 	}
 	e.Cost += val
 	e.Calls += calls
-	if site.file != "" || site.line != 0 {
+	if site != 0 {
 		a.sites[site] += val
 	}
 	if req != 0 {
@@ -360,18 +404,13 @@ func (a *causeAcc) add(val, samples, calls int64, kind Kind, dk detailKey, entry
 		if n == 0 {
 			n = samples
 		}
-		a.perReq[req] += n
-		a.reqCost[req] += val
-		m := a.stmtReq[dk]
-		if m == nil {
-			m = map[traces.RequestID]int64{}
-			a.stmtReq[dk] = m
-		}
-		m[req] += calls
+		st := a.perReq[req]
+		a.perReq[req] = reqStat{st.n + n, st.cost + val}
+		a.stmtReq[uint64(uint32(did))<<32|uint64(uint32(req))] += calls
 	}
 }
 
-func (a *causeAcc) finish(denom, boundarySamples int64, sampled, knowsCalls bool) *Cause {
+func (a *causeAcc) finish(src *traces.Source, denom, boundarySamples int64, sampled, knowsCalls bool) *Cause {
 	c := a.cause
 	switch {
 	case c.Database > 0 && c.Network > 0:
@@ -390,23 +429,24 @@ func (a *causeAcc) finish(denom, boundarySamples int64, sampled, knowsCalls bool
 		c.ShareMargin = 1.96 * BinomialSE(int(k), int(boundarySamples))
 	}
 	c.Requests = len(a.perReq)
-	if len(a.reqCost) > 0 {
-		c.requestCosts = make([]float64, 0, len(a.reqCost))
-		for _, v := range a.reqCost {
-			c.requestCosts = append(c.requestCosts, float64(v))
+	if len(a.perReq) > 0 {
+		c.requestCosts = make([]float64, 0, len(a.perReq))
+		for _, v := range a.perReq {
+			c.requestCosts = append(c.requestCosts, float64(v.cost))
 		}
 		sort.Float64s(c.requestCosts)
 	}
 	if knowsCalls && len(a.perReq) > 0 {
 		counts := make([]float64, 0, len(a.perReq))
-		for _, n := range a.perReq {
-			counts = append(counts, float64(n))
+		for _, st := range a.perReq {
+			counts = append(counts, float64(st.n))
 		}
 		c.CallsPerRequest = distribution(counts)
 		c.requestCalls = counts // sorted by distribution
 	}
-	for s, cost := range a.sites {
-		c.CallSites = append(c.CallSites, CallSite{File: s.file, Line: s.line, Cost: cost})
+	for f, cost := range a.sites {
+		fr := &src.Frames[f]
+		c.CallSites = append(c.CallSites, CallSite{File: fr.File, Line: fr.Line, Cost: cost})
 	}
 	sort.Slice(c.CallSites, func(i, j int) bool {
 		x, y := c.CallSites[i], c.CallSites[j]
@@ -454,10 +494,10 @@ func sortCauses(cs []*Cause) {
 	})
 }
 
-// entryOf names the entry point of a path: a label if present, else the
+// entryName names the entry point of a path: a label if present, else the
 // application function just below the deepest entry-point frame, else
 // that frame, else the path's first frame.
-func entryOf(src *traces.Source, t *callgraph.Tree, w *walkState, p *traces.Path, leaf callgraph.NodeID, keys []string) string {
+func entryName(src *traces.Source, t *callgraph.Tree, w *walkState, p *traces.Path, leaf callgraph.NodeID, keys []string) string {
 	for _, k := range keys {
 		if v, ok := p.Labels.Get(k); ok && v != "" {
 			return v
@@ -476,9 +516,9 @@ func entryOf(src *traces.Source, t *callgraph.Tree, w *walkState, p *traces.Path
 	return src.Frames[p.Frames[0]].Function
 }
 
-// detailOf describes the boundary of a path: its statement fingerprint,
+// detail describes the boundary of a path: its statement fingerprint,
 // operation or library function, and its peer.
-func detailOf(src *traces.Source, t *callgraph.Tree, w *walkState, p *traces.Path, leaf, b callgraph.NodeID, kind Kind, literals bool) detailKey {
+func detail(src *traces.Source, t *callgraph.Tree, w *walkState, p *traces.Path, leaf, b callgraph.NodeID, kind Kind, literals bool) detailKey {
 	bf := &src.Frames[t.Frame(b)]
 	dk := detailKey{kind: kind, system: w.system[leaf], statement: bf.Function}
 	if p.Call == 0 {

@@ -2,6 +2,7 @@ package attribute
 
 import (
 	"fmt"
+	"slices"
 	"sort"
 
 	"github.com/culprithq/culprit/callgraph"
@@ -55,6 +56,7 @@ type recursionFinder struct {
 	count      []int32
 	epoch      int32
 	cache      map[callgraph.NodeID]recursionHit
+	known      []bool // by tree node: the boundary node has been walked
 	candidates int
 }
 
@@ -122,9 +124,14 @@ func (r *recursionFinder) at(b callgraph.NodeID) (string, int) {
 	if r.candidates == 0 {
 		return "", 0
 	}
-	if h, ok := r.cache[b]; ok {
+	if r.known == nil {
+		r.known = make([]bool, r.t.Len())
+	}
+	if r.known[b] {
+		h := r.cache[b] // absent (no recursion) reads as the zero hit
 		return h.fn, h.depth
 	}
+	r.known[b] = true
 	r.epoch++
 	best := recursionHit{}
 	for n := r.t.Parent(b); n != callgraph.Root; n = r.t.Parent(n) {
@@ -141,7 +148,9 @@ func (r *recursionFinder) at(b callgraph.NodeID) (string, int) {
 			best = recursionHit{fn: r.names[fn], depth: k}
 		}
 	}
-	r.cache[b] = best
+	if best.depth > 0 {
+		r.cache[b] = best
+	}
 	return best.fn, best.depth
 }
 
@@ -178,10 +187,23 @@ func findings(res *Result, accs map[string]*causeAcc, o FindingOptions, denom in
 		if seen == 0 {
 			continue
 		}
-		for dk, perReq := range acc.stmtReq {
+		// Regroup the flat (detail, request) tallies by detail, in ID order.
+		byDetail := map[int32][]int64{}
+		var ids []int32
+		for k, n := range acc.stmtReq {
+			did := int32(k >> 32)
+			if _, ok := byDetail[did]; !ok {
+				ids = append(ids, did)
+			}
+			byDetail[did] = append(byDetail[did], n)
+		}
+		slices.Sort(ids)
+		for _, did := range ids {
+			perReq := byDetail[did]
+			dk := acc.details[did]
 			min := o.RepeatMin
 			kind := "repeated-statement"
-			if dk.kind == KindNetwork {
+			if dk.Kind == KindNetwork {
 				min = o.PerItemMin
 				kind = "per-item-calls"
 			}
@@ -194,7 +216,7 @@ func findings(res *Result, accs map[string]*causeAcc, o FindingOptions, denom in
 			if len(counts) == 0 || float64(len(counts)) < o.MinRequestShare*float64(seen) {
 				continue
 			}
-			cost := acc.details[dk].Cost
+			cost := dk.Cost
 			f := Finding{
 				Kind:         kind,
 				Function:     name,
@@ -205,12 +227,12 @@ func findings(res *Result, accs map[string]*causeAcc, o FindingOptions, denom in
 				RequestsSeen: seen,
 			}
 			if kind == "per-item-calls" {
-				f.Peer = dk.peer
-				f.Statement = dk.statement
+				f.Peer = dk.Peer
+				f.Statement = dk.Statement
 				f.Evidence = fmt.Sprintf("%.0f calls per request (median; max %.0f) to %s in %d of %d requests",
-					f.PerRequest.Median, f.PerRequest.Max, orUnknown(dk.peer), len(counts), seen)
+					f.PerRequest.Median, f.PerRequest.Max, orUnknown(dk.Peer), len(counts), seen)
 			} else {
-				f.Statement = dk.statement
+				f.Statement = dk.Statement
 				f.Evidence = fmt.Sprintf("the same statement %.0f times per request (median; max %.0f) in %d of %d requests",
 					f.PerRequest.Median, f.PerRequest.Max, len(counts), seen)
 			}

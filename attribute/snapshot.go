@@ -885,6 +885,10 @@ func mergeCallSites(cs []CallSite) []CallSite {
 	if cs == nil {
 		return nil
 	}
+	type siteKey struct {
+		file string
+		line int64
+	}
 	sums := map[siteKey]int64{}
 	var keys []siteKey
 	for _, s := range cs {

@@ -68,10 +68,24 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 			cutAt[i] = cut(traces.FrameID(i))
 		}
 	}
+	// Consecutive paths usually share a prefix (sibling spans of a trace,
+	// samples of one request): reuse the previous path's nodes for the
+	// common prefix and look up only the rest.
+	var prevFrames []traces.FrameID
+	var prevNodes []NodeID
 	for pi := range src.Paths {
 		p := &src.Paths[pi]
 		cur := Root
-		for _, f := range p.Frames {
+		common := 0
+		for common < len(prevNodes) && common < len(p.Frames) && p.Frames[common] == prevFrames[common] {
+			common++
+		}
+		if common > 0 {
+			cur = prevNodes[common-1]
+		}
+		prevFrames = p.Frames
+		prevNodes = prevNodes[:common]
+		for _, f := range p.Frames[common:] {
 			if cut != nil && cur != Root && cutAt[t.nodes[cur].frame] {
 				break
 			}
@@ -90,6 +104,7 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 				index[key] = child
 			}
 			cur = child
+			prevNodes = append(prevNodes, cur)
 		}
 		t.leaf[pi] = cur
 	}
