@@ -27,6 +27,9 @@ const (
 	WarnInvalidID = "invalid-id"
 	// WarnNoSpans is an input that decoded as JSON but held no spans.
 	WarnNoSpans = "no-spans"
+	// WarnInvalidUTF8 is a record holding invalid UTF-8, which is
+	// replaced by U+FFFD.
+	WarnInvalidUTF8 = "invalid-utf8"
 )
 
 // defaultBlockSize is how many bytes of JSON lines the reader hands to a

@@ -9,6 +9,7 @@ import (
 	"reflect"
 	"strconv"
 	"strings"
+	"unicode/utf8"
 
 	json "github.com/goccy/go-json"
 )
@@ -106,6 +107,25 @@ func (d *decoder) record(rec []byte, line, col int64, doc bool) {
 			d.b.err = depthError(d.name, rec, line, col, start+deep, d.c.limits.MaxDepth)
 			return
 		}
+	}
+	if !utf8.Valid(rec) {
+		// The JSON decoder replaces invalid UTF-8 with U+FFFD: a repair,
+		// so count it (or refuse it in strict mode).
+		at := int64(start)
+		for i := 0; i < len(rec); {
+			r, n := utf8.DecodeRune(rec[i:])
+			if r == utf8.RuneError && n <= 1 {
+				at = int64(i)
+				break
+			}
+			i += n
+		}
+		msg := fmt.Sprintf("invalid UTF-8 at byte %d of the record, replaced by U+FFFD", at+1)
+		if d.c.opts.Strict {
+			d.b.err = &ParseError{File: d.name, Line: clampLine(line), Err: fmt.Errorf("%w: %s: %s", ErrSpanRepair, WarnInvalidUTF8, msg)}
+			return
+		}
+		d.b.warnings = append(d.b.warnings, Warning{Kind: WarnInvalidUTF8, File: d.name, Line: clampLine(line), Message: msg})
 	}
 	var err error
 	if rec[start] == '[' {

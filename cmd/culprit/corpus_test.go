@@ -137,11 +137,14 @@ func corpusCases() []corpusCase {
 			want: []string{"{file}:1: not OTLP/JSON: invalid integer object"}},
 		// Invalid UTF-8 is replaced by U+FFFD (as encoding/json does), so
 		// no invalid byte reaches a report.
-		// Known gap: the repair leaves no warning; DESIGN.md ("Bad input")
-		// asks for repairs to be counted in warnings.
+		// A repair, so it is counted in the warnings (and refused by --strict).
 		{name: "invalid UTF-8", file: "invalid-utf8.jsonl", gen: invalidUTF8,
 			about: "a statement holding invalid UTF-8", status: exitOK,
-			report: []string{"from caf\ufffd_plants where id = ?"}},
+			report: []string{"from caf\ufffd_plants where id = ?"},
+			want:   []string{"invalid-utf8 (e.g. {file}:1: invalid UTF-8 at byte 767 of the record, replaced by U+FFFD)"}},
+		{name: "invalid UTF-8 strict", file: "invalid-utf8.jsonl", gen: invalidUTF8,
+			flags: []string{"--strict"}, status: exitError,
+			want: []string{"{file}:1: span data needs repair (strict mode): invalid-utf8: invalid UTF-8 at byte 767"}},
 		// NaN is how the proto3 JSON mapping writes a double that is not a
 		// number (protobuf.dev/programming-guides/json): valid input.
 		{name: "NaN double", file: "nan-double.jsonl", gen: nanDouble,
