@@ -64,6 +64,9 @@ func ParseDomainsFile(name string, r io.Reader) (*Domains, error) {
 	if err := dec.Decode(&d); err != nil {
 		return nil, decodeError(name, data, dec, err)
 	}
+	if err := expectEnd(name, data, dec); err != nil {
+		return nil, err
+	}
 	offsets := arrayOffsets(data, "domains", len(d.List))
 	seen := map[string]bool{}
 	for i := range d.List {

@@ -226,6 +226,9 @@ func ParseRulesFile(name string, r io.Reader) (*Rules, error) {
 	if err := dec.Decode(&f); err != nil {
 		return nil, decodeError(name, data, dec, err)
 	}
+	if err := expectEnd(name, data, dec); err != nil {
+		return nil, err
+	}
 	out := &Rules{App: f.App, Files: []string{name}}
 	// Locate each rule's start for error positions.
 	offsets := arrayOffsets(data, "rules", len(f.Rules))
@@ -250,6 +253,20 @@ func ParseRulesFile(name string, r io.Reader) (*Rules, error) {
 		}
 	}
 	return out, nil
+}
+
+// expectEnd fails when anything but white space follows the JSON value
+// dec has decoded (a second object, or a half-pasted one).
+func expectEnd(name string, data []byte, dec *json.Decoder) error {
+	if _, err := dec.Token(); err == io.EOF {
+		return nil
+	}
+	off := dec.InputOffset()
+	for off > 0 && off <= int64(len(data)) && strings.IndexByte(" \t\r\n", data[off-1]) < 0 {
+		off-- // back to the start of the offending token
+	}
+	line, col := lineCol(data, off)
+	return &RulesFileError{File: name, Line: line, Column: col, Err: errors.New("unexpected data after the JSON object")}
 }
 
 // decodeError positions a JSON decoding error of file name at the

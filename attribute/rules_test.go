@@ -145,3 +145,14 @@ func TestRulesFileErrors(t *testing.T) {
 		})
 	}
 }
+
+func TestRulesFileTrailingData(t *testing.T) {
+	_, err := ParseRulesFile("r.json", strings.NewReader("{\"rules\": []}\n{\"rules\": garbage"))
+	var re *RulesFileError
+	if !errors.As(err, &re) || re.Line != 2 || !strings.Contains(err.Error(), "unexpected data after the JSON object") {
+		t.Errorf("err = %v, want r.json:2:… unexpected data", err)
+	}
+	if _, err := ParseRulesFile("r.json", strings.NewReader("{\"rules\": []}\n\n")); err != nil {
+		t.Errorf("trailing white space: %v", err)
+	}
+}
