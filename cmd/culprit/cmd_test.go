@@ -342,3 +342,19 @@ func TestLiteralsNeverLeak(t *testing.T) {
 		t.Error("--show-literals shows no literal")
 	}
 }
+
+func TestOutputFileMode(t *testing.T) {
+	dir := t.TempDir()
+	out := filepath.Join(dir, "r.json")
+	if code, _, errOut := runTest(t, "", "demo", "--format", "json", "-o", out); code != exitOK {
+		t.Fatal(errOut)
+	}
+	if st, _ := os.Stat(out); st.Mode().Perm() != 0o644 {
+		t.Errorf("new report mode %v, want 0644", st.Mode().Perm())
+	}
+	os.Chmod(out, 0o600)
+	runTest(t, "", "demo", "--format", "json", "-o", out)
+	if st, _ := os.Stat(out); st.Mode().Perm() != 0o600 {
+		t.Errorf("replaced report mode %v, want the old file's 0600", st.Mode().Perm())
+	}
+}

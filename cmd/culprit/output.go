@@ -73,8 +73,19 @@ func writeAtomic(path string, inputs []string, render func(io.Writer) error) err
 			}
 		}
 	}
+	// CreateTemp makes the file 0600: give it the mode of the file it
+	// replaces, or the usual 0644 for a new report.
+	mode := os.FileMode(0o644)
+	if st, err := os.Stat(abs); err == nil {
+		mode = st.Mode().Perm()
+	}
 	tmp, err := os.CreateTemp(filepath.Dir(abs), "."+filepath.Base(abs)+".tmp-*")
 	if err != nil {
+		return err
+	}
+	if err := tmp.Chmod(mode); err != nil {
+		tmp.Close()
+		os.Remove(tmp.Name())
 		return err
 	}
 	ok := false
