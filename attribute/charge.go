@@ -244,16 +244,19 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 				calls = p.Values[1]
 			}
 		}
+		sys := pathSystem(c, t, w, p, leaf, b)
 		dkey := uint64(uint32(leaf))<<32 | uint64(uint32(p.Call))
 		did, ok := detailOf[dkey]
-		if !ok {
-			dk := detail(src, t, w, p, leaf, b, kind, opts.ShowLiterals)
+		if !ok || detailList[did].system != sys && p.Call == 0 {
+			dk := detail(src, t, p, b, sys, kind, opts.ShowLiterals)
 			if did, ok = detailIDs[dk]; !ok {
 				did = int32(len(detailList))
 				detailIDs[dk] = did
 				detailList = append(detailList, dk)
 			}
-			detailOf[dkey] = did
+			if sys == w.system[leaf] {
+				detailOf[dkey] = did // paths through this leaf that refine no further share it
+			}
 		}
 		dk := &detailList[did]
 
@@ -518,9 +521,9 @@ func entryName(src *traces.Source, t *callgraph.Tree, w *walkState, p *traces.Pa
 
 // detail describes the boundary of a path: its statement fingerprint,
 // operation or library function, and its peer.
-func detail(src *traces.Source, t *callgraph.Tree, w *walkState, p *traces.Path, leaf, b callgraph.NodeID, kind Kind, literals bool) detailKey {
+func detail(src *traces.Source, t *callgraph.Tree, p *traces.Path, b callgraph.NodeID, system string, kind Kind, literals bool) detailKey {
 	bf := &src.Frames[t.Frame(b)]
-	dk := detailKey{kind: kind, system: w.system[leaf], statement: bf.Function}
+	dk := detailKey{kind: kind, system: system, statement: bf.Function}
 	if p.Call == 0 {
 		return dk
 	}
@@ -540,6 +543,24 @@ func detail(src *traces.Source, t *callgraph.Tree, w *walkState, p *traces.Path,
 		dk.statement = call.Operation
 	}
 	return dk
+}
+
+// pathSystem is the system of a path's boundary: the walk's, refined by
+// the first more specific database driver frame below the boundary on
+// the path itself (a tree cut at boundaries holds no frames below them).
+func pathSystem(c *Classifier, t *callgraph.Tree, w *walkState, p *traces.Path, leaf, b callgraph.NodeID) string {
+	sys := w.system[leaf]
+	if !isGenericSystem(sys) || p.Call != 0 {
+		return sys
+	}
+	if d := t.Depth(b); d < len(p.Frames) {
+		for _, f := range p.Frames[d:] {
+			if v := c.Verdict(f); v.Class == Database && !isGenericSystem(v.System) {
+				return v.System
+			}
+		}
+	}
+	return sys
 }
 
 // appAbove lists the distinct application functions above boundary node b,

@@ -84,7 +84,7 @@ func Explain(t *callgraph.Tree, c *Classifier, opts Options, pattern *regexp.Reg
 		if c.Verdict(t.Frame(b)).Class == Network {
 			kind = KindNetwork
 		}
-		dk := detail(src, t, w, p, leaf, b, kind, opts.ShowLiterals)
+		dk := detail(src, t, p, b, pathSystem(c, t, w, p, leaf, b), kind, opts.ShowLiterals)
 		for _, ra := range causes {
 			name := src.Frames[t.Frame(ra)].Function
 			if !pattern.MatchString(name) {

@@ -77,8 +77,10 @@ func rankProfile(t testing.TB, data []byte, rules *Rules, opts Options) *Result 
 	if err != nil {
 		t.Fatal(err)
 	}
-	tree := callgraph.NewTree(src, callgraph.TreeOptions{})
-	return Attribute(tree, NewClassifier(src, rules), opts)
+	// Cut at boundaries, as culprit does.
+	cls := NewClassifier(src, rules)
+	tree := callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary})
+	return Attribute(tree, cls, opts)
 }
 
 func causeByName(r *Result, fn string) *Cause {
