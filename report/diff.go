@@ -333,7 +333,7 @@ func methodNotes(c *attribute.Comparison) []string {
 func normalisedHow(b attribute.Basis) string {
 	switch b {
 	case attribute.BasisPerRequest:
-		return "per request (both sides know their requests)"
+		return "per request of the entry points that reach each root cause (both sides know their requests)"
 	case attribute.BasisPerSecond:
 		return "per second of profile duration (requests unknown on a side)"
 	}
