@@ -13,6 +13,7 @@ import (
 	"strings"
 
 	"github.com/google/pprof/profile"
+	"google.golang.org/protobuf/encoding/protowire"
 )
 
 // Loader reads any number of inputs, sniffing each one's format, and
@@ -236,10 +237,33 @@ func pprofError(name string, data []byte, err error) error {
 	if strings.HasPrefix(msg, "malformed profile: ") {
 		return &ParseError{File: name, Err: fmt.Errorf("malformed pprof profile: %s", strings.TrimPrefix(msg, "malformed profile: "))}
 	}
+	var offset int64
 	if _, perr := profile.ParseUncompressed(data); perr != nil && msg == "unrecognized profile format" {
 		msg = "protobuf: " + strings.TrimPrefix(perr.Error(), "parsing profile: ")
+		if off, why := badField(data); off >= 0 {
+			offset = off
+			msg += "; " + why
+		}
 	}
-	return &ParseError{File: name, Err: fmt.Errorf("%w: neither OTLP/JSON nor a pprof profile (%s)", ErrFormat, msg)}
+	return &ParseError{File: name, Offset: offset, Err: fmt.Errorf("%w: neither OTLP/JSON nor a pprof profile (%s)", ErrFormat, msg)}
+}
+
+// badField walks the top-level protobuf fields of data and returns the
+// byte offset of the first one that does not decode, and why; -1 when
+// every field is well formed (the problem is then in their contents).
+func badField(data []byte) (int64, string) {
+	for off := 0; off < len(data); {
+		num, typ, n := protowire.ConsumeTag(data[off:])
+		if n < 0 {
+			return int64(off), "bad field tag: " + protowire.ParseError(n).Error()
+		}
+		m := protowire.ConsumeFieldValue(num, typ, data[off+n:])
+		if m < 0 {
+			return int64(off), fmt.Sprintf("field %d: %v", num, protowire.ParseError(m))
+		}
+		off += n + m
+	}
+	return -1, ""
 }
 
 // sizeLimitReader fails once more than max bytes have been read.

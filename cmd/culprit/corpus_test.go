@@ -68,25 +68,26 @@ func corpusCases() []corpusCase {
 			about: "an empty file", status: exitError,
 			want: []string{"{file}: unrecognised input format: the input is empty"}},
 		// The protobuf decoder's own error is reported (the pprof library
-		// hides it behind its legacy-format fallback). Not yet: a byte offset.
+		// hides it behind its legacy-format fallback), with the first field
+		// that does not decode; here it is the very first (byte 0, which
+		// ParseError leaves unprinted).
 		{name: "random bytes", file: "random.bin", gen: randomBytes,
 			about: "4 KiB of seeded pseudo-random bytes", status: exitError,
-			want: []string{"{file}: unrecognised input format: neither OTLP/JSON nor a pprof profile (protobuf: unknown wire type: 6)"}},
+			want: []string{"{file}: unrecognised input format: neither OTLP/JSON nor a pprof profile (protobuf: unknown wire type: 6; field 8: proto: cannot parse reserved wire type)"}},
 		{name: "random bytes keep going", file: "random.bin", gen: randomBytes,
 			flags: []string{"--keep-going"}, status: exitError,
 			want: []string{"no readable input", "skipped-input (e.g. {file}: unrecognised input format"}},
 		{name: "png header", file: "png-header.png", gen: pngHeader,
 			about: "a PNG signature and header chunk followed by junk", status: exitError,
-			want: []string{"{file}: unrecognised input format: neither OTLP/JSON nor a pprof profile (protobuf: type mismatch)"}},
+			want: []string{"{file}: byte 10: unrecognised input format: neither OTLP/JSON nor a pprof profile (protobuf: type mismatch; bad field tag: proto: invalid field number)"}},
 		// The compressed stream ends at the end of the file (byte 659).
 		{name: "truncated gzip", file: "truncated.pb.gz", gen: truncatedGzip,
 			about: "a gzipped pprof profile cut in the middle of its compressed stream", status: exitError,
 			want: []string{"{file}: byte 659: truncated or corrupt gzip stream: unexpected EOF"}},
-		// Not yet: a byte offset and the word "truncated" (the protobuf
-		// decoder says only "too much data").
+		// The field that runs past the end, and where it starts.
 		{name: "truncated protobuf", file: "truncated.pb", gen: truncatedProto,
 			about: "an uncompressed pprof profile cut in the middle of a message", status: exitError,
-			want: []string{"{file}: unrecognised input format: neither OTLP/JSON nor a pprof profile (protobuf: too much data)"}},
+			want: []string{"{file}: byte 858: unrecognised input format: neither OTLP/JSON nor a pprof profile (protobuf: too much data; field 4: unexpected EOF)"}},
 		{name: "sample value count", file: "sample-value-count.pb", gen: sampleValueCount,
 			about: "a pprof profile with two sample types whose sample has one value", status: exitError,
 			want: []string{"{file}: malformed pprof profile: mismatch: sample has 1 values vs. 2 types"}},
