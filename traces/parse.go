@@ -255,15 +255,37 @@ func badField(data []byte) (int64, string) {
 	for off := 0; off < len(data); {
 		num, typ, n := protowire.ConsumeTag(data[off:])
 		if n < 0 {
-			return int64(off), "bad field tag: " + protowire.ParseError(n).Error()
+			return int64(off), "bad field tag: " + wireProblem(n)
 		}
 		m := protowire.ConsumeFieldValue(num, typ, data[off+n:])
 		if m < 0 {
-			return int64(off), fmt.Sprintf("field %d: %v", num, protowire.ParseError(m))
+			return int64(off), fmt.Sprintf("field %d: %s", num, wireProblem(m))
 		}
 		off += n + m
 	}
 	return -1, ""
+}
+
+// wireProblem words a protowire error code (the errCode constants of
+// protowire/wire.go, v1.36). protowire's own messages
+// vary their spacing from build to build on purpose, so they are not
+// quoted.
+func wireProblem(code int) string {
+	switch code {
+	case -1:
+		return "runs past the end of the input (truncated?)"
+	case -2:
+		return "invalid field number"
+	case -3:
+		return "varint overflows 64 bits"
+	case -4:
+		return "reserved wire type"
+	case -5:
+		return "mismatched end-group marker"
+	case -6:
+		return "groups nested too deeply"
+	}
+	return "malformed field"
 }
 
 // sizeLimitReader fails once more than max bytes have been read.
