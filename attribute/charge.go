@@ -168,12 +168,12 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 	}
 	sampleIx := sampleIndex(src, vi)
 	accs := map[string]*causeAcc{}
-	accOf := map[callgraph.NodeID]*causeAcc{} // root-cause node → its accumulator
-	entryOf := map[entryKey]*entryState{}     // cached entry point per leaf and labels
-	entries := map[string]*entryState{}       // by name
-	detailOf := map[uint64]int32{}            // (leaf, call) → detail ID
-	detailIDs := map[detailKey]int32{}        // detail → ID
-	var detailList []detailKey                // ID → detail
+	accOf := map[traces.FrameID]*causeAcc{} // root-cause frame → its accumulator
+	entryOf := map[entryKey]*entryState{}   // cached entry point per leaf and labels
+	entries := map[string]*entryState{}     // by name
+	detailOf := map[uint64]int32{}          // (boundary frame, call) → detail ID
+	detailIDs := map[detailKey]int32{}      // detail → ID
+	var detailList []detailKey              // ID → detail
 	requests := map[traces.RequestID]bool{}
 	inclusiveKeys := map[callgraph.NodeID][]callgraph.NodeID{}
 	labelReq := map[string]traces.RequestID{}
@@ -245,17 +245,17 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 			}
 		}
 		sys := pathSystem(c, t, w, p, leaf, b)
-		dkey := uint64(uint32(leaf))<<32 | uint64(uint32(p.Call))
+		dkey := uint64(uint32(t.Frame(b)))<<32 | uint64(uint32(p.Call))
 		did, ok := detailOf[dkey]
-		if !ok || detailList[did].system != sys && p.Call == 0 {
+		if !ok || detailList[did].system != sys {
 			dk := detail(src, t, p, b, sys, kind, opts.ShowLiterals)
 			if did, ok = detailIDs[dk]; !ok {
 				did = int32(len(detailList))
 				detailIDs[dk] = did
 				detailList = append(detailList, dk)
 			}
-			if sys == w.system[leaf] {
-				detailOf[dkey] = did // paths through this leaf that refine no further share it
+			if !ok {
+				detailOf[dkey] = did // the first system seen; others are looked up by value
 			}
 		}
 		dk := &detailList[did]
@@ -278,10 +278,10 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		}
 		recFn, depth := rec.at(b)
 		for _, ra := range causes {
-			acc := accOf[ra]
+			acc := accOf[t.Frame(ra)]
 			if acc == nil {
 				acc = accFor(accs, src.Frames[t.Frame(ra)].Function, false)
-				accOf[ra] = acc
+				accOf[t.Frame(ra)] = acc
 			}
 			site := t.Frame(ra)
 			if fr := &src.Frames[site]; fr.File == "" && fr.Line == 0 {
