@@ -428,6 +428,11 @@ func fingerprintSQL(d dialect, raw string) string {
 // joinTokens writes ts separated by single spaces, except where glue(a, b) says none.
 func joinTokens(ts []token, glue func(a, b token) bool) string {
 	var b strings.Builder
+	size := len(ts)
+	for _, t := range ts {
+		size += len(t.text)
+	}
+	b.Grow(size)
 	for k, t := range ts {
 		if k > 0 && !glue(ts[k-1], t) {
 			b.WriteByte(' ')
@@ -566,11 +571,45 @@ func isIdentStart(c byte) bool { return isLetter(c) || c == '_' || c >= 0x80 }
 func isIdentChar(c byte) bool  { return isIdentStart(c) || isDigit(c) || c == '$' }
 func isOpByte(c byte) bool     { return strings.IndexByte("!#%&*+-/:<=>@^|~", c) >= 0 }
 
+// sqlKeywords holds common SQL keywords, lower case, so that lowerASCII
+// can return them without allocating (most statements spell them in
+// upper case).
+var sqlKeywords = func() map[string]string {
+	m := map[string]string{}
+	for _, k := range strings.Fields(`select from where and or not in is null as on join left right inner outer
+		cross full group by order having limit offset insert into values update set delete create table
+		index drop alter distinct union all exists between like case when then else end asc desc count
+		sum avg min max returning with for share nowait skip locked top fetch next rows only coalesce
+		lower upper cast interval now current_timestamp primary key default conflict do nothing`) {
+		m[k] = k
+	}
+	return m
+}()
+
 // lowerASCII lower-cases the ASCII letters of s and leaves every other byte alone.
 func lowerASCII(s string) string {
-	i := strings.IndexFunc(s, func(r rune) bool { return 'A' <= r && r <= 'Z' })
+	i := -1
+	for j := 0; j < len(s); j++ {
+		if 'A' <= s[j] && s[j] <= 'Z' {
+			i = j
+			break
+		}
+	}
 	if i < 0 {
 		return s
+	}
+	if len(s) <= 32 {
+		var buf [32]byte
+		n := copy(buf[:], s)
+		for j := i; j < n; j++ {
+			if 'A' <= buf[j] && buf[j] <= 'Z' {
+				buf[j] += 'a' - 'A'
+			}
+		}
+		if k, ok := sqlKeywords[string(buf[:n])]; ok { // no allocation for the lookup
+			return k
+		}
+		return string(buf[:n])
 	}
 	b := []byte(s)
 	for ; i < len(b); i++ {
