@@ -50,21 +50,9 @@ type DomainTotal struct {
 //
 // Errors carry the line and column of the offending domain or token.
 func ParseDomainsFile(name string, r io.Reader) (*Domains, error) {
-	data, err := io.ReadAll(io.LimitReader(r, 16<<20))
-	if err != nil {
-		return nil, fmt.Errorf("reading %s: %w", name, err)
-	}
-	posErr := func(off int64, err error) error {
-		line, col := lineCol(data, off)
-		return &RulesFileError{File: name, Line: line, Column: col, Err: err}
-	}
-	dec := json.NewDecoder(bytes.NewReader(data))
-	dec.DisallowUnknownFields()
 	var d Domains
-	if err := dec.Decode(&d); err != nil {
-		return nil, decodeError(name, data, dec, err)
-	}
-	if err := expectEnd(name, data, dec); err != nil {
+	data, posErr, err := decodeFile(name, r, &d)
+	if err != nil {
 		return nil, err
 	}
 	offsets := arrayOffsets(data, "domains", len(d.List))

@@ -212,21 +212,9 @@ type rulesFile struct {
 //
 // Errors carry the line and column of the offending rule or token.
 func ParseRulesFile(name string, r io.Reader) (*Rules, error) {
-	data, err := io.ReadAll(io.LimitReader(r, 16<<20))
-	if err != nil {
-		return nil, fmt.Errorf("reading %s: %w", name, err)
-	}
-	posErr := func(off int64, err error) error {
-		line, col := lineCol(data, off)
-		return &RulesFileError{File: name, Line: line, Column: col, Err: err}
-	}
-	dec := json.NewDecoder(bytes.NewReader(data))
-	dec.DisallowUnknownFields()
 	var f rulesFile
-	if err := dec.Decode(&f); err != nil {
-		return nil, decodeError(name, data, dec, err)
-	}
-	if err := expectEnd(name, data, dec); err != nil {
+	data, posErr, err := decodeFile(name, r, &f)
+	if err != nil {
 		return nil, err
 	}
 	out := &Rules{App: f.App, Files: []string{name}}
@@ -253,6 +241,30 @@ func ParseRulesFile(name string, r io.Reader) (*Rules, error) {
 		}
 	}
 	return out, nil
+}
+
+// decodeFile reads one JSON object from r into v, strictly: unknown
+// fields and trailing data are errors, and every error is a
+// *RulesFileError with its line and column. It returns the data read and
+// a function that positions later (semantic) errors at a byte offset.
+func decodeFile(name string, r io.Reader, v any) ([]byte, func(int64, error) error, error) {
+	data, err := io.ReadAll(io.LimitReader(r, 16<<20))
+	if err != nil {
+		return nil, nil, fmt.Errorf("reading %s: %w", name, err)
+	}
+	posErr := func(off int64, err error) error {
+		line, col := lineCol(data, off)
+		return &RulesFileError{File: name, Line: line, Column: col, Err: err}
+	}
+	dec := json.NewDecoder(bytes.NewReader(data))
+	dec.DisallowUnknownFields()
+	if err := dec.Decode(v); err != nil {
+		return nil, nil, decodeError(name, data, dec, err)
+	}
+	if err := expectEnd(name, data, dec); err != nil {
+		return nil, nil, err
+	}
+	return data, posErr, nil
 }
 
 // expectEnd fails when anything but white space follows the JSON value

@@ -68,15 +68,14 @@ func runExplain(ctx context.Context, opts *explainOptions) error {
 	if err != nil {
 		return err
 	}
-	if _, err := src.ValueIndex(opts.analysis.Value); err != nil {
-		return usagef("--value: %v", err)
+	tree, cls, vi, err := opts.analysis.build(src, rules)
+	if err != nil {
+		return err
 	}
-	tree, cls := buildTree(src, rules)
 	ex := attribute.Explain(tree, cls, opts.analysis.attributeOptions(), re)
 	if opts.output.Limit > 0 && len(ex) > opts.output.Limit {
 		ex = ex[:opts.output.Limit]
 	}
-	vi, _ := src.ValueIndex(opts.analysis.Value)
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
 	return opts.output.write(opts.streams, opts.inputs, func(w io.Writer) error {
 		return report.RenderExplanations(w, format, ex, src.ValueTypes[vi].Unit, ropts)

@@ -57,10 +57,10 @@ func runGraph(ctx context.Context, opts *graphOptions) error {
 	if err != nil {
 		return err
 	}
-	if _, err := src.ValueIndex(opts.analysis.Value); err != nil {
-		return usagef("--value: %v", err)
+	tree, cls, _, err := opts.analysis.build(src, rules)
+	if err != nil {
+		return err
 	}
-	tree, cls := buildTree(src, rules)
 	g := attribute.ChargeGraph(tree, cls, opts.analysis.attributeOptions(), opts.minShare)
 	data, err := g.MarshalDOT()
 	if err != nil {

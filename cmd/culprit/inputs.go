@@ -216,10 +216,10 @@ func (e errReader) Read([]byte) (int, error) { return 0, e.err }
 
 // analyse builds the tree, classifies and attributes src.
 func (f *analysisFlags) analyse(src *traces.Source, rules *attribute.Rules) (*attribute.Result, error) {
-	if _, err := src.ValueIndex(f.Value); err != nil {
-		return nil, usagef("--value: %v", err)
+	tree, cls, _, err := f.build(src, rules)
+	if err != nil {
+		return nil, err
 	}
-	tree, cls := buildTree(src, rules)
 	res := attribute.Attribute(tree, cls, f.attributeOptions())
 	if f.DomainsFile != "" {
 		fh, err := os.Open(f.DomainsFile)
@@ -236,11 +236,16 @@ func (f *analysisFlags) analyse(src *traces.Source, rules *attribute.Rules) (*at
 	return res, nil
 }
 
-// buildTree classifies src's frames and builds its calling-context tree,
-// cut at database and network boundaries (nothing below them is needed).
-func buildTree(src *traces.Source, rules *attribute.Rules) (*callgraph.Tree, *attribute.Classifier) {
+// build checks --value against src, classifies src's frames and builds its
+// calling-context tree, cut at database and network boundaries (nothing
+// below them is needed). It returns the index of the value charged.
+func (f *analysisFlags) build(src *traces.Source, rules *attribute.Rules) (*callgraph.Tree, *attribute.Classifier, int, error) {
+	vi, err := src.ValueIndex(f.Value)
+	if err != nil {
+		return nil, nil, 0, usagef("--value: %v", err)
+	}
 	cls := attribute.NewClassifier(src, rules)
-	return callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary}), cls
+	return callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary}), cls, vi, nil
 }
 
 func (f *analysisFlags) attributeOptions() attribute.Options {
