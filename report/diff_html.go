@@ -1,9 +1,7 @@
 package report
 
 import (
-	"crypto/sha256"
 	_ "embed"
-	"encoding/base64"
 	"html/template"
 	"io"
 	"math"
@@ -99,10 +97,9 @@ func verdicts() []attribute.Outcome {
 
 // RenderDiff implements DiffRenderer.
 func (DiffHTML) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) error {
-	sum := sha256.Sum256([]byte(sortScript))
 	changes := shownChanges(c, opts)
 	p := diffPage{
-		CSP:        "default-src 'none'; style-src 'unsafe-inline'; script-src 'sha256-" + base64.StdEncoding.EncodeToString(sum[:]) + "'; base-uri 'none'; form-action 'none'",
+		CSP:        pagePolicy(),
 		Script:     template.JS(sortScript), // a constant of this package, never user data
 		Headline:   newDiffHeadline(c),
 		Base:       sideText(c.Base),

@@ -184,13 +184,21 @@ type entryBar struct {
 
 type entrySegment struct{ Class, X, Y, W, H, Title string }
 
+// pagePolicy is the Content-Security-Policy of every page culprit writes:
+// nothing may be fetched, and the only script allowed is the package's own
+// table-sorting script, by its hash.
+func pagePolicy() string {
+	sum := sha256.Sum256([]byte(sortScript))
+	return "default-src 'none'; style-src 'unsafe-inline'; script-src 'sha256-" +
+		base64.StdEncoding.EncodeToString(sum[:]) + "'; base-uri 'none'; form-action 'none'"
+}
+
 // Render implements Renderer.
 func (HTML) Render(w io.Writer, r *attribute.Result, opts Options) error {
-	sum := sha256.Sum256([]byte(sortScript))
 	unit := r.ValueType.Unit
 	causes := shown(r, opts)
 	p := htmlPage{
-		CSP:         "default-src 'none'; style-src 'unsafe-inline'; script-src 'sha256-" + base64.StdEncoding.EncodeToString(sum[:]) + "'; base-uri 'none'; form-action 'none'",
+		CSP:         pagePolicy(),
 		Script:      template.JS(sortScript), // a constant of this package, never user data
 		Headline:    newHeadline(r),
 		Source:      clean(sourceSentence(r)),
