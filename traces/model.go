@@ -1,7 +1,8 @@
 package traces
 
 import (
-	"sort"
+	"cmp"
+	"slices"
 	"strconv"
 	"strings"
 )
@@ -248,6 +249,7 @@ type Source struct {
 	callIndex    map[Call]CallID
 	requestIndex map[string]RequestID
 	labelIndex   map[string]*LabelSet
+	labelKey     []byte // InternLabels' scratch space
 }
 
 // NewSource returns an empty source of the given kind, ready for Intern calls.
@@ -311,6 +313,15 @@ func (s *Source) InternFrame(f Frame) FrameID {
 	return id
 }
 
+// reserveFrames makes room for n more frames in the frame index while it
+// is still empty: growing a map of a large key costs more than sizing it once.
+func (s *Source) reserveFrames(n int) {
+	s.ensureIndexes()
+	if len(s.frameIndex) == 0 && n > 1024 {
+		s.frameIndex = make(map[Frame]FrameID, n)
+	}
+}
+
 // InternCall returns the ID of c, adding it if it is new. The zero Call is ID 0.
 func (s *Source) InternCall(c Call) CallID {
 	if c == (Call{}) {
@@ -349,37 +360,45 @@ func (s *Source) InternLabels(labels []Label) *LabelSet {
 		return nil
 	}
 	s.ensureIndexes()
-	sort.Slice(labels, func(i, j int) bool {
-		a, b := labels[i], labels[j]
-		if a.Key != b.Key {
-			return a.Key < b.Key
-		}
-		if a.Value != b.Value {
-			return a.Value < b.Value
-		}
-		return a.Num < b.Num
-	})
-	var key strings.Builder
-	for _, l := range labels {
-		key.WriteString(l.Key)
-		key.WriteByte(0)
-		key.WriteString(l.Value)
-		key.WriteByte(0)
-		key.WriteString(strconv.FormatInt(l.Num, 10))
-		key.WriteByte(0)
-		key.WriteString(l.Unit)
-		if l.IsNum {
-			key.WriteByte(1)
-		}
-		key.WriteByte(0)
+	if !slices.IsSortedFunc(labels, compareLabels) {
+		slices.SortFunc(labels, compareLabels)
 	}
-	k := key.String()
-	if set, ok := s.labelIndex[k]; ok {
+	key := s.labelKey[:0]
+	for _, l := range labels {
+		key = append(key, l.Key...)
+		key = append(key, 0)
+		key = append(key, l.Value...)
+		key = append(key, 0)
+		key = strconv.AppendInt(key, l.Num, 10)
+		key = append(key, 0)
+		key = append(key, l.Unit...)
+		if l.IsNum {
+			key = append(key, 1)
+		}
+		key = append(key, 0)
+	}
+	s.labelKey = key
+	if set, ok := s.labelIndex[string(key)]; ok {
 		return set
 	}
+	k := string(key)
 	set := &LabelSet{Labels: append([]Label(nil), labels...)}
 	s.labelIndex[k] = set
 	return set
+}
+
+// compareLabels orders labels by key, value, number, unit and kind: a
+// total order, so that equal sets always intern alike.
+func compareLabels(a, b Label) int {
+	c := cmp.Or(cmp.Compare(a.Key, b.Key), cmp.Compare(a.Value, b.Value), cmp.Compare(a.Num, b.Num),
+		cmp.Compare(a.Unit, b.Unit))
+	if c != 0 || a.IsNum == b.IsNum {
+		return c
+	}
+	if a.IsNum {
+		return 1
+	}
+	return -1
 }
 
 // RequestCount returns the number of distinct known requests.

@@ -115,11 +115,17 @@ func (l *Loader) add(name string, r io.Reader) error {
 		if err != nil {
 			return readError(name, err, counted.n)
 		}
-		p, err := profile.ParseData(data)
-		if err != nil {
-			return pprofError(name, data, err)
+		p, ok := decodeProfile(data)
+		if !ok {
+			// Not for the fast decoder: legacy formats, and malformed
+			// input, whose error the library words.
+			lp, err := profile.ParseData(data)
+			if err != nil {
+				return pprofError(name, data, err)
+			}
+			p = lowerProfile(lp)
 		}
-		if len(p.SampleType) == 0 {
+		if len(p.sampleTypes) == 0 {
 			return &ParseError{File: name, Err: errors.New("malformed pprof profile: it has no sample types")}
 		}
 		if err := l.checkKind(Profile, name); err != nil {

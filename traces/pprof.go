@@ -3,8 +3,6 @@ package traces
 import (
 	"fmt"
 	"strconv"
-
-	"github.com/google/pprof/profile"
 )
 
 // profileAppender adds pprof profiles to one Profile source, interning
@@ -12,11 +10,6 @@ import (
 type profileAppender struct {
 	src    *Source
 	limits Limits
-	// locFrames caches each location's frames (root-most first) per
-	// profile, indexed by location ID (IDs are dense in practice; sparse
-	// ones fall back to locFramesMap).
-	locFrames    [][]FrameID
-	locFramesMap map[uint64][]FrameID
 	// frameArena and valueArena hand out path slices in chunks, so that a
 	// profile of a million samples does not make two million allocations.
 	frameArena []FrameID
@@ -49,20 +42,15 @@ func newProfileAppender(limits Limits) *profileAppender {
 	return &profileAppender{limits: limits}
 }
 
-// add converts p and appends its samples. name is used in error messages.
-func (a *profileAppender) add(name string, p *profile.Profile) error {
-	types := make([]ValueType, len(p.SampleType))
-	for i, st := range p.SampleType {
-		types[i] = ValueType{Type: st.Type, Unit: st.Unit}
-	}
+// add appends the samples of p. name is used in error messages.
+func (a *profileAppender) add(name string, p *rawProfile) error {
+	types := p.sampleTypes
 	// order maps this profile's value index to the source's value index.
 	var order []int
 	if a.src == nil {
 		a.src = NewSource(Profile, types)
-		a.src.DefaultValue = defaultValueIndex(p)
-		if p.PeriodType != nil {
-			a.src.PeriodType = ValueType{Type: p.PeriodType.Type, Unit: p.PeriodType.Unit}
-		}
+		a.src.DefaultValue = p.defaultValueIndex()
+		a.src.PeriodType = p.periodType
 		order = make([]int, len(types))
 		for i := range order {
 			order[i] = i
@@ -74,32 +62,34 @@ func (a *profileAppender) add(name string, p *profile.Profile) error {
 		}
 	}
 	src := a.src
-	if p.Period > src.Period {
-		src.Period = p.Period
+	if p.period > src.Period {
+		src.Period = p.period
 	}
-	src.DurationNanos += p.DurationNanos
+	src.DurationNanos += p.durationNanos
 
-	var maxID uint64
-	for _, l := range p.Location {
-		maxID = max(maxID, l.ID)
-	}
-	a.locFrames, a.locFramesMap = nil, nil
-	if maxID <= uint64(4*len(p.Location)+16) {
-		a.locFrames = make([][]FrameID, maxID+1)
-	} else {
-		a.locFramesMap = make(map[uint64][]FrameID, len(p.Location))
-	}
+	// locFrames caches each location's frames (root-most first), by index.
+	locFrames := make([][]FrameID, len(p.locs))
+	// lineFrames caches frames by function and line: a profile has many
+	// locations (addresses) of each line, and frames hash slowly.
+	lineFrames := make(map[lineKey]FrameID, len(p.lines))
+	src.reserveFrames(len(p.lines))
 	nv := len(src.ValueTypes)
 	var frames []FrameID
-	for _, s := range p.Sample {
+	values := make([]int64, nv)
+	for si := range p.samples {
+		s := &p.samples[si]
 		frames = frames[:0]
-		// s.Location is leaf first; walk it backwards so frames come out root first.
-		for i := len(s.Location) - 1; i >= 0; i-- {
-			lf, err := a.locationFrames(s.Location[i])
-			if err != nil {
-				return fmt.Errorf("%s: %w", name, err)
+		// Locations are leaf first; walk them backwards so frames come out root first.
+		for i := s.locEnd - 1; i >= s.locStart; i-- {
+			li := p.sampleLocs[i]
+			lf := locFrames[li]
+			if lf == nil {
+				lf = a.locationFrames(p, li, lineFrames)
+				locFrames[li] = lf
 			}
-			frames = append(frames, lf...)
+			for _, f := range lf {
+				frames = append(frames, f)
+			}
 		}
 		if len(frames) == 0 {
 			frames = append(frames, src.InternFrame(Frame{Function: "(no stack)"}))
@@ -108,14 +98,8 @@ func (a *profileAppender) add(name string, p *profile.Profile) error {
 			return fmt.Errorf("%s: a sample has %d frames, more than the limit of %d (raise it with --max-depth): %w",
 				name, len(frames), a.limits.MaxDepth, ErrLimit)
 		}
-		var raw [8]int64
-		values := raw[:0]
-		if nv > len(raw) {
-			values = make([]int64, 0, nv)
-		}
-		values = values[:nv]
 		zero := true
-		for i, v := range s.Value {
+		for i, v := range p.values[si*nv : (si+1)*nv] {
 			values[order[i]] = v
 			if v != 0 {
 				zero = false
@@ -129,7 +113,7 @@ func (a *profileAppender) add(name string, p *profile.Profile) error {
 		src.Paths = append(src.Paths, Path{
 			Frames: a.frames(frames),
 			Values: vs,
-			Labels: a.labels(s),
+			Labels: a.labels(p.labels[s.labStart:s.labEnd]),
 		})
 	}
 	if len(src.Frames) > a.limits.MaxFrames {
@@ -139,80 +123,48 @@ func (a *profileAppender) add(name string, p *profile.Profile) error {
 	return nil
 }
 
-// locationFrames returns the frames of one location, root-most first:
+// locationFrames returns the frames of location li, root-most first:
 // pprof lists inlined functions innermost first, the real function last.
-func (a *profileAppender) locationFrames(loc *profile.Location) ([]FrameID, error) {
-	if a.locFrames != nil {
-		if f := a.locFrames[loc.ID]; f != nil {
-			return f, nil
-		}
-	} else if f, ok := a.locFramesMap[loc.ID]; ok {
-		return f, nil
+func (a *profileAppender) locationFrames(p *rawProfile, li int32, cache map[lineKey]FrameID) []FrameID {
+	loc := &p.locs[li]
+	if loc.lineStart == loc.lineEnd {
+		name := "0x" + strconv.FormatUint(loc.address, 16)
+		return a.frames([]FrameID{a.src.InternFrame(Frame{Function: name, File: loc.mappingFile})})
 	}
-	var out []FrameID
-	if len(loc.Line) == 0 {
-		name := "0x" + strconv.FormatUint(loc.Address, 16)
-		file := ""
-		if loc.Mapping != nil {
-			file = loc.Mapping.File
+	var buf [8]FrameID
+	out := buf[:0]
+	for i := loc.lineEnd - 1; i >= loc.lineStart; i-- {
+		ln := &p.lines[i]
+		if ln.function == "" {
+			// Named by the address: not cached by line.
+			name := "0x" + strconv.FormatUint(loc.address, 16)
+			out = append(out, a.src.InternFrame(Frame{Function: name, File: ln.file, Line: ln.line}))
+			continue
 		}
-		out = []FrameID{a.src.InternFrame(Frame{Function: name, File: file})}
-	} else {
-		out = make([]FrameID, 0, len(loc.Line))
-		for i := len(loc.Line) - 1; i >= 0; i-- {
-			ln := loc.Line[i]
-			f := Frame{Line: ln.Line}
-			if ln.Function != nil {
-				f.Function = ln.Function.Name
-				f.File = ln.Function.Filename
-			}
-			if f.Function == "" {
-				f.Function = "0x" + strconv.FormatUint(loc.Address, 16)
-			}
-			out = append(out, a.src.InternFrame(f))
+		k := lineKey{ln.fn, ln.line}
+		id, ok := cache[k]
+		if !ok || ln.fn == 0 {
+			id = a.src.InternFrame(Frame{Function: ln.function, File: ln.file, Line: ln.line})
+			cache[k] = id
 		}
+		out = append(out, id)
 	}
-	if a.locFrames != nil {
-		a.locFrames[loc.ID] = out
-	} else {
-		a.locFramesMap[loc.ID] = out
-	}
-	return out, nil
+	return a.frames(out)
 }
 
-func (a *profileAppender) labels(s *profile.Sample) *LabelSet {
-	if len(s.Label) == 0 && len(s.NumLabel) == 0 {
+// lineKey identifies a frame within one rawProfile.
+type lineKey struct {
+	fn   int32
+	line int64
+}
+
+// labels interns one sample's labels (sorting them in place); nil when it
+// has none.
+func (a *profileAppender) labels(ls []Label) *LabelSet {
+	if len(ls) == 0 {
 		return nil
 	}
-	var ls []Label
-	for k, vs := range s.Label {
-		for _, v := range vs {
-			ls = append(ls, Label{Key: k, Value: v})
-		}
-	}
-	for k, vs := range s.NumLabel {
-		units := s.NumUnit[k]
-		for i, v := range vs {
-			l := Label{Key: k, Num: v, IsNum: true}
-			if i < len(units) {
-				l.Unit = units[i]
-			}
-			ls = append(ls, l)
-		}
-	}
 	return a.src.InternLabels(ls)
-}
-
-// defaultValueIndex is the profile's default sample type, else the last one.
-func defaultValueIndex(p *profile.Profile) int {
-	if p.DefaultSampleType != "" {
-		for i, st := range p.SampleType {
-			if st.Type == p.DefaultSampleType {
-				return i
-			}
-		}
-	}
-	return len(p.SampleType) - 1
 }
 
 // matchValueTypes maps have onto want by type and unit, in any order.
