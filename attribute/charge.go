@@ -65,26 +65,27 @@ func newWalkState(t *callgraph.Tree, c *Classifier) *walkState {
 	for i := 1; i < n; i++ {
 		id := callgraph.NodeID(i)
 		p := t.Parent(id)
-		v := c.Verdict(t.Frame(id))
+		f := t.Frame(id)
+		class, entry := c.class(f)
 		w.boundary[id], w.lastApp[id], w.entry[id], w.entryApp[id], w.system[id] =
 			w.boundary[p], w.lastApp[p], w.entry[p], w.entryApp[p], w.system[p]
 		if w.boundary[p] != 0 {
 			// Below the boundary: only refine a generic system ("sql") with the driver's.
-			if v.Class == Database && isGenericSystem(w.system[p]) && !isGenericSystem(v.System) {
-				w.system[id] = v.System
+			if class == Database && isGenericSystem(w.system[p]) && !isGenericSystem(c.verdicts[f].System) {
+				w.system[id] = c.verdicts[f].System
 			}
 			continue
 		}
 		switch {
-		case v.Class.IsBoundary():
+		case class.IsBoundary():
 			w.boundary[id] = id
-			w.system[id] = v.System
+			w.system[id] = c.verdicts[f].System
 			continue
-		case v.EntryPoint:
+		case entry:
 			w.entry[id] = id
 			w.entryApp[id] = 0
 		}
-		if v.Class == Application {
+		if class == Application {
 			w.lastApp[id] = id
 			if w.entryApp[id] == 0 {
 				w.entryApp[id] = id

@@ -27,6 +27,10 @@ type Verdict struct {
 type Classifier struct {
 	rules    *Rules
 	verdicts []Verdict // by FrameID
+	// classes holds each frame's Class, with entryBit set for entry
+	// points: what the attribution walk reads for every tree node,
+	// packed tight for the cache.
+	classes []uint8
 	// Detected lists what auto-detection took as application code; empty
 	// when App prefixes were given.
 	Detected []Detection
@@ -45,15 +49,24 @@ type Detection struct {
 
 // NewClassifier classifies every frame of src with rules.
 func NewClassifier(src *traces.Source, rules *Rules) *Classifier {
-	c := &Classifier{rules: rules, verdicts: make([]Verdict, len(src.Frames))}
+	c := &Classifier{rules: rules, verdicts: make([]Verdict, len(src.Frames)), classes: make([]uint8, len(src.Frames))}
 	type det struct {
 		reason string
 		funcs  map[string]bool
 	}
 	detected := map[string]*det{}
+	// Rules never look at the line, and a profile has many lines of each
+	// function: classify each frame-without-line once.
+	byFunc := make(map[traces.Frame]Verdict, 1024)
 	for id := 1; id < len(src.Frames); id++ {
 		f := &src.Frames[id]
-		v := c.classify(f)
+		key := *f
+		key.Line = 0
+		v, ok := byFunc[key]
+		if !ok {
+			v = c.classify(f)
+			byFunc[key] = v
+		}
 		if v.Class == Application && len(rules.App) == 0 {
 			root := appRoot(f)
 			d := detected[root]
@@ -64,6 +77,10 @@ func NewClassifier(src *traces.Source, rules *Rules) *Classifier {
 			d.funcs[f.Function] = true
 		}
 		c.verdicts[id] = v
+		c.classes[id] = uint8(v.Class)
+		if v.EntryPoint {
+			c.classes[id] |= entryBit
+		}
 	}
 	for root, d := range detected {
 		c.Detected = append(c.Detected, Detection{Prefix: root, Functions: len(d.funcs), Reason: d.reason})
@@ -78,9 +95,20 @@ func NewClassifier(src *traces.Source, rules *Rules) *Classifier {
 	return c
 }
 
+const entryBit = 0x80
+
+// class returns frame id's Class and whether it is an entry point.
+func (c *Classifier) class(id traces.FrameID) (Class, bool) {
+	k := c.classes[id]
+	return Class(k &^ entryBit), k&entryBit != 0
+}
+
 // IsBoundary reports whether frame id is a database or network frame. It
 // suits callgraph.TreeOptions.Cut: attribution needs nothing below a boundary.
-func (c *Classifier) IsBoundary(id traces.FrameID) bool { return c.verdicts[id].Class.IsBoundary() }
+func (c *Classifier) IsBoundary(id traces.FrameID) bool {
+	cl, _ := c.class(id)
+	return cl.IsBoundary()
+}
 
 // Verdict returns the classification of frame id.
 func (c *Classifier) Verdict(id traces.FrameID) *Verdict { return &c.verdicts[id] }

@@ -71,7 +71,7 @@ func newRecursionFinder(t *callgraph.Tree, c *Classifier, w *walkState) *recursi
 	byName := map[string]int32{}
 	for i := range src.Frames {
 		r.funcOf[i] = -1
-		if i == 0 || c.verdicts[i].Class != Application {
+		if i == 0 || c.classes[i]&^entryBit != uint8(Application) {
 			continue
 		}
 		name := src.Frames[i].Function
@@ -85,6 +85,7 @@ func newRecursionFinder(t *callgraph.Tree, c *Classifier, w *walkState) *recursi
 	}
 	// Edges between consecutive application frames above a boundary.
 	var edges []uint64
+	seen := newEdgeSet(len(r.names))
 	selfLoop := make([]bool, len(r.names))
 	for i := 1; i < t.Len(); i++ {
 		n := callgraph.NodeID(i)
@@ -100,7 +101,9 @@ func newRecursionFinder(t *callgraph.Tree, c *Classifier, w *walkState) *recursi
 		if caller == fn {
 			selfLoop[fn] = true
 		}
-		edges = append(edges, callgraph.PackEdge(caller, fn))
+		if e := callgraph.PackEdge(caller, fn); seen.add(caller, fn, e) {
+			edges = append(edges, e)
+		}
 	}
 	g := callgraph.NewAdjacency(len(r.names), edges)
 	r.candidate = make([]bool, len(r.names))
@@ -116,6 +119,40 @@ func newRecursionFinder(t *callgraph.Tree, c *Classifier, w *walkState) *recursi
 	r.stamp = make([]int32, len(r.names))
 	r.count = make([]int32, len(r.names))
 	return r
+}
+
+// edgeSet remembers the edges of a graph of n nodes: a bit matrix for up
+// to 4096 nodes (2 MiB), a map beyond. A tree has an edge per node, but
+// few distinct ones: keeping the distinct ones only saves sorting millions.
+type edgeSet struct {
+	n    int
+	bits []uint64
+	m    map[uint64]struct{}
+}
+
+func newEdgeSet(n int) *edgeSet {
+	if n <= 4096 {
+		return &edgeSet{n: n, bits: make([]uint64, (n*n+63)/64)}
+	}
+	return &edgeSet{n: n, m: map[uint64]struct{}{}}
+}
+
+// add records the edge u → v (packed as e) and reports whether it is new.
+func (s *edgeSet) add(u, v int32, e uint64) bool {
+	if s.bits != nil {
+		i := int(u)*s.n + int(v)
+		w, b := i/64, uint64(1)<<(i%64)
+		if s.bits[w]&b != 0 {
+			return false
+		}
+		s.bits[w] |= b
+		return true
+	}
+	if _, ok := s.m[e]; ok {
+		return false
+	}
+	s.m[e] = struct{}{}
+	return true
 }
 
 // at returns the application function that occurs most often (at least

@@ -19,7 +19,14 @@ type treeNode struct {
 	firstChild  NodeID // 0 = none (the root is never a child)
 	nextSibling NodeID
 	depth       int32
+	children    int32
 }
+
+// listedChildren is how many children of a node are found by walking its
+// sibling list; the children of nodes with more are also in the tree's
+// index map. Most nodes have one or two children: walking a short list is
+// cheaper than hashing, and keeps the map small.
+const listedChildren = 8
 
 // Tree is a weighted calling-context tree. Build one with NewTree.
 type Tree struct {
@@ -46,20 +53,6 @@ type TreeOptions struct {
 // NewTree merges the paths of src by common prefix.
 func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 	nv := len(src.ValueTypes)
-	// Size for the worst case (no shared prefixes, capped) so that neither
-	// the node slice nor the index map grows while building.
-	frames := 0
-	for i := range src.Paths {
-		frames += len(src.Paths[i].Frames)
-	}
-	est := min(frames, 4*len(src.Paths)+1024, 1<<22)
-	t := &Tree{
-		src:   src,
-		nodes: make([]treeNode, 1, est+1),
-		nv:    nv,
-		leaf:  make([]NodeID, len(src.Paths)),
-	}
-	index := make(map[uint64]NodeID, est)
 	cut := opts.Cut
 	var cutAt []bool
 	if cut != nil {
@@ -68,6 +61,13 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 			cutAt[i] = cut(traces.FrameID(i))
 		}
 	}
+	t := &Tree{
+		src:   src,
+		nodes: make([]treeNode, 1, newNodesBound(src, cutAt)+1),
+		nv:    nv,
+		leaf:  make([]NodeID, len(src.Paths)),
+	}
+	b := treeBuilder{t: t, index: map[uint64]NodeID{}}
 	// Consecutive paths usually share a prefix (sibling spans of a trace,
 	// samples of one request): reuse the previous path's nodes for the
 	// common prefix and look up only the rest.
@@ -85,23 +85,18 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 		}
 		prevFrames = p.Frames
 		prevNodes = prevNodes[:common]
+		fresh := false // cur was just created: it has no children to look up
 		for _, f := range p.Frames[common:] {
 			if cut != nil && cur != Root && cutAt[t.nodes[cur].frame] {
 				break
 			}
-			key := uint64(uint32(cur))<<32 | uint64(uint32(f))
-			child, ok := index[key]
-			if !ok {
-				child = NodeID(len(t.nodes))
-				parent := &t.nodes[cur]
-				t.nodes = append(t.nodes, treeNode{
-					frame:       f,
-					parent:      cur,
-					nextSibling: parent.firstChild,
-					depth:       t.nodes[cur].depth + 1,
-				})
-				t.nodes[cur].firstChild = child
-				index[key] = child
+			child := NodeID(0)
+			if !fresh {
+				child = b.child(cur, f)
+			}
+			if child == 0 {
+				child = b.add(cur, f)
+				fresh = true
 			}
 			cur = child
 			prevNodes = append(prevNodes, cur)
@@ -123,6 +118,83 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 		}
 	}
 	return t
+}
+
+// newNodesBound returns an upper bound of the nodes NewTree makes: the
+// frames of each path, up to its cut, past its common prefix with the
+// previous path (capped at 16M, where growing is cheaper than guessing).
+func newNodesBound(src *traces.Source, cutAt []bool) int {
+	n := 0
+	var prev []traces.FrameID
+	for i := range src.Paths {
+		fs := src.Paths[i].Frames
+		if cutAt != nil {
+			for k, f := range fs {
+				if cutAt[f] {
+					fs = fs[:k+1]
+					break
+				}
+			}
+		}
+		common := 0
+		for common < len(prev) && common < len(fs) && fs[common] == prev[common] {
+			common++
+		}
+		n += len(fs) - common
+		prev = fs
+	}
+	return min(n, 1<<24)
+}
+
+// treeBuilder finds and adds children while NewTree runs.
+type treeBuilder struct {
+	t *Tree
+	// index holds (parent, frame) → child for the children of nodes with
+	// more than listedChildren children.
+	index map[uint64]NodeID
+}
+
+func childKey(parent NodeID, f traces.FrameID) uint64 {
+	return uint64(uint32(parent))<<32 | uint64(uint32(f))
+}
+
+// child returns the child of parent with frame f, 0 if there is none.
+func (b *treeBuilder) child(parent NodeID, f traces.FrameID) NodeID {
+	nodes := b.t.nodes
+	if nodes[parent].children > listedChildren {
+		return b.index[childKey(parent, f)]
+	}
+	for c := nodes[parent].firstChild; c != 0; c = nodes[c].nextSibling {
+		if nodes[c].frame == f {
+			return c
+		}
+	}
+	return 0
+}
+
+// add appends a child of parent with frame f and returns it.
+func (b *treeBuilder) add(parent NodeID, f traces.FrameID) NodeID {
+	t := b.t
+	child := NodeID(len(t.nodes))
+	p := &t.nodes[parent]
+	t.nodes = append(t.nodes, treeNode{
+		frame:       f,
+		parent:      parent,
+		nextSibling: p.firstChild,
+		depth:       p.depth + 1,
+	})
+	p = &t.nodes[parent] // append may have moved the nodes
+	p.firstChild = child
+	p.children++
+	switch {
+	case p.children == listedChildren+1:
+		for c := p.firstChild; c != 0; c = t.nodes[c].nextSibling {
+			b.index[childKey(parent, t.nodes[c].frame)] = c
+		}
+	case p.children > listedChildren+1:
+		b.index[childKey(parent, f)] = child
+	}
+	return child
 }
 
 // Source returns the source the tree was built from.
