@@ -48,7 +48,9 @@ type walkState struct {
 	lastApp  []callgraph.NodeID // nearest application node above the boundary
 	entry    []callgraph.NodeID // deepest entry-point node above the boundary
 	entryApp []callgraph.NodeID // first application node below entry (or from the root)
-	system   []string           // boundary system, refined by more specific drivers below it
+	// sysFrame is the frame whose verdict names the boundary system: the
+	// boundary's, or a more specific driver's below it. 0: none.
+	sysFrame []traces.FrameID
 }
 
 func newWalkState(t *callgraph.Tree, c *Classifier) *walkState {
@@ -58,7 +60,7 @@ func newWalkState(t *callgraph.Tree, c *Classifier) *walkState {
 		lastApp:  make([]callgraph.NodeID, n),
 		entry:    make([]callgraph.NodeID, n),
 		entryApp: make([]callgraph.NodeID, n),
-		system:   make([]string, n),
+		sysFrame: make([]traces.FrameID, n),
 	}
 	// A child's ID is always greater than its parent's, so one pass in ID
 	// order sees every parent before its children.
@@ -67,19 +69,19 @@ func newWalkState(t *callgraph.Tree, c *Classifier) *walkState {
 		p := t.Parent(id)
 		f := t.Frame(id)
 		class, entry := c.class(f)
-		w.boundary[id], w.lastApp[id], w.entry[id], w.entryApp[id], w.system[id] =
-			w.boundary[p], w.lastApp[p], w.entry[p], w.entryApp[p], w.system[p]
+		w.boundary[id], w.lastApp[id], w.entry[id], w.entryApp[id], w.sysFrame[id] =
+			w.boundary[p], w.lastApp[p], w.entry[p], w.entryApp[p], w.sysFrame[p]
 		if w.boundary[p] != 0 {
 			// Below the boundary: only refine a generic system ("sql") with the driver's.
-			if class == Database && isGenericSystem(w.system[p]) && !isGenericSystem(c.verdicts[f].System) {
-				w.system[id] = c.verdicts[f].System
+			if class == Database && isGenericSystem(w.system(c, p)) && !isGenericSystem(c.verdicts[f].System) {
+				w.sysFrame[id] = f
 			}
 			continue
 		}
 		switch {
 		case class.IsBoundary():
 			w.boundary[id] = id
-			w.system[id] = c.verdicts[f].System
+			w.sysFrame[id] = f
 			continue
 		case entry:
 			w.entry[id] = id
@@ -93,6 +95,11 @@ func newWalkState(t *callgraph.Tree, c *Classifier) *walkState {
 		}
 	}
 	return w
+}
+
+// system returns the boundary system at node n ("" above any boundary).
+func (w *walkState) system(c *Classifier, n callgraph.NodeID) string {
+	return c.verdicts[w.sysFrame[n]].System
 }
 
 func isGenericSystem(s string) bool { return s == "" || s == "sql" }
@@ -180,8 +187,9 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 	labelReq := map[string]traces.RequestID{}
 	var reqNames []string
 
-	for pi := range src.Paths {
-		p := &src.Paths[pi]
+	for pi := range src.Paths.Len() {
+		path := src.Paths.At(pi)
+		p := &path
 		leaf := t.Leaf(pi)
 		val := p.Values[vi]
 		samples := int64(1)
@@ -550,7 +558,7 @@ func detail(src *traces.Source, t *callgraph.Tree, p *traces.Path, b callgraph.N
 // the first more specific database driver frame below the boundary on
 // the path itself (a tree cut at boundaries holds no frames below them).
 func pathSystem(c *Classifier, t *callgraph.Tree, w *walkState, p *traces.Path, leaf, b callgraph.NodeID) string {
-	sys := w.system[leaf]
+	sys := w.system(c, leaf)
 	if !isGenericSystem(sys) || p.Call != 0 {
 		return sys
 	}

@@ -45,8 +45,9 @@ func ChargeGraph(t *callgraph.Tree, c *Classifier, opts Options, minShare float6
 	var edgeOrder []edge
 	var denom int64
 	pathCache := map[callgraph.NodeID][]traces.FrameID{}
-	for pi := range src.Paths {
-		p := &src.Paths[pi]
+	for pi := range src.Paths.Len() {
+		path := src.Paths.At(pi)
+		p := &path
 		leaf := t.Leaf(pi)
 		b := w.boundary[leaf]
 		if b == 0 || (spans && len(p.Frames) > t.Depth(b)) {

@@ -58,8 +58,9 @@ func Explain(t *callgraph.Tree, c *Classifier, opts Options, pattern *regexp.Reg
 	w := newWalkState(t, c)
 	roots := map[string]*ExplainNode{}
 	var denom int64
-	for pi := range src.Paths {
-		p := &src.Paths[pi]
+	for pi := range src.Paths.Len() {
+		path := src.Paths.At(pi)
+		p := &path
 		leaf := t.Leaf(pi)
 		b := w.boundary[leaf]
 		if b == 0 || (spans && len(p.Frames) > t.Depth(b)) {

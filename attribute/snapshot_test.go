@@ -125,10 +125,10 @@ func spanSource(name string, duration int64, trs []spanTrace) *traces.Source {
 			own[c.fn] += c.dur
 			total += c.dur
 		}
-		src.Paths = append(src.Paths, traces.Path{Frames: []traces.FrameID{server}, Values: []int64{total, 1}, Request: req})
+		src.Paths.Append(traces.Path{Frames: []traces.FrameID{server}, Values: []int64{total, 1}, Request: req})
 		for _, fn := range fns {
 			f := src.InternFrame(traces.Frame{Function: fn, SpanKind: traces.SpanKindInternal, Span: true, Service: "shop"})
-			src.Paths = append(src.Paths, traces.Path{Frames: []traces.FrameID{server, f}, Values: []int64{own[fn] + 1_000_000, 1}, Request: req})
+			src.Paths.Append(traces.Path{Frames: []traces.FrameID{server, f}, Values: []int64{own[fn] + 1_000_000, 1}, Request: req})
 		}
 		for _, c := range tr.calls {
 			f := src.InternFrame(traces.Frame{Function: c.fn, SpanKind: traces.SpanKindInternal, Span: true, Service: "shop"})
@@ -141,7 +141,7 @@ func spanSource(name string, duration int64, trs []spanTrace) *traces.Source {
 				cf = src.InternFrame(traces.Frame{Function: "GET", SpanKind: traces.SpanKindClient, Protocol: traces.ProtocolHTTP, System: "http", Span: true, Service: "shop"})
 				call = src.InternCall(traces.Call{System: "http", Operation: "GET", Peer: "prices:8080"})
 			}
-			src.Paths = append(src.Paths, traces.Path{Frames: []traces.FrameID{server, f, cf}, Values: []int64{c.dur, 1}, Request: req, Call: call})
+			src.Paths.Append(traces.Path{Frames: []traces.FrameID{server, f, cf}, Values: []int64{c.dur, 1}, Request: req, Call: call})
 		}
 	}
 	return src

@@ -19,7 +19,7 @@ func source(paths map[string]int64, order []string) *traces.Source {
 				start = i + 1
 			}
 		}
-		src.Paths = append(src.Paths, traces.Path{Frames: frames, Values: []int64{paths[key]}})
+		src.Paths.Append(traces.Path{Frames: frames, Values: []int64{paths[key]}})
 	}
 	return src
 }
@@ -133,7 +133,7 @@ func TestTreeDeepRecursionNoStackOverflow(t *testing.T) {
 	for i := range frames {
 		frames[i] = f
 	}
-	src.Paths = append(src.Paths, traces.Path{Frames: frames, Values: []int64{1}})
+	src.Paths.Append(traces.Path{Frames: frames, Values: []int64{1}})
 	g := NewGraph(NewTree(src, TreeOptions{}), 0)
 	id, _ := g.Lookup("rec")
 	if g.Cum(id) != 1 {

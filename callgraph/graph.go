@@ -82,12 +82,12 @@ func NewGraph(t *Tree, v int) *Graph {
 			}
 		}
 		g.nodeFn[n] = fn
-		total := t.total[int(n)*t.nv+v]
+		total := t.Total(n, v)
 		if active[fn] == 0 {
 			g.cum[fn] += total
 		}
 		active[fn]++
-		g.flat[fn] += t.self[int(n)*t.nv+v]
+		g.flat[fn] += t.Self(n, v)
 		nodeEdge[n] = -1
 		if parentFn := g.nodeFn[t.nodes[n].parent]; parentFn >= 0 {
 			k := edgeKey{parentFn, fn}

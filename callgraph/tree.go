@@ -1,6 +1,9 @@
 package callgraph
 
 import (
+	"slices"
+	"sync"
+
 	"github.com/culprithq/culprit/traces"
 	"gonum.org/v1/gonum/graph"
 	"gonum.org/v1/gonum/graph/iterator"
@@ -33,9 +36,12 @@ type Tree struct {
 	src   *traces.Source
 	nodes []treeNode
 	nv    int
-	self  []int64 // len(nodes)*nv: values of paths ending at the node
-	total []int64 // len(nodes)*nv: self plus all descendants
-	leaf  []NodeID
+	// self and total are made on first use (attribution needs neither):
+	// len(nodes)*nv values of the paths ending at each node, and of
+	// those through it.
+	sums        sync.Once
+	self, total []int64
+	leaf        []NodeID
 }
 
 var _ graph.WeightedDirected = (*Tree)(nil)
@@ -65,7 +71,7 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 		src:   src,
 		nodes: make([]treeNode, 1, newNodesBound(src, cutAt)+1),
 		nv:    nv,
-		leaf:  make([]NodeID, len(src.Paths)),
+		leaf:  make([]NodeID, src.Paths.Len()),
 	}
 	b := treeBuilder{t: t, index: map[uint64]NodeID{}}
 	// Consecutive paths usually share a prefix (sibling spans of a trace,
@@ -73,20 +79,20 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 	// common prefix and look up only the rest.
 	var prevFrames []traces.FrameID
 	var prevNodes []NodeID
-	for pi := range src.Paths {
-		p := &src.Paths[pi]
+	for pi := range src.Paths.Len() {
+		frames := src.Paths.Frames(pi)
 		cur := Root
 		common := 0
-		for common < len(prevNodes) && common < len(p.Frames) && p.Frames[common] == prevFrames[common] {
+		for common < len(prevNodes) && common < len(frames) && frames[common] == prevFrames[common] {
 			common++
 		}
 		if common > 0 {
 			cur = prevNodes[common-1]
 		}
-		prevFrames = p.Frames
+		prevFrames = frames
 		prevNodes = prevNodes[:common]
 		fresh := false // cur was just created: it has no children to look up
-		for _, f := range p.Frames[common:] {
+		for _, f := range frames[common:] {
 			if cut != nil && cur != Root && cutAt[t.nodes[cur].frame] {
 				break
 			}
@@ -103,20 +109,6 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 		}
 		t.leaf[pi] = cur
 	}
-	t.self = make([]int64, len(t.nodes)*nv)
-	for pi := range src.Paths {
-		base := int(t.leaf[pi]) * nv
-		for v, x := range src.Paths[pi].Values {
-			t.self[base+v] += x
-		}
-	}
-	t.total = append([]int64(nil), t.self...)
-	for n := len(t.nodes) - 1; n > 0; n-- {
-		pb := int(t.nodes[n].parent) * nv
-		for v := 0; v < nv; v++ {
-			t.total[pb+v] += t.total[n*nv+v]
-		}
-	}
 	return t
 }
 
@@ -126,8 +118,8 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 func newNodesBound(src *traces.Source, cutAt []bool) int {
 	n := 0
 	var prev []traces.FrameID
-	for i := range src.Paths {
-		fs := src.Paths[i].Frames
+	for i := range src.Paths.Len() {
+		fs := src.Paths.Frames(i)
 		if cutAt != nil {
 			for k, f := range fs {
 				if cutAt[f] {
@@ -226,11 +218,36 @@ func (t *Tree) Children(n NodeID) []NodeID {
 }
 
 // Self returns value v summed over the paths that end at n.
-func (t *Tree) Self(n NodeID, v int) int64 { return t.self[int(n)*t.nv+v] }
+func (t *Tree) Self(n NodeID, v int) int64 {
+	t.sums.Do(t.sum)
+	return t.self[int(n)*t.nv+v]
+}
 
 // Total returns value v summed over the paths through n. For a Spans
 // source nested spans are counted at every level (see traces.Kind).
-func (t *Tree) Total(n NodeID, v int) int64 { return t.total[int(n)*t.nv+v] }
+func (t *Tree) Total(n NodeID, v int) int64 {
+	t.sums.Do(t.sum)
+	return t.total[int(n)*t.nv+v]
+}
+
+// sum adds the paths' values up into self and total.
+func (t *Tree) sum() {
+	nv, paths := t.nv, &t.src.Paths
+	t.self = make([]int64, len(t.nodes)*nv)
+	for pi := range paths.Len() {
+		base := int(t.leaf[pi]) * nv
+		for v := range nv {
+			t.self[base+v] += paths.Value(pi, v)
+		}
+	}
+	t.total = slices.Clone(t.self)
+	for n := len(t.nodes) - 1; n > 0; n-- {
+		pb := int(t.nodes[n].parent) * nv
+		for v := range nv {
+			t.total[pb+v] += t.total[n*nv+v]
+		}
+	}
+}
 
 // Path returns the frames from the root's first child down to n.
 func (t *Tree) Path(n NodeID) []traces.FrameID {

@@ -190,7 +190,8 @@ func (s *LabelSet) String() string {
 	return b.String()
 }
 
-// Path is one weighted call path, root first.
+// Path is one weighted call path, root first. Sources keep their paths in
+// a Paths store; a Path read from one is a view of the store's memory.
 type Path struct {
 	// Frames lists the path's frames from the root (outermost caller) to
 	// the leaf. The slice may share backing storage with other paths.
@@ -237,7 +238,7 @@ type Source struct {
 	Frames   []Frame
 	Calls    []Call
 	Requests []string // request keys (trace IDs as hex); [0] is ""
-	Paths    []Path
+	Paths    Paths
 
 	Inputs   []Input
 	Warnings Warnings
@@ -254,7 +255,7 @@ type Source struct {
 
 // NewSource returns an empty source of the given kind, ready for Intern calls.
 func NewSource(kind Kind, types []ValueType) *Source {
-	return &Source{
+	src := &Source{
 		Kind:         kind,
 		ValueTypes:   types,
 		Frames:       []Frame{{}},
@@ -265,6 +266,8 @@ func NewSource(kind Kind, types []ValueType) *Source {
 		requestIndex: map[string]RequestID{},
 		labelIndex:   map[string]*LabelSet{},
 	}
+	src.Paths.nv = len(types)
+	return src
 }
 
 func (s *Source) ensureIndexes() {
@@ -408,8 +411,8 @@ func (s *Source) RequestCount() int { return len(s.Requests) - 1 }
 // source this double-counts nested spans; see Kind.
 func (s *Source) Total(v int) int64 {
 	var t int64
-	for i := range s.Paths {
-		t += s.Paths[i].Values[v]
+	for i := range s.Paths.Len() {
+		t += s.Paths.Value(i, v)
 	}
 	return t
 }

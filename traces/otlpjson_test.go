@@ -130,7 +130,8 @@ func mustCollect(t testing.TB, opts Options, inputs ...input) *Source {
 // readable failures.
 func digest(src *Source) []string {
 	var out []string
-	for _, p := range src.Paths {
+	for i := range src.Paths.Len() {
+		p := src.Paths.At(i)
 		var fs []string
 		for _, f := range p.Frames {
 			fr := src.Frames[f]
@@ -139,6 +140,21 @@ func digest(src *Source) []string {
 		out = append(out, fmt.Sprintf("%s %v %v call=%+v labels=%s", src.Requests[p.Request], strings.Join(fs, " > "), p.Values, src.Calls[p.Call], p.Labels))
 	}
 	return out
+}
+
+// samePathIDs reports whether a and b hold the same paths, ID for ID.
+func samePathIDs(a, b *Source) bool {
+	if a.Paths.Len() != b.Paths.Len() {
+		return false
+	}
+	for i := range a.Paths.Len() {
+		x, y := a.Paths.At(i), b.Paths.At(i)
+		if !slices.Equal(x.Frames, y.Frames) || !slices.Equal(x.Values, y.Values) || x.Labels.String() != y.Labels.String() ||
+			x.Request != y.Request || x.Call != y.Call {
+			return false
+		}
+	}
+	return true
 }
 
 // sameSource fails unless a and b hold the same frames, calls, requests,
@@ -161,7 +177,7 @@ func sameSource(t *testing.T, a, b *Source) {
 		}
 	}
 	if !reflect.DeepEqual(a.Frames, b.Frames) || !reflect.DeepEqual(a.Calls, b.Calls) ||
-		!reflect.DeepEqual(a.Requests, b.Requests) || !reflect.DeepEqual(a.Paths, b.Paths) {
+		!reflect.DeepEqual(a.Requests, b.Requests) || !samePathIDs(a, b) {
 		t.Fatal("sources differ in frames, calls, requests or path IDs")
 	}
 	if a.DurationNanos != b.DurationNanos {
@@ -184,7 +200,8 @@ func warningCount(src *Source, kind string) int {
 // pathFunctions returns the frame functions of every path.
 func pathFunctions(src *Source) [][]string {
 	var out [][]string
-	for _, p := range src.Paths {
+	for i := range src.Paths.Len() {
+		p := src.Paths.At(i)
 		var fs []string
 		for _, f := range p.Frames {
 			fs = append(fs, src.Frames[f].Function)
@@ -605,8 +622,8 @@ func TestSDKSpans(t *testing.T) {
 	if got := src.Warnings.Strings(); len(got) > 0 {
 		t.Fatalf("unexpected warnings: %v", got)
 	}
-	if len(src.Paths) != len(recorded) {
-		t.Fatalf("got %d paths, want one per recorded span (%d)", len(src.Paths), len(recorded))
+	if src.Paths.Len() != len(recorded) {
+		t.Fatalf("got %d paths, want one per recorded span (%d)", src.Paths.Len(), len(recorded))
 	}
 	byID := map[trace.SpanID]sdktrace.ReadOnlySpan{}
 	for _, s := range recorded {
@@ -632,7 +649,7 @@ func TestSDKSpans(t *testing.T) {
 	var minStart, maxEnd time.Time
 	for i, s := range sorted {
 		t.Run(fmt.Sprintf("%02d_%s", i, s.Name()), func(t *testing.T) {
-			p := src.Paths[i]
+			p := src.Paths.At(i)
 			w, ok := want[s.Name()]
 			if !ok {
 				t.Fatalf("no expectation for span %q", s.Name())
@@ -648,7 +665,9 @@ func TestSDKSpans(t *testing.T) {
 				cur = par
 			}
 			if len(p.Frames) != len(chain) {
-				t.Fatalf("path has %d frames %v, want %d", len(p.Frames), digest(&Source{Frames: src.Frames, Calls: src.Calls, Requests: src.Requests, Paths: []Path{p}}), len(chain))
+				one := &Source{Frames: src.Frames, Calls: src.Calls, Requests: src.Requests}
+				one.Paths.Append(p)
+				t.Fatalf("path has %d frames %v, want %d", len(p.Frames), digest(one), len(chain))
 			}
 			for k, anc := range chain {
 				f := src.Frames[p.Frames[k]]
@@ -838,7 +857,7 @@ func TestRepairs(t *testing.T) {
 			kind: WarnNegativeDuration, count: 1, line: 2,
 			wantPaths: [][]string{{"root"}, {"root", "b"}},
 			check: func(t *testing.T, src *Source) {
-				if v := src.Paths[1].Values[0]; v != 0 {
+				if v := src.Paths.At(1).Values[0]; v != 0 {
 					t.Errorf("duration %d, want 0", v)
 				}
 			},
@@ -854,10 +873,10 @@ func TestRepairs(t *testing.T) {
 			kind: WarnClockSkew, count: 1, line: 2,
 			wantPaths: [][]string{{"root", "d"}, {"root"}, {"root", "c"}, {"root", "c", "g"}},
 			check: func(t *testing.T, src *Source) {
-				if got := src.Paths[2].Values[0]; got != 150_000_000 {
+				if got := src.Paths.At(2).Values[0]; got != 150_000_000 {
 					t.Errorf("moved span's duration %d, want it kept (150 ms)", got)
 				}
-				if got := src.Paths[3].Values[0]; got != 50_000_000 {
+				if got := src.Paths.At(3).Values[0]; got != 50_000_000 {
 					t.Errorf("child duration %d, want 50 ms", got)
 				}
 				if src.DurationNanos != 2*sec+5_000_000 {
@@ -872,7 +891,7 @@ func TestRepairs(t *testing.T) {
 			kind: WarnClockSkew, count: 1, line: 2,
 			wantPaths: [][]string{{"root"}, {"root", "b"}},
 			check: func(t *testing.T, src *Source) {
-				if got := src.Paths[1].Values[0]; got != 100_000_000 {
+				if got := src.Paths.At(1).Values[0]; got != 100_000_000 {
 					t.Errorf("cut duration %d, want the parent's 100 ms", got)
 				}
 			},
@@ -883,8 +902,8 @@ func TestRepairs(t *testing.T) {
 			kind: WarnMissingTimestamp, count: 2, line: 2,
 			wantPaths: [][]string{{"root"}, {"root", "b"}, {"root", "c"}},
 			check: func(t *testing.T, src *Source) {
-				if src.Paths[1].Values[0] != 0 || src.Paths[2].Values[0] != 0 || src.DurationNanos != 2*sec {
-					t.Errorf("durations %v %v, DurationNanos %d", src.Paths[1].Values, src.Paths[2].Values, src.DurationNanos)
+				if src.Paths.At(1).Values[0] != 0 || src.Paths.At(2).Values[0] != 0 || src.DurationNanos != 2*sec {
+					t.Errorf("durations %v %v, DurationNanos %d", src.Paths.At(1).Values, src.Paths.At(2).Values, src.DurationNanos)
 				}
 			},
 		},
@@ -1246,16 +1265,16 @@ func TestAnyValueKinds(t *testing.T) {
 	}
 	data := lines(line(tres{"api", []tspan{{trace: tr1, id: sA, name: "root", kind: 3, start: t0, end: t0 + 7, attrs: attrs}}}))
 	src := mustCollect(t, Options{Strict: true}, input{"values.jsonl", data})
-	if len(src.Paths) != 1 {
-		t.Fatalf("%d paths", len(src.Paths))
+	if src.Paths.Len() != 1 {
+		t.Fatalf("%d paths", src.Paths.Len())
 	}
-	f := src.Frames[src.Paths[0].Frames[0]]
+	f := src.Frames[src.Paths.At(0).Frames[0]]
 	want := Frame{Function: "greenhouse.Water", File: "plants.go", Line: 12, SpanKind: SpanKindClient, Protocol: ProtocolDatabase,
 		System: "redis", Service: "api", Span: true}
 	if f != want {
 		t.Errorf("frame %+v, want %+v", f, want)
 	}
-	if c := src.Calls[src.Paths[0].Call]; c != (Call{System: "redis", Operation: "true", Peer: "[::1]:6379"}) {
+	if c := src.Calls[src.Paths.At(0).Call]; c != (Call{System: "redis", Operation: "true", Peer: "[::1]:6379"}) {
 		t.Errorf("call %+v", c)
 	}
 
@@ -1307,10 +1326,10 @@ func TestOldAndLenientShapes(t *testing.T) {
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			src := mustCollect(t, Options{Strict: true}, input{"old.json", tc.data})
-			if len(src.Paths) != 1 || src.Paths[0].Values[0] != 500 {
+			if src.Paths.Len() != 1 || src.Paths.At(0).Values[0] != 500 {
 				t.Fatalf("paths %v", digest(src))
 			}
-			if f := src.Frames[src.Paths[0].Frames[0]]; f.SpanKind != SpanKindServer || f.Service != "api" || f.Function != "root" {
+			if f := src.Frames[src.Paths.At(0).Frames[0]]; f.SpanKind != SpanKindServer || f.Service != "api" || f.Function != "root" {
 				t.Errorf("frame %+v", f)
 			}
 		})
@@ -1367,10 +1386,10 @@ func TestFrameNaming(t *testing.T) {
 			data := lines(line(tres{"api", []tspan{{trace: tr1, id: sA, name: tc.span, kind: tc.kind, start: t0, end: t0 + 1, attrs: tc.attrs}}}))
 			src := mustCollect(t, Options{}, input{"f.jsonl", data})
 			tc.frame.Service, tc.frame.Span = "api", true
-			if f := src.Frames[src.Paths[0].Frames[0]]; f != tc.frame {
+			if f := src.Frames[src.Paths.At(0).Frames[0]]; f != tc.frame {
 				t.Errorf("frame %+v, want %+v", f, tc.frame)
 			}
-			if c := src.Calls[src.Paths[0].Call]; c != tc.call {
+			if c := src.Calls[src.Paths.At(0).Call]; c != tc.call {
 				t.Errorf("call %+v, want %+v", c, tc.call)
 			}
 		})
@@ -1455,8 +1474,8 @@ func TestParallelMatchesSequential(t *testing.T) {
 		return src
 	}
 	seq := run(1, 1<<20, text)
-	if len(seq.Paths) < 3000 || warningCount(seq, WarnMalformedLine) != 1 || warningCount(seq, WarnDuplicateSpanID) == 0 {
-		t.Fatalf("%d paths, warnings %v", len(seq.Paths), seq.Warnings.Strings())
+	if seq.Paths.Len() < 3000 || warningCount(seq, WarnMalformedLine) != 1 || warningCount(seq, WarnDuplicateSpanID) == 0 {
+		t.Fatalf("%d paths, warnings %v", seq.Paths.Len(), seq.Warnings.Strings())
 	}
 	for _, tc := range []struct {
 		name    string
@@ -1613,7 +1632,8 @@ func checkSource(t *testing.T, src *Source) {
 	if src.Frames[0] != (Frame{}) || src.Calls[0] != (Call{}) || src.Requests[0] != "" || src.DurationNanos < 0 {
 		t.Fatal("zero entries or duration broken")
 	}
-	for i, p := range src.Paths {
+	for i := range src.Paths.Len() {
+		p := src.Paths.At(i)
 		if len(p.Frames) == 0 || len(p.Values) != 2 || p.Values[0] < 0 || p.Values[1] != 1 {
 			t.Fatalf("path %d: %+v", i, p)
 		}

@@ -196,8 +196,8 @@ func (s *Source) Validate() error {
 	if s.DefaultValue < 0 || s.DefaultValue >= len(s.ValueTypes) {
 		return fmt.Errorf("default value index %d out of range", s.DefaultValue)
 	}
-	for i := range s.Paths {
-		p := &s.Paths[i]
+	for i := range s.Paths.Len() {
+		p := s.Paths.At(i)
 		if len(p.Values) != len(s.ValueTypes) {
 			return fmt.Errorf("path %d has %d values for %d value types", i, len(p.Values), len(s.ValueTypes))
 		}

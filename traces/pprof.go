@@ -10,10 +10,9 @@ import (
 type profileAppender struct {
 	src    *Source
 	limits Limits
-	// frameArena and valueArena hand out path slices in chunks, so that a
-	// profile of a million samples does not make two million allocations.
+	// frameArena holds the locations' frames in chunks, so that a profile
+	// of many locations does not make an allocation for each.
 	frameArena []FrameID
-	valueArena []int64
 }
 
 const arenaChunk = 1 << 16
@@ -26,16 +25,6 @@ func (a *profileAppender) frames(fs []FrameID) []FrameID {
 	start := len(a.frameArena)
 	a.frameArena = append(a.frameArena, fs...)
 	return a.frameArena[start:len(a.frameArena):len(a.frameArena)]
-}
-
-// values returns a zeroed slice of n values from the arena.
-func (a *profileAppender) values(n int) []int64 {
-	if n > cap(a.valueArena)-len(a.valueArena) {
-		a.valueArena = make([]int64, 0, max(arenaChunk, n))
-	}
-	start := len(a.valueArena)
-	a.valueArena = a.valueArena[:start+n]
-	return a.valueArena[start : start+n : start+n]
 }
 
 func newProfileAppender(limits Limits) *profileAppender {
@@ -108,13 +97,7 @@ func (a *profileAppender) add(name string, p *rawProfile) error {
 		if zero {
 			continue
 		}
-		vs := a.values(nv)
-		copy(vs, values)
-		src.Paths = append(src.Paths, Path{
-			Frames: a.frames(frames),
-			Values: vs,
-			Labels: a.labels(p.labels[s.labStart:s.labEnd]),
-		})
+		src.Paths.Append(Path{Frames: frames, Values: values, Labels: a.labels(p.labels[s.labStart:s.labEnd])})
 	}
 	if len(src.Frames) > a.limits.MaxFrames {
 		return fmt.Errorf("%s: %d distinct frames, more than the limit of %d (raise it with --max-frames): %w",
@@ -151,6 +134,7 @@ func (a *profileAppender) locationFrames(p *rawProfile, li int32, cache map[line
 	}
 	return a.frames(out)
 }
+
 
 // lineKey identifies a frame within one rawProfile.
 type lineKey struct {

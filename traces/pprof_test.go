@@ -81,11 +81,11 @@ func TestPprofPathsAndInlining(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if len(src.Paths) != 1 {
-			t.Fatalf("paths = %d", len(src.Paths))
+		if src.Paths.Len() != 1 {
+			t.Fatalf("paths = %d", src.Paths.Len())
 		}
 		var got []string
-		for _, f := range src.Paths[0].Frames {
+		for _, f := range src.Paths.At(0).Frames {
 			fr := src.Frames[f]
 			got = append(got, fr.Function+":"+itoa(fr.Line))
 		}
@@ -96,10 +96,10 @@ func TestPprofPathsAndInlining(t *testing.T) {
 		if src.DefaultValue != 1 {
 			t.Errorf("default value = %d, want the last sample type", src.DefaultValue)
 		}
-		if v, _ := src.Paths[0].Labels.Get("http.route"); v != "/plants" {
+		if v, _ := src.Paths.At(0).Labels.Get("http.route"); v != "/plants" {
 			t.Errorf("route label = %q", v)
 		}
-		if ls := src.Paths[0].Labels.String(); !strings.Contains(ls, "bytes=512bytes") {
+		if ls := src.Paths.At(0).Labels.String(); !strings.Contains(ls, "bytes=512bytes") {
 			t.Errorf("numeric label lost: %s", ls)
 		}
 		if src.Period != 10_000_000 || src.DurationNanos != 1e9 || src.PeriodType.Type != "cpu" {
@@ -118,8 +118,8 @@ func TestPprofMerge(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if len(src.Paths) != 2 || src.Total(0) != 4 || src.DurationNanos != 2e9 {
-		t.Errorf("merged: %d paths, total %d, duration %d", len(src.Paths), src.Total(0), src.DurationNanos)
+	if src.Paths.Len() != 2 || src.Total(0) != 4 || src.DurationNanos != 2e9 {
+		t.Errorf("merged: %d paths, total %d, duration %d", src.Paths.Len(), src.Total(0), src.DurationNanos)
 	}
 	// Interning: the second profile reuses the first one's frames.
 	if len(src.Frames) != 5 {
@@ -131,8 +131,8 @@ func TestPprofMerge(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if src.Paths[1].Values[0] != 3 || src.Paths[1].Values[1] != 2 {
-		t.Errorf("reordered values = %v, want [3 2]", src.Paths[1].Values)
+	if src.Paths.At(1).Values[0] != 3 || src.Paths.At(1).Values[1] != 2 {
+		t.Errorf("reordered values = %v, want [3 2]", src.Paths.At(1).Values)
 	}
 }
 

@@ -89,53 +89,73 @@ func (s *spanStore) truncate(n int) {
 	s.n = n
 }
 
-// sortedKeys returns the keys of the stored spans ordered by trace ID,
-// span ID and input order (so that of spans with the same IDs the first
-// read comes first). It distributes the keys into buckets by the top bits
-// of the trace ID (random in practice), then sorts each bucket.
-func sortedKeys(store *spanStore) []spanKey {
-	n := store.len()
+// sortInPlace orders the stored spans by trace ID, span ID and input
+// order (so that of spans with the same IDs the first read comes first),
+// moving them within the store. It distributes span indices into buckets
+// by the top bits of the trace ID (random in practice), sorts each bucket,
+// then applies the permutation cycle by cycle: 4 bytes a span beside the
+// store, instead of a sorted copy.
+func (s *spanStore) sortInPlace() {
+	n := s.len()
 	b := min(max(bits.Len(uint(n)), 1), 20)
 	shift := 64 - b
 	start := make([]int32, 1<<b+1)
 	for i := range n {
-		start[store.at(i).traceHi>>shift+1]++
+		start[s.at(i).traceHi>>shift+1]++
 	}
 	for i := 1; i < len(start); i++ {
 		start[i] += start[i-1]
 	}
-	keys := make([]spanKey, n)
+	order := make([]int32, n) // order[p]: the span that goes to position p
 	next := slices.Clone(start[:len(start)-1])
 	for i := range n {
-		r := store.at(i)
-		bucket := r.traceHi >> shift
-		keys[next[bucket]] = spanKey{r.traceHi, r.traceLo, r.id, int32(i)}
+		bucket := s.at(i).traceHi >> shift
+		order[next[bucket]] = int32(i)
 		next[bucket]++
 	}
+	next = nil
 	for i := 0; i+1 < len(start); i++ {
 		if start[i+1]-start[i] > 1 {
-			slices.SortFunc(keys[start[i]:start[i+1]], compareKeys)
+			slices.SortFunc(order[start[i]:start[i+1]], func(x, y int32) int {
+				a, b := s.at(int(x)), s.at(int(y))
+				switch {
+				case a.traceHi != b.traceHi:
+					return cmp.Compare(a.traceHi, b.traceHi)
+				case a.traceLo != b.traceLo:
+					return cmp.Compare(a.traceLo, b.traceLo)
+				case a.id != b.id:
+					return cmp.Compare(a.id, b.id)
+				}
+				return cmp.Compare(x, y)
+			})
 		}
 	}
-	return keys
-}
-
-func compareKeys(a, b spanKey) int {
-	switch {
-	case a.traceHi != b.traceHi:
-		return cmp.Compare(a.traceHi, b.traceHi)
-	case a.traceLo != b.traceLo:
-		return cmp.Compare(a.traceLo, b.traceLo)
-	case a.id != b.id:
-		return cmp.Compare(a.id, b.id)
+	start = nil
+	for p0 := range n {
+		if order[p0] == int32(p0) {
+			continue
+		}
+		tmp := *s.at(p0)
+		p := p0
+		for {
+			from := int(order[p])
+			order[p] = int32(p) // placed
+			if from == p0 {
+				*s.at(p) = tmp
+				break
+			}
+			*s.at(p) = *s.at(from)
+			p = from
+		}
 	}
-	return cmp.Compare(a.seq, b.seq)
 }
 
-// spanKey orders spans for assembly.
-type spanKey struct {
-	traceHi, traceLo, id uint64
-	seq                  int32 // index in the store: input order
+// release drops the chunks that hold only spans before index n: once
+// assembled, their memory can go to the paths.
+func (s *spanStore) release(n int) {
+	for k := range min(n/spanChunk, len(s.chunks)) {
+		s.chunks[k] = nil
+	}
 }
 
 // node is a span during assembly.
@@ -167,13 +187,9 @@ type assembler struct {
 	// Scratch space reused for every trace.
 	walk, count, children, topo, emit []int32
 
-	// Output storage, carved into the paths' slices.
-	values []int64
+	// frames is scratch space for one path's source frame IDs.
 	frames []FrameID
 }
-
-// outputChunk is how many frame IDs of path storage are allocated at once.
-const outputChunk = 1 << 14
 
 // grow returns s with length n, reusing its array when it is large enough.
 func grow(s []int32, n int) []int32 {
@@ -195,29 +211,31 @@ func grow(s []int32, n int) []int32 {
 // Broken trace structure is repaired and recorded in the Source's
 // warnings, or with Options.Strict returned as a *ParseError (wrapping
 // ErrSpanRepair) naming the input and line of the span concerned. A path
-// deeper than Limits.MaxDepth is an error wrapping ErrLimit. Source does
-// not change the collector and may be called again after more Adds.
+// deeper than Limits.MaxDepth is an error wrapping ErrLimit. Source uses
+// up the collected spans, so that their memory goes to the paths: call it
+// once, after the last Add.
 func (c *SpanCollector) Source() (*Source, error) {
 	src := NewSource(Spans, []ValueType{{Type: "duration", Unit: "nanoseconds"}, {Type: "calls", Unit: "count"}})
 	src.StatementsNormalized = c.opts.Statement != nil
 	src.DefaultValue = 0
 	src.Inputs = append([]Input(nil), c.inputs...)
 	src.Warnings.Merge(c.warnings)
-	src.Paths = make([]Path, 0, c.spans.len())
+	src.Paths.Grow(c.spans.len())
 
-	keys := sortedKeys(&c.spans)
-	n := len(keys)
+	c.spans.sortInPlace()
+	n := c.spans.len()
 	as := &assembler{c: c, src: src, frameMap: make([]FrameID, len(c.frames)),
 		callMap: make([]CallID, len(c.calls)), labels: map[int32]*LabelSet{}}
 	var nodes []node
 	for i := 0; i < n; {
+		first := c.spans.at(i)
 		j := i + 1
-		for j < n && keys[j].traceHi == keys[i].traceHi && keys[j].traceLo == keys[i].traceLo {
+		for j < n && c.spans.at(j).traceHi == first.traceHi && c.spans.at(j).traceLo == first.traceLo {
 			j++
 		}
 		nodes = nodes[:0]
 		for k := i; k < j; k++ {
-			r := c.spans.at(int(keys[k].seq))
+			r := c.spans.at(k)
 			if len(nodes) > 0 && nodes[len(nodes)-1].rec.id == r.id {
 				kept := &nodes[len(nodes)-1].rec
 				if err := as.repair(r, WarnDuplicateSpanID, fmt.Sprintf("span %s of trace %s also read at %s:%d; the first one is kept",
@@ -231,8 +249,10 @@ func (c *SpanCollector) Source() (*Source, error) {
 		if err := as.trace(nodes); err != nil {
 			return nil, err
 		}
+		c.spans.release(j)
 		i = j
 	}
+	c.spans = spanStore{}
 	if as.timed {
 		src.DurationNanos = max(0, as.maxEnd-as.minStart)
 	}
@@ -370,18 +390,8 @@ func (as *assembler) trace(nodes []node) error {
 	req := as.src.InternRequest(traceIDString(&nodes[emit[0]].rec))
 	for _, k := range emit {
 		nd := &nodes[k]
-		if len(as.values)+2 > cap(as.values) {
-			as.values = make([]int64, 0, 2*outputChunk)
-		}
-		v := as.values[len(as.values) : len(as.values)+2 : len(as.values)+2]
-		as.values = as.values[:len(as.values)+2]
-		v[0], v[1] = nd.end-nd.start, 1
-
-		n := int(nd.framesLen)
-		if len(as.frames)+n > cap(as.frames) {
-			as.frames = make([]FrameID, 0, max(outputChunk, n))
-		}
-		at := len(as.frames)
+		v := [2]int64{nd.end - nd.start, 1}
+		as.frames = as.frames[:0]
 		for _, cf := range as.arena[nd.framesAt : nd.framesAt+nd.framesLen] {
 			sf := as.frameMap[cf]
 			if sf == 0 {
@@ -390,7 +400,7 @@ func (as *assembler) trace(nodes []node) error {
 			}
 			as.frames = append(as.frames, sf)
 		}
-		p := Path{Frames: as.frames[at:len(as.frames):len(as.frames)], Values: v, Request: req}
+		p := Path{Frames: as.frames, Values: v[:], Request: req}
 		if cid := nd.rec.call; cid != 0 {
 			sc := as.callMap[cid]
 			if sc == 0 {
@@ -407,7 +417,7 @@ func (as *assembler) trace(nodes []node) error {
 			}
 			p.Labels = set
 		}
-		as.src.Paths = append(as.src.Paths, p)
+		as.src.Paths.Append(p)
 		if nd.start != 0 || nd.end != 0 {
 			if !as.timed || nd.start < as.minStart {
 				as.minStart = nd.start
