@@ -122,8 +122,26 @@ type entryKey struct {
 // entryState is one entry point being totalled.
 type entryState struct {
 	name  string
+	idx   int // in order of creation
 	total *EntryTotal
-	reqs  map[traces.RequestID]bool
+	reqs  reqSet
+}
+
+// reqSet is a set of request IDs, which are small dense integers.
+type reqSet struct {
+	bits []uint64
+	n    int
+}
+
+func (s *reqSet) add(r traces.RequestID) {
+	w := int(r) >> 6
+	if w >= len(s.bits) {
+		s.bits = append(s.bits, make([]uint64, w+1-len(s.bits)+len(s.bits)/2)...)
+	}
+	if b := uint64(1) << (r & 63); s.bits[w]&b == 0 {
+		s.bits[w] |= b
+		s.n++
+	}
 }
 
 // causeAcc accumulates one root cause while paths are charged.
@@ -133,13 +151,29 @@ type reqStat struct{ n, cost int64 }
 
 type causeAcc struct {
 	cause     *Cause
-	details   map[int32]*Detail // by detail ID (see Attribute)
-	entries   map[*entryState]*EntryShare
+	details   []*Detail                // by detail ID (see Attribute); nil: none
+	entries   []*EntryShare            // by entryState.idx; nil: none
 	sites     map[traces.FrameID]int64 // the root cause's frame: file and line
 	perReq    map[traces.RequestID]reqStat
 	stmtReq   map[uint64]int64 // (detail ID, request) → calls
 	recursion int              // deepest recursion seen, for recursive-access
 	recCost   int64
+
+	// The current run of paths of one request and one call site, added to
+	// the maps when the request or the site changes (flush): the paths of
+	// a trace come together, and a map update per path is what the walk
+	// spent most of its time on.
+	run      reqStat
+	runReq   traces.RequestID
+	runStmts []stmtCalls
+	runSite  traces.FrameID
+	runSiteV int64
+}
+
+// stmtCalls is a detail's call count within one request.
+type stmtCalls struct {
+	did   int32
+	calls int64
 }
 
 // Attribute charges the database and network cost of t's source to root
@@ -176,13 +210,15 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 	}
 	sampleIx := sampleIndex(src, vi)
 	accs := map[string]*causeAcc{}
-	accOf := map[traces.FrameID]*causeAcc{} // root-cause frame → its accumulator
-	entryOf := map[entryKey]*entryState{}   // cached entry point per leaf and labels
-	entries := map[string]*entryState{}     // by name
-	detailOf := map[uint64]int32{}          // (boundary frame, call) → detail ID
-	detailIDs := map[detailKey]int32{}      // detail → ID
-	var detailList []detailKey              // ID → detail
-	requests := map[traces.RequestID]bool{}
+	accOf := make([]*causeAcc, len(src.Frames)) // root-cause frame → its accumulator
+	entryOf := map[entryKey]*entryState{}       // cached entry point per leaf and labels
+	var lastEK entryKey                         // and the last one looked up
+	var lastES *entryState
+	entries := map[string]*entryState{} // by name
+	detailOf := map[uint64]int32{}      // (boundary frame, call) → detail ID
+	detailIDs := map[detailKey]int32{}  // detail → ID
+	var detailList []detailKey          // ID → detail
+	var requests reqSet
 	inclusiveKeys := map[callgraph.NodeID][]callgraph.NodeID{}
 	labelReq := map[string]traces.RequestID{}
 	var reqNames []string
@@ -201,25 +237,29 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 			req = requestFromLabels(p.Labels, requestLabels, labelReq, &reqNames)
 		}
 		if req != 0 {
-			requests[req] = true
+			requests.add(req)
 		}
 		at := leaf
 		if b := w.boundary[leaf]; b != 0 {
 			at = b
 		}
 		ek := entryKey{w.entry[at], w.entryApp[at], p.Frames[0], p.Labels}
-		es := entryOf[ek]
+		es := lastES
+		if ek != lastEK || es == nil {
+			es = entryOf[ek]
+		}
 		if es == nil {
 			name := entryName(src, t, w, p, leaf, entryLabels)
 			if es = entries[name]; es == nil {
-				es = &entryState{name: name, total: &EntryTotal{Entry: name}, reqs: map[traces.RequestID]bool{}}
+				es = &entryState{name: name, idx: len(entries), total: &EntryTotal{Entry: name}}
 				entries[name] = es
 			}
 			entryOf[ek] = es
 		}
+		lastEK, lastES = ek, es
 		et := es.total
 		if req != 0 {
-			es.reqs[req] = true
+			es.reqs.add(req)
 		}
 		rootPath := len(p.Frames) == 1
 		if !spans || rootPath {
@@ -318,16 +358,16 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		}
 	}
 
-	res.Totals.Requests = len(requests)
-	if !spans && len(requests) == 0 {
-		res.Totals.Requests = 0
-	}
+	res.Totals.Requests = requests.n
 	if spans {
 		res.Totals.Other = max(0, res.Totals.Cost-res.Totals.Database-res.Totals.Network)
 	} else {
 		res.Totals.Other = res.Totals.Cost - res.Totals.Database - res.Totals.Network
 	}
 	denom := res.Totals.Database + res.Totals.Network
+	for _, acc := range accs {
+		acc.flush()
+	}
 	for _, acc := range accs {
 		if acc.cause.Cost == 0 && acc.recCost == 0 {
 			continue
@@ -339,7 +379,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 	}
 	sortCauses(res.Causes)
 	for _, es := range entries {
-		es.total.Requests = len(es.reqs)
+		es.total.Requests = es.reqs.n
 		res.Entries = append(res.Entries, *es.total)
 	}
 	sort.Slice(res.Entries, func(i, j int) bool {
@@ -370,8 +410,6 @@ func accFor(accs map[string]*causeAcc, fn string, noApp bool) *causeAcc {
 	if acc == nil {
 		acc = &causeAcc{
 			cause:   &Cause{Function: fn, NoAppFrame: noApp},
-			details: map[int32]*Detail{},
-			entries: map[*entryState]*EntryShare{},
 			sites:   map[traces.FrameID]int64{},
 			perReq:  map[traces.RequestID]reqStat{},
 			stmtReq: map[uint64]int64{},
@@ -393,6 +431,9 @@ func (a *causeAcc) add(val, samples, calls int64, kind Kind, did int32, dk *deta
 	} else {
 		c.Network += val
 	}
+	if int(did) >= len(a.details) {
+		a.details = append(a.details, make([]*Detail, int(did)+1-len(a.details))...)
+	}
 	d := a.details[did]
 	if d == nil {
 		d = &Detail{Kind: dk.kind, System: dk.system, Statement: dk.statement, Peer: dk.peer}
@@ -401,25 +442,71 @@ func (a *causeAcc) add(val, samples, calls int64, kind Kind, did int32, dk *deta
 	d.Cost += val
 	d.Calls += calls
 	d.Samples += samples
-	e := a.entries[es]
+	if es.idx >= len(a.entries) {
+		a.entries = append(a.entries, make([]*EntryShare, es.idx+1-len(a.entries))...)
+	}
+	e := a.entries[es.idx]
 	if e == nil {
 		e = &EntryShare{Entry: es.name}
-		a.entries[es] = e
+		a.entries[es.idx] = e
 	}
 	e.Cost += val
 	e.Calls += calls
 	if site != 0 {
-		a.sites[site] += val
+		if site != a.runSite {
+			a.flushSite()
+			a.runSite = site
+		}
+		a.runSiteV += val
 	}
 	if req != 0 {
+		if req != a.runReq {
+			a.flushRequest()
+			a.runReq = req
+		}
 		n := calls
 		if n == 0 {
 			n = samples
 		}
-		st := a.perReq[req]
-		a.perReq[req] = reqStat{st.n + n, st.cost + val}
-		a.stmtReq[uint64(uint32(did))<<32|uint64(uint32(req))] += calls
+		a.run.n += n
+		a.run.cost += val
+		for i := range a.runStmts {
+			if a.runStmts[i].did == did {
+				a.runStmts[i].calls += calls
+				return
+			}
+		}
+		a.runStmts = append(a.runStmts, stmtCalls{did, calls})
 	}
+}
+
+// flush adds the current runs to the maps.
+func (a *causeAcc) flush() {
+	a.flushSite()
+	a.flushRequest()
+}
+
+func (a *causeAcc) flushSite() {
+	if a.runSite != 0 {
+		a.sites[a.runSite] += a.runSiteV
+	}
+	a.runSite, a.runSiteV = 0, 0
+}
+
+func (a *causeAcc) flushRequest() {
+	if a.runReq == 0 {
+		return
+	}
+	if a.perReq == nil {
+		a.perReq = map[traces.RequestID]reqStat{}
+		a.stmtReq = map[uint64]int64{}
+	}
+	st := a.perReq[a.runReq]
+	a.perReq[a.runReq] = reqStat{st.n + a.run.n, st.cost + a.run.cost}
+	for _, sc := range a.runStmts {
+		a.stmtReq[uint64(uint32(sc.did))<<32|uint64(uint32(a.runReq))] += sc.calls
+	}
+	a.run, a.runReq, a.runStmts = reqStat{}, 0, a.runStmts[:0]
 }
 
 func (a *causeAcc) finish(src *traces.Source, denom, boundarySamples int64, sampled, knowsCalls bool) *Cause {
@@ -474,11 +561,15 @@ func (a *causeAcc) finish(src *traces.Source, denom, boundarySamples int64, samp
 		c.File, c.Line = c.CallSites[0].File, c.CallSites[0].Line
 	}
 	for _, d := range a.details {
-		c.Statements = append(c.Statements, *d)
+		if d != nil {
+			c.Statements = append(c.Statements, *d)
+		}
 	}
 	sortDetails(c.Statements)
 	for _, e := range a.entries {
-		c.EntryPoints = append(c.EntryPoints, *e)
+		if e != nil {
+			c.EntryPoints = append(c.EntryPoints, *e)
+		}
 	}
 	sort.Slice(c.EntryPoints, func(i, j int) bool {
 		x, y := c.EntryPoints[i], c.EntryPoints[j]
