@@ -5,8 +5,6 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/culprithq/culprit/callgraph"
-	"github.com/culprithq/culprit/traces"
 	"gonum.org/v1/gonum/graph/formats/dot"
 	"gonum.org/v1/gonum/graph/formats/dot/ast"
 )
@@ -15,17 +13,7 @@ import (
 // with gonum's DOT encoder, parses back with gonum's DOT parser into the
 // expected nodes, classes and edge weights.
 func TestChargeGraphDOT(t *testing.T) {
-	data := buildProfile(t, methodsExample())
-	l := traces.NewLoader(traces.Options{})
-	if err := l.Add("p.pb.gz", strings.NewReader(string(data))); err != nil {
-		t.Fatal(err)
-	}
-	src, err := l.Source()
-	if err != nil {
-		t.Fatal(err)
-	}
-	cls := NewClassifier(src, DefaultRules())
-	tree := callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary})
+	tree, cls := loadTree(t, buildProfile(t, methodsExample()), DefaultRules())
 	out, err := ChargeGraph(tree, cls, Options{Value: "samples"}, 0).MarshalDOT()
 	if err != nil {
 		t.Fatal(err)

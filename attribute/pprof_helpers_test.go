@@ -69,6 +69,14 @@ func parseFrameSpec(spec string) (name, file string, line int64) {
 // rankProfile loads data and attributes it with rules.
 func rankProfile(t testing.TB, data []byte, rules *Rules, opts Options) *Result {
 	t.Helper()
+	tree, cls := loadTree(t, data, rules)
+	return Attribute(tree, cls, opts)
+}
+
+// loadTree loads a profile, classifies it with rules and builds its
+// tree, cut at boundaries as culprit does.
+func loadTree(t testing.TB, data []byte, rules *Rules) (*callgraph.Tree, *Classifier) {
+	t.Helper()
 	l := traces.NewLoader(traces.Options{})
 	if err := l.Add("test.pb.gz", bytes.NewReader(data)); err != nil {
 		t.Fatal(err)
@@ -77,10 +85,8 @@ func rankProfile(t testing.TB, data []byte, rules *Rules, opts Options) *Result 
 	if err != nil {
 		t.Fatal(err)
 	}
-	// Cut at boundaries, as culprit does.
 	cls := NewClassifier(src, rules)
-	tree := callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary})
-	return Attribute(tree, cls, opts)
+	return callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary}), cls
 }
 
 func causeByName(r *Result, fn string) *Cause {

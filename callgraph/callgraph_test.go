@@ -1,6 +1,8 @@
 package callgraph
 
 import (
+	"fmt"
+	"math/rand/v2"
 	"testing"
 
 	"github.com/culprithq/culprit/traces"
@@ -138,5 +140,31 @@ func TestTreeDeepRecursionNoStackOverflow(t *testing.T) {
 	id, _ := g.Lookup("rec")
 	if g.Cum(id) != 1 {
 		t.Errorf("cum = %d, want 1", g.Cum(id))
+	}
+}
+
+// BenchmarkNewTree builds the tree of 50,000 random paths of depth 10–40
+// over 2,000 functions (few shared prefixes below the first levels: the
+// worst case for the index).
+func BenchmarkNewTree(b *testing.B) {
+	r := rand.New(rand.NewPCG(1, 2))
+	src := traces.NewSource(traces.Profile, []traces.ValueType{{Type: "samples", Unit: "count"}})
+	ids := make([]traces.FrameID, 2000)
+	for i := range ids {
+		ids[i] = src.InternFrame(traces.Frame{Function: fmt.Sprintf("example.com/app.f%d", i)})
+	}
+	var frames []traces.FrameID
+	for range 50_000 {
+		frames = append(frames[:0], ids[0], ids[1+r.IntN(8)])
+		for d := 10 + r.IntN(31); len(frames) < d; {
+			frames = append(frames, ids[r.IntN(len(ids))])
+		}
+		src.Paths.Append(traces.Path{Frames: frames, Values: []int64{1}})
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		if t := NewTree(src, TreeOptions{}); t.Len() < 50_000 {
+			b.Fatal("tree too small")
+		}
 	}
 }

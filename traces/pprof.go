@@ -135,7 +135,6 @@ func (a *profileAppender) locationFrames(p *rawProfile, li int32, cache map[line
 	return a.frames(out)
 }
 
-
 // lineKey identifies a frame within one rawProfile.
 type lineKey struct {
 	fn   int32

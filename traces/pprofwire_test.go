@@ -4,7 +4,9 @@ import (
 	"bytes"
 	"compress/gzip"
 	"context"
+	"fmt"
 	"io"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"reflect"
@@ -199,5 +201,70 @@ func FuzzPprofWire(f *testing.F) {
 			return
 		}
 		checkSameAsLibrary(t, data)
+	})
+}
+
+// benchProfile encodes (gzipped) a CPU-like profile of n distinct stacks
+// of depth 10–40 over 2,000 functions, with a route label, using the
+// pprof library: for benchmarks only.
+func benchProfile(b *testing.B, n int) []byte {
+	r := rand.New(rand.NewPCG(3, 4))
+	p := &profile.Profile{
+		SampleType: []*profile.ValueType{{Type: "samples", Unit: "count"}, {Type: "cpu", Unit: "nanoseconds"}},
+		PeriodType: &profile.ValueType{Type: "cpu", Unit: "nanoseconds"},
+		Period:     10_000_000,
+	}
+	for i := range 2000 {
+		p.Function = append(p.Function, &profile.Function{ID: uint64(i + 1),
+			Name: fmt.Sprintf("example.com/app/p%d.f%d", i%40, i), Filename: fmt.Sprintf("/src/app/p%d/f.go", i%40)})
+	}
+	locs := map[[2]int]*profile.Location{}
+	for range n {
+		s := &profile.Sample{Value: []int64{1, 10_000_000}, Label: map[string][]string{"http.route": {fmt.Sprintf("/r%d", r.IntN(20))}}}
+		for d := 10 + r.IntN(31); len(s.Location) < d; {
+			k := [2]int{r.IntN(2000), r.IntN(8)} // function, line
+			loc := locs[k]
+			if loc == nil {
+				loc = &profile.Location{ID: uint64(len(locs) + 1), Line: []profile.Line{{Function: p.Function[k[0]], Line: int64(10 + k[1])}}}
+				locs[k] = loc
+				p.Location = append(p.Location, loc)
+			}
+			s.Location = append(s.Location, loc)
+		}
+		p.Sample = append(p.Sample, s)
+	}
+	var buf bytes.Buffer
+	if err := p.Write(&buf); err != nil {
+		b.Fatal(err)
+	}
+	return buf.Bytes()
+}
+
+// BenchmarkPprof reads a profile of 20,000 stacks with culprit's reader
+// (decompression, decoding, paths) and, for comparison, parses it with
+// the pprof library alone.
+func BenchmarkPprof(b *testing.B) {
+	data := benchProfile(b, 20_000)
+	b.Run("culprit", func(b *testing.B) {
+		b.SetBytes(int64(len(data)))
+		b.ReportAllocs()
+		for b.Loop() {
+			l := NewLoader(Options{})
+			if err := l.Add("bench.pb.gz", bytes.NewReader(data)); err != nil {
+				b.Fatal(err)
+			}
+			if _, err := l.Source(); err != nil {
+				b.Fatal(err)
+			}
+		}
+	})
+	b.Run("profile.Parse", func(b *testing.B) {
+		b.SetBytes(int64(len(data)))
+		b.ReportAllocs()
+		for b.Loop() {
+			if _, err := profile.Parse(bytes.NewReader(data)); err != nil {
+				b.Fatal(err)
+			}
+		}
 	})
 }

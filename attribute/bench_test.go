@@ -1,0 +1,42 @@
+package attribute
+
+import (
+	"fmt"
+	"math/rand/v2"
+	"testing"
+)
+
+// randomStacks makes n stacks of depth 10–30 over a code base of 300
+// application functions (in 20 packages), a few library interludes and
+// database, HTTP and pure-CPU leaves: the shape of a CPU profile of a
+// web service, for benchmarks only.
+func randomStacks(n int, seed uint64) []fakeStack {
+	r := rand.New(rand.NewPCG(seed, 1))
+	app := make([]string, 300)
+	for i := range app {
+		app[i] = fmt.Sprintf("example.com/shop/pkg%d.fn%d@/home/ci/shop/pkg%d/f.go:%d", i%20, i, i%20, 10+i)
+	}
+	leaves := [][]string{{fQuery, fDriver}, {fHTTP}, {"runtime.mallocgc@/usr/local/go/src/runtime/malloc.go:1065"}, nil}
+	out := make([]fakeStack, n)
+	for i := range out {
+		fs := []string{fServe, fMux}
+		for d := 10 + r.IntN(21); len(fs) < d; {
+			fs = append(fs, app[r.IntN(len(app))])
+		}
+		fs = append(fs, leaves[r.IntN(len(leaves))]...)
+		out[i] = fakeStack{frames: fs, count: 1 + int64(r.IntN(50))}
+	}
+	return out
+}
+
+// BenchmarkAttribute measures the attribution walk alone on 20,000
+// random stacks (the tree and classification are built once).
+func BenchmarkAttribute(b *testing.B) {
+	tree, cls := loadTree(b, buildProfile(b, randomStacks(20_000, 1)), DefaultRules())
+	b.ReportAllocs()
+	for b.Loop() {
+		if res := Attribute(tree, cls, Options{}); len(res.Causes) == 0 {
+			b.Fatal("no root causes")
+		}
+	}
+}
