@@ -117,7 +117,7 @@ const utf8BOM = "\xEF\xBB\xBF"
 func (c *SpanCollector) Add(name string, r io.Reader) error {
 	input := int32(len(c.inputs))
 	cr := &countingReader{r: r, max: c.limits.MaxBytes}
-	mark, frames, calls, strs := c.spans.len(), len(c.frames), len(c.calls), len(c.strs)
+	mark, before, frames, calls, strs := c.spans.mark(), c.spans.len(), len(c.frames), len(c.calls), len(c.strs)
 	var ws Warnings
 	if err := c.read(name, input, cr, &ws); err != nil {
 		c.spans.truncate(mark)
@@ -135,7 +135,7 @@ func (c *SpanCollector) Add(name string, r io.Reader) error {
 		return err
 	}
 	c.inputs = append(c.inputs, Input{Name: name, Format: FormatOTLPJSON, Bytes: cr.n})
-	if c.spans.len() == mark {
+	if c.spans.len() == before {
 		// Valid JSON with no spans: an empty export, or not OTLP at all.
 		ws.Add(Warning{Kind: WarnNoSpans, File: name, Message: "no spans (is this OTLP/JSON trace data? it needs resourceSpans → scopeSpans → spans)"})
 	}

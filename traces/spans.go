@@ -5,7 +5,6 @@ import (
 	"encoding/binary"
 	"encoding/hex"
 	"fmt"
-	"math/bits"
 	"slices"
 )
 
@@ -51,111 +50,6 @@ type spanRec struct {
 	call             int32 // 0: none (in a batch: -1)
 	route            int32 // http.route; 0: none (in a batch: -1)
 	input            int32 // index into SpanCollector.inputs
-}
-
-// spanStore holds spans in fixed-size chunks, so that growing it never
-// copies nor over-allocates more than one chunk.
-type spanStore struct {
-	chunks [][]spanRec
-	n      int
-}
-
-const spanChunk = 4096
-
-func (s *spanStore) len() int { return s.n }
-
-func (s *spanStore) push(r spanRec) {
-	if s.n == len(s.chunks)*spanChunk {
-		s.chunks = append(s.chunks, make([]spanRec, 0, spanChunk))
-	}
-	c := &s.chunks[s.n/spanChunk]
-	*c = append(*c, r)
-	s.n++
-}
-
-func (s *spanStore) at(i int) *spanRec { return &s.chunks[i/spanChunk][i%spanChunk] }
-
-// truncate drops every span from index n on.
-func (s *spanStore) truncate(n int) {
-	if n >= s.n {
-		return
-	}
-	k := (n + spanChunk - 1) / spanChunk
-	clear(s.chunks[k:])
-	s.chunks = s.chunks[:k]
-	if k > 0 && n%spanChunk != 0 {
-		s.chunks[k-1] = s.chunks[k-1][:n%spanChunk]
-	}
-	s.n = n
-}
-
-// sortInPlace orders the stored spans by trace ID, span ID and input
-// order (so that of spans with the same IDs the first read comes first),
-// moving them within the store. It distributes span indices into buckets
-// by the top bits of the trace ID (random in practice), sorts each bucket,
-// then applies the permutation cycle by cycle: 4 bytes a span beside the
-// store, instead of a sorted copy.
-func (s *spanStore) sortInPlace() {
-	n := s.len()
-	b := min(max(bits.Len(uint(n)), 1), 20)
-	shift := 64 - b
-	start := make([]int32, 1<<b+1)
-	for i := range n {
-		start[s.at(i).traceHi>>shift+1]++
-	}
-	for i := 1; i < len(start); i++ {
-		start[i] += start[i-1]
-	}
-	order := make([]int32, n) // order[p]: the span that goes to position p
-	next := slices.Clone(start[:len(start)-1])
-	for i := range n {
-		bucket := s.at(i).traceHi >> shift
-		order[next[bucket]] = int32(i)
-		next[bucket]++
-	}
-	next = nil
-	for i := 0; i+1 < len(start); i++ {
-		if start[i+1]-start[i] > 1 {
-			slices.SortFunc(order[start[i]:start[i+1]], func(x, y int32) int {
-				a, b := s.at(int(x)), s.at(int(y))
-				switch {
-				case a.traceHi != b.traceHi:
-					return cmp.Compare(a.traceHi, b.traceHi)
-				case a.traceLo != b.traceLo:
-					return cmp.Compare(a.traceLo, b.traceLo)
-				case a.id != b.id:
-					return cmp.Compare(a.id, b.id)
-				}
-				return cmp.Compare(x, y)
-			})
-		}
-	}
-	start = nil
-	for p0 := range n {
-		if order[p0] == int32(p0) {
-			continue
-		}
-		tmp := *s.at(p0)
-		p := p0
-		for {
-			from := int(order[p])
-			order[p] = int32(p) // placed
-			if from == p0 {
-				*s.at(p) = tmp
-				break
-			}
-			*s.at(p) = *s.at(from)
-			p = from
-		}
-	}
-}
-
-// release drops the chunks that hold only spans before index n: once
-// assembled, their memory can go to the paths.
-func (s *spanStore) release(n int) {
-	for k := range min(n/spanChunk, len(s.chunks)) {
-		s.chunks[k] = nil
-	}
 }
 
 // node is a span during assembly.
@@ -222,37 +116,50 @@ func (c *SpanCollector) Source() (*Source, error) {
 	src.Warnings.Merge(c.warnings)
 	src.Paths.Grow(c.spans.len())
 
-	c.spans.sortInPlace()
-	n := c.spans.len()
 	as := &assembler{c: c, src: src, frameMap: make([]FrameID, len(c.frames)),
 		callMap: make([]CallID, len(c.calls)), labels: map[int32]*LabelSet{}}
-	var nodes []node
-	for i := 0; i < n; {
-		first := c.spans.at(i)
-		j := i + 1
-		for j < n && c.spans.at(j).traceHi == first.traceHi && c.spans.at(j).traceLo == first.traceLo {
-			j++
-		}
-		nodes = nodes[:0]
-		for k := i; k < j; k++ {
-			r := c.spans.at(k)
-			if len(nodes) > 0 && nodes[len(nodes)-1].rec.id == r.id {
-				kept := &nodes[len(nodes)-1].rec
-				if err := as.repair(r, WarnDuplicateSpanID, fmt.Sprintf("span %s of trace %s also read at %s:%d; the first one is kept",
-					spanIDString(r.id), traceIDString(r), c.inputs[kept.input].Name, kept.line)); err != nil {
-					return nil, err
-				}
-				continue
+	// Partitions are sorted in a goroutine, one ahead of the assembly.
+	parts := make(chan sortedPart, 1)
+	stop := make(chan struct{})
+	defer close(stop)
+	go func() {
+		defer close(parts)
+		for k := range numParts {
+			select {
+			case parts <- c.spans.takeSorted(k):
+			case <-stop:
+				return
 			}
-			nodes = append(nodes, node{rec: *r, keep: c.selected(r)})
 		}
-		if err := as.trace(nodes); err != nil {
-			return nil, err
+	}()
+	var nodes []node
+	for part := range parts {
+		recs, order := part.recs, part.order
+		for i := 0; i < len(order); {
+			first := &recs[order[i]]
+			j := i + 1
+			for j < len(order) && recs[order[j]].traceHi == first.traceHi && recs[order[j]].traceLo == first.traceLo {
+				j++
+			}
+			nodes = nodes[:0]
+			for _, o := range order[i:j] {
+				r := &recs[o]
+				if len(nodes) > 0 && nodes[len(nodes)-1].rec.id == r.id {
+					kept := &nodes[len(nodes)-1].rec
+					if err := as.repair(r, WarnDuplicateSpanID, fmt.Sprintf("span %s of trace %s also read at %s:%d; the first one is kept",
+						spanIDString(r.id), traceIDString(r), c.inputs[kept.input].Name, kept.line)); err != nil {
+						return nil, err
+					}
+					continue
+				}
+				nodes = append(nodes, node{rec: *r, keep: c.selected(r)})
+			}
+			if err := as.trace(nodes); err != nil {
+				return nil, err
+			}
+			i = j
 		}
-		c.spans.release(j)
-		i = j
 	}
-	c.spans = spanStore{}
 	if as.timed {
 		src.DurationNanos = max(0, as.maxEnd-as.minStart)
 	}

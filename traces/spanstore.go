@@ -1,0 +1,109 @@
+package traces
+
+import (
+	"cmp"
+	"slices"
+)
+
+// spanStore holds the decoded spans until assembly, in partitions by the
+// top bits of the trace ID (random in practice), each in fixed-size
+// chunks: growing it never copies, and at assembly each partition is
+// sorted and handed over on its own, so that the spans' memory goes to
+// the paths partition by partition.
+type spanStore struct {
+	parts [numParts]spanPart
+	n     int
+}
+
+type spanPart struct {
+	chunks [][]spanRec
+	n      int
+}
+
+const (
+	numParts  = 64
+	partShift = 64 - 6 // traceHi >> partShift is the partition
+	spanChunk = 1024
+)
+
+// storeMark is the size of every partition, for truncate.
+type storeMark [numParts]int
+
+func (s *spanStore) len() int { return s.n }
+
+func (s *spanStore) push(r spanRec) {
+	p := &s.parts[r.traceHi>>partShift]
+	if p.n == len(p.chunks)*spanChunk {
+		p.chunks = append(p.chunks, make([]spanRec, 0, spanChunk))
+	}
+	c := &p.chunks[p.n/spanChunk]
+	*c = append(*c, r)
+	p.n++
+	s.n++
+}
+
+// mark returns the store's current size, for truncate.
+func (s *spanStore) mark() storeMark {
+	var m storeMark
+	for i := range s.parts {
+		m[i] = s.parts[i].n
+	}
+	return m
+}
+
+// truncate drops every span pushed since m was taken.
+func (s *spanStore) truncate(m storeMark) {
+	for i := range s.parts {
+		p := &s.parts[i]
+		n := m[i]
+		if n >= p.n {
+			continue
+		}
+		k := (n + spanChunk - 1) / spanChunk
+		clear(p.chunks[k:])
+		p.chunks = p.chunks[:k]
+		if k > 0 && n%spanChunk != 0 {
+			p.chunks[k-1] = p.chunks[k-1][:n%spanChunk]
+		}
+		s.n -= p.n - n
+		p.n = n
+	}
+}
+
+// sortedPart is one partition's spans in one slice, and their order by
+// trace ID, span ID and input order (of spans with the same IDs the
+// first read comes first).
+type sortedPart struct {
+	recs  []spanRec
+	order []int32
+}
+
+// takeSorted removes partition k from the store and returns it sorted.
+// Partitions cover increasing ranges of trace IDs, so taking them in
+// order gives all spans in trace order.
+func (s *spanStore) takeSorted(k int) sortedPart {
+	p := &s.parts[k]
+	recs := make([]spanRec, 0, p.n)
+	for i, c := range p.chunks {
+		recs = append(recs, c...)
+		p.chunks[i] = nil
+	}
+	*p = spanPart{}
+	order := make([]int32, len(recs))
+	for i := range order {
+		order[i] = int32(i)
+	}
+	slices.SortFunc(order, func(x, y int32) int {
+		a, b := &recs[x], &recs[y]
+		switch {
+		case a.traceHi != b.traceHi:
+			return cmp.Compare(a.traceHi, b.traceHi)
+		case a.traceLo != b.traceLo:
+			return cmp.Compare(a.traceLo, b.traceLo)
+		case a.id != b.id:
+			return cmp.Compare(a.id, b.id)
+		}
+		return cmp.Compare(x, y)
+	})
+	return sortedPart{recs: recs, order: order}
+}
