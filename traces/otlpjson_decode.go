@@ -26,12 +26,15 @@ type decoder struct {
 	memo    memo
 	spare   chan []spanRec // span buffers of merged batches
 	req     jsonRequest    // reused for every record that is one object
-	// scanned, text and bools are the fast path's (otlpscan.go): the
-	// requests it reads (reused), its arena of unescaped strings, and
-	// the values that boolValues point to.
+	// scanned, text, bools, scanner and names are the fast path's
+	// (otlpscan.go): the requests it reads (reused), its arena of
+	// unescaped strings, the values that boolValues point to, its state,
+	// and the field names it knows.
 	scanned []jsonRequest
 	text    []byte
 	bools   [2]bool
+	scanner scanner
+	names   *fieldNames
 	// slow turns the fast path off (for tests that compare the paths).
 	slow bool
 	// stmts caches Options.Statement results by system and raw text:
