@@ -26,6 +26,17 @@ type decoder struct {
 	memo    memo
 	spare   chan []spanRec // span buffers of merged batches
 	req     jsonRequest    // reused for every record that is one object
+	// scanned, text, bools, scanner and names are the fast path's
+	// (otlpscan.go): the requests it reads (reused), its arena of
+	// unescaped strings, the values that boolValues point to, its state,
+	// and the field names it knows.
+	scanned []jsonRequest
+	text    []byte
+	bools   [2]bool
+	scanner scanner
+	names   *fieldNames
+	// slow turns the fast path off (for tests that compare the paths).
+	slow bool
 	// stmts caches Options.Statement results by system and raw text:
 	// instrumentation mostly records parameterised statements, which
 	// repeat exactly. Bounded; keys are copies, never job data.
@@ -100,6 +111,9 @@ func (d *decoder) record(rec []byte, line, col int64, doc bool) {
 	}
 	if start == len(rec) {
 		return // blank line
+	}
+	if !d.slow && d.scan(rec, start, line) {
+		return
 	}
 	if !doc && bytes.Count(rec, []byte{'{'})+bytes.Count(rec, []byte{'['}) > d.c.limits.MaxDepth {
 		// (Nesting is at most the number of brackets.)

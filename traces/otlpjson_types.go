@@ -285,6 +285,10 @@ type jsonKind SpanKind
 
 // UnmarshalJSON decodes a JSON number or string holding a span kind.
 func (k *jsonKind) UnmarshalJSON(raw []byte) error {
+	if len(raw) == 1 && '0' <= raw[0] && raw[0] <= '0'+byte(SpanKindConsumer) {
+		*k = jsonKind(raw[0] - '0') // the usual case, without parsing
+		return nil
+	}
 	*k = 0
 	if string(raw) == "null" {
 		return nil
