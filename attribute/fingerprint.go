@@ -59,23 +59,30 @@ func Fingerprint(system, raw string) Statement {
 		}
 		raw = raw[:cut]
 	}
-	var text string
 	switch system = strings.ToLower(system); system {
 	case "redis", "memcached":
-		text = fingerprintCommand(raw, system == "redis")
+		return statementOf(fingerprintCommand(raw, system == "redis"))
 	case "mongodb":
-		text = fingerprintDocument(raw)
-	default:
-		d, known := dialectFor(system)
-		if j := skipSpace(raw, 0); !known && j < len(raw) && (raw[j] == '{' || raw[j] == '[') {
-			text = fingerprintDocument(raw)
-		} else {
-			text = fingerprintSQL(d, raw)
-		}
+		return statementOf(fingerprintDocument(raw))
 	}
-	h := uint64(14695981039346656037) // FNV-1a, 64-bit offset basis and prime
+	d, known := dialectFor(system)
+	if j := skipSpace(raw, 0); !known && j < len(raw) && (raw[j] == '{' || raw[j] == '[') {
+		return statementOf(fingerprintDocument(raw))
+	}
+	return fingerprintSQL(d, raw)
+}
+
+// FNV-1a, 64-bit: offset basis and prime.
+const (
+	fnvOffset uint64 = 14695981039346656037
+	fnvPrime  uint64 = 1099511628211
+)
+
+// statementOf returns the Statement with Text text.
+func statementOf(text string) Statement {
+	h := fnvOffset
 	for i := 0; i < len(text); i++ {
-		h = (h ^ uint64(text[i])) * 1099511628211
+		h = (h ^ uint64(text[i])) * fnvPrime
 	}
 	return Statement{Text: text, ID: h}
 }
@@ -159,18 +166,21 @@ const (
 
 // sqlToken is a token already written to the output of an sqlWriter.
 type sqlToken struct {
-	at  int32 // length of the output before the token and the space written in front of it
+	h   uint64 // FNV-1a hash of the output before the token and the space written in front of it
+	at  int32  // length of that output
 	tag tag
 }
 
-// sqlWriter lexes SQL and writes its fingerprint in the same pass. It keeps the tokens written
-// so far (as positions in out) so that a sign can join the number after it and a closing ")" can
-// collapse an IN list or a repeated VALUES row; what those rules remove is always at the end of out.
+// sqlWriter lexes SQL and writes its fingerprint in the same pass, hashing out as it grows. It
+// keeps the tokens written so far (as positions in out) so that a sign can join the number after
+// it and a closing ")" can collapse an IN list or a repeated VALUES row; what those rules remove is
+// always at the end of out.
 type sqlWriter struct {
 	d     dialect
 	s     string
 	i     int
 	out   []byte
+	h     uint64 // FNV-1a hash of out
 	toks  []sqlToken
 	opens []int32  // indexes in toks of unmatched "("
 	row   [2]int32 // toks[row[0]:row[1]] is the last VALUES row kept
@@ -243,28 +253,36 @@ func (w *sqlWriter) skipDigits() {
 // begin records a token with tag t whose text starts with byte y and writes the space in front
 // of it if one is due; the caller writes the text.
 func (w *sqlWriter) begin(t tag, y byte) {
-	at := len(w.out)
+	space := false
 	if n := len(w.toks); n > 0 {
-		x := w.out[at-1] // the last byte of the previous token
+		x := w.out[len(w.out)-1] // the last byte of the previous token
 		glue := (glueAfter>>(w.toks[n-1].tag&63)|glueBefore>>(t&63))&1 != 0
 		// Keep a space where two operator bytes or "]" and "]" would touch (as in "[x] ]"), so
 		// that the text lexes into the same tokens.
-		if !glue || sqlBytes[x]&sqlBytes[y]&bOp != 0 || x == ']' && y == ']' {
-			w.out = append(w.out, ' ')
-		}
+		space = !glue || sqlBytes[x]&sqlBytes[y]&bOp != 0 || x == ']' && y == ']'
 	}
-	w.toks = append(w.toks, sqlToken{int32(at), t})
+	w.toks = append(w.toks, sqlToken{w.h, int32(len(w.out)), t})
+	if space {
+		w.put(' ')
+	}
+}
+
+// put appends c to w.out.
+func (w *sqlWriter) put(c byte) {
+	w.out = append(w.out, c)
+	w.h = (w.h ^ uint64(c)) * fnvPrime
 }
 
 // literal writes "?".
 func (w *sqlWriter) literal() {
 	w.begin(tagLiteral, '?')
-	w.out = append(w.out, '?')
+	w.put('?')
 }
 
 // drop removes the tokens from index k on.
 func (w *sqlWriter) drop(k int) {
 	w.out = w.out[:w.toks[k].at]
+	w.h = w.toks[k].h
 	w.toks = w.toks[:k]
 }
 
@@ -415,15 +433,16 @@ func (w *sqlWriter) write(s string, lower bool) {
 		w.out = slices.Grow(w.out, len(s))
 	}
 	w.out = w.out[:k+len(s)]
-	dst := w.out[k:]
-	if !lower {
-		copy(dst, s)
-		return
-	}
+	dst, h := w.out[k:], w.h
 	for i := range len(s) {
 		c := s[i]
-		dst[i] = c | sqlBytes[c]&bUpper
+		if lower {
+			c |= sqlBytes[c] & bUpper
+		}
+		dst[i] = c
+		h = (h ^ uint64(c)) * fnvPrime
 	}
+	w.h = h
 }
 
 // skipBlockComment skips a /* */ comment, nested unless the dialect says otherwise.
@@ -512,7 +531,7 @@ func (w *sqlWriter) word() {
 	}
 	dst := w.out[k:cap(w.out)]
 	var key uint64 // the lower-cased word, a byte a byte; complete for words of up to 8 bytes
-	n := 0
+	n, h := 0, w.h
 	for ; start+n < len(s); n++ {
 		c := s[start+n]
 		f := sqlBytes[c]
@@ -522,6 +541,7 @@ func (w *sqlWriter) word() {
 		c |= f & bUpper
 		dst[n] = c
 		key = key<<8 | uint64(c)
+		h = (h ^ uint64(c)) * fnvPrime
 	}
 	w.out = w.out[:k+n] // extend by reslicing, as in write
 	w.i = start + n
@@ -532,7 +552,10 @@ func (w *sqlWriter) word() {
 		t = tagSignKW
 	}
 	if t == tagLiteral { // true or false
-		w.out = append(w.out[:k], '?')
+		w.out = w.out[:k]
+		w.put('?')
+	} else {
+		w.h = h
 	}
 	w.toks[len(w.toks)-1].tag = t
 }
@@ -684,7 +707,7 @@ func (w *sqlWriter) operator() {
 	}
 	w.begin(t, c)
 	if n == 1 {
-		w.out = append(w.out, c)
+		w.put(c)
 	} else {
 		w.write(w.s[w.i:w.i+n], false)
 	}
@@ -708,7 +731,7 @@ func (w *sqlWriter) closeGroup(o int) {
 		w.drop(o + 1)
 		w.literal()
 		w.begin(tagClose, ')')
-		w.out = append(w.out, ')')
+		w.put(')')
 	case o > 0 && toks[o-1].tag == tagValues:
 		w.row = [2]int32{int32(o), int32(len(toks))}
 	case o > 1 && int(w.row[1]) == o-1 && toks[o-1].tag == tagComma: // another row of the same VALUES
@@ -771,15 +794,15 @@ type sqlBuffers struct {
 // result.
 var sqlBufferPool = sync.Pool{New: func() any { return new(sqlBuffers) }}
 
-// fingerprintSQL returns the normalised text of SQL raw in dialect d.
-func fingerprintSQL(d dialect, raw string) string {
+// fingerprintSQL returns the Statement of SQL raw in dialect d.
+func fingerprintSQL(d dialect, raw string) Statement {
 	buf := sqlBufferPool.Get().(*sqlBuffers)
-	w := sqlWriter{d: d, s: raw, out: buf.out[:0], toks: buf.toks[:0], opens: buf.opens[:0]}
+	w := sqlWriter{d: d, s: raw, out: buf.out[:0], h: fnvOffset, toks: buf.toks[:0], opens: buf.opens[:0]}
 	w.run()
-	text := string(w.out)
+	st := Statement{Text: string(w.out), ID: w.h}
 	buf.out, buf.toks, buf.opens = w.out, w.toks, w.opens
 	sqlBufferPool.Put(buf)
-	return text
+	return st
 }
 
 // isPlaceholderList reports whether ts is "?" or "?, ?, …".
