@@ -3,6 +3,7 @@ package attribute
 import (
 	"slices"
 	"strings"
+	"sync"
 	"unicode/utf8"
 )
 
@@ -58,23 +59,30 @@ func Fingerprint(system, raw string) Statement {
 		}
 		raw = raw[:cut]
 	}
-	var text string
 	switch system = strings.ToLower(system); system {
 	case "redis", "memcached":
-		text = fingerprintCommand(raw, system == "redis")
+		return statementOf(fingerprintCommand(raw, system == "redis"))
 	case "mongodb":
-		text = fingerprintDocument(raw)
-	default:
-		d, known := dialectFor(system)
-		if j := skipSpace(raw, 0); !known && j < len(raw) && (raw[j] == '{' || raw[j] == '[') {
-			text = fingerprintDocument(raw)
-		} else {
-			text = fingerprintSQL(d, raw)
-		}
+		return statementOf(fingerprintDocument(raw))
 	}
-	h := uint64(14695981039346656037) // FNV-1a, 64-bit offset basis and prime
+	d, known := dialectFor(system)
+	if j := skipSpace(raw, 0); !known && j < len(raw) && (raw[j] == '{' || raw[j] == '[') {
+		return statementOf(fingerprintDocument(raw))
+	}
+	return fingerprintSQL(d, raw)
+}
+
+// FNV-1a, 64-bit: offset basis and prime.
+const (
+	fnvOffset uint64 = 14695981039346656037
+	fnvPrime  uint64 = 1099511628211
+)
+
+// statementOf returns the Statement with Text text.
+func statementOf(text string) Statement {
+	h := fnvOffset
 	for i := 0; i < len(text); i++ {
-		h = (h ^ uint64(text[i])) * 1099511628211
+		h = (h ^ uint64(text[i])) * fnvPrime
 	}
 	return Statement{Text: text, ID: h}
 }
@@ -107,13 +115,13 @@ func dialectFor(system string) (dialect, bool) {
 type kind uint8
 
 const (
-	kWord    kind = iota // unquoted keyword or identifier, lower-cased
+	kWord    kind = iota // unquoted keyword or identifier
 	kQuoted              // quoted identifier or document key, verbatim
-	kNumber              // numeric literal, still able to absorb a sign
-	kLiteral             // any other literal or bind parameter; text "?"
+	kLiteral             // literal or placeholder; text "?"
 	kOp                  // operator or punctuation
 )
 
+// token is a token of a document (fingerprintDocument).
 type token struct {
 	kind kind
 	text string
@@ -122,108 +130,331 @@ type token struct {
 // qmark returns the placeholder token that replaces every literal.
 func qmark() token { return token{kLiteral, "?"} }
 
-// lexer splits SQL text into tokens, skipping whitespace and comments.
-type lexer struct {
-	d dialect
-	s string
-	i int
+// tag says what an SQL token written to the output is, as far as the rules for signs, IN lists,
+// VALUES rows and spacing need to know. Equal tokens have equal tags.
+type tag uint8
+
+const (
+	tagWord     tag = iota // keyword or identifier not listed below
+	tagSignKW              // keyword after which a sign belongs to the number that follows
+	tagIn                  // the keyword "in" (also a tagSignKW keyword)
+	tagValues              // the keyword "values" (also a tagSignKW keyword)
+	tagQuoted              // quoted identifier
+	tagLiteral             // literal or bind parameter, written "?"
+	tagOpen                // "("
+	tagClose               // ")"
+	tagComma               // ","
+	tagMinus               // "-"
+	tagPlus                // "+"
+	tagLBracket            // "["
+	tagRBracket            // "]"
+	tagDot                 // "."
+	tagSemi                // ";"
+	tagCast                // "::"
+	tagOp                  // any other operator or punctuation
+)
+
+const (
+	// glueAfter: no space after these tokens (unless operator bytes would touch).
+	glueAfter uint64 = 1<<tagOpen | 1<<tagLBracket | 1<<tagDot | 1<<tagCast
+	// glueBefore: no space before these tokens (unless operator bytes would touch).
+	glueBefore uint64 = 1<<tagComma | 1<<tagClose | 1<<tagRBracket | 1<<tagSemi | 1<<tagDot | 1<<tagLBracket | 1<<tagCast
+	// signAfter: a sign after these tokens belongs to the number that follows.
+	signAfter uint64 = 1<<tagSignKW | 1<<tagIn | 1<<tagValues | 1<<tagOpen | 1<<tagComma | 1<<tagMinus |
+		1<<tagPlus | 1<<tagLBracket | 1<<tagDot | 1<<tagSemi | 1<<tagCast | 1<<tagOp
+)
+
+// sqlToken is a token already written to the output of an sqlWriter.
+type sqlToken struct {
+	h   uint64 // FNV-1a hash of the output before the token and the space written in front of it
+	at  int32  // length of that output
+	tag tag
 }
 
+// sqlWriter lexes SQL and writes its fingerprint in the same pass, hashing out as it grows. It
+// keeps the tokens written so far (as positions in out) so that a sign can join the number after
+// it and a closing ")" can collapse an IN list or a repeated VALUES row; what those rules remove is
+// always at the end of out.
+type sqlWriter struct {
+	d     dialect
+	s     string
+	i     int
+	out   []byte
+	h     uint64 // FNV-1a hash of out
+	toks  []sqlToken
+	opens []int32  // indexes in toks of unmatched "("
+	row   [2]int32 // toks[row[0]:row[1]] is the last VALUES row kept
+}
+
+// Properties of bytes in SQL text, as bits of sqlBytes.
+const (
+	bSpace      = 1 << iota // space or control byte, skipped
+	bDigit                  // 0-9
+	bIdentStart             // ASCII letter, '_' or any byte of a multi-byte UTF-8 sequence
+	bIdentChar              // identifier start, digit or '$'
+	bOp                     // operator byte: no space is dropped between two of them
+)
+
+// bUpper marks the ASCII upper-case letters. It is the bit 'a' - 'A' (0x20, above the bits
+// before), so c|sqlBytes[c]&bUpper lower-cases c.
+const bUpper = 'a' - 'A'
+
+// sqlBytes holds the properties of every byte value, a lookup table built once.
+var sqlBytes = func() (t [256]uint8) {
+	for c := range 256 {
+		b := byte(c)
+		for _, p := range [...]struct {
+			has  bool
+			flag uint8
+		}{
+			{isSpace(b), bSpace}, {isDigit(b), bDigit}, {isIdentStart(b), bIdentStart},
+			{isIdentChar(b), bIdentChar}, {strings.IndexByte("!#%&*+-/:<=>@^|~", b) >= 0, bOp},
+			{'A' <= b && b <= 'Z', bUpper},
+		} {
+			if p.has {
+				t[c] |= p.flag
+			}
+		}
+	}
+	return t
+}()
+
 // at returns the byte k positions ahead, or 0 past the end.
-func (l *lexer) at(k int) byte {
-	if l.i+k < len(l.s) {
-		return l.s[l.i+k]
+func (w *sqlWriter) at(k int) byte {
+	if w.i+k < len(w.s) {
+		return w.s[w.i+k]
 	}
 	return 0
 }
 
-// skipPast moves l.i just past the first end at or after from, or to the end of the input.
-func (l *lexer) skipPast(end string, from int) {
-	if k := strings.Index(l.s[min(from, len(l.s)):], end); k >= 0 {
-		l.i = from + k + len(end)
+// skipPast moves w.i just past the first end at or after from, or to the end of the input.
+func (w *sqlWriter) skipPast(end string, from int) {
+	if k := strings.Index(w.s[min(from, len(w.s)):], end); k >= 0 {
+		w.i = from + k + len(end)
 	} else {
-		l.i = len(l.s)
+		w.i = len(w.s)
 	}
 }
 
-func (l *lexer) skipWhile(f func(byte) bool) {
-	for l.i < len(l.s) && f(l.s[l.i]) {
-		l.i++
+// skipIdent moves w.i past identifier bytes.
+func (w *sqlWriter) skipIdent() {
+	for w.i < len(w.s) && sqlBytes[w.s[w.i]]&bIdentChar != 0 {
+		w.i++
 	}
 }
 
-// next returns the next token, or false at the end of the input.
-func (l *lexer) next() (token, bool) {
-	for l.i < len(l.s) {
-		c, start := l.s[l.i], l.i
-		switch {
-		case isSpace(c):
-			l.i++
-			continue
-		case c == '-' && l.at(1) == '-', c == '#' && l.d.hashComment:
-			l.skipPast("\n", l.i)
-			continue
-		case c == '/' && l.at(1) == '*':
-			l.skipBlockComment()
-			continue
-		case c == '\'', c == '"' && l.d.dquoteString:
-			l.i, _ = skipQuoted(l.s, l.i+1, c, l.d.backslash)
-		case c == '"', c == '`', c == '[' && l.d.brackets:
-			closer := c
-			if c == '[' {
-				closer = ']'
+// skipDigits moves w.i past decimal digits.
+func (w *sqlWriter) skipDigits() {
+	for w.i < len(w.s) && isDigit(w.s[w.i]) {
+		w.i++
+	}
+}
+
+// begin records a token with tag t whose text starts with byte y and writes the space in front
+// of it if one is due; the caller writes the text.
+func (w *sqlWriter) begin(t tag, y byte) {
+	space := false
+	if n := len(w.toks); n > 0 {
+		x := w.out[len(w.out)-1] // the last byte of the previous token
+		glue := (glueAfter>>(w.toks[n-1].tag&63)|glueBefore>>(t&63))&1 != 0
+		// Keep a space where two operator bytes or "]" and "]" would touch (as in "[x] ]"), so
+		// that the text lexes into the same tokens.
+		space = !glue || sqlBytes[x]&sqlBytes[y]&bOp != 0 || x == ']' && y == ']'
+	}
+	w.toks = append(w.toks, sqlToken{w.h, int32(len(w.out)), t})
+	if space {
+		w.put(' ')
+	}
+}
+
+// put appends c to w.out.
+func (w *sqlWriter) put(c byte) {
+	w.out = append(w.out, c)
+	w.h = (w.h ^ uint64(c)) * fnvPrime
+}
+
+// literal writes "?".
+func (w *sqlWriter) literal() {
+	w.begin(tagLiteral, '?')
+	w.put('?')
+}
+
+// drop removes the tokens from index k on.
+func (w *sqlWriter) drop(k int) {
+	w.out = w.out[:w.toks[k].at]
+	w.h = w.toks[k].h
+	w.toks = w.toks[:k]
+}
+
+// run writes the fingerprint of w.s to w.out.
+func (w *sqlWriter) run() {
+	for w.i < len(w.s) {
+		c := w.s[w.i]
+		switch f := sqlBytes[c]; {
+		case f&bSpace != 0:
+			i := w.i + 1
+			for i < len(w.s) && sqlBytes[w.s[i]]&bSpace != 0 {
+				i++
 			}
-			end, ok := skipQuoted(l.s, l.i+1, closer, false)
-			if l.i = end; ok { // an unterminated identifier becomes a literal: its text is not shown
-				return token{kQuoted, l.s[start:end]}, true
-			}
-		case isDigit(c), c == '.' && isDigit(l.at(1)):
-			l.number()
-			return token{kNumber, "?"}, true
-		case isIdentStart(c):
-			return l.word(), true
-		case c == '$':
-			j := l.i + 1
-			for j < len(l.s) && isIdentChar(l.s[j]) && l.s[j] != '$' {
-				j++
-			}
-			switch {
-			case j < len(l.s) && l.s[j] == '$' && !isDigit(l.at(1)): // $$…$$ or $tag$…$tag$
-				l.skipPast(l.s[l.i:j+1], j+1)
-			case j > l.i+1: // $1 or $name
-				l.i = j
-			default:
-				return l.operator(), true
-			}
-		case c == '?': // ? or ?NNN
-			l.i++
-			l.skipWhile(isDigit)
-		case c == ':' && isIdentChar(l.at(1)) && l.at(1) != '$', c == '@' && isIdentStart(l.at(1)):
-			l.i++ // :name, :1, @p1
-			l.skipWhile(isIdentChar)
-		case c == '@' && l.at(1) == '@' && isIdentStart(l.at(2)): // system variable such as @@ROWCOUNT
-			l.i += 2
-			l.skipWhile(isIdentChar)
-			return token{kWord, lowerASCII(l.s[start:l.i])}, true
-		case c == '%' && l.percentBind():
+			w.i = i
+		case f&bDigit != 0:
+			w.number()
+		case f&bIdentStart != 0:
+			w.word()
 		default:
-			return l.operator(), true
+			w.punct(c)
 		}
-		return qmark(), true
 	}
-	return token{}, false
+}
+
+// punct scans what starts with the punctuation byte c at w.i: a comment, a string, a quoted
+// identifier, a number such as .5, a bind parameter, a system variable or an operator.
+func (w *sqlWriter) punct(c byte) {
+	switch c {
+	case '-':
+		if w.at(1) == '-' {
+			w.skipLine()
+			return
+		}
+	case '#':
+		if w.d.hashComment {
+			w.skipLine()
+			return
+		}
+	case '/':
+		if w.at(1) == '*' {
+			w.skipBlockComment()
+			return
+		}
+	case '\'':
+		w.i, _ = skipQuoted(w.s, w.i+1, c, w.d.backslash)
+		w.literal()
+		return
+	case '"':
+		if w.d.dquoteString {
+			w.i, _ = skipQuoted(w.s, w.i+1, c, w.d.backslash)
+			w.literal()
+		} else {
+			w.quoted('"')
+		}
+		return
+	case '`':
+		w.quoted('`')
+		return
+	case '[':
+		if w.d.brackets {
+			w.quoted(']')
+			return
+		}
+	case '.':
+		if isDigit(w.at(1)) {
+			w.number()
+			return
+		}
+	case '$':
+		j := w.i + 1
+		for j < len(w.s) && sqlBytes[w.s[j]]&bIdentChar != 0 && w.s[j] != '$' {
+			j++
+		}
+		switch {
+		case j < len(w.s) && w.s[j] == '$' && !isDigit(w.at(1)): // $$…$$ or $tag$…$tag$
+			w.skipPast(w.s[w.i:j+1], j+1)
+			w.literal()
+			return
+		case j > w.i+1: // $1 or $name
+			w.i = j
+			w.literal()
+			return
+		}
+	case '?': // ? or ?NNN
+		w.i++
+		w.skipDigits()
+		w.literal()
+		return
+	case ':':
+		if d := w.at(1); sqlBytes[d]&bIdentChar != 0 && d != '$' { // :name, :1
+			w.i++
+			w.skipIdent()
+			w.literal()
+			return
+		}
+	case '@':
+		if sqlBytes[w.at(1)]&bIdentStart != 0 { // @p1
+			w.i++
+			w.skipIdent()
+			w.literal()
+			return
+		}
+		if w.at(1) == '@' && sqlBytes[w.at(2)]&bIdentStart != 0 { // system variable such as @@ROWCOUNT
+			start := w.i
+			w.i += 2
+			w.skipIdent()
+			w.begin(tagWord, '@')
+			w.write(w.s[start:w.i], true)
+			return
+		}
+	case '%':
+		if w.percentBind() {
+			w.literal()
+			return
+		}
+	}
+	w.operator()
+}
+
+// skipLine moves w.i past the end of the line, or to the end of the input.
+func (w *sqlWriter) skipLine() {
+	if k := strings.IndexByte(w.s[w.i:], '\n'); k >= 0 {
+		w.i += k + 1
+	} else {
+		w.i = len(w.s)
+	}
+}
+
+// quoted scans an identifier quoted up to closer and writes it as it is, or "?" if it is
+// unterminated, so that its text is not shown.
+func (w *sqlWriter) quoted(closer byte) {
+	start := w.i
+	end, ok := skipQuoted(w.s, w.i+1, closer, false)
+	if w.i = end; !ok {
+		w.literal()
+		return
+	}
+	w.begin(tagQuoted, w.s[start])
+	w.write(w.s[start:end], false)
+}
+
+// write appends s to w.out, with its ASCII letters lower-cased if lower is set. (It extends
+// w.out by reslicing, which unlike append(w.out, s...) does not store the slice's pointer again
+// unless it grows.)
+func (w *sqlWriter) write(s string, lower bool) {
+	k := len(w.out)
+	if cap(w.out)-k < len(s) {
+		w.out = slices.Grow(w.out, len(s))
+	}
+	w.out = w.out[:k+len(s)]
+	dst, h := w.out[k:], w.h
+	for i := range len(s) {
+		c := s[i]
+		if lower {
+			c |= sqlBytes[c] & bUpper
+		}
+		dst[i] = c
+		h = (h ^ uint64(c)) * fnvPrime
+	}
+	w.h = h
 }
 
 // skipBlockComment skips a /* */ comment, nested unless the dialect says otherwise.
-func (l *lexer) skipBlockComment() {
-	for depth := 0; l.i < len(l.s); l.i++ {
-		if l.s[l.i] == '/' && l.at(1) == '*' && (depth == 0 || !l.d.flatComments) {
+func (w *sqlWriter) skipBlockComment() {
+	for depth := 0; w.i < len(w.s); w.i++ {
+		if w.s[w.i] == '/' && w.at(1) == '*' && (depth == 0 || !w.d.flatComments) {
 			depth++
-			l.i++
-		} else if l.s[l.i] == '*' && l.at(1) == '/' {
+			w.i++
+		} else if w.s[w.i] == '*' && w.at(1) == '/' {
 			depth--
-			if l.i++; depth == 0 {
-				l.i++
+			if w.i++; depth == 0 {
+				w.i++
 				return
 			}
 		}
@@ -234,9 +465,22 @@ func (l *lexer) skipBlockComment() {
 // the opening quote; qq stands for q, and if backslash is set a backslash escapes the next byte.
 // It returns len(s), false when the run is unterminated.
 func skipQuoted(s string, i int, q byte, backslash bool) (int, bool) {
+	if !backslash {
+		for i < len(s) {
+			k := strings.IndexByte(s[i:], q)
+			if k < 0 {
+				break
+			}
+			if i += k + 1; i == len(s) || s[i] != q {
+				return i, true
+			}
+			i++ // qq
+		}
+		return len(s), false
+	}
 	for ; i < len(s); i++ {
 		switch {
-		case s[i] == '\\' && backslash, s[i] == q && i+1 < len(s) && s[i+1] == q:
+		case s[i] == '\\', s[i] == q && i+1 < len(s) && s[i+1] == q:
 			i++
 		case s[i] == q:
 			return i + 1, true
@@ -246,157 +490,319 @@ func skipQuoted(s string, i int, q byte, backslash bool) (int, bool) {
 }
 
 // number scans a numeric literal: digits, fraction and exponent, then any identifier bytes glued
-// to it (0x1F, 0b101, 1_000, 2.5F).
-func (l *lexer) number() {
-	l.skipWhile(isDigit)
-	if l.at(0) == '.' {
-		l.i++
-		l.skipWhile(isDigit)
+// to it (0x1F, 0b101, 1_000, 2.5F). It writes "?", taking in a sign just before it that belongs to
+// it: one at the start or after an operator, "(", "," or a keyword.
+func (w *sqlWriter) number() {
+	w.skipDigits()
+	if w.at(0) == '.' {
+		w.i++
+		w.skipDigits()
 	}
-	if l.at(0)|0x20 == 'e' {
+	if w.at(0)|0x20 == 'e' {
 		j := 1
-		if l.at(1) == '+' || l.at(1) == '-' {
+		if w.at(1) == '+' || w.at(1) == '-' {
 			j = 2
 		}
-		if isDigit(l.at(j)) {
-			l.i += j
+		if isDigit(w.at(j)) {
+			w.i += j
 		}
 	}
-	l.skipWhile(isIdentChar)
+	w.skipIdent()
+	if n := len(w.toks); n > 0 {
+		if t := w.toks[n-1].tag; (t == tagMinus || t == tagPlus) && (n == 1 || signAfter>>(w.toks[n-2].tag&63)&1 != 0) {
+			w.drop(n - 1)
+		}
+	}
+	w.literal()
 }
 
 // word scans a keyword or identifier, or a prefixed string such as E'…', N'…', X'…', B'…', U&'…'
-// or Oracle's q'[…]', and turns TRUE and FALSE into literals.
-func (l *lexer) word() token {
-	start := l.i
-	l.skipWhile(isIdentChar)
-	w := lowerASCII(l.s[start:l.i])
+// or Oracle's q'[…]', and writes it lower-cased, or "?" for a string, TRUE or FALSE.
+func (w *sqlWriter) word() {
+	s, start := w.s, w.i
+	if c := w.at(1); (c == '\'' || c == '&' || c|0x20 == 'q') && w.prefixedString() {
+		w.literal()
+		return
+	}
+	w.begin(tagWord, s[start])
+	k := len(w.out)
+	if cap(w.out)-k < len(s)-start {
+		w.out = slices.Grow(w.out, len(s)-start)
+	}
+	dst := w.out[k:cap(w.out)]
+	var key uint64 // the lower-cased word, a byte a byte; complete for words of up to 8 bytes
+	n, h := 0, w.h
+	for ; start+n < len(s); n++ {
+		c := s[start+n]
+		f := sqlBytes[c]
+		if f&bIdentChar == 0 {
+			break
+		}
+		c |= f & bUpper
+		dst[n] = c
+		key = key<<8 | uint64(c)
+		h = (h ^ uint64(c)) * fnvPrime
+	}
+	w.out = w.out[:k+n] // extend by reslicing, as in write
+	w.i = start + n
+	t := tagWord
+	if n <= 8 {
+		t = lookupWordTag(key)
+	} else if n == 9 && string(dst[:n]) == "returning" {
+		t = tagSignKW
+	}
+	if t == tagLiteral { // true or false
+		w.out = w.out[:k]
+		w.put('?')
+	} else {
+		w.h = h
+	}
+	w.toks[len(w.toks)-1].tag = t
+}
+
+// prefixedString reports whether a prefixed string (E'…', N'…', X'…', B'…', U&'…' or Oracle's
+// q'[…]') starts at w.i and, if so, skips it.
+func (w *sqlWriter) prefixedString() bool {
+	a, next := w.s[w.i]|0x20, w.at(1)
 	switch {
-	case l.at(0) == '\'' && (w == "e" || w == "n" || w == "x" || w == "b"):
-		l.i, _ = skipQuoted(l.s, l.i+1, '\'', l.d.backslash || w == "e")
-	case l.at(0) == '\'' && l.d.qQuote && (w == "q" || w == "nq"):
-		closer := l.at(1)
+	case next == '\'' && (a == 'e' || a == 'n' || a == 'x' || a == 'b'):
+		w.i, _ = skipQuoted(w.s, w.i+2, '\'', w.d.backslash || a == 'e')
+	case w.d.qQuote && (a == 'q' && next == '\'' || a == 'n' && next|0x20 == 'q' && w.at(2) == '\''):
+		quote := w.i + 1
+		if a == 'n' {
+			quote++
+		}
+		closer := byte(0) // past the end: never found
+		if quote+1 < len(w.s) {
+			closer = w.s[quote+1]
+		}
 		switch closer {
 		case '[', '{', '<':
 			closer += 2 // ']', '}', '>'
 		case '(':
 			closer = ')'
 		}
-		l.skipPast(string(closer)+"'", l.i+2)
-	case w == "u" && l.at(0) == '&' && l.at(1) == '\'':
-		l.i, _ = skipQuoted(l.s, l.i+2, '\'', false)
-	case w != "true" && w != "false":
-		return token{kWord, w}
+		end := [2]byte{closer, '\''}
+		w.skipPast(string(end[:]), quote+2)
+	case a == 'u' && next == '&' && w.at(2) == '\'':
+		w.i, _ = skipQuoted(w.s, w.i+3, '\'', false)
+	default:
+		return false
 	}
-	return qmark()
+	return true
 }
 
-// percentBind reports whether a %s or %(name)s parameter starts at l.i and, if so, skips it.
-func (l *lexer) percentBind() bool {
-	j := l.i + 1
-	if j < len(l.s) && l.s[j] == '(' {
-		for j++; j < len(l.s) && isIdentChar(l.s[j]); j++ {
+// wordTagEntry is a slot of the open-addressing table that lookupWordTag reads.
+type wordTagEntry struct {
+	key uint64 // a word packed as in sqlWriter.word; 0 for an empty slot
+	tag tag
+}
+
+// wordTags is a hash table, built once, of the words that are not plain tagWord words: TRUE and
+// FALSE (tagLiteral), IN, VALUES and the other keywords after which a sign belongs to the number
+// that follows ("returning", the one such keyword longer than 8 bytes, is checked by word).
+var wordTags = func() (table [128]wordTagEntry) {
+	add := func(t tag, words string) {
+		for _, w := range strings.Fields(words) {
+			var key uint64
+			for i := range len(w) {
+				key = key<<8 | uint64(w[i])
+			}
+			i := wordTagSlot(key)
+			for table[i].key != 0 {
+				i = (i + 1) % len(table)
+			}
+			table[i] = wordTagEntry{key, t}
 		}
-		if j >= len(l.s) || l.s[j] != ')' {
+	}
+	add(tagLiteral, "true false")
+	add(tagIn, "in")
+	add(tagValues, "values")
+	add(tagSignKW, `all and any as between by case distinct else escape exists from having ilike into is
+		like limit not offset on or return select set some then top when where with`)
+	return table
+}()
+
+// wordTagSlot returns the first slot of wordTags to probe for key.
+func wordTagSlot(key uint64) int { return int(key * 0x9e3779b97f4a7c15 >> 57) }
+
+// lookupWordTag returns the tag of the word packed in key (see sqlWriter.word).
+func lookupWordTag(key uint64) tag {
+	for i := wordTagSlot(key); ; i = (i + 1) % len(wordTags) {
+		switch e := wordTags[i]; e.key {
+		case key:
+			return e.tag
+		case 0:
+			return tagWord
+		}
+	}
+}
+
+// percentBind reports whether a %s or %(name)s parameter starts at w.i and, if so, skips it.
+func (w *sqlWriter) percentBind() bool {
+	j := w.i + 1
+	if j < len(w.s) && w.s[j] == '(' {
+		for j++; j < len(w.s) && sqlBytes[w.s[j]]&bIdentChar != 0; j++ {
+		}
+		if j >= len(w.s) || w.s[j] != ')' {
 			return false
 		}
 		j++
 	}
-	if j < len(l.s) && l.s[j] == 's' && (j+1 == len(l.s) || !isIdentChar(l.s[j+1])) {
-		l.i = j + 1
+	if j < len(w.s) && w.s[j] == 's' && (j+1 == len(w.s) || sqlBytes[w.s[j+1]]&bIdentChar == 0) {
+		w.i = j + 1
 		return true
 	}
 	return false
 }
 
-// operator scans the longest known operator at l.i, else one byte of punctuation.
-func (l *lexer) operator() token {
-	for _, op := range [...]string{"->>", "#>>", "!~*", "::", ":=", "<=", ">=", "<>", "!=", "==",
-		"||", "&&", "<<", ">>", "->", "#>", "@>", "<@", "~*", "!~", "=>"} {
-		if !isOpByte(l.at(1)) { // every operator above is made of operator bytes
-			break
-		}
-		if strings.HasPrefix(l.s[l.i:], op) {
-			l.i += len(op)
-			return token{kOp, op}
-		}
-	}
-	l.i++
-	return token{kOp, l.s[l.i-1 : l.i]}
-}
-
-// normaliser builds the output token list, joining signs to numbers and collapsing IN lists and
-// repeated VALUES rows as their groups close.
-type normaliser struct {
-	out   []token
-	opens []int  // indexes in out of unmatched "("
-	row   [2]int // out[row[0]:row[1]] is the last VALUES row kept
-}
-
-func (n *normaliser) add(t token) {
+// operator scans the longest known operator at w.i, else one byte of punctuation, and writes it.
+// A ")" that closes a "(" may collapse the group.
+func (w *sqlWriter) operator() {
+	c, d, n := w.s[w.i], w.at(1), 1
 	switch {
-	case t.kind == kNumber:
-		if n.unarySign() {
-			n.out = n.out[:len(n.out)-1]
+	case sqlBytes[d]&bOp == 0: // every operator longer than a byte is made of operator bytes
+	case d == '>' && (c == '-' || c == '#'):
+		n = 2
+		if w.at(2) == '>' { // ->> or #>>
+			n = 3
 		}
-		t = qmark()
-	case t == (token{kOp, "("}):
-		n.opens = append(n.opens, len(n.out))
-	case t == (token{kOp, ")"}) && len(n.opens) > 0:
-		o := n.opens[len(n.opens)-1]
-		n.opens = n.opens[:len(n.opens)-1]
-		n.out = append(n.out, t)
-		n.closeGroup(o)
-		return
+	case c == '!' && d == '~':
+		n = 2
+		if w.at(2) == '*' { // !~*
+			n = 3
+		}
+	case c == ':' && (d == ':' || d == '='),
+		c == '<' && (d == '=' || d == '>' || d == '<' || d == '@'),
+		c == '>' && (d == '=' || d == '>'),
+		c == '!' && d == '=',
+		c == '=' && (d == '=' || d == '>'),
+		c == '|' && d == '|', c == '&' && d == '&', c == '@' && d == '>', c == '~' && d == '*':
+		n = 2
 	}
-	n.out = append(n.out, t)
+	t := tagOp
+	if n == 1 {
+		switch c {
+		case '(':
+			t = tagOpen
+		case ')':
+			t = tagClose
+		case ',':
+			t = tagComma
+		case '-':
+			t = tagMinus
+		case '+':
+			t = tagPlus
+		case '[':
+			t = tagLBracket
+		case ']':
+			t = tagRBracket
+		case '.':
+			t = tagDot
+		case ';':
+			t = tagSemi
+		}
+	} else if c == ':' && d == ':' {
+		t = tagCast
+	}
+	w.begin(t, c)
+	if n == 1 {
+		w.put(c)
+	} else {
+		w.write(w.s[w.i:w.i+n], false)
+	}
+	w.i += n
+	switch {
+	case t == tagOpen:
+		w.opens = append(w.opens, int32(len(w.toks)-1))
+	case t == tagClose && len(w.opens) > 0:
+		o := int(w.opens[len(w.opens)-1])
+		w.opens = w.opens[:len(w.opens)-1]
+		w.closeGroup(o)
+	}
 }
 
-// unarySign reports whether the last token is a sign that belongs to the number that follows:
-// one at the start or after an operator, "(", "," or a keyword.
-func (n *normaliser) unarySign() bool {
-	k := len(n.out)
-	if k == 0 || n.out[k-1] != (token{kOp, "-"}) && n.out[k-1] != (token{kOp, "+"}) {
+// closeGroup handles the group toks[o:] that a ")" has just closed: an IN list of literals and
+// placeholders becomes "in (?)", and a VALUES row equal to the row before it is dropped.
+func (w *sqlWriter) closeGroup(o int) {
+	toks := w.toks
+	switch {
+	case o > 0 && toks[o-1].tag == tagIn && isPlaceholderRun(toks[o+1:len(toks)-1]):
+		w.drop(o + 1)
+		w.literal()
+		w.begin(tagClose, ')')
+		w.put(')')
+	case o > 0 && toks[o-1].tag == tagValues:
+		w.row = [2]int32{int32(o), int32(len(toks))}
+	case o > 1 && int(w.row[1]) == o-1 && toks[o-1].tag == tagComma: // another row of the same VALUES
+		if w.sameRow(o) {
+			w.drop(o - 1)
+		} else {
+			w.row = [2]int32{int32(o), int32(len(toks))}
+		}
+	}
+}
+
+// isPlaceholderRun reports whether ts is "?" or "?, ?, …".
+func isPlaceholderRun(ts []sqlToken) bool {
+	for k, t := range ts {
+		if k%2 == 0 && t.tag != tagLiteral || k%2 == 1 && t.tag != tagComma {
+			return false
+		}
+	}
+	return len(ts)%2 == 1
+}
+
+// sameRow reports whether the group toks[o:] is the same token sequence as the last VALUES row:
+// the same tags at the same offsets over the same output bytes. Both groups start with "(", so
+// they are compared from there on, leaving out the space in front of them.
+func (w *sqlWriter) sameRow(o int) bool {
+	a, b := w.toks[w.row[0]:w.row[1]], w.toks[o:]
+	if len(a) != len(b) {
 		return false
 	}
-	if k == 1 {
-		return true
+	startA, startB := w.textStart(a[0]), w.textStart(b[0])
+	endA := w.toks[w.row[1]].at // the "," after the row
+	if string(w.out[startA:endA]) != string(w.out[startB:]) {
+		return false
 	}
-	switch p := n.out[k-2]; p.kind {
-	case kOp:
-		return p.text != ")" && p.text != "]"
-	case kWord:
-		return isSignKeyword(p.text)
-	}
-	return false
-}
-
-// isSignKeyword reports whether a sign after keyword w belongs to the number that follows.
-func isSignKeyword(w string) bool {
-	switch w {
-	case "all", "and", "any", "as", "between", "by", "case", "distinct", "else", "escape", "exists",
-		"from", "having", "ilike", "in", "into", "is", "like", "limit", "not", "offset", "on", "or",
-		"return", "returning", "select", "set", "some", "then", "top", "values", "when", "where", "with":
-		return true
-	}
-	return false
-}
-
-// closeGroup handles the group out[o:] that a ")" has just closed.
-func (n *normaliser) closeGroup(o int) {
-	out := n.out
-	switch {
-	case o > 0 && out[o-1] == (token{kWord, "in"}) && isPlaceholderList(out[o+1:len(out)-1]):
-		n.out = append(out[:o+1], qmark(), out[len(out)-1])
-	case o > 0 && out[o-1] == (token{kWord, "values"}):
-		n.row = [2]int{o, len(out)}
-	case o > 1 && n.row[1] == o-1 && out[o-1] == (token{kOp, ","}): // another row of the same VALUES
-		if slices.Equal(out[n.row[0]:n.row[1]], out[o:]) {
-			n.out = out[:o-1]
-		} else {
-			n.row = [2]int{o, len(out)}
+	for k := 1; k < len(a); k++ {
+		if a[k].tag != b[k].tag || a[k].at-startA != b[k].at-startB {
+			return false
 		}
 	}
+	return true
+}
+
+// textStart returns the index in w.out of the first byte of t, after any space written before it
+// (no token starts with a space).
+func (w *sqlWriter) textStart(t sqlToken) int32 {
+	if w.out[t.at] == ' ' {
+		return t.at + 1
+	}
+	return t.at
+}
+
+// sqlBuffers holds the buffers of an sqlWriter between statements.
+type sqlBuffers struct {
+	out   []byte
+	toks  []sqlToken
+	opens []int32
+}
+
+// sqlBufferPool keeps sqlBuffers for reuse, so that fingerprinting a statement allocates only its
+// result.
+var sqlBufferPool = sync.Pool{New: func() any { return new(sqlBuffers) }}
+
+// fingerprintSQL returns the Statement of SQL raw in dialect d.
+func fingerprintSQL(d dialect, raw string) Statement {
+	buf := sqlBufferPool.Get().(*sqlBuffers)
+	w := sqlWriter{d: d, s: raw, out: buf.out[:0], h: fnvOffset, toks: buf.toks[:0], opens: buf.opens[:0]}
+	w.run()
+	st := Statement{Text: string(w.out), ID: w.h}
+	buf.out, buf.toks, buf.opens = w.out, w.toks, w.opens
+	sqlBufferPool.Put(buf)
+	return st
 }
 
 // isPlaceholderList reports whether ts is "?" or "?, ?, …".
@@ -407,22 +813,6 @@ func isPlaceholderList(ts []token) bool {
 		}
 	}
 	return len(ts)%2 == 1
-}
-
-func fingerprintSQL(d dialect, raw string) string {
-	l := lexer{d: d, s: raw}
-	n := normaliser{out: make([]token, 0, len(raw)/4)}
-	for t, ok := l.next(); ok; t, ok = l.next() {
-		n.add(t)
-	}
-	return joinTokens(n.out, func(a, b token) bool {
-		after := a.kind == kOp && (a.text == "(" || a.text == "[" || a.text == "." || a.text == "::")
-		before := b.kind == kOp && strings.Contains(",)];.[", b.text) || b == (token{kOp, "::"})
-		// Keep a space where two operator bytes or "]" and "]" would touch (as in "[x] ]"), so that
-		// the text lexes into the same tokens.
-		x, y := a.text[len(a.text)-1], b.text[0]
-		return (after || before) && !(isOpByte(x) && isOpByte(y)) && !(x == ']' && y == ']')
-	})
 }
 
 // joinTokens writes ts separated by single spaces, except where glue(a, b) says none.
@@ -569,53 +959,19 @@ func isDigit(c byte) bool      { return '0' <= c && c <= '9' }
 func isLetter(c byte) bool     { return 'a' <= c|0x20 && c|0x20 <= 'z' }
 func isIdentStart(c byte) bool { return isLetter(c) || c == '_' || c >= 0x80 }
 func isIdentChar(c byte) bool  { return isIdentStart(c) || isDigit(c) || c == '$' }
-func isOpByte(c byte) bool     { return strings.IndexByte("!#%&*+-/:<=>@^|~", c) >= 0 }
-
-// sqlKeywords holds common SQL keywords, lower case, so that lowerASCII
-// can return them without allocating (most statements spell them in
-// upper case).
-var sqlKeywords = func() map[string]string {
-	m := map[string]string{}
-	for _, k := range strings.Fields(`select from where and or not in is null as on join left right inner outer
-		cross full group by order having limit offset insert into values update set delete create table
-		index drop alter distinct union all exists between like case when then else end asc desc count
-		sum avg min max returning with for share nowait skip locked top fetch next rows only coalesce
-		lower upper cast interval now current_timestamp primary key default conflict do nothing`) {
-		m[k] = k
-	}
-	return m
-}()
 
 // lowerASCII lower-cases the ASCII letters of s and leaves every other byte alone.
 func lowerASCII(s string) string {
-	i := -1
-	for j := 0; j < len(s); j++ {
-		if 'A' <= s[j] && s[j] <= 'Z' {
-			i = j
-			break
-		}
-	}
-	if i < 0 {
-		return s
-	}
-	if len(s) <= 32 {
-		var buf [32]byte
-		n := copy(buf[:], s)
-		for j := i; j < n; j++ {
-			if 'A' <= buf[j] && buf[j] <= 'Z' {
-				buf[j] += 'a' - 'A'
+	for i := 0; i < len(s); i++ {
+		if s[i]-'A' < 26 {
+			b := []byte(s)
+			for ; i < len(b); i++ {
+				if b[i]-'A' < 26 {
+					b[i] += 'a' - 'A'
+				}
 			}
-		}
-		if k, ok := sqlKeywords[string(buf[:n])]; ok { // no allocation for the lookup
-			return k
-		}
-		return string(buf[:n])
-	}
-	b := []byte(s)
-	for ; i < len(b); i++ {
-		if 'A' <= b[i] && b[i] <= 'Z' {
-			b[i] += 'a' - 'A'
+			return string(b)
 		}
 	}
-	return string(b)
+	return s
 }

@@ -384,3 +384,34 @@ func BenchmarkFingerprint(b *testing.B) {
 		})
 	}
 }
+
+// BenchmarkFingerprintTypical fingerprints, one per operation in turn, statements shaped like
+// those of the span generator: short SQL with a few literals, an IN list and a VALUES row.
+func BenchmarkFingerprintTypical(b *testing.B) {
+	stmts := []struct{ system, raw string }{
+		{"postgresql", "SELECT id, name, price_cents FROM varieties WHERE id = 417"},
+		{"postgresql", "SELECT id FROM categories WHERE parent_id = 12"},
+		{"postgresql", "SELECT variety_id, qty, price_cents FROM cart_lines WHERE cart_id = 90211"},
+		{"postgresql", "UPDATE stock SET qty = qty - 3 WHERE variety_id = 118"},
+		{"postgresql", "INSERT INTO orders (cart_id, total_cents, placed_at) VALUES (90211, 12450, now())"},
+		{"postgresql", "SELECT data, expires_at FROM sessions WHERE token = '5a64ea8a7b0b7a0e'"},
+		{"postgresql", "SELECT v.id, v.name FROM varieties v JOIN stock s ON s.variety_id = v.id WHERE s.qty > 4 AND v.light IN ('full', 'partial') LIMIT 20"},
+		{"postgresql", "DELETE FROM cart_lines WHERE cart_id = 90211 AND variety_id = 33"},
+		{"mysql", "SELECT id, name, price FROM plants WHERE id IN (1, 2, 3, 5, 8, 13) AND `light` = 'full' # list"},
+		{"postgresql", "SELECT date_trunc('day', o.placed_at) AS day, v.name, sum(l.qty) AS units, " +
+			"sum(l.qty * l.price_cents) AS revenue_cents FROM order_lines l JOIN orders o ON o.id = l.order_id " +
+			"JOIN varieties v ON v.id = l.variety_id WHERE o.placed_at >= '2026-03-01' AND o.placed_at < '2026-04-01' " +
+			"GROUP BY day, v.name ORDER BY day, revenue_cents DESC"},
+	}
+	var bytes int64
+	for _, s := range stmts {
+		bytes += int64(len(s.raw))
+	}
+	b.SetBytes(bytes / int64(len(stmts)))
+	i := 0
+	for b.Loop() {
+		s := stmts[i%len(stmts)]
+		Fingerprint(s.system, s.raw)
+		i++
+	}
+}
