@@ -1,6 +1,8 @@
 package attribute
 
 import (
+	"cmp"
+	"slices"
 	"sort"
 	"strconv"
 
@@ -150,13 +152,16 @@ func (s *reqSet) add(r traces.RequestID) {
 type reqStat struct{ n, cost int64 }
 
 type causeAcc struct {
-	cause     *Cause
-	details   []*Detail                // by detail ID (see Attribute); nil: none
-	entries   []*EntryShare            // by entryState.idx; nil: none
-	sites     map[traces.FrameID]int64 // the root cause's frame: file and line
-	perReq    map[traces.RequestID]reqStat
-	stmtReq   map[uint64]int64 // (detail ID, request) → calls
-	recursion int              // deepest recursion seen, for recursive-access
+	cause   *Cause
+	details []*Detail                // by detail ID (see Attribute); nil: none
+	entries []*EntryShare            // by entryState.idx; nil: none
+	sites   map[traces.FrameID]int64 // the root cause's frame: file and line
+	// perReq tallies each request; stmtReq each (detail, request): one
+	// entry per run of paths until flush merges them, sorted by request
+	// and by detail and request.
+	perReq    []reqTally
+	stmtReq   []stmtTally
+	recursion int // deepest recursion seen, for recursive-access
 	recCost   int64
 
 	// The current run of paths of one request and one call site, added to
@@ -168,6 +173,19 @@ type causeAcc struct {
 	runStmts []stmtCalls
 	runSite  traces.FrameID
 	runSiteV int64
+}
+
+// reqTally is a root cause's tally in one request.
+type reqTally struct {
+	req traces.RequestID
+	reqStat
+}
+
+// stmtTally is the calls of one detail in one request.
+type stmtTally struct {
+	did   int32
+	req   traces.RequestID
+	calls int64
 }
 
 // stmtCalls is a detail's call count within one request.
@@ -409,10 +427,8 @@ func accFor(accs map[string]*causeAcc, fn string, noApp bool) *causeAcc {
 	acc := accs[fn]
 	if acc == nil {
 		acc = &causeAcc{
-			cause:   &Cause{Function: fn, NoAppFrame: noApp},
-			sites:   map[traces.FrameID]int64{},
-			perReq:  map[traces.RequestID]reqStat{},
-			stmtReq: map[uint64]int64{},
+			cause: &Cause{Function: fn, NoAppFrame: noApp},
+			sites: map[traces.FrameID]int64{},
 		}
 		accs[fn] = acc
 	}
@@ -480,10 +496,42 @@ func (a *causeAcc) add(val, samples, calls int64, kind Kind, did int32, dk *deta
 	}
 }
 
-// flush adds the current runs to the maps.
+// flush ends the current runs and merges the tallies of each request
+// (the runs of a request are apart when its paths are: profiles).
 func (a *causeAcc) flush() {
 	a.flushSite()
 	a.flushRequest()
+	slices.SortFunc(a.perReq, func(x, y reqTally) int { return cmp.Compare(x.req, y.req) })
+	a.perReq = mergeRuns(a.perReq, func(x, y *reqTally) bool {
+		if x.req != y.req {
+			return false
+		}
+		x.n, x.cost = x.n+y.n, x.cost+y.cost
+		return true
+	})
+	slices.SortFunc(a.stmtReq, func(x, y stmtTally) int {
+		return cmp.Or(cmp.Compare(x.did, y.did), cmp.Compare(x.req, y.req))
+	})
+	a.stmtReq = mergeRuns(a.stmtReq, func(x, y *stmtTally) bool {
+		if x.did != y.did || x.req != y.req {
+			return false
+		}
+		x.calls += y.calls
+		return true
+	})
+}
+
+// mergeRuns merges each element into the one before it where merge
+// agrees to (adding it up), in place.
+func mergeRuns[T any](s []T, merge func(into, from *T) bool) []T {
+	out := s[:0]
+	for i := range s {
+		if len(out) > 0 && merge(&out[len(out)-1], &s[i]) {
+			continue
+		}
+		out = append(out, s[i])
+	}
+	return out
 }
 
 func (a *causeAcc) flushSite() {
@@ -497,14 +545,9 @@ func (a *causeAcc) flushRequest() {
 	if a.runReq == 0 {
 		return
 	}
-	if a.perReq == nil {
-		a.perReq = map[traces.RequestID]reqStat{}
-		a.stmtReq = map[uint64]int64{}
-	}
-	st := a.perReq[a.runReq]
-	a.perReq[a.runReq] = reqStat{st.n + a.run.n, st.cost + a.run.cost}
+	a.perReq = append(a.perReq, reqTally{a.runReq, a.run})
 	for _, sc := range a.runStmts {
-		a.stmtReq[uint64(uint32(sc.did))<<32|uint64(uint32(a.runReq))] += sc.calls
+		a.stmtReq = append(a.stmtReq, stmtTally{sc.did, a.runReq, sc.calls})
 	}
 	a.run, a.runReq, a.runStmts = reqStat{}, 0, a.runStmts[:0]
 }

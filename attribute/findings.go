@@ -2,7 +2,6 @@ package attribute
 
 import (
 	"fmt"
-	"slices"
 	"sort"
 
 	"github.com/culprithq/culprit/callgraph"
@@ -224,19 +223,15 @@ func findings(res *Result, accs map[string]*causeAcc, o FindingOptions, denom in
 		if seen == 0 {
 			continue
 		}
-		// Regroup the flat (detail, request) tallies by detail, in ID order.
-		byDetail := map[int32][]int64{}
-		var ids []int32
-		for k, n := range acc.stmtReq {
-			did := int32(k >> 32)
-			if _, ok := byDetail[did]; !ok {
-				ids = append(ids, did)
+		// The (detail, request) tallies are sorted by detail: one run each.
+		for lo := 0; lo < len(acc.stmtReq); {
+			did := acc.stmtReq[lo].did
+			hi := lo + 1
+			for hi < len(acc.stmtReq) && acc.stmtReq[hi].did == did {
+				hi++
 			}
-			byDetail[did] = append(byDetail[did], n)
-		}
-		slices.Sort(ids)
-		for _, did := range ids {
-			perReq := byDetail[did]
+			perReq := acc.stmtReq[lo:hi]
+			lo = hi
 			dk := acc.details[did]
 			min := o.RepeatMin
 			kind := "repeated-statement"
@@ -245,9 +240,9 @@ func findings(res *Result, accs map[string]*causeAcc, o FindingOptions, denom in
 				kind = "per-item-calls"
 			}
 			var counts []float64
-			for _, n := range perReq {
-				if n >= int64(min) {
-					counts = append(counts, float64(n))
+			for _, st := range perReq {
+				if st.calls >= int64(min) {
+					counts = append(counts, float64(st.calls))
 				}
 			}
 			if len(counts) == 0 || float64(len(counts)) < o.MinRequestShare*float64(seen) {

@@ -134,16 +134,16 @@ func (c *SpanCollector) Source() (*Source, error) {
 	}()
 	var nodes []node
 	for part := range parts {
-		recs, order := part.recs, part.order
+		order := part.order
 		for i := 0; i < len(order); {
-			first := &recs[order[i]]
+			first := part.at(order[i])
 			j := i + 1
-			for j < len(order) && recs[order[j]].traceHi == first.traceHi && recs[order[j]].traceLo == first.traceLo {
+			for j < len(order) && part.at(order[j]).traceHi == first.traceHi && part.at(order[j]).traceLo == first.traceLo {
 				j++
 			}
 			nodes = nodes[:0]
 			for _, o := range order[i:j] {
-				r := &recs[o]
+				r := part.at(o)
 				if len(nodes) > 0 && nodes[len(nodes)-1].rec.id == r.id {
 					kept := &nodes[len(nodes)-1].rec
 					if err := as.repair(r, WarnDuplicateSpanID, fmt.Sprintf("span %s of trace %s also read at %s:%d; the first one is kept",

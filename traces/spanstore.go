@@ -70,31 +70,28 @@ func (s *spanStore) truncate(m storeMark) {
 	}
 }
 
-// sortedPart is one partition's spans in one slice, and their order by
-// trace ID, span ID and input order (of spans with the same IDs the
-// first read comes first).
+// sortedPart is one partition's spans, still in their chunks, and their
+// order by trace ID, span ID and input order (of spans with the same IDs
+// the first read comes first).
 type sortedPart struct {
-	recs  []spanRec
-	order []int32
+	chunks [][]spanRec
+	order  []int32
 }
+
+// at returns span i of the partition (an index in order).
+func (p *sortedPart) at(i int32) *spanRec { return &p.chunks[i/spanChunk][i%spanChunk] }
 
 // takeSorted removes partition k from the store and returns it sorted.
 // Partitions cover increasing ranges of trace IDs, so taking them in
 // order gives all spans in trace order.
 func (s *spanStore) takeSorted(k int) sortedPart {
-	p := &s.parts[k]
-	recs := make([]spanRec, 0, p.n)
-	for i, c := range p.chunks {
-		recs = append(recs, c...)
-		p.chunks[i] = nil
+	sp := sortedPart{chunks: s.parts[k].chunks, order: make([]int32, s.parts[k].n)}
+	s.parts[k] = spanPart{}
+	for i := range sp.order {
+		sp.order[i] = int32(i)
 	}
-	*p = spanPart{}
-	order := make([]int32, len(recs))
-	for i := range order {
-		order[i] = int32(i)
-	}
-	slices.SortFunc(order, func(x, y int32) int {
-		a, b := &recs[x], &recs[y]
+	slices.SortFunc(sp.order, func(x, y int32) int {
+		a, b := sp.at(x), sp.at(y)
 		switch {
 		case a.traceHi != b.traceHi:
 			return cmp.Compare(a.traceHi, b.traceHi)
@@ -105,5 +102,5 @@ func (s *spanStore) takeSorted(k int) sortedPart {
 		}
 		return cmp.Compare(x, y)
 	})
-	return sortedPart{recs: recs, order: order}
+	return sp
 }

@@ -7,6 +7,7 @@ import (
 	"io/fs"
 	"os"
 	"path/filepath"
+	"runtime/debug"
 	"sort"
 	"strings"
 
@@ -186,7 +187,9 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 			return nil, err
 		}
 	}
-	return loader.Source()
+	src, err := loader.Source()
+	debug.FreeOSMemory()
+	return src, err
 }
 
 // ctxReader fails its reads once ctx is done, so that an interrupt stops
