@@ -39,17 +39,39 @@ type decoder struct {
 	slow bool
 	// stmts caches Options.Statement results by system and raw text:
 	// instrumentation mostly records parameterised statements, which
-	// repeat exactly. Bounded; keys are copies, never job data.
-	stmts map[string]string
+	// repeat exactly. Bounded; keys are copies, never job data. When
+	// statements carry literals the cache never hits and only costs
+	// (a key copy and two hashes a span), so it switches itself off for a
+	// while when fewer than one lookup in 8 hits (stmtSkip).
+	stmts                 map[string]string
+	stmtLookups, stmtHits int
+	stmtSkip              int
 }
 
-// maxStatementCache bounds a decoder's statement cache (entries).
-const maxStatementCache = 8192
+// Statement cache bounds: entries, lookups per hit-rate check, and
+// statements normalised without the cache after a poor check.
+const (
+	maxStatementCache = 8192
+	stmtCheckEvery    = 4096
+	stmtSkipFor       = 1 << 16
+)
 
 // statement applies Options.Statement through the cache.
 func (d *decoder) statement(system, raw string) string {
+	if d.stmtSkip > 0 {
+		d.stmtSkip--
+		return d.c.opts.Statement(system, raw)
+	}
+	if d.stmtLookups++; d.stmtLookups == stmtCheckEvery {
+		if d.stmtHits*8 < d.stmtLookups {
+			d.stmtSkip = stmtSkipFor
+			d.stmts = nil
+		}
+		d.stmtLookups, d.stmtHits = 0, 0
+	}
 	key := system + "\x00" + raw // a new string: safe to keep past the job
 	if v, ok := d.stmts[key]; ok {
+		d.stmtHits++
 		return v
 	}
 	v := d.c.opts.Statement(system, raw)

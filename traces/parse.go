@@ -58,7 +58,10 @@ func (l *Loader) Add(name string, r io.Reader) error {
 
 func (l *Loader) add(name string, r io.Reader) error {
 	hash := sha256.New()
-	counted := &countingReader{r: io.TeeReader(r, hash)}
+	if !l.opts.SkipDigest {
+		r = io.TeeReader(r, hash)
+	}
+	counted := &countingReader{r: r}
 	br := bufio.NewReaderSize(counted, 64<<10)
 	// Unwrap gzip layers (a gzipped .pb.gz is not rare), each inside the
 	// ratio and size limits, so that no decoder downstream ever sees gzip:
@@ -143,7 +146,9 @@ func (l *Loader) add(name string, r io.Reader) error {
 		return readError(name, err, counted.n)
 	}
 	in.Bytes = counted.n
-	in.SHA256 = hex.EncodeToString(hash.Sum(nil))
+	if !l.opts.SkipDigest {
+		in.SHA256 = hex.EncodeToString(hash.Sum(nil))
+	}
 	l.inputs = append(l.inputs, in)
 	return nil
 }

@@ -2,6 +2,8 @@ package traces
 
 import (
 	"bytes"
+	"crypto/sha256"
+	"encoding/hex"
 	"errors"
 	"strings"
 	"testing"
@@ -222,4 +224,28 @@ func itoa(n int64) string {
 		n /= 10
 	}
 	return s
+}
+
+// TestInputDigest checks the input's SHA-256 against crypto/sha256 over
+// the file's bytes (FIPS 180-4), and that SkipDigest leaves it empty.
+func TestInputDigest(t *testing.T) {
+	data := encode(t, testProfile("samples/count"), true)
+	want := sha256.Sum256(data)
+	for _, skip := range []bool{false, true} {
+		l := NewLoader(Options{SkipDigest: skip})
+		if err := l.Add("p.pb.gz", bytes.NewReader(data)); err != nil {
+			t.Fatal(err)
+		}
+		src, err := l.Source()
+		if err != nil {
+			t.Fatal(err)
+		}
+		got := src.Inputs[0].SHA256
+		if skip && got != "" || !skip && got != hex.EncodeToString(want[:]) {
+			t.Errorf("SkipDigest=%v: SHA256 %q", skip, got)
+		}
+		if src.Inputs[0].Bytes != int64(len(data)) {
+			t.Errorf("SkipDigest=%v: %d bytes, want %d", skip, src.Inputs[0].Bytes, len(data))
+		}
+	}
 }

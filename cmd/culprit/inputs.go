@@ -37,6 +37,8 @@ type analysisFlags struct {
 	// fsys, when set, is where inputs are opened (the embedded demo data);
 	// names are then taken as given, without directory expansion.
 	fsys fs.FS
+	// skipDigest spares hashing the inputs when nothing shows the digests.
+	skipDigest bool
 }
 
 func (f *analysisFlags) register(cmd *cobra.Command) {
@@ -137,10 +139,11 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 		}
 	}
 	opts := traces.Options{
-		Limits:    f.Limits,
-		KeepGoing: f.KeepGoing,
-		Strict:    f.Strict,
-		Service:   f.Service,
+		Limits:     f.Limits,
+		KeepGoing:  f.KeepGoing,
+		Strict:     f.Strict,
+		Service:    f.Service,
+		SkipDigest: f.skipDigest,
 	}
 	if !f.ShowLiterals {
 		// Fingerprint while decoding: literals never reach memory, and calls

@@ -77,6 +77,8 @@ func runRank(ctx context.Context, opts *rankOptions) error {
 	if err != nil {
 		return &usageError{err: err}
 	}
+	// The text and CSV reports do not show the inputs' digests.
+	opts.analysis.skipDigest = (format == "text" || format == "csv") && opts.save == ""
 	rules, err := opts.analysis.rules()
 	if err != nil {
 		return err
