@@ -2,9 +2,12 @@ package attribute
 
 import (
 	"cmp"
+	"math/bits"
+	"runtime"
 	"slices"
 	"sort"
 	"strconv"
+	"sync"
 
 	"github.com/culprithq/culprit/callgraph"
 	"github.com/culprithq/culprit/traces"
@@ -31,6 +34,10 @@ type Options struct {
 	ShowLiterals bool
 	// Thresholds for findings; zero fields take their defaults.
 	Findings FindingOptions
+
+	// shards, when positive, is how many goroutines charge a span source
+	// (tests); 0 picks one per core for large sources.
+	shards int
 }
 
 // Default label keys.
@@ -135,6 +142,20 @@ type reqSet struct {
 	n    int
 }
 
+// union adds the members of o.
+func (s *reqSet) union(o *reqSet) {
+	if len(o.bits) > len(s.bits) {
+		s.bits = append(s.bits, make([]uint64, len(o.bits)-len(s.bits))...)
+	}
+	s.n = 0
+	for i := range s.bits {
+		if i < len(o.bits) {
+			s.bits[i] |= o.bits[i]
+		}
+		s.n += bits.OnesCount64(s.bits[i])
+	}
+}
+
 func (s *reqSet) add(r traces.RequestID) {
 	w := int(r) >> 6
 	if w >= len(s.bits) {
@@ -226,155 +247,28 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		App:           AppInfo{Prefixes: c.rules.App, Detected: c.Detected, RulesFiles: c.rules.Files},
 		Warnings:      src.Warnings.Strings(),
 	}
-	sampleIx := sampleIndex(src, vi)
-	accs := map[string]*causeAcc{}
-	accOf := make([]*causeAcc, len(src.Frames)) // root-cause frame → its accumulator
-	entryOf := map[entryKey]*entryState{}       // cached entry point per leaf and labels
-	var lastEK entryKey                         // and the last one looked up
-	var lastES *entryState
-	entries := map[string]*entryState{} // by name
-	detailOf := map[uint64]int32{}      // (boundary frame, call) → detail ID
-	detailIDs := map[detailKey]int32{}  // detail → ID
-	var detailList []detailKey          // ID → detail
-	var requests reqSet
-	inclusiveKeys := map[callgraph.NodeID][]callgraph.NodeID{}
-	labelReq := map[string]traces.RequestID{}
-	var reqNames []string
-
-	for pi := range src.Paths.Len() {
-		path := src.Paths.At(pi)
-		p := &path
-		leaf := t.Leaf(pi)
-		val := p.Values[vi]
-		samples := int64(1)
-		if sampleIx >= 0 {
-			samples = p.Values[sampleIx]
-		}
-		req := p.Request
-		if req == 0 && !spans {
-			req = requestFromLabels(p.Labels, requestLabels, labelReq, &reqNames)
-		}
-		if req != 0 {
-			requests.add(req)
-		}
-		at := leaf
-		if b := w.boundary[leaf]; b != 0 {
-			at = b
-		}
-		ek := entryKey{w.entry[at], w.entryApp[at], p.Frames[0], p.Labels}
-		es := lastES
-		if ek != lastEK || es == nil {
-			es = entryOf[ek]
-		}
-		if es == nil {
-			name := entryName(src, t, w, p, leaf, entryLabels)
-			if es = entries[name]; es == nil {
-				es = &entryState{name: name, idx: len(entries), total: &EntryTotal{Entry: name}}
-				entries[name] = es
-			}
-			entryOf[ek] = es
-		}
-		lastEK, lastES = ek, es
-		et := es.total
-		if req != 0 {
-			es.reqs.add(req)
-		}
-		rootPath := len(p.Frames) == 1
-		if !spans || rootPath {
-			res.Totals.Cost += val
-			res.Totals.Samples += samples
-			if !spans || rootPath {
-				et.Cost += val
-			}
-		}
-		b := w.boundary[leaf]
-		if b == 0 || (spans && len(p.Frames) > t.Depth(b)) {
-			// No boundary (other cost), or a span inside an outbound call.
-			continue
-		}
-		kind := KindDatabase
-		if c.Verdict(t.Frame(b)).Class == Network {
-			kind = KindNetwork
-		}
-		if kind == KindDatabase {
-			res.Totals.Database += val
-			et.Database += val
-		} else {
-			res.Totals.Network += val
-			et.Network += val
-		}
-		res.Totals.BoundarySamples += samples
-		calls := int64(0)
-		if spans {
-			calls = 1
-			if len(p.Values) > 1 {
-				calls = p.Values[1]
-			}
-		}
-		sys := pathSystem(c, t, w, p, leaf, b)
-		dkey := uint64(uint32(t.Frame(b)))<<32 | uint64(uint32(p.Call))
-		did, ok := detailOf[dkey]
-		if !ok || detailList[did].system != sys {
-			dk := detail(src, t, p, b, sys, kind, opts.ShowLiterals)
-			if did, ok = detailIDs[dk]; !ok {
-				did = int32(len(detailList))
-				detailIDs[dk] = did
-				detailList = append(detailList, dk)
-			}
-			if !ok {
-				detailOf[dkey] = did // the first system seen; others are looked up by value
-			}
-		}
-		dk := &detailList[did]
-
-		var causes []callgraph.NodeID
-		if opts.Inclusive {
-			var ok bool
-			if causes, ok = inclusiveKeys[b]; !ok {
-				causes = appAbove(t, c, b)
-				inclusiveKeys[b] = causes
-			}
-		} else if ra := w.lastApp[b]; ra != 0 {
-			causes = []callgraph.NodeID{ra}
-		}
-		if len(causes) == 0 {
-			res.Totals.Unattributed += val
-			acc := accFor(accs, NoAppFramePrefix+es.name, true)
-			acc.add(val, samples, calls, kind, did, dk, es, 0, req)
-			continue
-		}
-		recFn, depth := rec.at(b)
-		for _, ra := range causes {
-			acc := accOf[t.Frame(ra)]
-			if acc == nil {
-				acc = accFor(accs, src.Frames[t.Frame(ra)].Function, false)
-				accOf[t.Frame(ra)] = acc
-			}
-			site := t.Frame(ra)
-			if fr := &src.Frames[site]; fr.File == "" && fr.Line == 0 {
-				site = 0 // no call site known (spans without code.* attributes)
-			}
-			acc.add(val, samples, calls, kind, did, dk, es, site, req)
-			if recFn != "" && recFn == acc.cause.Function {
-				acc.recCost += val
-				if depth > acc.recursion {
-					acc.recursion = depth
-				}
-			}
-		}
-		if recFn != "" && !containsFunc(src, t, causes, recFn) {
-			// The recursive function is above the root cause: credit it too.
-			acc := accs[recFn]
-			if acc == nil {
-				acc = accFor(accs, recFn, false)
-				acc.cause.Kind = kind
-			}
-			acc.recCost += val
-			if depth > acc.recursion {
-				acc.recursion = depth
-			}
-		}
+	ch := &charger{
+		t: t, c: c, src: src, w: w, opts: &opts, vi: vi, spans: spans,
+		sampleIx: sampleIndex(src, vi), entryLabels: entryLabels, requestLabels: requestLabels,
 	}
+	shards := chargeShards(src, spans, opts.shards)
+	chs := make([]*charger, len(shards)-1)
+	var wg sync.WaitGroup
+	for i := range chs {
+		chs[i] = ch.fork(rec)
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			chs[i].run(shards[i], shards[i+1])
+		}()
+	}
+	wg.Wait()
+	ch = chs[0]
+	for _, o := range chs[1:] {
+		ch.merge(o)
+	}
+	res.Totals = ch.totals
+	accs, entries, requests := ch.accs, ch.entries, ch.requests
 
 	res.Totals.Requests = requests.n
 	if spans {
@@ -414,6 +308,279 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 	return res
 }
 
+// charger charges paths to root causes. Attribute runs one per shard of
+// the paths (a range of whole requests) and merges them in order: IDs are
+// given in order of first use, so the merged state is the one a single
+// charger over all the paths would have.
+type charger struct {
+	// Shared, read only.
+	t                          *callgraph.Tree
+	c                          *Classifier
+	src                        *traces.Source
+	w                          *walkState
+	opts                       *Options
+	vi, sampleIx               int
+	spans                      bool
+	entryLabels, requestLabels []string
+
+	rec           *recursionFinder // a copy per charger (it caches)
+	totals        Totals
+	accs          map[string]*causeAcc
+	accOf         []*causeAcc              // root-cause frame → its accumulator
+	entryOf       map[entryKey]*entryState // cached entry point per leaf and labels
+	lastEK        entryKey                 // and the last one looked up
+	lastES        *entryState
+	entries       map[string]*entryState // by name
+	entryList     []*entryState          // by idx
+	detailOf      map[uint64]int32       // (boundary frame, call) → detail ID
+	detailIDs     map[detailKey]int32    // detail → ID
+	detailList    []detailKey            // ID → detail
+	requests      reqSet
+	inclusiveKeys map[callgraph.NodeID][]callgraph.NodeID
+	labelReq      map[string]traces.RequestID
+	reqNames      []string
+}
+
+// fork returns a charger with ch's shared fields and empty state.
+func (ch *charger) fork(rec *recursionFinder) *charger {
+	return &charger{
+		t: ch.t, c: ch.c, src: ch.src, w: ch.w, opts: ch.opts, vi: ch.vi, sampleIx: ch.sampleIx, spans: ch.spans,
+		entryLabels: ch.entryLabels, requestLabels: ch.requestLabels,
+		rec:           rec.fork(),
+		accs:          map[string]*causeAcc{},
+		accOf:         make([]*causeAcc, len(ch.src.Frames)),
+		entryOf:       map[entryKey]*entryState{},
+		entries:       map[string]*entryState{},
+		detailOf:      map[uint64]int32{},
+		detailIDs:     map[detailKey]int32{},
+		inclusiveKeys: map[callgraph.NodeID][]callgraph.NodeID{},
+		labelReq:      map[string]traces.RequestID{},
+	}
+}
+
+// newEntry adds the entry point named name.
+func (ch *charger) newEntry(name string) *entryState {
+	es := &entryState{name: name, idx: len(ch.entryList), total: &EntryTotal{Entry: name}}
+	ch.entries[name] = es
+	ch.entryList = append(ch.entryList, es)
+	return es
+}
+
+// detailID returns the ID of detail dk, adding it if it is new.
+func (ch *charger) detailID(dk detailKey) (int32, bool) {
+	did, ok := ch.detailIDs[dk]
+	if !ok {
+		did = int32(len(ch.detailList))
+		ch.detailIDs[dk] = did
+		ch.detailList = append(ch.detailList, dk)
+	}
+	return did, ok
+}
+
+// merge adds the state of o, which charged the paths after ch's, to ch.
+// Details and entry points new to ch get the next IDs in o's order of
+// first use, as if ch had charged o's paths itself.
+func (ch *charger) merge(o *charger) {
+	t := &ch.totals
+	t.Cost += o.totals.Cost
+	t.Samples += o.totals.Samples
+	t.Database += o.totals.Database
+	t.Network += o.totals.Network
+	t.Unattributed += o.totals.Unattributed
+	t.BoundarySamples += o.totals.BoundarySamples
+	ch.requests.union(&o.requests)
+	didMap := make([]int32, len(o.detailList))
+	for i, dk := range o.detailList {
+		didMap[i], _ = ch.detailID(dk)
+	}
+	idxMap := make([]int, len(o.entryList))
+	for i, oe := range o.entryList {
+		es := ch.entries[oe.name]
+		if es == nil {
+			es = ch.newEntry(oe.name)
+		}
+		es.total.Cost += oe.total.Cost
+		es.total.Database += oe.total.Database
+		es.total.Network += oe.total.Network
+		es.reqs.union(&oe.reqs)
+		idxMap[i] = es.idx
+	}
+	for name, oa := range o.accs {
+		oa.flushSite()
+		oa.flushRequest()
+		a := ch.accs[name]
+		if a == nil {
+			a = accFor(ch.accs, name, oa.cause.NoAppFrame)
+			a.cause.Kind = oa.cause.Kind
+		}
+		a.mergeFrom(oa, didMap, idxMap)
+	}
+}
+
+// run charges paths lo to hi-1.
+func (ch *charger) run(lo, hi int) {
+	for pi := lo; pi < hi; pi++ {
+		ch.charge(pi)
+	}
+}
+
+// chargeShards splits the paths into ranges of whole requests, one per
+// core for large span sources (whose paths come request by request), else
+// one: it returns the ranges' bounds.
+func chargeShards(src *traces.Source, spans bool, want int) []int {
+	n := src.Paths.Len()
+	k := want
+	if k == 0 {
+		k = min(runtime.GOMAXPROCS(0), 8)
+		if n < 100_000 {
+			k = 1
+		}
+	}
+	if !spans || k < 2 {
+		return []int{0, n}
+	}
+	bounds := []int{0}
+	for i := 1; i < k; i++ {
+		at := max(n*i/k, bounds[len(bounds)-1])
+		for at < n && at > 0 && src.Paths.At(at).Request == src.Paths.At(at-1).Request {
+			at++
+		}
+		bounds = append(bounds, at)
+	}
+	return append(bounds, n)
+}
+
+// charge charges path pi.
+func (ch *charger) charge(pi int) {
+	src, t, w, c, opts, spans := ch.src, ch.t, ch.w, ch.c, ch.opts, ch.spans
+	vi, sampleIx, rec := ch.vi, ch.sampleIx, ch.rec
+	path := src.Paths.At(pi)
+	p := &path
+	leaf := t.Leaf(pi)
+	val := p.Values[vi]
+	samples := int64(1)
+	if sampleIx >= 0 {
+		samples = p.Values[sampleIx]
+	}
+	req := p.Request
+	if req == 0 && !spans {
+		req = requestFromLabels(p.Labels, ch.requestLabels, ch.labelReq, &ch.reqNames)
+	}
+	if req != 0 {
+		ch.requests.add(req)
+	}
+	at := leaf
+	if b := w.boundary[leaf]; b != 0 {
+		at = b
+	}
+	ek := entryKey{w.entry[at], w.entryApp[at], p.Frames[0], p.Labels}
+	es := ch.lastES
+	if ek != ch.lastEK || es == nil {
+		es = ch.entryOf[ek]
+	}
+	if es == nil {
+		name := entryName(src, t, w, p, leaf, ch.entryLabels)
+		if es = ch.entries[name]; es == nil {
+			es = ch.newEntry(name)
+		}
+		ch.entryOf[ek] = es
+	}
+	ch.lastEK, ch.lastES = ek, es
+	et := es.total
+	if req != 0 {
+		es.reqs.add(req)
+	}
+	rootPath := len(p.Frames) == 1
+	if !spans || rootPath {
+		ch.totals.Cost += val
+		ch.totals.Samples += samples
+		if !spans || rootPath {
+			et.Cost += val
+		}
+	}
+	b := w.boundary[leaf]
+	if b == 0 || (spans && len(p.Frames) > t.Depth(b)) {
+		// No boundary (other cost), or a span inside an outbound call.
+		return
+	}
+	kind := KindDatabase
+	if c.Verdict(t.Frame(b)).Class == Network {
+		kind = KindNetwork
+	}
+	if kind == KindDatabase {
+		ch.totals.Database += val
+		et.Database += val
+	} else {
+		ch.totals.Network += val
+		et.Network += val
+	}
+	ch.totals.BoundarySamples += samples
+	calls := int64(0)
+	if spans {
+		calls = 1
+		if len(p.Values) > 1 {
+			calls = p.Values[1]
+		}
+	}
+	sys := pathSystem(c, t, w, p, leaf, b)
+	dkey := uint64(uint32(t.Frame(b)))<<32 | uint64(uint32(p.Call))
+	did, ok := ch.detailOf[dkey]
+	if !ok || ch.detailList[did].system != sys {
+		if did, ok = ch.detailID(detail(src, t, p, b, sys, kind, opts.ShowLiterals)); !ok {
+			ch.detailOf[dkey] = did // the first system seen; others are looked up by value
+		}
+	}
+	dk := &ch.detailList[did]
+
+	var causes []callgraph.NodeID
+	if opts.Inclusive {
+		var ok bool
+		if causes, ok = ch.inclusiveKeys[b]; !ok {
+			causes = appAbove(t, c, b)
+			ch.inclusiveKeys[b] = causes
+		}
+	} else if ra := w.lastApp[b]; ra != 0 {
+		causes = []callgraph.NodeID{ra}
+	}
+	if len(causes) == 0 {
+		ch.totals.Unattributed += val
+		acc := accFor(ch.accs, NoAppFramePrefix+es.name, true)
+		acc.add(val, samples, calls, kind, did, dk, es, 0, req)
+		return
+	}
+	recFn, depth := rec.at(b)
+	for _, ra := range causes {
+		acc := ch.accOf[t.Frame(ra)]
+		if acc == nil {
+			acc = accFor(ch.accs, src.Frames[t.Frame(ra)].Function, false)
+			ch.accOf[t.Frame(ra)] = acc
+		}
+		site := t.Frame(ra)
+		if fr := &src.Frames[site]; fr.File == "" && fr.Line == 0 {
+			site = 0 // no call site known (spans without code.* attributes)
+		}
+		acc.add(val, samples, calls, kind, did, dk, es, site, req)
+		if recFn != "" && recFn == acc.cause.Function {
+			acc.recCost += val
+			if depth > acc.recursion {
+				acc.recursion = depth
+			}
+		}
+	}
+	if recFn != "" && !containsFunc(src, t, causes, recFn) {
+		// The recursive function is above the root cause: credit it too.
+		acc := ch.accs[recFn]
+		if acc == nil {
+			acc = accFor(ch.accs, recFn, false)
+			acc.cause.Kind = kind
+		}
+		acc.recCost += val
+		if depth > acc.recursion {
+			acc.recursion = depth
+		}
+	}
+}
+
 func containsFunc(src *traces.Source, t *callgraph.Tree, ns []callgraph.NodeID, fn string) bool {
 	for _, n := range ns {
 		if src.Frames[t.Frame(n)].Function == fn {
@@ -447,25 +614,19 @@ func (a *causeAcc) add(val, samples, calls int64, kind Kind, did int32, dk *deta
 	} else {
 		c.Network += val
 	}
-	if int(did) >= len(a.details) {
-		a.details = append(a.details, make([]*Detail, int(did)+1-len(a.details))...)
+	pd := slot(&a.details, int(did))
+	if *pd == nil {
+		*pd = &Detail{Kind: dk.kind, System: dk.system, Statement: dk.statement, Peer: dk.peer}
 	}
-	d := a.details[did]
-	if d == nil {
-		d = &Detail{Kind: dk.kind, System: dk.system, Statement: dk.statement, Peer: dk.peer}
-		a.details[did] = d
-	}
+	d := *pd
 	d.Cost += val
 	d.Calls += calls
 	d.Samples += samples
-	if es.idx >= len(a.entries) {
-		a.entries = append(a.entries, make([]*EntryShare, es.idx+1-len(a.entries))...)
+	pe := slot(&a.entries, es.idx)
+	if *pe == nil {
+		*pe = &EntryShare{Entry: es.name}
 	}
-	e := a.entries[es.idx]
-	if e == nil {
-		e = &EntryShare{Entry: es.name}
-		a.entries[es.idx] = e
-	}
+	e := *pe
 	e.Cost += val
 	e.Calls += calls
 	if site != 0 {
@@ -493,6 +654,63 @@ func (a *causeAcc) add(val, samples, calls int64, kind Kind, did int32, dk *deta
 			}
 		}
 		a.runStmts = append(a.runStmts, stmtCalls{did, calls})
+	}
+}
+
+// mergeFrom adds o, an accumulator of another charger whose detail IDs
+// and entry indices map to a's through didMap and idxMap.
+func (a *causeAcc) mergeFrom(o *causeAcc, didMap []int32, idxMap []int) {
+	a.flushSite()
+	a.flushRequest()
+	c, oc := a.cause, o.cause
+	c.Cost += oc.Cost
+	c.Samples += oc.Samples
+	c.Calls += oc.Calls
+	c.Database += oc.Database
+	c.Network += oc.Network
+	mergeSlots(&a.details, o.details, func(i int) int { return int(didMap[i]) }, func(into, from *Detail) {
+		into.Cost += from.Cost
+		into.Calls += from.Calls
+		into.Samples += from.Samples
+	})
+	mergeSlots(&a.entries, o.entries, func(i int) int { return idxMap[i] }, func(into, from *EntryShare) {
+		into.Cost += from.Cost
+		into.Calls += from.Calls
+	})
+	for site, v := range o.sites {
+		a.sites[site] += v
+	}
+	a.perReq = append(a.perReq, o.perReq...)
+	for _, st := range o.stmtReq {
+		st.did = didMap[st.did]
+		a.stmtReq = append(a.stmtReq, st)
+	}
+	a.recursion = max(a.recursion, o.recursion)
+	a.recCost += o.recCost
+}
+
+// slot returns element i of *s, growing *s with nils as needed.
+func slot[T any](s *[]*T, i int) **T {
+	if i >= len(*s) {
+		*s = append(*s, make([]*T, i+1-len(*s))...)
+	}
+	return &(*s)[i]
+}
+
+// mergeSlots adds each non-nil element i of src to element index(i) of
+// *dst with add, or puts a copy there when it is nil.
+func mergeSlots[T any](dst *[]*T, src []*T, index func(int) int, add func(into, from *T)) {
+	for i, x := range src {
+		if x == nil {
+			continue
+		}
+		p := slot(dst, index(i))
+		if *p == nil {
+			c := *x
+			*p = &c
+			continue
+		}
+		add(*p, x)
 	}
 }
 

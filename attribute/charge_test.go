@@ -1,7 +1,10 @@
 package attribute
 
 import (
+	"reflect"
 	"testing"
+
+	"github.com/culprithq/culprit/callgraph"
 )
 
 // Frames with the file shapes Go's runtime/pprof writes (reference
@@ -172,4 +175,23 @@ func abs(x float64) float64 {
 		return -x
 	}
 	return x
+}
+
+// TestShardedChargingMatches checks that charging a span source in
+// several goroutines gives exactly the result of one.
+func TestShardedChargingMatches(t *testing.T) {
+	src := spanSource("shop.jsonl", 60e9, shopTraces(1, 400, func(r int) int { return 2 + r%9 }))
+	cls := NewClassifier(src, DefaultRules())
+	tree := callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary})
+	for _, inclusive := range []bool{false, true} {
+		one := Attribute(tree, cls, Options{Inclusive: inclusive, shards: 1})
+		if len(one.Causes) < 2 || len(one.Findings) == 0 {
+			t.Fatalf("too little to compare: %d causes, %d findings", len(one.Causes), len(one.Findings))
+		}
+		for _, k := range []int{2, 3, 7} {
+			if got := Attribute(tree, cls, Options{Inclusive: inclusive, shards: k}); !reflect.DeepEqual(got, one) {
+				t.Errorf("inclusive=%v, %d shards: result differs from one shard", inclusive, k)
+			}
+		}
+	}
 }

@@ -154,6 +154,18 @@ func (s *edgeSet) add(u, v int32, e uint64) bool {
 	return true
 }
 
+// fork returns a copy of r for another goroutine: it shares the graph
+// and candidates, and has caches of its own.
+func (r *recursionFinder) fork() *recursionFinder {
+	f := *r
+	f.cache = map[callgraph.NodeID]recursionHit{}
+	f.known = nil
+	f.stamp = make([]int32, len(r.names))
+	f.count = make([]int32, len(r.names))
+	f.epoch = 0
+	return &f
+}
+
 // at returns the application function that occurs most often (at least
 // twice) on the path above boundary node b, and how often; "" if none.
 func (r *recursionFinder) at(b callgraph.NodeID) (string, int) {
