@@ -2,6 +2,7 @@ package attribute
 
 import (
 	"cmp"
+	"math"
 	"math/bits"
 	"runtime"
 	"slices"
@@ -196,18 +197,23 @@ type causeAcc struct {
 	runSiteV int64
 }
 
-// reqTally is a root cause's tally in one request.
+// reqTally is a root cause's tally in one request (16 bytes: there is
+// one per root cause and request).
 type reqTally struct {
-	req traces.RequestID
-	reqStat
+	cost int64
+	req  traces.RequestID
+	n    int32 // calls or samples, saturating
 }
 
-// stmtTally is the calls of one detail in one request.
+// stmtTally is the calls of one detail in one request (12 bytes).
 type stmtTally struct {
 	did   int32
 	req   traces.RequestID
-	calls int64
+	calls int32 // saturating
 }
+
+// sat32 converts n to int32, saturating.
+func sat32(n int64) int32 { return int32(min(n, math.MaxInt32)) }
 
 // stmtCalls is a detail's call count within one request.
 type stmtCalls struct {
@@ -724,7 +730,7 @@ func (a *causeAcc) flush() {
 		if x.req != y.req {
 			return false
 		}
-		x.n, x.cost = x.n+y.n, x.cost+y.cost
+		x.n, x.cost = sat32(int64(x.n)+int64(y.n)), x.cost+y.cost
 		return true
 	})
 	slices.SortFunc(a.stmtReq, func(x, y stmtTally) int {
@@ -734,7 +740,7 @@ func (a *causeAcc) flush() {
 		if x.did != y.did || x.req != y.req {
 			return false
 		}
-		x.calls += y.calls
+		x.calls = sat32(int64(x.calls) + int64(y.calls))
 		return true
 	})
 }
@@ -763,9 +769,9 @@ func (a *causeAcc) flushRequest() {
 	if a.runReq == 0 {
 		return
 	}
-	a.perReq = append(a.perReq, reqTally{a.runReq, a.run})
+	a.perReq = append(a.perReq, reqTally{cost: a.run.cost, req: a.runReq, n: sat32(a.run.n)})
 	for _, sc := range a.runStmts {
-		a.stmtReq = append(a.stmtReq, stmtTally{sc.did, a.runReq, sc.calls})
+		a.stmtReq = append(a.stmtReq, stmtTally{sc.did, a.runReq, sat32(sc.calls)})
 	}
 	a.run, a.runReq, a.runStmts = reqStat{}, 0, a.runStmts[:0]
 }

@@ -253,7 +253,7 @@ func findings(res *Result, accs map[string]*causeAcc, o FindingOptions, denom in
 			}
 			var counts []float64
 			for _, st := range perReq {
-				if st.calls >= int64(min) {
+				if int(st.calls) >= min {
 					counts = append(counts, float64(st.calls))
 				}
 			}

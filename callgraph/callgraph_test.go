@@ -168,3 +168,34 @@ func BenchmarkNewTree(b *testing.B) {
 		}
 	}
 }
+
+// TestTreeWideNodes merges paths through a node with more children than
+// its sibling list is searched for (the rest go through the index), in
+// an order that revisits every child: the tree must have each child once.
+func TestTreeWideNodes(t *testing.T) {
+	var order []string
+	paths := map[string]int64{}
+	for round := range 3 {
+		for i := range 20 {
+			key := fmt.Sprintf("main>c%02d>leaf%d", (i*7)%20, round%2)
+			if _, ok := paths[key]; !ok {
+				order = append(order, key)
+			}
+			paths[key]++
+		}
+	}
+	tree := NewTree(source(paths, order), TreeOptions{})
+	// root, main, 20 children, 2 leaves under each.
+	if got, want := tree.Len(), 1+1+20+40; got != want {
+		t.Fatalf("tree has %d nodes, want %d", got, want)
+	}
+	main := tree.Children(Root)[0]
+	if n := len(tree.Children(main)); n != 20 {
+		t.Errorf("main has %d children, want 20", n)
+	}
+	for _, c := range tree.Children(main) {
+		if tree.Total(c, 0) != 3 {
+			t.Errorf("%s: total %d, want 3", tree.src.Frames[tree.Frame(c)].Function, tree.Total(c, 0))
+		}
+	}
+}

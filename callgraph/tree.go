@@ -22,7 +22,6 @@ type treeNode struct {
 	firstChild  NodeID // 0 = none (the root is never a child)
 	nextSibling NodeID
 	depth       int32
-	children    int32
 }
 
 // listedChildren is how many children of a node are found by walking its
@@ -73,7 +72,7 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 		nv:    nv,
 		leaf:  make([]NodeID, src.Paths.Len()),
 	}
-	b := treeBuilder{t: t, index: map[uint64]NodeID{}}
+	b := treeBuilder{t: t, index: map[uint64]NodeID{}, children: make([]uint8, 1, cap(t.nodes))}
 	// Consecutive paths usually share a prefix (sibling spans of a trace,
 	// samples of one request): reuse the previous path's nodes for the
 	// common prefix and look up only the rest.
@@ -144,6 +143,8 @@ type treeBuilder struct {
 	// index holds (parent, frame) → child for the children of nodes with
 	// more than listedChildren children.
 	index map[uint64]NodeID
+	// children counts each node's children, up to listedChildren+2.
+	children []uint8
 }
 
 func childKey(parent NodeID, f traces.FrameID) uint64 {
@@ -153,7 +154,7 @@ func childKey(parent NodeID, f traces.FrameID) uint64 {
 // child returns the child of parent with frame f, 0 if there is none.
 func (b *treeBuilder) child(parent NodeID, f traces.FrameID) NodeID {
 	nodes := b.t.nodes
-	if nodes[parent].children > listedChildren {
+	if b.children[parent] > listedChildren {
 		return b.index[childKey(parent, f)]
 	}
 	for c := nodes[parent].firstChild; c != 0; c = nodes[c].nextSibling {
@@ -177,13 +178,17 @@ func (b *treeBuilder) add(parent NodeID, f traces.FrameID) NodeID {
 	})
 	p = &t.nodes[parent] // append may have moved the nodes
 	p.firstChild = child
-	p.children++
-	switch {
-	case p.children == listedChildren+1:
+	b.children = append(b.children, 0)
+	switch n := &b.children[parent]; {
+	case *n < listedChildren:
+		*n++
+	case *n == listedChildren:
+		*n++
 		for c := p.firstChild; c != 0; c = t.nodes[c].nextSibling {
 			b.index[childKey(parent, t.nodes[c].frame)] = c
 		}
-	case p.children > listedChildren+1:
+	default:
+		*n = listedChildren + 1
 		b.index[childKey(parent, f)] = child
 	}
 	return child
