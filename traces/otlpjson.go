@@ -52,6 +52,8 @@ type SpanCollector struct {
 	// index 0 of each stands for "none".
 	frames     []Frame
 	frameIndex map[Frame]int32
+	traceIDs   []traceID // interned trace IDs, in order of first reading
+	traceIndex map[traceID]int32
 	calls      []Call
 	callIndex  map[Call]int32
 	strs       []string
@@ -76,6 +78,7 @@ func NewSpanCollector(opts Options) *SpanCollector {
 		blockSize:  defaultBlockSize,
 		frames:     []Frame{{}},
 		frameIndex: map[Frame]int32{},
+		traceIndex: map[traceID]int32{},
 		calls:      []Call{{}},
 		callIndex:  map[Call]int32{},
 		strs:       []string{""},
@@ -118,6 +121,7 @@ func (c *SpanCollector) Add(name string, r io.Reader) error {
 	input := int32(len(c.inputs))
 	cr := &countingReader{r: r, max: c.limits.MaxBytes}
 	mark, before, frames, calls, strs := c.spans.mark(), c.spans.len(), len(c.frames), len(c.calls), len(c.strs)
+	traces := len(c.traceIDs)
 	var ws Warnings
 	if err := c.read(name, input, cr, &ws); err != nil {
 		c.spans.truncate(mark)
@@ -130,6 +134,10 @@ func (c *SpanCollector) Add(name string, r io.Reader) error {
 		for _, s := range c.strs[strs:] {
 			delete(c.strIndex, s)
 		}
+		for _, t := range c.traceIDs[traces:] {
+			delete(c.traceIndex, t)
+		}
+		c.traceIDs = c.traceIDs[:traces]
 		c.frames, c.calls, c.strs = slices.Delete(c.frames, frames, len(c.frames)),
 			slices.Delete(c.calls, calls, len(c.calls)), slices.Delete(c.strs, strs, len(c.strs))
 		return err
@@ -179,6 +187,7 @@ type job struct {
 // warnings in input order, and the first fatal error.
 type batch struct {
 	spans    []spanRec
+	traces   []traceID
 	frames   []Frame
 	calls    []Call
 	strs     []string
@@ -387,7 +396,7 @@ func (c *SpanCollector) merge(name string, input int32, b *batch, ws *Warnings) 
 				line := 0
 				for _, s := range b.spans {
 					if s.frame == int32(i) {
-						line = clampLine(s.line)
+						line = int(s.line)
 						break
 					}
 				}
@@ -427,7 +436,18 @@ func (c *SpanCollector) merge(name string, input int32, b *batch, ws *Warnings) 
 		}
 		smap[i] = id
 	}
+	tmap := make([]int32, len(b.traces))
+	for i, t := range b.traces {
+		id, ok := c.traceIndex[t]
+		if !ok {
+			id = int32(len(c.traceIDs))
+			c.traceIDs = append(c.traceIDs, t)
+			c.traceIndex[t] = id
+		}
+		tmap[i] = id
+	}
 	for _, s := range b.spans {
+		s.trace = tmap[s.trace]
 		s.frame = fmap[s.frame]
 		if s.call >= 0 {
 			s.call = cmap[s.call]
@@ -440,7 +460,7 @@ func (c *SpanCollector) merge(name string, input int32, b *batch, ws *Warnings) 
 			s.route = 0
 		}
 		s.input = input
-		c.spans.push(s)
+		c.spans.push(s, c.traceIDs[s.trace])
 	}
 	for _, w := range b.warnings {
 		ws.Add(w)

@@ -20,6 +20,7 @@ type decoder struct {
 	name    string
 	b       *batch
 	frameIx map[Frame]int32
+	traceIx map[traceID]int32
 	callIx  map[Call]int32
 	strIx   map[string]int32
 	attrs   attrSet
@@ -83,7 +84,7 @@ func (d *decoder) statement(system, raw string) string {
 }
 
 func newDecoder(c *SpanCollector, name string, spare chan []spanRec) *decoder {
-	return &decoder{c: c, name: name, spare: spare, frameIx: map[Frame]int32{}, callIx: map[Call]int32{}, strIx: map[string]int32{}}
+	return &decoder{c: c, name: name, spare: spare, frameIx: map[Frame]int32{}, traceIx: map[traceID]int32{}, callIx: map[Call]int32{}, strIx: map[string]int32{}}
 }
 
 // run decodes one job.
@@ -97,6 +98,7 @@ func (d *decoder) run(j *job) *batch {
 	}
 	d.memo = memo{}
 	clear(d.frameIx)
+	clear(d.traceIx)
 	clear(d.callIx)
 	clear(d.strIx)
 	if j.doc {
@@ -408,9 +410,20 @@ func (d *decoder) span(sp *jsonSpan, service string, line int64) error {
 	}
 
 	rec := spanRec{
-		traceHi: binary.BigEndian.Uint64(trace[:8]), traceLo: binary.BigEndian.Uint64(trace[8:]),
 		id: binary.BigEndian.Uint64(id[:8]), start: start, end: end,
-		line: line, call: -1, route: -1,
+		line: int32(min(line, math.MaxInt32)), call: -1, route: -1,
+	}
+	tid := traceID{binary.BigEndian.Uint64(trace[:8]), binary.BigEndian.Uint64(trace[8:])}
+	if n := len(d.b.traces); n > 0 && d.b.traces[n-1] == tid {
+		rec.trace = int32(n - 1) // spans of a trace mostly come together
+	} else {
+		ti, ok := d.traceIx[tid]
+		if !ok {
+			ti = int32(len(d.b.traces))
+			d.b.traces = append(d.b.traces, tid)
+			d.traceIx[tid] = ti
+		}
+		rec.trace = ti
 	}
 	if pn == 8 {
 		rec.parent = binary.BigEndian.Uint64(parent[:8])

@@ -37,19 +37,34 @@ const (
 // practice for clocks synchronised by NTP on one network).
 const skewMinNanos = 1_000_000
 
-// spanRec is a decoded span as the collector keeps it until assembly:
-// fixed-size IDs, times in ns since the Unix epoch, and indices into the
-// collector's interned frames, calls and strings.
+// spanRec is a decoded span as the collector keeps it until assembly
+// (56 bytes: a million of them are held at once): fixed-size IDs, times
+// in ns since the Unix epoch, and indices into the collector's interned
+// trace IDs, frames, calls and strings (in a batch, into the batch's).
 type spanRec struct {
-	traceHi, traceLo uint64 // trace ID, big-endian halves
-	id               uint64 // span ID, big-endian
-	parent           uint64 // parent span ID; 0 for a root
-	start, end       int64
-	line             int64 // line of the input the span was read from
-	frame            int32
-	call             int32 // 0: none (in a batch: -1)
-	route            int32 // http.route; 0: none (in a batch: -1)
-	input            int32 // index into SpanCollector.inputs
+	id         uint64 // span ID, big-endian
+	parent     uint64 // parent span ID; 0 for a root
+	start, end int64
+	trace      int32
+	line       int32 // line of the input the span was read from (saturating)
+	frame      int32
+	call       int32 // 0: none (in a batch: -1)
+	route      int32 // http.route; 0: none (in a batch: -1)
+	input      int32 // index into SpanCollector.inputs
+}
+
+// traceID is a trace ID as two big-endian halves; it orders as the ID.
+type traceID struct{ hi, lo uint64 }
+
+func (t traceID) String() string {
+	var b [16]byte
+	binary.BigEndian.PutUint64(b[:8], t.hi)
+	binary.BigEndian.PutUint64(b[8:], t.lo)
+	return hex.EncodeToString(b[:])
+}
+
+func compareTraceIDs(a, b traceID) int {
+	return cmp.Or(cmp.Compare(a.hi, b.hi), cmp.Compare(a.lo, b.lo))
 }
 
 // node is a span during assembly.
@@ -126,7 +141,7 @@ func (c *SpanCollector) Source() (*Source, error) {
 		defer close(parts)
 		for k := range numParts {
 			select {
-			case parts <- c.spans.takeSorted(k):
+			case parts <- c.spans.takeSorted(k, c.traceIDs):
 			case <-stop:
 				return
 			}
@@ -138,7 +153,7 @@ func (c *SpanCollector) Source() (*Source, error) {
 		for i := 0; i < len(order); {
 			first := part.at(order[i])
 			j := i + 1
-			for j < len(order) && part.at(order[j]).traceHi == first.traceHi && part.at(order[j]).traceLo == first.traceLo {
+			for j < len(order) && part.at(order[j]).trace == first.trace {
 				j++
 			}
 			nodes = nodes[:0]
@@ -147,7 +162,7 @@ func (c *SpanCollector) Source() (*Source, error) {
 				if len(nodes) > 0 && nodes[len(nodes)-1].rec.id == r.id {
 					kept := &nodes[len(nodes)-1].rec
 					if err := as.repair(r, WarnDuplicateSpanID, fmt.Sprintf("span %s of trace %s also read at %s:%d; the first one is kept",
-						spanIDString(r.id), traceIDString(r), c.inputs[kept.input].Name, kept.line)); err != nil {
+						spanIDString(r.id), c.traceIDs[r.trace], c.inputs[kept.input].Name, kept.line)); err != nil {
 						return nil, err
 					}
 					continue
@@ -181,9 +196,9 @@ func (as *assembler) repair(r *spanRec, kind, msg string) error {
 	}
 	name := as.c.inputs[r.input].Name
 	if as.c.opts.Strict {
-		return &ParseError{File: name, Line: clampLine(r.line), Err: fmt.Errorf("%w: %s: %s", ErrSpanRepair, kind, msg)}
+		return &ParseError{File: name, Line: int(r.line), Err: fmt.Errorf("%w: %s: %s", ErrSpanRepair, kind, msg)}
 	}
-	as.ws.Add(Warning{Kind: kind, File: name, Line: clampLine(r.line), Message: msg})
+	as.ws.Add(Warning{Kind: kind, File: name, Line: int(r.line), Message: msg})
 	return nil
 }
 
@@ -201,7 +216,7 @@ func (as *assembler) trace(nodes []node) error {
 		k := findSpan(nodes, p)
 		if k < 0 {
 			if err := as.repair(&nd.rec, WarnOrphanSpan, fmt.Sprintf("parent %s of span %s (trace %s) is missing; the span is taken as a root",
-				spanIDString(p), spanIDString(nd.rec.id), traceIDString(&nd.rec))); err != nil {
+				spanIDString(p), spanIDString(nd.rec.id), as.c.traceIDs[nd.rec.trace])); err != nil {
 				return err
 			}
 			continue
@@ -230,7 +245,7 @@ func (as *assembler) trace(nodes []node) error {
 			}
 			r := &nodes[best].rec
 			if err := as.repair(r, WarnParentCycle, fmt.Sprintf("span %s (trace %s) is on a cycle of %d parent links; it is taken as a root",
-				spanIDString(r.id), traceIDString(r), len(cycle))); err != nil {
+				spanIDString(r.id), as.c.traceIDs[r.trace], len(cycle))); err != nil {
 				return err
 			}
 			nodes[best].parent = -1
@@ -294,7 +309,7 @@ func (as *assembler) trace(nodes []node) error {
 		return cmp.Compare(nodes[x].rec.id, nodes[y].rec.id)
 	})
 
-	req := as.src.InternRequest(traceIDString(&nodes[emit[0]].rec))
+	req := as.src.InternRequest(as.c.traceIDs[nodes[emit[0]].rec.trace].String())
 	for _, k := range emit {
 		nd := &nodes[k]
 		v := [2]int64{nd.end - nd.start, 1}
@@ -372,19 +387,19 @@ func (as *assembler) place(nodes []node, k int32) error {
 			start, end = par.start-nd.shift, par.start-nd.shift
 		}
 		if err := as.repair(r, WarnMissingTimestamp, fmt.Sprintf("span %s (trace %s) has no start or end time; its duration is taken as 0",
-			spanIDString(r.id), traceIDString(r))); err != nil {
+			spanIDString(r.id), as.c.traceIDs[r.trace])); err != nil {
 			return err
 		}
 	case start == 0 || end == 0:
 		start = max(start, end)
 		end = start
 		if err := as.repair(r, WarnMissingTimestamp, fmt.Sprintf("span %s (trace %s) lacks its start or end time; its duration is taken as 0",
-			spanIDString(r.id), traceIDString(r))); err != nil {
+			spanIDString(r.id), as.c.traceIDs[r.trace])); err != nil {
 			return err
 		}
 	case end < start:
 		if err := as.repair(r, WarnNegativeDuration, fmt.Sprintf("span %s (trace %s) ends %d ns before it starts; its duration is taken as 0",
-			spanIDString(r.id), traceIDString(r), start-end)); err != nil {
+			spanIDString(r.id), as.c.traceIDs[r.trace], start-end)); err != nil {
 			return err
 		}
 		end = start
@@ -406,7 +421,7 @@ func (as *assembler) place(nodes []node, k int32) error {
 				where, by = "after", end-pe
 			}
 			if err := as.repair(r, WarnClockSkew, fmt.Sprintf("span %s (trace %s) lies %d ns %s its parent %s; it is moved into the parent",
-				spanIDString(r.id), traceIDString(r), by, where, spanIDString(par.rec.id))); err != nil {
+				spanIDString(r.id), as.c.traceIDs[r.trace], by, where, spanIDString(par.rec.id))); err != nil {
 				return err
 			}
 			var move int64
@@ -436,18 +451,11 @@ func (as *assembler) place(nodes []node, k int32) error {
 	as.arena = append(as.arena, FrameID(r.frame))
 	nd.framesLen = int32(len(as.arena)) - nd.framesAt
 	if int(nd.framesLen) > as.c.limits.MaxDepth {
-		return &ParseError{File: as.c.inputs[r.input].Name, Line: clampLine(r.line),
+		return &ParseError{File: as.c.inputs[r.input].Name, Line: int(r.line),
 			Err: fmt.Errorf("%w: span %s (trace %s) is nested %d spans deep, more than %d", ErrLimit,
-				spanIDString(r.id), traceIDString(r), nd.framesLen, as.c.limits.MaxDepth)}
+				spanIDString(r.id), as.c.traceIDs[r.trace], nd.framesLen, as.c.limits.MaxDepth)}
 	}
 	return nil
-}
-
-func traceIDString(r *spanRec) string {
-	var b [16]byte
-	binary.BigEndian.PutUint64(b[:8], r.traceHi)
-	binary.BigEndian.PutUint64(b[8:], r.traceLo)
-	return hex.EncodeToString(b[:])
 }
 
 func spanIDString(id uint64) string {

@@ -22,7 +22,7 @@ type spanPart struct {
 
 const (
 	numParts  = 64
-	partShift = 64 - 6 // traceHi >> partShift is the partition
+	partShift = 64 - 6 // traceID.hi >> partShift is the partition
 	spanChunk = 1024
 )
 
@@ -31,8 +31,9 @@ type storeMark [numParts]int
 
 func (s *spanStore) len() int { return s.n }
 
-func (s *spanStore) push(r spanRec) {
-	p := &s.parts[r.traceHi>>partShift]
+// push adds r, whose trace ID is t.
+func (s *spanStore) push(r spanRec, t traceID) {
+	p := &s.parts[t.hi>>partShift]
 	if p.n == len(p.chunks)*spanChunk {
 		p.chunks = append(p.chunks, make([]spanRec, 0, spanChunk))
 	}
@@ -84,7 +85,7 @@ func (p *sortedPart) at(i int32) *spanRec { return &p.chunks[i/spanChunk][i%span
 // takeSorted removes partition k from the store and returns it sorted.
 // Partitions cover increasing ranges of trace IDs, so taking them in
 // order gives all spans in trace order.
-func (s *spanStore) takeSorted(k int) sortedPart {
+func (s *spanStore) takeSorted(k int, traces []traceID) sortedPart {
 	sp := sortedPart{chunks: s.parts[k].chunks, order: make([]int32, s.parts[k].n)}
 	s.parts[k] = spanPart{}
 	for i := range sp.order {
@@ -93,10 +94,8 @@ func (s *spanStore) takeSorted(k int) sortedPart {
 	slices.SortFunc(sp.order, func(x, y int32) int {
 		a, b := sp.at(x), sp.at(y)
 		switch {
-		case a.traceHi != b.traceHi:
-			return cmp.Compare(a.traceHi, b.traceHi)
-		case a.traceLo != b.traceLo:
-			return cmp.Compare(a.traceLo, b.traceLo)
+		case a.trace != b.trace:
+			return compareTraceIDs(traces[a.trace], traces[b.trace])
 		case a.id != b.id:
 			return cmp.Compare(a.id, b.id)
 		}
