@@ -417,44 +417,31 @@ func (d *decoder) span(sp *jsonSpan, service string, line int64) error {
 	if n := len(d.b.traces); n > 0 && d.b.traces[n-1] == tid {
 		rec.trace = int32(n - 1) // spans of a trace mostly come together
 	} else {
-		ti, ok := d.traceIx[tid]
-		if !ok {
-			ti = int32(len(d.b.traces))
-			d.b.traces = append(d.b.traces, tid)
-			d.traceIx[tid] = ti
-		}
-		rec.trace = ti
+		rec.trace = intern(d.traceIx, &d.b.traces, tid)
 	}
 	if pn == 8 {
 		rec.parent = binary.BigEndian.Uint64(parent[:8])
 	}
-	fi, ok := d.frameIx[frame]
-	if !ok {
-		fi = int32(len(d.b.frames))
-		d.b.frames = append(d.b.frames, frame)
-		d.frameIx[frame] = fi
-	}
-	rec.frame = fi
+	rec.frame = intern(d.frameIx, &d.b.frames, frame)
 	if call != (Call{}) {
-		ci, ok := d.callIx[call]
-		if !ok {
-			ci = int32(len(d.b.calls))
-			d.b.calls = append(d.b.calls, call)
-			d.callIx[call] = ci
-		}
-		rec.call = ci
+		rec.call = intern(d.callIx, &d.b.calls, call)
 	}
 	if route != "" {
-		ri, ok := d.strIx[route]
-		if !ok {
-			ri = int32(len(d.b.strs))
-			d.b.strs = append(d.b.strs, route)
-			d.strIx[route] = ri
-		}
-		rec.route = ri
+		rec.route = intern(d.strIx, &d.b.strs, route)
 	}
 	d.b.spans = append(d.b.spans, rec)
 	return nil
+}
+
+// intern returns the index of k in *list, appending it if index lacks it.
+func intern[K comparable](index map[K]int32, list *[]K, k K) int32 {
+	i, ok := index[k]
+	if !ok {
+		i = int32(len(*list))
+		*list = append(*list, k)
+		index[k] = i
+	}
+	return i
 }
 
 // describeID says what is wrong with an ID that parseID returned n for.
