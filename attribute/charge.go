@@ -182,8 +182,8 @@ type causeAcc struct {
 	// entry per run of paths until flush merges them, sorted by request
 	// and by detail and request.
 	perReq    []reqTally
-	stmtReq   []stmtTally
-	recursion int // deepest recursion seen, for recursive-access
+	stmtReq   [][]stmtTally // by detail ID
+	recursion int           // deepest recursion seen, for recursive-access
 	recCost   int64
 
 	// The current run of paths of one request and one call site, added to
@@ -205,9 +205,8 @@ type reqTally struct {
 	n    int32 // calls or samples, saturating
 }
 
-// stmtTally is the calls of one detail in one request (12 bytes).
+// stmtTally is the calls of one detail in one request (8 bytes).
 type stmtTally struct {
-	did   int32
 	req   traces.RequestID
 	calls int32 // saturating
 }
@@ -687,9 +686,14 @@ func (a *causeAcc) mergeFrom(o *causeAcc, didMap []int32, idxMap []int) {
 		a.sites[site] += v
 	}
 	a.perReq = append(a.perReq, o.perReq...)
-	for _, st := range o.stmtReq {
-		st.did = didMap[st.did]
-		a.stmtReq = append(a.stmtReq, st)
+	for did, sts := range o.stmtReq {
+		p := &a.stmtReq
+		if nd := int(didMap[did]); nd < len(*p) {
+			(*p)[nd] = append((*p)[nd], sts...)
+		} else if len(sts) > 0 {
+			*p = append(*p, make([][]stmtTally, nd+1-len(*p))...)
+			(*p)[nd] = sts
+		}
 	}
 	a.recursion = max(a.recursion, o.recursion)
 	a.recCost += o.recCost
@@ -725,7 +729,10 @@ func mergeSlots[T any](dst *[]*T, src []*T, index func(int) int, add func(into, 
 func (a *causeAcc) flush() {
 	a.flushSite()
 	a.flushRequest()
-	slices.SortFunc(a.perReq, func(x, y reqTally) int { return cmp.Compare(x.req, y.req) })
+	// Span paths come request by request: the tallies are mostly sorted.
+	if !slices.IsSortedFunc(a.perReq, func(x, y reqTally) int { return cmp.Compare(x.req, y.req) }) {
+		slices.SortStableFunc(a.perReq, func(x, y reqTally) int { return cmp.Compare(x.req, y.req) })
+	}
 	a.perReq = mergeRuns(a.perReq, func(x, y *reqTally) bool {
 		if x.req != y.req {
 			return false
@@ -733,16 +740,19 @@ func (a *causeAcc) flush() {
 		x.n, x.cost = sat32(int64(x.n)+int64(y.n)), x.cost+y.cost
 		return true
 	})
-	slices.SortFunc(a.stmtReq, func(x, y stmtTally) int {
-		return cmp.Or(cmp.Compare(x.did, y.did), cmp.Compare(x.req, y.req))
-	})
-	a.stmtReq = mergeRuns(a.stmtReq, func(x, y *stmtTally) bool {
-		if x.did != y.did || x.req != y.req {
-			return false
+	for did, sts := range a.stmtReq {
+		byReq := func(x, y stmtTally) int { return cmp.Compare(x.req, y.req) }
+		if !slices.IsSortedFunc(sts, byReq) {
+			slices.SortStableFunc(sts, byReq)
 		}
-		x.calls = sat32(int64(x.calls) + int64(y.calls))
-		return true
-	})
+		a.stmtReq[did] = mergeRuns(sts, func(x, y *stmtTally) bool {
+			if x.req != y.req {
+				return false
+			}
+			x.calls = sat32(int64(x.calls) + int64(y.calls))
+			return true
+		})
+	}
 }
 
 // mergeRuns merges each element into the one before it where merge
@@ -771,7 +781,10 @@ func (a *causeAcc) flushRequest() {
 	}
 	a.perReq = append(a.perReq, reqTally{cost: a.run.cost, req: a.runReq, n: sat32(a.run.n)})
 	for _, sc := range a.runStmts {
-		a.stmtReq = append(a.stmtReq, stmtTally{sc.did, a.runReq, sat32(sc.calls)})
+		if int(sc.did) >= len(a.stmtReq) {
+			a.stmtReq = append(a.stmtReq, make([][]stmtTally, int(sc.did)+1-len(a.stmtReq))...)
+		}
+		a.stmtReq[sc.did] = append(a.stmtReq[sc.did], stmtTally{a.runReq, sat32(sc.calls)})
 	}
 	a.run, a.runReq, a.runStmts = reqStat{}, 0, a.runStmts[:0]
 }

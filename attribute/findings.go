@@ -235,15 +235,10 @@ func findings(res *Result, accs map[string]*causeAcc, o FindingOptions, denom in
 		if seen == 0 {
 			continue
 		}
-		// The (detail, request) tallies are sorted by detail: one run each.
-		for lo := 0; lo < len(acc.stmtReq); {
-			did := acc.stmtReq[lo].did
-			hi := lo + 1
-			for hi < len(acc.stmtReq) && acc.stmtReq[hi].did == did {
-				hi++
+		for did, perReq := range acc.stmtReq {
+			if len(perReq) == 0 {
+				continue
 			}
-			perReq := acc.stmtReq[lo:hi]
-			lo = hi
 			dk := acc.details[did]
 			min := o.RepeatMin
 			kind := "repeated-statement"

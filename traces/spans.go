@@ -96,8 +96,10 @@ type assembler struct {
 	// Scratch space reused for every trace.
 	walk, count, children, topo, emit []int32
 
-	// frames is scratch space for one path's source frame IDs.
+	// frames and values are scratch space for one path's source frame IDs
+	// and values (a path's contents escape through Paths.Append).
 	frames []FrameID
+	values [2]int64
 }
 
 // grow returns s with length n, reusing its array when it is large enough.
@@ -312,7 +314,7 @@ func (as *assembler) trace(nodes []node) error {
 	req := as.src.InternRequest(as.c.traceIDs[nodes[emit[0]].rec.trace].String())
 	for _, k := range emit {
 		nd := &nodes[k]
-		v := [2]int64{nd.end - nd.start, 1}
+		as.values = [2]int64{nd.end - nd.start, 1}
 		as.frames = as.frames[:0]
 		for _, cf := range as.arena[nd.framesAt : nd.framesAt+nd.framesLen] {
 			sf := as.frameMap[cf]
@@ -322,7 +324,7 @@ func (as *assembler) trace(nodes []node) error {
 			}
 			as.frames = append(as.frames, sf)
 		}
-		p := Path{Frames: as.frames, Values: v[:], Request: req}
+		p := Path{Frames: as.frames, Values: as.values[:], Request: req}
 		if cid := nd.rec.call; cid != 0 {
 			sc := as.callMap[cid]
 			if sc == 0 {
