@@ -1,7 +1,7 @@
 package traces
 
 // Paths holds a source's paths in compact storage without pointers: a
-// 24-byte record per path, and the frames and values of all paths in
+// 20-byte record per path, and the frames and values of all paths in
 // shared chunks. A million spans take about 60 MB instead of 100, and the
 // garbage collector has nothing in them to scan. Append copies a path in;
 // At returns a view of one.
@@ -18,18 +18,35 @@ type Paths struct {
 	labelIDs map[*LabelSet]int32
 	lastSet  *LabelSet // the last set appended, and its ID
 	lastID   int32
+	// long holds the frame counts of paths of 65535 frames or more.
+	long map[int32]int32
 }
 
 // pathRec is one path: where its frames are, and its IDs.
 type pathRec struct {
-	chunk, at, n int32 // frames: frames[chunk][at:at+n]
-	labels       int32
-	request      RequestID
-	call         CallID
+	chunk   int32  // frames: frames[chunk][at:at+n]
+	atN     uint32 // at<<16 | n; n = longPath: see Paths.long
+	labels  int32
+	request RequestID
+	call    CallID
+}
+
+// longPath marks a path whose frame count is in Paths.long; such a path
+// has a chunk of its own (at 0), since chunks hold frameChunk frames.
+const longPath = 0xffff
+
+// frames returns the frame range of record i.
+func (ps *Paths) frameRange(i int) (chunk, at, n int32) {
+	r := &ps.recs[i]
+	at, n = int32(r.atN>>16), int32(r.atN&0xffff)
+	if n == longPath {
+		n = ps.long[int32(i)]
+	}
+	return r.chunk, at, n
 }
 
 const (
-	frameChunk = 1 << 16 // frame IDs per chunk (a longer path gets a chunk of its own)
+	frameChunk = 1 << 16 // frame IDs per chunk (a longer path gets a chunk of its own); at most 1<<16
 	valueChunk = 1 << 12 // paths per value chunk
 )
 
@@ -42,8 +59,9 @@ func (ps *Paths) At(i int) Path {
 	r := &ps.recs[i]
 	vc := ps.values[i/valueChunk]
 	v := (i % valueChunk) * ps.nv
+	c, at, n := ps.frameRange(i)
 	return Path{
-		Frames:  ps.frames[r.chunk][r.at : r.at+r.n : r.at+r.n],
+		Frames:  ps.frames[c][at : at+n : at+n],
 		Values:  vc[v : v+ps.nv : v+ps.nv],
 		Labels:  ps.labels[r.labels],
 		Request: r.request,
@@ -53,8 +71,8 @@ func (ps *Paths) At(i int) Path {
 
 // Frames returns the frames of path i (as At(i).Frames, without the rest).
 func (ps *Paths) Frames(i int) []FrameID {
-	r := &ps.recs[i]
-	return ps.frames[r.chunk][r.at : r.at+r.n : r.at+r.n]
+	c, at, n := ps.frameRange(i)
+	return ps.frames[c][at : at+n : at+n]
 }
 
 // Value returns value v of path i.
@@ -73,13 +91,23 @@ func (ps *Paths) Append(p Path) {
 		ps.values = append(ps.values, make([]int64, valueChunk*ps.nv))
 	}
 	copy(ps.values[i/valueChunk][(i%valueChunk)*ps.nv:(i%valueChunk+1)*ps.nv], p.Values)
-	ps.recs = append(ps.recs, pathRec{labels: ps.labelID(p.Labels), request: p.Request, call: p.Call})
-	r := &ps.recs[i]
-	r.chunk, r.at, r.n = ps.putFrames(p.Frames)
+	chunk, at := ps.putFrames(p.Frames)
+	n := uint32(len(p.Frames))
+	if n >= longPath {
+		if ps.long == nil {
+			ps.long = map[int32]int32{}
+		}
+		ps.long[int32(i)] = int32(n)
+		n = longPath
+	}
+	ps.recs = append(ps.recs, pathRec{chunk: chunk, atN: uint32(at)<<16 | n,
+		labels: ps.labelID(p.Labels), request: p.Request, call: p.Call})
 }
 
-// putFrames copies fs into the frame chunks.
-func (ps *Paths) putFrames(fs []FrameID) (chunk, at, n int32) {
+// putFrames copies fs into the frame chunks. A chunk holds frameChunk
+// frames, so a path starts below 65536 in it; a longer path gets a chunk
+// of its own.
+func (ps *Paths) putFrames(fs []FrameID) (chunk, at int32) {
 	last := len(ps.frames) - 1
 	if last < 0 || len(fs) > cap(ps.frames[last])-len(ps.frames[last]) {
 		ps.frames = append(ps.frames, make([]FrameID, 0, max(frameChunk, len(fs))))
@@ -88,7 +116,7 @@ func (ps *Paths) putFrames(fs []FrameID) (chunk, at, n int32) {
 	c := &ps.frames[last]
 	at = int32(len(*c))
 	*c = append(*c, fs...)
-	return int32(last), at, int32(len(fs))
+	return int32(last), at
 }
 
 // labelID returns the ID of set, numbering new sets.
