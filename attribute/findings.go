@@ -55,7 +55,7 @@ type recursionFinder struct {
 	count      []int32
 	epoch      int32
 	cache      map[callgraph.NodeID]recursionHit
-	known      []bool // by tree node: the boundary node has been walked
+	known      []uint64 // bit set by tree node: the boundary node has been walked
 	candidates int
 }
 
@@ -173,13 +173,13 @@ func (r *recursionFinder) at(b callgraph.NodeID) (string, int) {
 		return "", 0
 	}
 	if r.known == nil {
-		r.known = make([]bool, r.t.Len())
+		r.known = make([]uint64, (r.t.Len()+63)/64)
 	}
-	if r.known[b] {
+	if r.known[b/64]&(1<<(b%64)) != 0 {
 		h := r.cache[b] // absent (no recursion) reads as the zero hit
 		return h.fn, h.depth
 	}
-	r.known[b] = true
+	r.known[b/64] |= 1 << (b % 64)
 	r.epoch++
 	best := recursionHit{}
 	for n := r.t.Parent(b); n != callgraph.Root; n = r.t.Parent(n) {
