@@ -252,7 +252,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		App:           AppInfo{Prefixes: c.rules.App, Detected: c.Detected, RulesFiles: c.rules.Files},
 		Warnings:      src.Warnings.Strings(),
 	}
-	ch := &charger{
+	shared := &charger{
 		t: t, c: c, src: src, w: w, opts: &opts, vi: vi, spans: spans,
 		sampleIx: sampleIndex(src, vi), entryLabels: entryLabels, requestLabels: requestLabels,
 	}
@@ -260,7 +260,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 	chs := make([]*charger, len(shards)-1)
 	var wg sync.WaitGroup
 	for i := range chs {
-		chs[i] = ch.fork(rec)
+		chs[i] = shared.fork(rec)
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
@@ -268,7 +268,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		}()
 	}
 	wg.Wait()
-	ch = chs[0]
+	ch := chs[0]
 	for _, o := range chs[1:] {
 		ch.merge(o)
 	}

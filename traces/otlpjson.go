@@ -43,6 +43,7 @@ const defaultBlockSize = 512 << 10
 // A SpanCollector is not safe for concurrent use: call Add for one input
 // at a time (each Add decodes in parallel by itself), then Source.
 type SpanCollector struct {
+	used      bool // Source was called: the spans went into its paths
 	opts      Options
 	limits    Limits
 	workers   int
@@ -118,6 +119,9 @@ const utf8BOM = "\xEF\xBB\xBF"
 // "malformed-line" warning. Exceeding a limit is always an error wrapping
 // ErrLimit.
 func (c *SpanCollector) Add(name string, r io.Reader) error {
+	if c.used {
+		return errors.New("traces: SpanCollector.Add called after Source")
+	}
 	input := int32(len(c.inputs))
 	cr := &countingReader{r: r, max: c.limits.MaxBytes}
 	mark, before, frames, calls, strs := c.spans.mark(), c.spans.len(), len(c.frames), len(c.calls), len(c.strs)

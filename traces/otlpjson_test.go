@@ -1647,3 +1647,23 @@ func checkSource(t *testing.T, src *Source) {
 		}
 	}
 }
+
+// TestSourceUsesUpCollector checks that Source hands the spans over once:
+// a second Source, or an Add after it, is an error rather than an empty
+// or partial source.
+func TestSourceUsesUpCollector(t *testing.T) {
+	c := NewSpanCollector(Options{})
+	data := line(tres{"api", []tspan{{trace: tr1, id: sA, name: "root", kind: 2, start: t0, end: t0 + sec}}})
+	if err := c.Add("a.jsonl", strings.NewReader(data)); err != nil {
+		t.Fatal(err)
+	}
+	if src, err := c.Source(); err != nil || src.Paths.Len() != 1 {
+		t.Fatalf("first Source: %v", err)
+	}
+	if _, err := c.Source(); err == nil {
+		t.Error("second Source succeeded")
+	}
+	if err := c.Add("b.jsonl", strings.NewReader(data)); err == nil {
+		t.Error("Add after Source succeeded")
+	}
+}

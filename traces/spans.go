@@ -4,6 +4,7 @@ import (
 	"cmp"
 	"encoding/binary"
 	"encoding/hex"
+	"errors"
 	"fmt"
 	"slices"
 )
@@ -126,6 +127,10 @@ func grow(s []int32, n int) []int32 {
 // up the collected spans, so that their memory goes to the paths: call it
 // once, after the last Add.
 func (c *SpanCollector) Source() (*Source, error) {
+	if c.used {
+		return nil, errors.New("traces: SpanCollector.Source called twice")
+	}
+	c.used = true
 	src := NewSource(Spans, []ValueType{{Type: "duration", Unit: "nanoseconds"}, {Type: "calls", Unit: "count"}})
 	src.StatementsNormalized = c.opts.Statement != nil
 	src.DefaultValue = 0
