@@ -10,6 +10,8 @@ import (
 	"strings"
 	"testing"
 	"time"
+
+	"github.com/google/pprof/profile"
 )
 
 func runTest(t *testing.T, stdin string, args ...string) (code int, stdout, stderr string) {
@@ -357,4 +359,27 @@ func TestOutputFileMode(t *testing.T) {
 	if st, _ := os.Stat(out); st.Mode().Perm() != 0o600 {
 		t.Errorf("replaced report mode %v, want the old file's 0600", st.Mode().Perm())
 	}
+}
+
+// TestCPUProfileEnv checks the developer hook behind CULPRIT_CPUPROFILE:
+// the file it writes is a CPU profile the pprof library reads.
+func TestCPUProfileEnv(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "cpu.pprof")
+	stop := startCPUProfile(path)
+	for end := time.Now().Add(50 * time.Millisecond); time.Now().Before(end); {
+	}
+	stop()
+	f, err := os.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	p, err := profile.Parse(f)
+	if err != nil {
+		t.Fatalf("not a profile: %v", err)
+	}
+	if len(p.SampleType) == 0 || p.SampleType[len(p.SampleType)-1].Type != "cpu" {
+		t.Errorf("sample types %v, want cpu", p.SampleType)
+	}
+	startCPUProfile("")() // no path: nothing to do
 }

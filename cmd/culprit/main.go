@@ -3,8 +3,10 @@
 package main
 
 import (
+	"fmt"
 	"os"
 	"runtime/debug"
+	"runtime/pprof"
 )
 
 // defaultGCPercent is culprit's garbage-collection target unless GOGC is
@@ -13,9 +15,40 @@ import (
 // million spans this keeps about 10 MB less for no measurable time.
 const defaultGCPercent = 50
 
+// cpuProfileEnv names a file to write a CPU profile of the run to, for
+// developers (DEVELOPERS.md, "Benchmarks"; default.pgo is made with it).
+const cpuProfileEnv = "CULPRIT_CPUPROFILE"
+
 func main() {
 	if _, set := os.LookupEnv("GOGC"); !set {
 		debug.SetGCPercent(defaultGCPercent)
 	}
-	os.Exit(run(os.Args[1:], systemStreams()))
+	stop := startCPUProfile(os.Getenv(cpuProfileEnv))
+	code := run(os.Args[1:], systemStreams())
+	stop()
+	os.Exit(code)
+}
+
+// startCPUProfile starts profiling into path, if set, and returns the
+// function that stops it. Failing to profile is reported, not fatal.
+func startCPUProfile(path string) (stop func()) {
+	if path == "" {
+		return func() {}
+	}
+	f, err := os.Create(path)
+	if err != nil {
+		fmt.Fprintf(os.Stderr, "culprit: %s: %v\n", cpuProfileEnv, err)
+		return func() {}
+	}
+	if err := pprof.StartCPUProfile(f); err != nil {
+		f.Close()
+		fmt.Fprintf(os.Stderr, "culprit: %s: %v\n", cpuProfileEnv, err)
+		return func() {}
+	}
+	return func() {
+		pprof.StopCPUProfile()
+		if err := f.Close(); err != nil {
+			fmt.Fprintf(os.Stderr, "culprit: %s: %v\n", cpuProfileEnv, err)
+		}
+	}
 }
