@@ -70,11 +70,11 @@ func compareTraceIDs(a, b traceID) int {
 
 // node is a span during assembly.
 type node struct {
-	rec        spanRec
-	parent     int32 // index in the trace's nodes, -1 for a root
-	start, end int64 // repaired times
-	shift      int64 // how far the span and its descendants were moved
-	framesAt   int32 // its path's frames in the arena
+	rec        *spanRec // in the partition being assembled
+	parent     int32    // index in the trace's nodes, -1 for a root
+	start, end int64    // repaired times
+	shift      int64    // how far the span and its descendants were moved
+	framesAt   int32    // its path's frames in the arena
 	framesLen  int32
 	entryRoute int32 // route of the first span of its path
 	keep       bool  // emitted as a path (its service is selected)
@@ -89,8 +89,8 @@ type assembler struct {
 	arena    []FrameID // collector frame IDs until the paths are built
 	frameMap []FrameID // collector frame ID → source frame ID (0: not yet)
 	callMap  []CallID
-	labels   map[int32]*LabelSet
-	minStart int64 // of the paths' spans that have times
+	labels   []*LabelSet // by route (collector string ID)
+	minStart int64       // of the paths' spans that have times
 	maxEnd   int64
 	timed    bool // whether minStart and maxEnd are set
 
@@ -139,7 +139,7 @@ func (c *SpanCollector) Source() (*Source, error) {
 	src.Paths.Grow(c.spans.len())
 
 	as := &assembler{c: c, src: src, frameMap: make([]FrameID, len(c.frames)),
-		callMap: make([]CallID, len(c.calls)), labels: map[int32]*LabelSet{}}
+		callMap: make([]CallID, len(c.calls)), labels: make([]*LabelSet, len(c.strs))}
 	// Partitions are sorted in a goroutine, one ahead of the assembly.
 	parts := make(chan sortedPart, 1)
 	stop := make(chan struct{})
@@ -167,14 +167,14 @@ func (c *SpanCollector) Source() (*Source, error) {
 			for _, o := range order[i:j] {
 				r := part.at(o)
 				if len(nodes) > 0 && nodes[len(nodes)-1].rec.id == r.id {
-					kept := &nodes[len(nodes)-1].rec
+					kept := nodes[len(nodes)-1].rec
 					if err := as.repair(r, WarnDuplicateSpanID, fmt.Sprintf("span %s of trace %s also read at %s:%d; the first one is kept",
 						spanIDString(r.id), c.traceIDs[r.trace], c.inputs[kept.input].Name, kept.line)); err != nil {
 						return nil, err
 					}
 					continue
 				}
-				nodes = append(nodes, node{rec: *r, keep: c.selected(r)})
+				nodes = append(nodes, node{rec: r, keep: c.selected(r)})
 			}
 			if err := as.trace(nodes); err != nil {
 				return nil, err
@@ -222,7 +222,7 @@ func (as *assembler) trace(nodes []node) error {
 		}
 		k := findSpan(nodes, p)
 		if k < 0 {
-			if err := as.repair(&nd.rec, WarnOrphanSpan, fmt.Sprintf("parent %s of span %s (trace %s) is missing; the span is taken as a root",
+			if err := as.repair(nd.rec, WarnOrphanSpan, fmt.Sprintf("parent %s of span %s (trace %s) is missing; the span is taken as a root",
 				spanIDString(p), spanIDString(nd.rec.id), as.c.traceIDs[nd.rec.trace])); err != nil {
 				return err
 			}
@@ -245,12 +245,12 @@ func (as *assembler) trace(nodes []node) error {
 			cycle := walk[slices.Index(walk, k):]
 			best := cycle[0]
 			for _, m := range cycle[1:] {
-				a, b := &nodes[m].rec, &nodes[best].rec
+				a, b := nodes[m].rec, nodes[best].rec
 				if a.start < b.start || a.start == b.start && a.id < b.id {
 					best = m
 				}
 			}
-			r := &nodes[best].rec
+			r := nodes[best].rec
 			if err := as.repair(r, WarnParentCycle, fmt.Sprintf("span %s (trace %s) is on a cycle of %d parent links; it is taken as a root",
 				spanIDString(r.id), as.c.traceIDs[r.trace], len(cycle))); err != nil {
 				return err
@@ -339,12 +339,10 @@ func (as *assembler) trace(nodes []node) error {
 			p.Call = sc
 		}
 		if r := nd.entryRoute; r != 0 {
-			set, ok := as.labels[r]
-			if !ok {
-				set = as.src.InternLabels([]Label{{Key: "http.route", Value: as.c.strs[r]}})
-				as.labels[r] = set
+			if as.labels[r] == nil {
+				as.labels[r] = as.src.InternLabels([]Label{{Key: "http.route", Value: as.c.strs[r]}})
 			}
-			p.Labels = set
+			p.Labels = as.labels[r]
 		}
 		as.src.Paths.Append(p)
 		if nd.start != 0 || nd.end != 0 {
@@ -381,7 +379,7 @@ func findSpan(nodes []node, id uint64) int {
 // lays out its path's frames in the arena.
 func (as *assembler) place(nodes []node, k int32) error {
 	nd := &nodes[k]
-	r := &nd.rec
+	r := nd.rec
 	var par *node
 	if nd.parent >= 0 {
 		par = &nodes[nd.parent]
