@@ -146,9 +146,10 @@ func (c *SpanCollector) Source() (*Source, error) {
 	defer close(stop)
 	go func() {
 		defer close(parts)
+		count := make([]int32, len(c.traceIDs))
 		for k := range numParts {
 			select {
-			case parts <- c.spans.takeSorted(k, c.traceIDs):
+			case parts <- c.spans.takeSorted(k, c.traceIDs, count):
 			case <-stop:
 				return
 			}

@@ -84,22 +84,45 @@ func (p *sortedPart) at(i int32) *spanRec { return &p.chunks[i/spanChunk][i%span
 
 // takeSorted removes partition k from the store and returns it sorted.
 // Partitions cover increasing ranges of trace IDs, so taking them in
-// order gives all spans in trace order.
-func (s *spanStore) takeSorted(k int, traces []traceID) sortedPart {
+// order gives all spans in trace order. traces are the interned trace IDs
+// (spanRec.trace indexes them); count is scratch space of the same length,
+// all zero, and left so.
+//
+// It is a counting sort by trace (the partition's traces in ID order,
+// each trace's spans in input order), then a sort of each trace's few
+// spans by span ID, stable so that of spans with equal IDs the first read
+// stays first.
+func (s *spanStore) takeSorted(k int, traces []traceID, count []int32) sortedPart {
 	sp := sortedPart{chunks: s.parts[k].chunks, order: make([]int32, s.parts[k].n)}
 	s.parts[k] = spanPart{}
+	var ids []int32 // the partition's traces
 	for i := range sp.order {
-		sp.order[i] = int32(i)
-	}
-	slices.SortFunc(sp.order, func(x, y int32) int {
-		a, b := sp.at(x), sp.at(y)
-		switch {
-		case a.trace != b.trace:
-			return compareTraceIDs(traces[a.trace], traces[b.trace])
-		case a.id != b.id:
-			return cmp.Compare(a.id, b.id)
+		t := sp.at(int32(i)).trace
+		if count[t] == 0 {
+			ids = append(ids, t)
 		}
-		return cmp.Compare(x, y)
-	})
+		count[t]++
+	}
+	slices.SortFunc(ids, func(a, b int32) int { return compareTraceIDs(traces[a], traces[b]) })
+	at := int32(0)
+	for _, t := range ids {
+		at, count[t] = at+count[t], at // count[t] now starts t's spans
+	}
+	for i := range sp.order {
+		t := sp.at(int32(i)).trace
+		sp.order[count[t]] = int32(i)
+		count[t]++
+	}
+	start := 0
+	for _, t := range ids {
+		end := int(count[t])
+		count[t] = 0
+		if end-start > 1 {
+			slices.SortStableFunc(sp.order[start:end], func(x, y int32) int {
+				return cmp.Compare(sp.at(x).id, sp.at(y).id)
+			})
+		}
+		start = end
+	}
 	return sp
 }
