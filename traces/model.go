@@ -322,6 +322,7 @@ func (s *Source) reserveFrames(n int) {
 	s.ensureIndexes()
 	if len(s.frameIndex) == 0 && n > 1024 {
 		s.frameIndex = make(map[Frame]FrameID, n)
+		s.Frames = slices.Grow(s.Frames, n)
 	}
 }
 

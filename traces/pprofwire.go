@@ -356,6 +356,7 @@ func (d *wireDecoder) samples(ms [][]byte) bool {
 	}
 	// A location ID takes at least a byte: size bounds their number.
 	p.sampleLocs = make([]int32, 0, size)
+	p.labels = make([]Label, 0, len(ms)) // room for a label a sample
 	for i, m := range ms {
 		s := &p.samples[i]
 		s.locStart, s.labStart = int32(len(p.sampleLocs)), int32(len(p.labels))
