@@ -33,6 +33,11 @@ type Options struct {
 	RequestLabels []string
 	// ShowLiterals reports raw statements instead of fingerprints.
 	ShowLiterals bool
+	// DropRequestVectors leaves out of each Cause the per-request costs and
+	// calls that NewSnapshot keeps for comparisons (16 bytes a root cause
+	// and request), for callers that only report. Distributions are still
+	// computed.
+	DropRequestVectors bool
 	// Thresholds for findings; zero fields take their defaults.
 	Findings FindingOptions
 
@@ -285,11 +290,12 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 	for _, acc := range accs {
 		acc.flush()
 	}
+	var scratch []float64 // per-request calls, when not kept
 	for _, acc := range accs {
 		if acc.cause.Cost == 0 && acc.recCost == 0 {
 			continue
 		}
-		cs := acc.finish(src, denom, res.Totals.BoundarySamples, !spans, spans)
+		cs := acc.finish(src, denom, res.Totals.BoundarySamples, !spans, spans, !opts.DropRequestVectors, &scratch)
 		if cs.Cost > 0 {
 			res.Causes = append(res.Causes, cs)
 		}
@@ -789,7 +795,10 @@ func (a *causeAcc) flushRequest() {
 	a.run, a.runReq, a.runStmts = reqStat{}, 0, a.runStmts[:0]
 }
 
-func (a *causeAcc) finish(src *traces.Source, denom, boundarySamples int64, sampled, knowsCalls bool) *Cause {
+// finish completes the cause: kind, shares, per-request distributions
+// (the vectors kept when keep is set, else counted in *scratch), call
+// sites, statements and entry points, sorted.
+func (a *causeAcc) finish(src *traces.Source, denom, boundarySamples int64, sampled, knowsCalls, keep bool, scratch *[]float64) *Cause {
 	c := a.cause
 	switch {
 	case c.Database > 0 && c.Network > 0:
@@ -808,7 +817,7 @@ func (a *causeAcc) finish(src *traces.Source, denom, boundarySamples int64, samp
 		c.ShareMargin = 1.96 * BinomialSE(int(k), int(boundarySamples))
 	}
 	c.Requests = len(a.perReq)
-	if len(a.perReq) > 0 {
+	if keep && len(a.perReq) > 0 {
 		c.requestCosts = make([]float64, 0, len(a.perReq))
 		for _, v := range a.perReq {
 			c.requestCosts = append(c.requestCosts, float64(v.cost))
@@ -816,12 +825,19 @@ func (a *causeAcc) finish(src *traces.Source, denom, boundarySamples int64, samp
 		sort.Float64s(c.requestCosts)
 	}
 	if knowsCalls && len(a.perReq) > 0 {
-		counts := make([]float64, 0, len(a.perReq))
+		counts := (*scratch)[:0]
+		if keep {
+			counts = make([]float64, 0, len(a.perReq))
+		}
 		for _, st := range a.perReq {
 			counts = append(counts, float64(st.n))
 		}
 		c.CallsPerRequest = distribution(counts)
-		c.requestCalls = counts // sorted by distribution
+		if keep {
+			c.requestCalls = counts // sorted by distribution
+		} else {
+			*scratch = counts
+		}
 	}
 	for f, cost := range a.sites {
 		fr := &src.Frames[f]

@@ -195,3 +195,25 @@ func TestShardedChargingMatches(t *testing.T) {
 		}
 	}
 }
+
+// TestDropRequestVectors checks that leaving out the per-request vectors
+// changes nothing else in the result (distributions included).
+func TestDropRequestVectors(t *testing.T) {
+	src := spanSource("shop.jsonl", 60e9, shopTraces(1, 120, func(r int) int { return 2 + r%9 }))
+	cls := NewClassifier(src, DefaultRules())
+	tree := callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary})
+	kept := Attribute(tree, cls, Options{})
+	dropped := Attribute(tree, cls, Options{DropRequestVectors: true})
+	for i, c := range kept.Causes {
+		if len(c.requestCosts) == 0 || c.CallsPerRequest == nil {
+			t.Fatalf("cause %d (%s) has no vectors to drop", i, c.Function)
+		}
+		if dropped.Causes[i].requestCosts != nil || dropped.Causes[i].requestCalls != nil {
+			t.Errorf("cause %d kept its vectors", i)
+		}
+		c.requestCosts, c.requestCalls = nil, nil
+	}
+	if !reflect.DeepEqual(kept, dropped) {
+		t.Error("results differ beyond the vectors")
+	}
+}

@@ -37,8 +37,10 @@ type analysisFlags struct {
 	// fsys, when set, is where inputs are opened (the embedded demo data);
 	// names are then taken as given, without directory expansion.
 	fsys fs.FS
-	// skipDigest spares hashing the inputs when nothing shows the digests.
-	skipDigest bool
+	// skipDigest spares hashing the inputs when nothing shows the digests,
+	// and dropVectors keeping the per-request vectors when no snapshot is
+	// made.
+	skipDigest, dropVectors bool
 }
 
 func (f *analysisFlags) register(cmd *cobra.Command) {
@@ -256,11 +258,12 @@ func (f *analysisFlags) build(src *traces.Source, rules *attribute.Rules) (*call
 
 func (f *analysisFlags) attributeOptions() attribute.Options {
 	return attribute.Options{
-		Value:         f.Value,
-		Inclusive:     f.Inclusive,
-		EntryLabels:   f.EntryLabels,
-		RequestLabels: f.RequestLabels,
-		ShowLiterals:  f.ShowLiterals,
-		Findings:      f.Findings,
+		Value:              f.Value,
+		Inclusive:          f.Inclusive,
+		EntryLabels:        f.EntryLabels,
+		RequestLabels:      f.RequestLabels,
+		ShowLiterals:       f.ShowLiterals,
+		Findings:           f.Findings,
+		DropRequestVectors: f.dropVectors,
 	}
 }

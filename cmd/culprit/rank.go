@@ -79,6 +79,8 @@ func runRank(ctx context.Context, opts *rankOptions) error {
 	}
 	// The text and CSV reports do not show the inputs' digests.
 	opts.analysis.skipDigest = (format == "text" || format == "csv") && opts.save == ""
+	// Only a snapshot needs the per-request vectors.
+	opts.analysis.dropVectors = opts.save == ""
 	rules, err := opts.analysis.rules()
 	if err != nil {
 		return err
