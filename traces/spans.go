@@ -81,21 +81,64 @@ type node struct {
 	state      uint8 // cycle search: 0 new, 1 on the current walk, 2 done
 }
 
-// assembler holds the state of one Source call.
+// assembler assembles the traces of one partition at a time into a
+// partPaths; each worker goroutine of Source has one.
 type assembler struct {
-	c        *SpanCollector
-	src      *Source
-	ws       Warnings
-	arena    []FrameID // collector frame IDs until the paths are built
-	frameMap []FrameID // collector frame ID → source frame ID (0: not yet)
-	callMap  []CallID
-	labels   []*LabelSet // by route (collector string ID)
-	minStart int64       // of the paths' spans that have times
-	maxEnd   int64
-	timed    bool // whether minStart and maxEnd are set
+	c       *SpanCollector
+	out     *partPaths
+	arena   []FrameID // collector frame IDs of the current trace's paths
+	byTrace []int32   // scratch for spanStore.takeSorted, by trace
 
 	// Scratch space reused for every trace.
+	nodes                             []node
 	walk, count, children, topo, emit []int32
+}
+
+// partPaths is one partition's paths in the collector's trace, frame,
+// call and string IDs. The finisher interns them into the source in
+// partition order, so that the source does not depend on the number of
+// workers.
+type partPaths struct {
+	traces   []partTrace
+	paths    []partPath
+	frames   []FrameID // the paths' collector frame IDs
+	ws       Warnings
+	err      error // the partition's first error (Strict, limits): its paths are incomplete
+	minStart int64 // of the paths' spans that have times
+	maxEnd   int64
+	timed    bool // whether minStart and maxEnd are set
+}
+
+// reset empties p for another partition, keeping its arrays.
+func (p *partPaths) reset() {
+	*p = partPaths{traces: p.traces[:0], paths: p.paths[:0], frames: p.frames[:0]}
+}
+
+// partTrace is a trace with paths: its interned ID and where its paths end.
+type partTrace struct {
+	trace int32
+	end   int32 // in partPaths.paths
+}
+
+// partPath is one path: its frames in partPaths.frames, duration, call
+// and route (collector IDs).
+type partPath struct {
+	framesAt, framesLen int32
+	call, route         int32
+	dur                 int64
+}
+
+// finisher interns the workers' paths into the source, one partition
+// after the other.
+type finisher struct {
+	c        *SpanCollector
+	src      *Source
+	frameMap []FrameID   // collector frame ID → source frame ID (0: not yet)
+	callMap  []CallID    // likewise for calls
+	labels   []*LabelSet // by route (collector string ID)
+	minStart int64
+	maxEnd   int64
+	timed    bool
 
 	// frames and values are scratch space for one path's source frame IDs
 	// and values (a path's contents escape through Paths.Append).
@@ -138,56 +181,157 @@ func (c *SpanCollector) Source() (*Source, error) {
 	src.Warnings.Merge(c.warnings)
 	src.Paths.Grow(c.spans.len())
 
-	as := &assembler{c: c, src: src, frameMap: make([]FrameID, len(c.frames)),
+	fin := &finisher{c: c, src: src, frameMap: make([]FrameID, len(c.frames)),
 		callMap: make([]CallID, len(c.calls)), labels: make([]*LabelSet, len(c.strs))}
-	// Partitions are sorted in a goroutine, one ahead of the assembly.
-	parts := make(chan sortedPart, 1)
+	// Workers sort and assemble partitions, each in its own goroutine;
+	// this goroutine interns their paths in partition order. At most
+	// `ahead` partitions are in flight, which bounds the memory of the
+	// paths waiting to be interned.
+	workers := max(1, c.workers)
+	ahead := 2 * workers
+	jobs := make(chan int)
+	tokens := make(chan struct{}, ahead)
+	results := make([]chan *partPaths, numParts)
+	for k := range results {
+		results[k] = make(chan *partPaths, 1)
+	}
 	stop := make(chan struct{})
 	defer close(stop)
 	go func() {
-		defer close(parts)
-		count := make([]int32, len(c.traceIDs))
+		defer close(jobs)
 		for k := range numParts {
 			select {
-			case parts <- c.spans.takeSorted(k, c.traceIDs, count):
+			case tokens <- struct{}{}:
+			case <-stop:
+				return
+			}
+			select {
+			case jobs <- k:
 			case <-stop:
 				return
 			}
 		}
 	}()
-	var nodes []node
-	for part := range parts {
-		order := part.order
-		for i := 0; i < len(order); {
-			first := part.at(order[i])
-			j := i + 1
-			for j < len(order) && part.at(order[j]).trace == first.trace {
-				j++
-			}
-			nodes = nodes[:0]
-			for _, o := range order[i:j] {
-				r := part.at(o)
-				if len(nodes) > 0 && nodes[len(nodes)-1].rec.id == r.id {
-					kept := nodes[len(nodes)-1].rec
-					if err := as.repair(r, WarnDuplicateSpanID, fmt.Sprintf("span %s of trace %s also read at %s:%d; the first one is kept",
-						spanIDString(r.id), c.traceIDs[r.trace], c.inputs[kept.input].Name, kept.line)); err != nil {
-						return nil, err
-					}
-					continue
+	// Interned partitions' buffers go back to the workers.
+	free := make(chan *partPaths, ahead)
+	for range workers {
+		go func() {
+			as := &assembler{c: c, byTrace: make([]int32, len(c.traceIDs))}
+			for k := range jobs {
+				var out *partPaths
+				select {
+				case out = <-free:
+					out.reset()
+				default:
+					out = &partPaths{}
 				}
-				nodes = append(nodes, node{rec: r, keep: c.selected(r)})
+				results[k] <- as.partition(c.spans.takeSorted(k, c.traceIDs, as.byTrace), out)
 			}
-			if err := as.trace(nodes); err != nil {
-				return nil, err
-			}
-			i = j
+		}()
+	}
+	for k := range numParts {
+		out := <-results[k]
+		if err := fin.add(out); err != nil {
+			return nil, err
 		}
+		free <- out
+		<-tokens
 	}
-	if as.timed {
-		src.DurationNanos = max(0, as.maxEnd-as.minStart)
+	c.spans = spanStore{}
+	if fin.timed {
+		src.DurationNanos = max(0, fin.maxEnd-fin.minStart)
 	}
-	src.Warnings.Merge(as.ws)
 	return src, nil
+}
+
+// partition assembles the traces of one sorted partition into out.
+func (as *assembler) partition(part sortedPart, out *partPaths) *partPaths {
+	c := as.c
+	as.out = out
+	order := part.order
+	for i := 0; i < len(order); {
+		first := part.at(order[i])
+		j := i + 1
+		for j < len(order) && part.at(order[j]).trace == first.trace {
+			j++
+		}
+		nodes := as.nodes[:0]
+		for _, o := range order[i:j] {
+			r := part.at(o)
+			if len(nodes) > 0 && nodes[len(nodes)-1].rec.id == r.id {
+				kept := nodes[len(nodes)-1].rec
+				if err := as.repair(r, WarnDuplicateSpanID, fmt.Sprintf("span %s of trace %s also read at %s:%d; the first one is kept",
+					spanIDString(r.id), c.traceIDs[r.trace], c.inputs[kept.input].Name, kept.line)); err != nil {
+					as.out.err = err
+					return as.out
+				}
+				continue
+			}
+			nodes = append(nodes, node{rec: r, keep: c.selected(r)})
+		}
+		as.nodes = nodes
+		if err := as.trace(nodes); err != nil {
+			as.out.err = err
+			return as.out
+		}
+		i = j
+	}
+	return as.out
+}
+
+// add interns one partition's paths into the source and merges its
+// warnings; it returns the partition's error, if any.
+func (f *finisher) add(out *partPaths) error {
+	f.src.Warnings.Merge(out.ws)
+	if out.err != nil {
+		return out.err
+	}
+	if out.timed {
+		if !f.timed || out.minStart < f.minStart {
+			f.minStart = out.minStart
+		}
+		f.maxEnd = max(f.maxEnd, out.maxEnd)
+		f.timed = true
+	}
+	start := int32(0)
+	for _, tr := range out.traces {
+		req := f.src.InternRequest(f.c.traceIDs[tr.trace].String())
+		for i := start; i < tr.end; i++ {
+			f.path(out, &out.paths[i], req)
+		}
+		start = tr.end
+	}
+	return nil
+}
+
+// path interns one path and appends it to the source.
+func (f *finisher) path(out *partPaths, pp *partPath, req RequestID) {
+	f.frames = f.frames[:0]
+	for _, cf := range out.frames[pp.framesAt : pp.framesAt+pp.framesLen] {
+		sf := f.frameMap[cf]
+		if sf == 0 {
+			sf = f.src.InternFrame(f.c.frames[cf])
+			f.frameMap[cf] = sf
+		}
+		f.frames = append(f.frames, sf)
+	}
+	f.values = [2]int64{pp.dur, 1}
+	p := Path{Frames: f.frames, Values: f.values[:], Request: req}
+	if cid := pp.call; cid != 0 {
+		sc := f.callMap[cid]
+		if sc == 0 {
+			sc = f.src.InternCall(f.c.calls[cid])
+			f.callMap[cid] = sc
+		}
+		p.Call = sc
+	}
+	if r := pp.route; r != 0 {
+		if f.labels[r] == nil {
+			f.labels[r] = f.src.InternLabels([]Label{{Key: "http.route", Value: f.c.strs[r]}})
+		}
+		p.Labels = f.labels[r]
+	}
+	f.src.Paths.Append(p)
 }
 
 // selected reports whether r's service is the one Options.Service keeps.
@@ -206,7 +350,7 @@ func (as *assembler) repair(r *spanRec, kind, msg string) error {
 	if as.c.opts.Strict {
 		return &ParseError{File: name, Line: int(r.line), Err: fmt.Errorf("%w: %s: %s", ErrSpanRepair, kind, msg)}
 	}
-	as.ws.Add(Warning{Kind: kind, File: name, Line: int(r.line), Message: msg})
+	as.out.ws.Add(Warning{Kind: kind, File: name, Line: int(r.line), Message: msg})
 	return nil
 }
 
@@ -317,43 +461,22 @@ func (as *assembler) trace(nodes []node) error {
 		return cmp.Compare(nodes[x].rec.id, nodes[y].rec.id)
 	})
 
-	req := as.src.InternRequest(as.c.traceIDs[nodes[emit[0]].rec.trace].String())
+	out := as.out
 	for _, k := range emit {
 		nd := &nodes[k]
-		as.values = [2]int64{nd.end - nd.start, 1}
-		as.frames = as.frames[:0]
-		for _, cf := range as.arena[nd.framesAt : nd.framesAt+nd.framesLen] {
-			sf := as.frameMap[cf]
-			if sf == 0 {
-				sf = as.src.InternFrame(as.c.frames[cf])
-				as.frameMap[cf] = sf
-			}
-			as.frames = append(as.frames, sf)
-		}
-		p := Path{Frames: as.frames, Values: as.values[:], Request: req}
-		if cid := nd.rec.call; cid != 0 {
-			sc := as.callMap[cid]
-			if sc == 0 {
-				sc = as.src.InternCall(as.c.calls[cid])
-				as.callMap[cid] = sc
-			}
-			p.Call = sc
-		}
-		if r := nd.entryRoute; r != 0 {
-			if as.labels[r] == nil {
-				as.labels[r] = as.src.InternLabels([]Label{{Key: "http.route", Value: as.c.strs[r]}})
-			}
-			p.Labels = as.labels[r]
-		}
-		as.src.Paths.Append(p)
+		fs := as.arena[nd.framesAt : nd.framesAt+nd.framesLen]
+		out.paths = append(out.paths, partPath{framesAt: int32(len(out.frames)), framesLen: int32(len(fs)),
+			call: nd.rec.call, route: nd.entryRoute, dur: nd.end - nd.start})
+		out.frames = append(out.frames, fs...)
 		if nd.start != 0 || nd.end != 0 {
-			if !as.timed || nd.start < as.minStart {
-				as.minStart = nd.start
+			if !out.timed || nd.start < out.minStart {
+				out.minStart = nd.start
 			}
-			as.maxEnd = max(as.maxEnd, nd.end)
-			as.timed = true
+			out.maxEnd = max(out.maxEnd, nd.end)
+			out.timed = true
 		}
 	}
+	out.traces = append(out.traces, partTrace{trace: nodes[emit[0]].rec.trace, end: int32(len(out.paths))})
 	as.arena = as.arena[:0]
 	return nil
 }
