@@ -32,6 +32,10 @@ const (
 	WarnInvalidUTF8 = "invalid-utf8"
 )
 
+// jobsAhead is how many jobs a decoder may have queued before the one
+// being merged (see read).
+const jobsAhead = 8
+
 // defaultBlockSize is how many bytes of JSON lines the reader hands to a
 // decoding worker at a time (more when a single line is longer).
 const defaultBlockSize = 512 << 10
@@ -204,9 +208,15 @@ type batch struct {
 // goroutine merges the batches in input order, so the result does not
 // depend on the number of workers.
 func (c *SpanCollector) read(name string, input int32, r io.Reader, ws *Warnings) error {
-	order := make(chan *job, 2*c.workers)
-	free := make(chan []byte, 2*c.workers+2)     // block buffers to reuse
-	spare := make(chan []spanRec, 2*c.workers+2) // batch span buffers to reuse
+	// Jobs are merged in input order, so a slow job holds up the ones
+	// after it: with only a few in flight, the reader stops on a full
+	// queue and the decoders run dry (a scheduler trace showed them
+	// blocked a tenth of the time with 2 a worker). jobsAhead a worker
+	// keeps them busy for 4 MiB of blocks more.
+	ahead := jobsAhead * c.workers
+	order := make(chan *job, ahead)
+	free := make(chan []byte, ahead+2)     // block buffers to reuse
+	spare := make(chan []spanRec, ahead+2) // batch span buffers to reuse
 	jobs := make(chan *job, c.workers)
 	done := make(chan struct{})
 	var wg sync.WaitGroup
