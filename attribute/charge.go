@@ -59,23 +59,26 @@ const NoAppFramePrefix = "(no application frame) "
 // walkState is what the attribution walk knows at each tree node about
 // the path from the root to it. Slices are indexed by tree node.
 type walkState struct {
+	t        *callgraph.Tree
 	boundary []callgraph.NodeID // first database/network node on the path, 0 if none
 	lastApp  []callgraph.NodeID // nearest application node above the boundary
 	entry    []callgraph.NodeID // deepest entry-point node above the boundary
 	entryApp []callgraph.NodeID // first application node below entry (or from the root)
-	// sysFrame is the frame whose verdict names the boundary system: the
-	// boundary's, or a more specific driver's below it. 0: none.
-	sysFrame []traces.FrameID
+	// refined holds, for nodes below a boundary whose generic system
+	// ("sql") a more specific driver frame names, that frame. Trees cut at
+	// boundaries have no such nodes, so it is mostly empty.
+	refined map[callgraph.NodeID]traces.FrameID
 }
 
 func newWalkState(t *callgraph.Tree, c *Classifier) *walkState {
 	n := t.Len()
 	w := &walkState{
+		t:        t,
 		boundary: make([]callgraph.NodeID, n),
 		lastApp:  make([]callgraph.NodeID, n),
 		entry:    make([]callgraph.NodeID, n),
 		entryApp: make([]callgraph.NodeID, n),
-		sysFrame: make([]traces.FrameID, n),
+		refined:  map[callgraph.NodeID]traces.FrameID{},
 	}
 	// A child's ID is always greater than its parent's, so one pass in ID
 	// order sees every parent before its children.
@@ -84,19 +87,20 @@ func newWalkState(t *callgraph.Tree, c *Classifier) *walkState {
 		p := t.Parent(id)
 		f := t.Frame(id)
 		class, entry := c.class(f)
-		w.boundary[id], w.lastApp[id], w.entry[id], w.entryApp[id], w.sysFrame[id] =
-			w.boundary[p], w.lastApp[p], w.entry[p], w.entryApp[p], w.sysFrame[p]
+		w.boundary[id], w.lastApp[id], w.entry[id], w.entryApp[id] =
+			w.boundary[p], w.lastApp[p], w.entry[p], w.entryApp[p]
 		if w.boundary[p] != 0 {
 			// Below the boundary: only refine a generic system ("sql") with the driver's.
 			if class == Database && isGenericSystem(w.system(c, p)) && !isGenericSystem(c.verdicts[f].System) {
-				w.sysFrame[id] = f
+				w.refined[id] = f
+			} else if rf, ok := w.refined[p]; ok {
+				w.refined[id] = rf
 			}
 			continue
 		}
 		switch {
 		case class.IsBoundary():
 			w.boundary[id] = id
-			w.sysFrame[id] = f
 			continue
 		case entry:
 			w.entry[id] = id
@@ -112,9 +116,16 @@ func newWalkState(t *callgraph.Tree, c *Classifier) *walkState {
 	return w
 }
 
-// system returns the boundary system at node n ("" above any boundary).
+// system returns the boundary system at node n ("" above any boundary):
+// the boundary frame's, or a more specific driver's below it.
 func (w *walkState) system(c *Classifier, n callgraph.NodeID) string {
-	return c.verdicts[w.sysFrame[n]].System
+	if f, ok := w.refined[n]; ok {
+		return c.verdicts[f].System
+	}
+	if b := w.boundary[n]; b != 0 {
+		return c.verdicts[w.t.Frame(b)].System
+	}
+	return ""
 }
 
 func isGenericSystem(s string) bool { return s == "" || s == "sql" }
