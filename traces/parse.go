@@ -201,24 +201,26 @@ func (s *Source) Validate() error {
 	if s.DefaultValue < 0 || s.DefaultValue >= len(s.ValueTypes) {
 		return fmt.Errorf("default value index %d out of range", s.DefaultValue)
 	}
-	for i := range s.Paths.Len() {
-		p := s.Paths.At(i)
-		if len(p.Values) != len(s.ValueTypes) {
-			return fmt.Errorf("path %d has %d values for %d value types", i, len(p.Values), len(s.ValueTypes))
-		}
-		if len(p.Frames) == 0 {
+	ps := &s.Paths
+	if ps.Len() > 0 && ps.nv != len(s.ValueTypes) {
+		return fmt.Errorf("paths have %d values for %d value types", ps.nv, len(s.ValueTypes))
+	}
+	for i := range ps.recs {
+		r := &ps.recs[i]
+		fs := ps.Frames(i)
+		if len(fs) == 0 {
 			return fmt.Errorf("path %d has no frames", i)
 		}
-		for _, f := range p.Frames {
+		for _, f := range fs {
 			if f <= 0 || int(f) >= len(s.Frames) {
 				return fmt.Errorf("path %d has frame %d out of range", i, f)
 			}
 		}
-		if p.Call < 0 || int(p.Call) >= len(s.Calls) {
-			return fmt.Errorf("path %d has call %d out of range", i, p.Call)
+		if r.call < 0 || int(r.call) >= len(s.Calls) {
+			return fmt.Errorf("path %d has call %d out of range", i, r.call)
 		}
-		if p.Request < 0 || int(p.Request) >= len(s.Requests) {
-			return fmt.Errorf("path %d has request %d out of range", i, p.Request)
+		if r.request < 0 || int(r.request) >= len(s.Requests) {
+			return fmt.Errorf("path %d has request %d out of range", i, r.request)
 		}
 	}
 	return nil

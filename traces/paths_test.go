@@ -49,3 +49,30 @@ func TestPathsRoundTrip(t *testing.T) {
 		}
 	}
 }
+
+// TestValidate checks that Validate finds each broken invariant of a
+// source built by hand.
+func TestValidate(t *testing.T) {
+	tests := []struct {
+		name string
+		path Path
+		ok   bool
+	}{
+		{"valid", Path{Frames: []FrameID{1}, Values: []int64{1}}, true},
+		{"no frames", Path{Values: []int64{1}}, false},
+		{"frame 0", Path{Frames: []FrameID{0}, Values: []int64{1}}, false},
+		{"frame out of range", Path{Frames: []FrameID{1, 9}, Values: []int64{1}}, false},
+		{"call out of range", Path{Frames: []FrameID{1}, Values: []int64{1}, Call: 4}, false},
+		{"request out of range", Path{Frames: []FrameID{1}, Values: []int64{1}, Request: 3}, false},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			src := NewSource(Profile, []ValueType{{Type: "samples", Unit: "count"}})
+			src.InternFrame(Frame{Function: "main.main"})
+			src.Paths.Append(tt.path)
+			if err := src.Validate(); (err == nil) != tt.ok {
+				t.Errorf("Validate() = %v, want ok=%v", err, tt.ok)
+			}
+		})
+	}
+}
