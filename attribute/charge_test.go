@@ -1,10 +1,12 @@
 package attribute
 
 import (
+	"bytes"
 	"reflect"
 	"testing"
 
 	"github.com/culprithq/culprit/callgraph"
+	"github.com/culprithq/culprit/traces"
 )
 
 // Frames with the file shapes Go's runtime/pprof writes (reference
@@ -182,7 +184,7 @@ func abs(x float64) float64 {
 func TestShardedChargingMatches(t *testing.T) {
 	src := spanSource("shop.jsonl", 60e9, shopTraces(1, 400, func(r int) int { return 2 + r%9 }))
 	cls := NewClassifier(src, DefaultRules())
-	tree := callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary})
+	tree := callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep})
 	for _, inclusive := range []bool{false, true} {
 		one := Attribute(tree, cls, Options{Inclusive: inclusive, shards: 1})
 		if len(one.Causes) < 2 || len(one.Findings) == 0 {
@@ -201,7 +203,7 @@ func TestShardedChargingMatches(t *testing.T) {
 func TestDropRequestVectors(t *testing.T) {
 	src := spanSource("shop.jsonl", 60e9, shopTraces(1, 120, func(r int) int { return 2 + r%9 }))
 	cls := NewClassifier(src, DefaultRules())
-	tree := callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary})
+	tree := callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep})
 	kept := Attribute(tree, cls, Options{})
 	dropped := Attribute(tree, cls, Options{DropRequestVectors: true})
 	for i, c := range kept.Causes {
@@ -215,5 +217,67 @@ func TestDropRequestVectors(t *testing.T) {
 	}
 	if !reflect.DeepEqual(kept, dropped) {
 		t.Error("results differ beyond the vectors")
+	}
+}
+
+// TestKeepMatchesCut checks that trimming the paths that reach no
+// boundary (Classifier.Keep) changes no result: the same profile through
+// a tree that keeps every such path whole gives the same Result.
+func TestKeepMatchesCut(t *testing.T) {
+	cutOnly := func(cls *Classifier) func([]traces.FrameID) int {
+		return func(fs []traces.FrameID) int {
+			for i, f := range fs {
+				if cls.IsBoundary(f) {
+					return i + 1
+				}
+			}
+			return len(fs)
+		}
+	}
+	for name, stacks := range map[string][]fakeStack{
+		"random":   randomStacks(3000, 7),
+		"requests": requestStacks(1, 60),
+		"methods":  methodsExample(),
+	} {
+		t.Run(name, func(t *testing.T) {
+			l := traces.NewLoader(traces.Options{})
+			if err := l.Add("p.pb.gz", bytes.NewReader(buildProfile(t, stacks))); err != nil {
+				t.Fatal(err)
+			}
+			src, err := l.Source()
+			if err != nil {
+				t.Fatal(err)
+			}
+			cls := NewClassifier(src, DefaultRules())
+			kept := callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep})
+			whole := callgraph.NewTree(src, callgraph.TreeOptions{Keep: cutOnly(cls)})
+			if kept.Len() >= whole.Len() && name == "random" {
+				t.Errorf("trimming kept %d nodes of %d", kept.Len(), whole.Len())
+			}
+			sameAttribution(t, kept, whole, cls)
+		})
+	}
+	t.Run("spans", func(t *testing.T) {
+		src := spanSource("shop.jsonl", 60e9, shopTraces(1, 80, func(r int) int { return 2 + r%9 }))
+		cls := NewClassifier(src, DefaultRules())
+		sameAttribution(t, callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep}),
+			callgraph.NewTree(src, callgraph.TreeOptions{Keep: cutOnly(cls)}), cls)
+	})
+}
+
+// sameAttribution fails unless attributing over a and b gives the same
+// result, with and without --inclusive, and that result has root causes
+// and findings to compare.
+func sameAttribution(t *testing.T, a, b *callgraph.Tree, cls *Classifier) {
+	t.Helper()
+	for _, inclusive := range []bool{false, true} {
+		opts := Options{Inclusive: inclusive}
+		got, want := Attribute(a, cls, opts), Attribute(b, cls, opts)
+		if len(want.Causes) == 0 || len(want.Entries) == 0 {
+			t.Fatalf("nothing to compare: %d causes, %d entries", len(want.Causes), len(want.Entries))
+		}
+		if !reflect.DeepEqual(got, want) {
+			t.Errorf("inclusive=%v: results differ", inclusive)
+		}
 	}
 }

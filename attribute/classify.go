@@ -103,11 +103,35 @@ func (c *Classifier) class(id traces.FrameID) (Class, bool) {
 	return Class(k &^ entryBit), k&entryBit != 0
 }
 
-// IsBoundary reports whether frame id is a database or network frame. It
-// suits callgraph.TreeOptions.Cut: attribution needs nothing below a boundary.
+// IsBoundary reports whether frame id is a database or network frame.
 func (c *Classifier) IsBoundary(id traces.FrameID) bool {
 	cl, _ := c.class(id)
 	return cl.IsBoundary()
+}
+
+// Keep returns how many leading frames of a path attribution needs; it
+// suits callgraph.TreeOptions.Keep. A path that reaches a database or
+// network frame is needed down to that frame: everything below belongs
+// to the call. A path that reaches none is charged nothing, only counted
+// for its entry point, so it is needed down to the frames that name it:
+// the deepest entry-point frame and the first application frame below it
+// (or, with no entry point, the first application frame). What the walk
+// finds at the last kept frame is then what it finds at the path's end.
+func (c *Classifier) Keep(frames []traces.FrameID) int {
+	entryAt, appAt := -1, -1
+	for i, f := range frames {
+		class, entry := c.class(f)
+		if class.IsBoundary() {
+			return i + 1
+		}
+		if entry {
+			entryAt, appAt = i, -1
+		}
+		if class == Application && appAt < 0 {
+			appAt = i
+		}
+	}
+	return max(entryAt, appAt, 0) + 1
 }
 
 // Verdict returns the classification of frame id.

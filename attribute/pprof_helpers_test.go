@@ -86,7 +86,7 @@ func loadTree(t testing.TB, data []byte, rules *Rules) (*callgraph.Tree, *Classi
 		t.Fatal(err)
 	}
 	cls := NewClassifier(src, rules)
-	return callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary}), cls
+	return callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep}), cls
 }
 
 func causeByName(r *Result, fn string) *Cause {

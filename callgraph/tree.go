@@ -47,28 +47,24 @@ var _ graph.WeightedDirected = (*Tree)(nil)
 
 // TreeOptions control NewTree. The zero value keeps every frame.
 type TreeOptions struct {
-	// Cut, when set, ends a path at the first frame (from the root) for
-	// which it returns true: the frames below it are merged into that
-	// node. Attribution cuts at database and network boundaries, since
-	// everything below a boundary belongs to the call; this keeps the tree
-	// small for deep driver stacks.
-	Cut func(traces.FrameID) bool
+	// Keep, when set, returns how many leading frames of a path the tree
+	// needs (at least one): the path ends there, and its value goes to
+	// that node. Attribution keeps a path down to its first database or
+	// network frame, since everything below belongs to the call, and a
+	// path that reaches none down to the frames that name its entry
+	// point: the tree stays small for deep driver stacks and CPU-only
+	// samples.
+	Keep func(frames []traces.FrameID) int
 }
 
 // NewTree merges the paths of src by common prefix.
 func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 	nv := len(src.ValueTypes)
-	cut := opts.Cut
-	var cutAt []bool
-	if cut != nil {
-		cutAt = make([]bool, len(src.Frames))
-		for i := 1; i < len(src.Frames); i++ {
-			cutAt[i] = cut(traces.FrameID(i))
-		}
-	}
 	t := &Tree{
-		src:   src,
-		nodes: make([]treeNode, 1, newNodesBound(src, cutAt)+1),
+		src: src,
+		// The bound counts whole paths; capacity beyond what is used is
+		// never touched, so it costs address space, not memory.
+		nodes: make([]treeNode, 1, newNodesBound(src)+1),
 		nv:    nv,
 		leaf:  make([]NodeID, src.Paths.Len()),
 	}
@@ -80,6 +76,9 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 	var prevNodes []NodeID
 	for pi := range src.Paths.Len() {
 		frames := src.Paths.Frames(pi)
+		if opts.Keep != nil && len(frames) > 0 {
+			frames = frames[:min(max(opts.Keep(frames), 1), len(frames))]
+		}
 		cur := Root
 		common := 0
 		for common < len(prevNodes) && common < len(frames) && frames[common] == prevFrames[common] {
@@ -92,9 +91,6 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 		prevNodes = prevNodes[:common]
 		fresh := false // cur was just created: it has no children to look up
 		for _, f := range frames[common:] {
-			if cut != nil && cur != Root && cutAt[t.nodes[cur].frame] {
-				break
-			}
 			child := NodeID(0)
 			if !fresh {
 				child = b.child(cur, f)
@@ -112,21 +108,13 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 }
 
 // newNodesBound returns an upper bound of the nodes NewTree makes: the
-// frames of each path, up to its cut, past its common prefix with the
-// previous path (capped at 16M, where growing is cheaper than guessing).
-func newNodesBound(src *traces.Source, cutAt []bool) int {
+// frames of each path past its common prefix with the previous path
+// (capped at 16M, where growing is cheaper than guessing).
+func newNodesBound(src *traces.Source) int {
 	n := 0
 	var prev []traces.FrameID
 	for i := range src.Paths.Len() {
 		fs := src.Paths.Frames(i)
-		if cutAt != nil {
-			for k, f := range fs {
-				if cutAt[f] {
-					fs = fs[:k+1]
-					break
-				}
-			}
-		}
 		common := 0
 		for common < len(prev) && common < len(fs) && fs[common] == prev[common] {
 			common++
@@ -201,7 +189,7 @@ func (t *Tree) Source() *traces.Source { return t.src }
 func (t *Tree) Len() int { return len(t.nodes) }
 
 // Leaf returns the node where path index i of the source ends: its last
-// frame, or the frame where TreeOptions.Cut ended it.
+// frame, or the last frame TreeOptions.Keep kept.
 func (t *Tree) Leaf(path int) NodeID { return t.leaf[path] }
 
 // Frame returns the frame of node n (0 for the root).

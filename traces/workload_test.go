@@ -150,7 +150,7 @@ func TestWorkloadFindings(t *testing.T) {
 		t.Fatal(err)
 	}
 	cls := attribute.NewClassifier(src, attribute.DefaultRules())
-	res := attribute.Attribute(callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary}), cls, attribute.Options{})
+	res := attribute.Attribute(callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep}), cls, attribute.Options{})
 
 	if res.Totals.Requests != requests {
 		t.Errorf("requests = %d, want %d", res.Totals.Requests, requests)

@@ -253,7 +253,7 @@ func (f *analysisFlags) build(src *traces.Source, rules *attribute.Rules) (*call
 		return nil, nil, 0, usagef("--value: %v", err)
 	}
 	cls := attribute.NewClassifier(src, rules)
-	return callgraph.NewTree(src, callgraph.TreeOptions{Cut: cls.IsBoundary}), cls, vi, nil
+	return callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep}), cls, vi, nil
 }
 
 func (f *analysisFlags) attributeOptions() attribute.Options {
