@@ -251,6 +251,9 @@ type Source struct {
 	requestIndex map[string]RequestID
 	labelIndex   map[string]*LabelSet
 	labelKey     []byte // InternLabels' scratch space
+	// framesUnindexed says that frames were added with addNewFrame since
+	// frameIndex was last complete: InternFrame rebuilds it first.
+	framesUnindexed bool
 }
 
 // NewSource returns an empty source of the given kind, ready for Intern calls.
@@ -307,12 +310,31 @@ func (s *Source) ensureIndexes() {
 // InternFrame returns the ID of f, adding it if it is new.
 func (s *Source) InternFrame(f Frame) FrameID {
 	s.ensureIndexes()
+	if s.framesUnindexed {
+		s.frameIndex = make(map[Frame]FrameID, len(s.Frames))
+		for i, f := range s.Frames[1:] {
+			s.frameIndex[f] = FrameID(i + 1)
+		}
+		s.framesUnindexed = false
+	}
 	if id, ok := s.frameIndex[f]; ok {
 		return id
 	}
 	id := FrameID(len(s.Frames))
 	s.Frames = append(s.Frames, f)
 	s.frameIndex[f] = id
+	return id
+}
+
+// addNewFrame appends f, which the caller knows is not among the
+// source's frames, without indexing it: the index is rebuilt when
+// InternFrame is next called. Readers that can tell frames apart more
+// cheaply than by hashing them use it.
+func (s *Source) addNewFrame(f Frame) FrameID {
+	s.ensureIndexes()
+	id := FrameID(len(s.Frames))
+	s.Frames = append(s.Frames, f)
+	s.framesUnindexed = true
 	return id
 }
 

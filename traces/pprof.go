@@ -2,7 +2,9 @@ package traces
 
 import (
 	"fmt"
+	"slices"
 	"strconv"
+	"strings"
 )
 
 // profileAppender adds pprof profiles to one Profile source, interning
@@ -58,10 +60,7 @@ func (a *profileAppender) add(name string, p *rawProfile) error {
 
 	// locFrames caches each location's frames (root-most first), by index.
 	locFrames := make([][]FrameID, len(p.locs))
-	// lineFrames caches frames by function and line: a profile has many
-	// locations (addresses) of each line, and frames hash slowly.
-	lineFrames := make(map[lineKey]FrameID, len(p.lines))
-	src.reserveFrames(len(p.lines))
+	pf := newProfileFrames(src, p)
 	nv := len(src.ValueTypes)
 	var frames []FrameID
 	values := make([]int64, nv)
@@ -73,7 +72,7 @@ func (a *profileAppender) add(name string, p *rawProfile) error {
 			li := p.sampleLocs[i]
 			lf := locFrames[li]
 			if lf == nil {
-				lf = a.locationFrames(p, li, lineFrames)
+				lf = a.locationFrames(p, li, pf)
 				locFrames[li] = lf
 			}
 			for _, f := range lf {
@@ -81,7 +80,7 @@ func (a *profileAppender) add(name string, p *rawProfile) error {
 			}
 		}
 		if len(frames) == 0 {
-			frames = append(frames, src.InternFrame(Frame{Function: "(no stack)"}))
+			frames = append(frames, pf.other(Frame{Function: noStack}))
 		}
 		if len(frames) > a.limits.MaxDepth {
 			return fmt.Errorf("%s: a sample has %d frames, more than the limit of %d (raise it with --max-depth): %w",
@@ -108,31 +107,111 @@ func (a *profileAppender) add(name string, p *rawProfile) error {
 
 // locationFrames returns the frames of location li, root-most first:
 // pprof lists inlined functions innermost first, the real function last.
-func (a *profileAppender) locationFrames(p *rawProfile, li int32, cache map[lineKey]FrameID) []FrameID {
+func (a *profileAppender) locationFrames(p *rawProfile, li int32, pf *profileFrames) []FrameID {
 	loc := &p.locs[li]
 	if loc.lineStart == loc.lineEnd {
 		name := "0x" + strconv.FormatUint(loc.address, 16)
-		return a.frames([]FrameID{a.src.InternFrame(Frame{Function: name, File: loc.mappingFile})})
+		return a.frames([]FrameID{pf.other(Frame{Function: name, File: loc.mappingFile})})
 	}
 	var buf [8]FrameID
 	out := buf[:0]
 	for i := loc.lineEnd - 1; i >= loc.lineStart; i-- {
 		ln := &p.lines[i]
 		if ln.function == "" {
-			// Named by the address: not cached by line.
 			name := "0x" + strconv.FormatUint(loc.address, 16)
-			out = append(out, a.src.InternFrame(Frame{Function: name, File: ln.file, Line: ln.line}))
+			out = append(out, pf.other(Frame{Function: name, File: ln.file, Line: ln.line}))
 			continue
 		}
-		k := lineKey{ln.fn, ln.line}
-		id, ok := cache[k]
-		if !ok || ln.fn == 0 {
-			id = a.src.InternFrame(Frame{Function: ln.function, File: ln.file, Line: ln.line})
-			cache[k] = id
-		}
-		out = append(out, id)
+		out = append(out, pf.line(ln))
 	}
 	return a.frames(out)
+}
+
+// noStack names the frame of a sample without locations.
+const noStack = "(no stack)"
+
+// profileFrames interns the frames of one profile. A line's frame is
+// looked up by function and line number, integer keys; the source's own
+// index (which hashes whole frames) is asked only for new ones. Into a
+// source without frames yet even that is skipped: functions with the same
+// name and file share one canonical index, so equal keys mean equal
+// frames and new keys new frames. (Unless a function is named like an
+// address frame or "(no stack)": then every frame goes through the index.)
+type profileFrames struct {
+	src     *Source
+	fresh   bool
+	canon   []int32 // function index → canonical function index (fresh sources)
+	byLine  map[lineKey]FrameID
+	byValue map[Frame]FrameID // address and (no stack) frames (fresh sources)
+}
+
+func newProfileFrames(src *Source, p *rawProfile) *profileFrames {
+	pf := &profileFrames{src: src, byLine: make(map[lineKey]FrameID, len(p.lines))}
+	if len(src.Frames) > 1 {
+		src.reserveFrames(len(p.lines))
+		return pf
+	}
+	maxFn := int32(0)
+	for i := range p.lines {
+		ln := &p.lines[i]
+		if strings.HasPrefix(ln.function, "0x") || ln.function == noStack {
+			src.reserveFrames(len(p.lines))
+			return pf
+		}
+		maxFn = max(maxFn, ln.fn)
+	}
+	pf.fresh = true
+	pf.byValue = map[Frame]FrameID{}
+	pf.canon = make([]int32, maxFn+1)
+	byName := map[[2]string]int32{}
+	for i := range p.lines {
+		ln := &p.lines[i]
+		if ln.fn <= 0 || pf.canon[ln.fn] != 0 {
+			continue
+		}
+		c, ok := byName[[2]string{ln.function, ln.file}]
+		if !ok {
+			c = ln.fn
+			byName[[2]string{ln.function, ln.file}] = c
+		}
+		pf.canon[ln.fn] = c
+	}
+	src.Frames = slices.Grow(src.Frames, len(p.lines))
+	return pf
+}
+
+// line returns the frame of a line that names its function.
+func (pf *profileFrames) line(ln *rawLine) FrameID {
+	k := lineKey{ln.fn, ln.line}
+	if pf.fresh && ln.fn > 0 {
+		k.fn = pf.canon[ln.fn]
+	}
+	if id, ok := pf.byLine[k]; ok && ln.fn > 0 {
+		return id
+	}
+	f := Frame{Function: ln.function, File: ln.file, Line: ln.line}
+	var id FrameID
+	if pf.fresh && ln.fn > 0 {
+		id = pf.src.addNewFrame(f)
+	} else {
+		id = pf.src.InternFrame(f)
+	}
+	pf.byLine[k] = id
+	return id
+}
+
+// other returns a frame that is not a function's line: named by its
+// address, or standing for a sample without locations.
+func (pf *profileFrames) other(f Frame) FrameID {
+	if !pf.fresh {
+		return pf.src.InternFrame(f)
+	}
+	id, ok := pf.byValue[f]
+	if !ok {
+		id = pf.src.addNewFrame(f)
+		pf.byValue[f] = id
+	}
+	return id
 }
 
 // lineKey identifies a frame within one rawProfile.
