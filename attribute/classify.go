@@ -31,6 +31,10 @@ type Classifier struct {
 	// points: what the attribution walk reads for every tree node,
 	// packed tight for the cache.
 	classes []uint8
+	// fn numbers each frame's function name (an index into fnNames), so
+	// that functions can be told apart without hashing names.
+	fn      []int32
+	fnNames []string
 	// Detected lists what auto-detection took as application code; empty
 	// when App prefixes were given.
 	Detected []Detection
@@ -56,29 +60,53 @@ func NewClassifier(src *traces.Source, rules *Rules) *Classifier {
 	}
 	detected := map[string]*det{}
 	// Rules never look at the line, and a profile has many lines of each
-	// function: classify each frame-without-line once.
-	byFunc := make(map[traces.Frame]Verdict, 1024)
+	// function: classify each frame-without-line once. Frames are found
+	// by function name first (one string to hash), then by value.
+	type class struct {
+		key traces.Frame // the frame without its line
+		v   Verdict
+		fn  int32
+	}
+	var classes []class
+	byName := make(map[string][]int32, 1024) // function name → classes
+	c.fn = make([]int32, len(src.Frames))
 	for id := 1; id < len(src.Frames); id++ {
 		f := &src.Frames[id]
 		key := *f
 		key.Line = 0
-		v, ok := byFunc[key]
-		if !ok {
-			v = c.classify(f)
-			byFunc[key] = v
-		}
-		if v.Class == Application && len(rules.App) == 0 {
-			root := appRoot(f)
-			d := detected[root]
-			if d == nil {
-				d = &det{reason: v.Reason, funcs: map[string]bool{}}
-				detected[root] = d
+		ci := int32(-1)
+		for _, k := range byName[f.Function] {
+			if classes[k].key == key {
+				ci = k
+				break
 			}
-			d.funcs[f.Function] = true
 		}
-		c.verdicts[id] = v
-		c.classes[id] = uint8(v.Class)
-		if v.EntryPoint {
+		if ci < 0 {
+			v := c.classify(f)
+			fn := int32(len(c.fnNames))
+			if ks := byName[f.Function]; len(ks) > 0 {
+				fn = classes[ks[0]].fn
+			} else {
+				c.fnNames = append(c.fnNames, f.Function)
+			}
+			ci = int32(len(classes))
+			classes = append(classes, class{key: key, v: v, fn: fn})
+			byName[f.Function] = append(byName[f.Function], ci)
+			if v.Class == Application && len(rules.App) == 0 {
+				root := appRoot(f)
+				d := detected[root]
+				if d == nil {
+					d = &det{reason: v.Reason, funcs: map[string]bool{}}
+					detected[root] = d
+				}
+				d.funcs[f.Function] = true
+			}
+		}
+		cl := &classes[ci]
+		c.verdicts[id] = cl.v
+		c.fn[id] = cl.fn
+		c.classes[id] = uint8(cl.v.Class)
+		if cl.v.EntryPoint {
 			c.classes[id] |= entryBit
 		}
 	}

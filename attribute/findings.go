@@ -67,20 +67,18 @@ type recursionHit struct {
 func newRecursionFinder(t *callgraph.Tree, c *Classifier, w *walkState) *recursionFinder {
 	src := t.Source()
 	r := &recursionFinder{t: t, c: c, funcOf: make([]int32, len(src.Frames)), cache: map[callgraph.NodeID]recursionHit{}}
-	byName := map[string]int32{}
+	appID := make([]int32, len(c.fnNames)) // classifier function → application function + 1
 	for i := range src.Frames {
 		r.funcOf[i] = -1
 		if i == 0 || c.classes[i]&^entryBit != uint8(Application) {
 			continue
 		}
-		name := src.Frames[i].Function
-		id, ok := byName[name]
-		if !ok {
-			id = int32(len(r.names))
-			byName[name] = id
-			r.names = append(r.names, name)
+		fn := c.fn[i]
+		if appID[fn] == 0 {
+			r.names = append(r.names, c.fnNames[fn])
+			appID[fn] = int32(len(r.names))
 		}
-		r.funcOf[i] = id
+		r.funcOf[i] = appID[fn] - 1
 	}
 	// Edges between consecutive application frames above a boundary.
 	var edges []uint64
