@@ -133,8 +133,25 @@ func decodeProfile(data []byte) (r *rawProfile, ok bool) {
 	}
 	d := &wireDecoder{p: &rawProfile{}, mapFile: map[uint64]string{}}
 	// The messages of the repeated fields, by field number: they are
-	// decoded once the string table is complete.
+	// decoded once the string table is complete. A first pass counts
+	// them, so that the lists are made once (hundreds of thousands of
+	// slices would otherwise be copied as the lists grow).
 	var msgs [12][][]byte
+	var counts [12]int // by field number; 6 counts the strings
+	for b := data; len(b) > 0; {
+		f, rest, ok := nextField(b)
+		if !ok {
+			break // the second pass says why
+		}
+		b = rest
+		if f.num < uint64(len(counts)) {
+			counts[f.num]++
+		}
+	}
+	for _, i := range []int{1, 2, 3, 4, 5, 11} {
+		msgs[i] = make([][]byte, 0, counts[i])
+	}
+	d.strs = make([]string, 0, counts[6])
 	var scalars [16]uint64 // top-level varint fields by number
 	var timeNanos uint64
 	var comments []wireField
