@@ -58,8 +58,12 @@ func (a *profileAppender) add(name string, p *rawProfile) error {
 	}
 	src.DurationNanos += p.durationNanos
 
-	// locFrames caches each location's frames (root-most first), by index.
-	locFrames := make([][]FrameID, len(p.locs))
+	// locRef caches each location's frames (root-most first), by index:
+	// 0 until known, then the frame itself when the location has one
+	// (most do), else -(k+1) for locMulti[k]. One int32 a location keeps
+	// the cache small for the samples' random accesses.
+	locRef := make([]int32, len(p.locs))
+	var locMulti [][]FrameID
 	pf := newProfileFrames(src, p)
 	nv := len(src.ValueTypes)
 	var frames []FrameID
@@ -70,14 +74,22 @@ func (a *profileAppender) add(name string, p *rawProfile) error {
 		// Locations are leaf first; walk them backwards so frames come out root first.
 		for i := s.locEnd - 1; i >= s.locStart; i-- {
 			li := p.sampleLocs[i]
-			lf := locFrames[li]
-			if lf == nil {
-				lf = a.locationFrames(p, li, pf)
-				locFrames[li] = lf
+			ref := locRef[li]
+			if ref == 0 {
+				lf := a.locationFrames(p, li, pf)
+				if len(lf) == 1 {
+					ref = int32(lf[0])
+				} else {
+					locMulti = append(locMulti, lf)
+					ref = -int32(len(locMulti))
+				}
+				locRef[li] = ref
 			}
-			for _, f := range lf {
-				frames = append(frames, f)
+			if ref > 0 {
+				frames = append(frames, FrameID(ref))
+				continue
 			}
+			frames = append(frames, locMulti[-ref-1]...)
 		}
 		if len(frames) == 0 {
 			frames = append(frames, pf.other(Frame{Function: noStack}))
