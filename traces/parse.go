@@ -226,13 +226,17 @@ func (s *Source) Validate() error {
 	return nil
 }
 
-// readChunk is the size of the pieces a profile is read in.
-const readChunk = 1 << 20
+// readChunk is the size of the pieces a profile is read in: most
+// profiles fit in one. A large allocation fresh from the system is zero
+// already, so the part of it a smaller profile leaves unused costs
+// address space, not memory; it is also small enough that a gzip bomb,
+// stopped by the ratio limit, cannot make culprit allocate much.
+const readChunk = 8 << 20
 
-// readAll reads r to the end: in 1 MiB pieces, then into one buffer of
-// the exact size. io.ReadAll grows from 512 bytes, copying and clearing
-// the data a dozen times over (25 ms of clearing alone for a 5 MiB
-// profile); here each byte is copied once.
+// readAll reads r to the end: in readChunk pieces, joined into one buffer
+// of the exact size when there are several. io.ReadAll grows from 512
+// bytes, copying and clearing the data a dozen times over (25 ms of
+// clearing alone for a 5 MiB profile).
 func readAll(r io.Reader) ([]byte, error) {
 	var chunks [][]byte
 	total := 0
