@@ -381,6 +381,9 @@ func (d *wireDecoder) samples(ms [][]byte) bool {
 		other := func(f wireField) (bool, bool) {
 			switch f.num {
 			case 1:
+				if f.typ == 2 {
+					return true, d.packedLocations(f.data)
+				}
 				return true, eachInt(f, func(id uint64) bool {
 					li, ok := d.locIndex.get(id)
 					p.sampleLocs = append(p.sampleLocs, li)
@@ -408,6 +411,37 @@ func (d *wireDecoder) samples(ms [][]byte) bool {
 		}
 		s.locEnd, s.labEnd = int32(len(p.sampleLocs)), int32(len(p.labels))
 	}
+	return true
+}
+
+// packedLocations appends the locations of a packed list of location IDs
+// (what every writer emits: the hot loop of the decoder, kept free of
+// callbacks); false when an ID does not decode or names no location.
+func (d *wireDecoder) packedLocations(b []byte) bool {
+	locs := d.p.sampleLocs
+	dense := d.locIndex.dense
+	for len(b) > 0 {
+		id, n := uint64(b[0]), 1
+		if id >= 0x80 {
+			if id, n = wireVarint(b); n == 0 {
+				return false
+			}
+		}
+		b = b[n:]
+		var li int32
+		if id < uint64(len(dense)) {
+			if li = dense[id] - 1; li < 0 {
+				return false
+			}
+		} else {
+			var ok bool
+			if li, ok = d.locIndex.sparse[id]; !ok {
+				return false
+			}
+		}
+		locs = append(locs, li)
+	}
+	d.p.sampleLocs = locs
 	return true
 }
 
