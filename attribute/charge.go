@@ -182,7 +182,10 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 	}
 	shared := &charger{
 		t: t, c: c, src: src, w: w, opts: &opts, vi: vi, spans: spans,
-		sampleIx: sampleIndex(src, vi), entryLabels: entryLabels, requestLabels: requestLabels,
+		sampleIx: sampleIndex(src, vi), entryLabels: entryLabels,
+	}
+	if !spans {
+		shared.reqs = requestIDs(src, requestLabels)
 	}
 	shards := chargeShards(src, spans, opts.shards)
 	chs := make([]*charger, len(shards)-1)
@@ -371,19 +374,40 @@ func isCPUOnly(src *traces.Source, vi int) bool {
 	return src.ValueTypes[vi].Type == "cpu" || (src.PeriodType.Type == "cpu" && src.ValueTypes[vi].Type == "samples")
 }
 
-func requestFromLabels(ls *traces.LabelSet, keys []string, ids map[string]traces.RequestID, names *[]string) traces.RequestID {
-	for _, k := range keys {
-		if v, ok := ls.Get(k); ok && v != "" {
-			id, ok := ids[v]
-			if !ok {
-				id = traces.RequestID(len(ids) + 1)
-				ids[v] = id
-				*names = append(*names, v)
-			}
-			return id
+// requestIDs numbers the requests that profile labels (keys, first
+// present wins) name, in order of first use, and returns each path's;
+// paths that carry a request keep it.
+func requestIDs(src *traces.Source, keys []string) []traces.RequestID {
+	out := make([]traces.RequestID, src.Paths.Len())
+	ids := map[string]traces.RequestID{}
+	var lastSet *traces.LabelSet
+	var lastID traces.RequestID
+	for pi := range out {
+		p := src.Paths.At(pi)
+		switch {
+		case p.Request != 0:
+			out[pi] = p.Request
+			continue
+		case p.Labels == nil:
+			continue
+		case p.Labels == lastSet:
+			out[pi] = lastID
+			continue
 		}
+		var id traces.RequestID
+		for _, k := range keys {
+			if v, ok := p.Labels.Get(k); ok && v != "" {
+				var seen bool
+				if id, seen = ids[v]; !seen {
+					id = traces.RequestID(len(ids) + 1)
+					ids[v] = id
+				}
+				break
+			}
+		}
+		out[pi], lastSet, lastID = id, p.Labels, id
 	}
-	return 0
+	return out
 }
 
 // distribution returns the median, p95 and max of xs (linear

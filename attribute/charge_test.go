@@ -281,3 +281,22 @@ func sameAttribution(t *testing.T, a, b *callgraph.Tree, cls *Classifier) {
 		}
 	}
 }
+
+// TestShardedProfileChargingMatches checks that charging a profile in
+// several goroutines gives exactly the result of one: requests named by
+// labels are numbered before the paths are shared out.
+func TestShardedProfileChargingMatches(t *testing.T) {
+	stacks := append(requestStacks(1, 200), randomStacks(2000, 3)...)
+	tree, cls := loadTree(t, buildProfile(t, stacks), DefaultRules())
+	for _, inclusive := range []bool{false, true} {
+		one := Attribute(tree, cls, Options{Inclusive: inclusive, shards: 1})
+		if one.Totals.Requests == 0 || len(one.Causes) < 2 {
+			t.Fatalf("too little to compare: %d requests, %d causes", one.Totals.Requests, len(one.Causes))
+		}
+		for _, k := range []int{2, 3, 7} {
+			if got := Attribute(tree, cls, Options{Inclusive: inclusive, shards: k}); !reflect.DeepEqual(got, one) {
+				t.Errorf("inclusive=%v, %d shards: result differs from one shard", inclusive, k)
+			}
+		}
+	}
+}

@@ -13,14 +13,14 @@ import (
 // charger over all the paths would have.
 type charger struct {
 	// Shared, read only.
-	t                          *callgraph.Tree
-	c                          *Classifier
-	src                        *traces.Source
-	w                          *walkState
-	opts                       *Options
-	vi, sampleIx               int
-	spans                      bool
-	entryLabels, requestLabels []string
+	t            *callgraph.Tree
+	c            *Classifier
+	src          *traces.Source
+	w            *walkState
+	opts         *Options
+	vi, sampleIx int
+	spans        bool
+	entryLabels  []string
 
 	rec           *recursionFinder // a copy per charger (it caches)
 	totals        Totals
@@ -36,15 +36,17 @@ type charger struct {
 	detailList    []detailKey            // ID → detail
 	requests      reqSet
 	inclusiveKeys map[callgraph.NodeID][]callgraph.NodeID
-	labelReq      map[string]traces.RequestID
-	reqNames      []string
+	// reqs holds each path's request when profile labels name it
+	// (requestIDs): numbered before the paths are shared out, so that all
+	// chargers agree. Nil for span sources, whose paths carry theirs.
+	reqs []traces.RequestID
 }
 
 // fork returns a charger with ch's shared fields and empty state.
 func (ch *charger) fork(rec *recursionFinder) *charger {
 	return &charger{
 		t: ch.t, c: ch.c, src: ch.src, w: ch.w, opts: ch.opts, vi: ch.vi, sampleIx: ch.sampleIx, spans: ch.spans,
-		entryLabels: ch.entryLabels, requestLabels: ch.requestLabels,
+		entryLabels:   ch.entryLabels,
 		rec:           rec.fork(),
 		accs:          map[string]*causeAcc{},
 		accOf:         make([]*causeAcc, len(ch.src.Frames)),
@@ -53,7 +55,7 @@ func (ch *charger) fork(rec *recursionFinder) *charger {
 		detailOf:      map[uint64]int32{},
 		detailIDs:     map[detailKey]int32{},
 		inclusiveKeys: map[callgraph.NodeID][]callgraph.NodeID{},
-		labelReq:      map[string]traces.RequestID{},
+		reqs:          ch.reqs,
 	}
 }
 
@@ -123,25 +125,27 @@ func (ch *charger) run(lo, hi int) {
 	}
 }
 
-// chargeShards splits the paths into ranges of whole requests, one per
-// core for large span sources (whose paths come request by request), else
-// one: it returns the ranges' bounds.
+// chargeShards splits the paths into ranges, one per core for large
+// sources, else one, and returns the ranges' bounds. A span source's
+// ranges hold whole requests (its paths come request by request), which
+// keeps each charger's per-request runs whole; it is not needed for the
+// result.
 func chargeShards(src *traces.Source, spans bool, want int) []int {
 	n := src.Paths.Len()
 	k := want
 	if k == 0 {
 		k = min(runtime.GOMAXPROCS(0), 8)
-		if n < 100_000 {
+		if n < 20_000 {
 			k = 1
 		}
 	}
-	if !spans || k < 2 {
+	if k < 2 {
 		return []int{0, n}
 	}
 	bounds := []int{0}
 	for i := 1; i < k; i++ {
 		at := max(n*i/k, bounds[len(bounds)-1])
-		for at < n && at > 0 && src.Paths.At(at).Request == src.Paths.At(at-1).Request {
+		for spans && at < n && at > 0 && src.Paths.At(at).Request == src.Paths.At(at-1).Request {
 			at++
 		}
 		bounds = append(bounds, at)
@@ -162,8 +166,8 @@ func (ch *charger) charge(pi int) {
 		samples = p.Values[sampleIx]
 	}
 	req := p.Request
-	if req == 0 && !spans {
-		req = requestFromLabels(p.Labels, ch.requestLabels, ch.labelReq, &ch.reqNames)
+	if ch.reqs != nil {
+		req = ch.reqs[pi]
 	}
 	if req != 0 {
 		ch.requests.add(req)
