@@ -2,6 +2,7 @@ package traces
 
 import (
 	"fmt"
+	"math"
 	"slices"
 	"strconv"
 	"strings"
@@ -152,13 +153,14 @@ const noStack = "(no stack)"
 type profileFrames struct {
 	src     *Source
 	fresh   bool
-	canon   []int32 // function index → canonical function index (fresh sources)
-	byLine  map[lineKey]FrameID
-	byValue map[Frame]FrameID // address and (no stack) frames (fresh sources)
+	canon   []int32             // function index → canonical function index (fresh sources)
+	byLine  map[uint64]FrameID  // by function<<32 | line, for lines in 0..2^32-1
+	byWide  map[lineKey]FrameID // the other lines
+	byValue map[Frame]FrameID   // address and (no stack) frames (fresh sources)
 }
 
 func newProfileFrames(src *Source, p *rawProfile) *profileFrames {
-	pf := &profileFrames{src: src, byLine: make(map[lineKey]FrameID, len(p.lines))}
+	pf := &profileFrames{src: src, byLine: make(map[uint64]FrameID, len(p.lines)), byWide: map[lineKey]FrameID{}}
 	if len(src.Frames) > 1 {
 		src.reserveFrames(len(p.lines))
 		return pf
@@ -198,8 +200,19 @@ func (pf *profileFrames) line(ln *rawLine) FrameID {
 	if pf.fresh && ln.fn > 0 {
 		k.fn = pf.canon[ln.fn]
 	}
-	if id, ok := pf.byLine[k]; ok && ln.fn > 0 {
-		return id
+	narrow := k.fn >= 0 && k.line >= 0 && k.line <= math.MaxUint32
+	packed := uint64(uint32(k.fn))<<32 | uint64(k.line)
+	if ln.fn > 0 {
+		var id FrameID
+		var ok bool
+		if narrow {
+			id, ok = pf.byLine[packed]
+		} else {
+			id, ok = pf.byWide[k]
+		}
+		if ok {
+			return id
+		}
 	}
 	f := Frame{Function: ln.function, File: ln.file, Line: ln.line}
 	var id FrameID
@@ -208,7 +221,11 @@ func (pf *profileFrames) line(ln *rawLine) FrameID {
 	} else {
 		id = pf.src.InternFrame(f)
 	}
-	pf.byLine[k] = id
+	if narrow {
+		pf.byLine[packed] = id
+	} else {
+		pf.byWide[k] = id
+	}
 	return id
 }
 
