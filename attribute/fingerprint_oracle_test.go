@@ -413,11 +413,6 @@ func oracleJoinTokens(ts []oracleToken, glue func(a, b oracleToken) bool) string
 	return b.String()
 }
 
-
-
-
-
-
 func oracleIsSpace(c byte) bool      { return c <= ' ' || c == 0x7f }
 func oracleIsDigit(c byte) bool      { return '0' <= c && c <= '9' }
 func oracleIsLetter(c byte) bool     { return 'a' <= c|0x20 && c|0x20 <= 'z' }
