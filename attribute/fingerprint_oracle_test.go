@@ -36,43 +36,14 @@ func oracleFingerprint(system, raw string) Statement {
 	case "mongodb":
 		text = fingerprintDocument(raw) // not rewritten: the production code
 	default:
-		d, known := oracleDialectFor(system)
+		d, known := dialectFor(system) // dialects were not rewritten
 		if j := skipSpace(raw, 0); !known && j < len(raw) && (raw[j] == '{' || raw[j] == '[') {
 			text = fingerprintDocument(raw)
 		} else {
 			text = oracleFingerprintSQL(d, raw)
 		}
 	}
-	h := uint64(14695981039346656037) // FNV-1a, 64-bit offset basis and prime
-	for i := 0; i < len(text); i++ {
-		h = (h ^ uint64(text[i])) * 1099511628211
-	}
-	return Statement{Text: text, ID: h}
-}
-
-// dialect holds the lexical differences between SQL systems.
-type oracleDialect struct {
-	hashComment  bool // '#' starts a line comment (MySQL, MariaDB)
-	backslash    bool // backslash escapes inside '…' and "…" strings (MySQL, MariaDB)
-	dquoteString bool // "…" is a string literal, not an identifier (MySQL, MariaDB)
-	brackets     bool // […] is a quoted identifier (SQL Server, SQLite)
-	flatComments bool // /* */ comments do not nest (MySQL, MariaDB, SQLite)
-	qQuote       bool // q'[…]' alternative quoting (Oracle)
-}
-
-// dialectFor returns the dialect of system and whether system is a SQL system known here ("" is).
-func oracleDialectFor(system string) (oracleDialect, bool) {
-	switch system {
-	case "mysql", "mariadb":
-		return oracleDialect{hashComment: true, backslash: true, dquoteString: true, flatComments: true}, true
-	case "microsoft.sql_server":
-		return oracleDialect{brackets: true}, true
-	case "sqlite":
-		return oracleDialect{brackets: true, flatComments: true}, true
-	case "oracle.db":
-		return oracleDialect{qQuote: true}, true
-	}
-	return oracleDialect{}, system == "postgresql" || system == ""
+	return statementOf(text) // the plain FNV-1a loop: the writer hashes as it goes
 }
 
 type oracleKind uint8
@@ -95,7 +66,7 @@ func oracleQmark() oracleToken { return oracleToken{oracleKLiteral, "?"} }
 
 // lexer splits SQL text into tokens, skipping whitespace and comments.
 type oracleLexer struct {
-	d oracleDialect
+	d dialect
 	s string
 	i int
 }
@@ -380,7 +351,7 @@ func oracleIsPlaceholderList(ts []oracleToken) bool {
 	return len(ts)%2 == 1
 }
 
-func oracleFingerprintSQL(d oracleDialect, raw string) string {
+func oracleFingerprintSQL(d dialect, raw string) string {
 	l := oracleLexer{d: d, s: raw}
 	n := oracleNormaliser{out: make([]oracleToken, 0, len(raw)/4)}
 	for t, ok := l.next(); ok; t, ok = l.next() {
