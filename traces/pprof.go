@@ -13,8 +13,8 @@ import (
 type profileAppender struct {
 	src    *Source
 	limits Limits
-	// frameArena holds the locations' frames in chunks, so that a profile
-	// of many locations does not make an allocation for each.
+	// frameArena holds the frames of locations with inlined calls in
+	// chunks, so that a profile does not make an allocation for each.
 	frameArena []FrameID
 }
 
@@ -65,6 +65,7 @@ func (a *profileAppender) add(name string, p *rawProfile) error {
 	// the cache small for the samples' random accesses.
 	locRef := make([]int32, len(p.locs))
 	var locMulti [][]FrameID
+	var scratch []FrameID
 	pf := newProfileFrames(src, p)
 	nv := len(src.ValueTypes)
 	var frames []FrameID
@@ -77,11 +78,11 @@ func (a *profileAppender) add(name string, p *rawProfile) error {
 			li := p.sampleLocs[i]
 			ref := locRef[li]
 			if ref == 0 {
-				lf := a.locationFrames(p, li, pf)
-				if len(lf) == 1 {
-					ref = int32(lf[0])
+				scratch = a.locationFrames(scratch[:0], p, li, pf)
+				if len(scratch) == 1 {
+					ref = int32(scratch[0])
 				} else {
-					locMulti = append(locMulti, lf)
+					locMulti = append(locMulti, a.frames(scratch))
 					ref = -int32(len(locMulti))
 				}
 				locRef[li] = ref
@@ -118,16 +119,15 @@ func (a *profileAppender) add(name string, p *rawProfile) error {
 	return nil
 }
 
-// locationFrames returns the frames of location li, root-most first:
-// pprof lists inlined functions innermost first, the real function last.
-func (a *profileAppender) locationFrames(p *rawProfile, li int32, pf *profileFrames) []FrameID {
+// locationFrames appends the frames of location li to out, root-most
+// first: pprof lists inlined functions innermost first, the real function
+// last.
+func (a *profileAppender) locationFrames(out []FrameID, p *rawProfile, li int32, pf *profileFrames) []FrameID {
 	loc := &p.locs[li]
 	if loc.lineStart == loc.lineEnd {
 		name := "0x" + strconv.FormatUint(loc.address, 16)
-		return a.frames([]FrameID{pf.other(Frame{Function: name, File: loc.mappingFile})})
+		return append(out, pf.other(Frame{Function: name, File: loc.mappingFile}))
 	}
-	var buf [8]FrameID
-	out := buf[:0]
 	for i := loc.lineEnd - 1; i >= loc.lineStart; i-- {
 		ln := &p.lines[i]
 		if ln.function == "" {
@@ -137,7 +137,7 @@ func (a *profileAppender) locationFrames(p *rawProfile, li int32, pf *profileFra
 		}
 		out = append(out, pf.line(ln))
 	}
-	return a.frames(out)
+	return out
 }
 
 // noStack names the frame of a sample without locations.
