@@ -7,7 +7,6 @@ import (
 	"io"
 	"runtime"
 	"slices"
-	"strings"
 	"sync"
 )
 
@@ -52,6 +51,8 @@ type SpanCollector struct {
 	limits    Limits
 	workers   int
 	blockSize int
+	// localEntries bounds each decoder's tables (see localTable).
+	localEntries int
 
 	// frames, calls and strs intern what the decoded spans refer to;
 	// index 0 of each stands for "none".
@@ -77,17 +78,18 @@ func NewSpanCollector(opts Options) *SpanCollector {
 		w = runtime.GOMAXPROCS(0)
 	}
 	return &SpanCollector{
-		opts:       opts,
-		limits:     opts.Limits.withDefaults(),
-		workers:    w,
-		blockSize:  defaultBlockSize,
-		frames:     []Frame{{}},
-		frameIndex: map[Frame]int32{},
-		traceIndex: map[traceID]int32{},
-		calls:      []Call{{}},
-		callIndex:  map[Call]int32{},
-		strs:       []string{""},
-		strIndex:   map[string]int32{},
+		opts:         opts,
+		limits:       opts.Limits.withDefaults(),
+		workers:      w,
+		blockSize:    defaultBlockSize,
+		localEntries: defaultLocalEntries,
+		frames:       []Frame{{}},
+		frameIndex:   map[Frame]int32{},
+		traceIndex:   map[traceID]int32{},
+		calls:        []Call{{}},
+		callIndex:    map[Call]int32{},
+		strs:         []string{""},
+		strIndex:     map[string]int32{},
 	}
 }
 
@@ -190,9 +192,12 @@ type job struct {
 	result chan *batch
 }
 
-// batch is what a worker made of one job: spans with frame, call and
-// route indices local to the batch, the values those indices refer to,
-// warnings in input order, and the first fatal error.
+// batch is what a worker made of one job: spans with trace indices local
+// to the batch and frame, call and route indices local to the decoder's
+// tables, the trace IDs and the table entries new since the decoder's
+// last batch, warnings in input order, and the first fatal error.
+// restart says the decoder's tables started anew with this batch; ids is
+// the decoder's, and only the merge uses it.
 type batch struct {
 	spans    []spanRec
 	traces   []traceID
@@ -201,6 +206,13 @@ type batch struct {
 	strs     []string
 	warnings []Warning
 	err      error
+	restart  bool
+	ids      *globalIDs
+}
+
+// globalIDs maps a decoder's table indices to the collector's.
+type globalIDs struct {
+	frames, calls, strs []int32
 }
 
 // read runs the reading pipeline for one input: a reader goroutine cuts
@@ -234,6 +246,7 @@ func (c *SpanCollector) read(name string, input int32, r io.Reader, ws *Warnings
 		go func() {
 			defer wg.Done()
 			d := newDecoder(c, name, spare)
+			d.ids = &globalIDs{}
 			for {
 				select {
 				case j, ok := <-jobs:
@@ -403,14 +416,17 @@ func (c *SpanCollector) split(name string, r io.Reader, order, jobs chan<- *job,
 
 // merge adds a batch's spans to the collector, interning what they refer to.
 func (c *SpanCollector) merge(name string, input int32, b *batch, ws *Warnings) error {
-	fmap := make([]int32, len(b.frames))
-	for i, f := range b.frames {
+	ids := b.ids
+	if b.restart {
+		*ids = globalIDs{frames: ids.frames[:0], calls: ids.calls[:0], strs: ids.strs[:0]}
+	}
+	for _, f := range b.frames {
 		id, ok := c.frameIndex[f]
 		if !ok {
 			if len(c.frames)-1 >= c.limits.MaxFrames {
-				line := 0
+				line, local := 0, int32(len(ids.frames))
 				for _, s := range b.spans {
-					if s.frame == int32(i) {
+					if s.frame == local {
 						line = int(s.line)
 						break
 					}
@@ -418,38 +434,29 @@ func (c *SpanCollector) merge(name string, input int32, b *batch, ws *Warnings) 
 				return &ParseError{File: name, Line: line,
 					Err: fmt.Errorf("%w: more than %d distinct frames", ErrLimit, c.limits.MaxFrames)}
 			}
-			f = Frame{Function: strings.Clone(f.Function), File: strings.Clone(f.File), Line: f.Line,
-				SpanKind: f.SpanKind, Protocol: f.Protocol, System: strings.Clone(f.System),
-				Service: strings.Clone(f.Service), Span: f.Span}
 			id = int32(len(c.frames))
-			c.frames = append(c.frames, f)
+			c.frames = append(c.frames, f) // the decoder's copy
 			c.frameIndex[f] = id
 		}
-		fmap[i] = id
+		ids.frames = append(ids.frames, id)
 	}
-	cmap := make([]int32, len(b.calls))
-	for i, k := range b.calls {
+	for _, k := range b.calls {
 		id, ok := c.callIndex[k]
 		if !ok {
-			k = Call{System: strings.Clone(k.System), Statement: strings.Clone(k.Statement),
-				Summary: strings.Clone(k.Summary), Operation: strings.Clone(k.Operation),
-				Peer: strings.Clone(k.Peer), Batch: k.Batch}
 			id = int32(len(c.calls))
 			c.calls = append(c.calls, k)
 			c.callIndex[k] = id
 		}
-		cmap[i] = id
+		ids.calls = append(ids.calls, id)
 	}
-	smap := make([]int32, len(b.strs))
-	for i, s := range b.strs {
+	for _, s := range b.strs {
 		id, ok := c.strIndex[s]
 		if !ok {
-			s = strings.Clone(s)
 			id = int32(len(c.strs))
 			c.strs = append(c.strs, s)
 			c.strIndex[s] = id
 		}
-		smap[i] = id
+		ids.strs = append(ids.strs, id)
 	}
 	tmap := make([]int32, len(b.traces))
 	for i, t := range b.traces {
@@ -461,6 +468,7 @@ func (c *SpanCollector) merge(name string, input int32, b *batch, ws *Warnings) 
 		}
 		tmap[i] = id
 	}
+	fmap, cmap, smap := ids.frames, ids.calls, ids.strs
 	for _, s := range b.spans {
 		s.trace = tmap[s.trace]
 		s.frame = fmap[s.frame]

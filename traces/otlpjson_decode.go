@@ -19,14 +19,18 @@ type decoder struct {
 	c       *SpanCollector
 	name    string
 	b       *batch
-	frameIx map[Frame]int32
 	traceIx map[traceID]int32
-	callIx  map[Call]int32
-	strIx   map[string]int32
-	attrs   attrSet
-	memo    memo
-	spare   chan []spanRec // span buffers of merged batches
-	req     jsonRequest    // reused for every record that is one object
+	// frames, calls and routes outlive jobs: a batch carries only the
+	// entries new to this decoder, so the merge hashes each value about
+	// once a decoder rather than once a batch.
+	frames localTable[Frame]
+	calls  localTable[Call]
+	routes localTable[string]
+	attrs  attrSet
+	memo   memo
+	ids    *globalIDs     // handed to the merge with every batch
+	spare  chan []spanRec // span buffers of merged batches
+	req    jsonRequest    // reused for every record that is one object
 	// scanned, text, bools, scanner and names are the fast path's
 	// (otlpscan.go): the requests it reads (reused), its arena of
 	// unescaped strings, the values that boolValues point to, its state,
@@ -84,7 +88,66 @@ func (d *decoder) statement(system, raw string) string {
 }
 
 func newDecoder(c *SpanCollector, name string, spare chan []spanRec) *decoder {
-	return &decoder{c: c, name: name, spare: spare, frameIx: map[Frame]int32{}, traceIx: map[traceID]int32{}, callIx: map[Call]int32{}, strIx: map[string]int32{}}
+	return &decoder{c: c, name: name, spare: spare, traceIx: map[traceID]int32{},
+		frames: newLocalTable(cloneFrame), calls: newLocalTable(cloneCall), routes: newLocalTable(strings.Clone)}
+}
+
+// defaultLocalEntries bounds a decoder's tables: past it they start anew
+// at the next job, so that inputs with many distinct values (statements
+// with literals and no normaliser) cost bounded memory.
+const defaultLocalEntries = 1 << 14
+
+// localTable interns the values of one kind that a decoder has seen in
+// the jobs of one input. Keys are copies, never job data. sent counts the
+// entries already handed to the merge.
+type localTable[K comparable] struct {
+	index map[K]int32
+	list  []K
+	sent  int
+	clone func(K) K
+}
+
+func newLocalTable[K comparable](clone func(K) K) localTable[K] {
+	return localTable[K]{index: map[K]int32{}, clone: clone}
+}
+
+// intern returns the index of k, adding a copy of it if it is new.
+func (t *localTable[K]) intern(k K) int32 {
+	i, ok := t.index[k]
+	if !ok {
+		k = t.clone(k)
+		i = int32(len(t.list))
+		t.list = append(t.list, k)
+		t.index[k] = i
+	}
+	return i
+}
+
+// take returns the entries added since the last take. The merge reads
+// them while the decoder appends more: appending never writes them.
+func (t *localTable[K]) take() []K {
+	news := t.list[t.sent:len(t.list):len(t.list)]
+	t.sent = len(t.list)
+	return news
+}
+
+// restart empties the table. Its array is left to the merge, which may
+// still be reading entries of the last batch.
+func (t *localTable[K]) restart() {
+	clear(t.index)
+	t.list, t.sent = nil, 0
+}
+
+func cloneFrame(f Frame) Frame {
+	f.Function, f.File = strings.Clone(f.Function), strings.Clone(f.File)
+	f.System, f.Service = strings.Clone(f.System), strings.Clone(f.Service)
+	return f
+}
+
+func cloneCall(k Call) Call {
+	k.System, k.Statement, k.Summary = strings.Clone(k.System), strings.Clone(k.Statement), strings.Clone(k.Summary)
+	k.Operation, k.Peer = strings.Clone(k.Operation), strings.Clone(k.Peer)
+	return k
 }
 
 // run decodes one job.
@@ -97,10 +160,14 @@ func (d *decoder) run(j *job) *batch {
 	default:
 	}
 	d.memo = memo{}
-	clear(d.frameIx)
 	clear(d.traceIx)
-	clear(d.callIx)
-	clear(d.strIx)
+	if max(len(d.frames.list), len(d.calls.list), len(d.routes.list)) > d.c.localEntries {
+		d.frames.restart()
+		d.calls.restart()
+		d.routes.restart()
+		d.b.restart = true
+	}
+	defer d.finish()
 	if j.doc {
 		d.record(j.data, j.line, j.col, true)
 		return d.b
@@ -124,6 +191,12 @@ func (d *decoder) run(j *job) *batch {
 		line++
 	}
 	return d.b
+}
+
+// finish hands the batch the table entries that its jobs added.
+func (d *decoder) finish() {
+	d.b.frames, d.b.calls, d.b.strs = d.frames.take(), d.calls.take(), d.routes.take()
+	d.b.ids = d.ids
 }
 
 // record decodes one JSON value: a line, or a document starting at line
@@ -422,12 +495,12 @@ func (d *decoder) span(sp *jsonSpan, service string, line int64) error {
 	if pn == 8 {
 		rec.parent = binary.BigEndian.Uint64(parent[:8])
 	}
-	rec.frame = intern(d.frameIx, &d.b.frames, frame)
+	rec.frame = d.frames.intern(frame)
 	if call != (Call{}) {
-		rec.call = intern(d.callIx, &d.b.calls, call)
+		rec.call = d.calls.intern(call)
 	}
 	if route != "" {
-		rec.route = intern(d.strIx, &d.b.strs, route)
+		rec.route = d.routes.intern(route)
 	}
 	d.b.spans = append(d.b.spans, rec)
 	return nil

@@ -1457,9 +1457,9 @@ func TestParallelMatchesSequential(t *testing.T) {
 	ls = append(ls, ls[3], ls[40])
 	text := lines(ls...)
 
-	run := func(workers, block int, text string) *Source {
+	runLocal := func(workers, block, local int, text string) *Source {
 		c := NewSpanCollector(Options{Workers: workers, KeepGoing: true})
-		c.blockSize = block
+		c.blockSize, c.localEntries = block, local
 		half := strings.Index(text[len(text)/2:], "\n") + len(text)/2 + 1
 		if err := c.Add("one.jsonl", strings.NewReader(text[:half])); err != nil {
 			t.Fatal(err)
@@ -1472,6 +1472,9 @@ func TestParallelMatchesSequential(t *testing.T) {
 			t.Fatal(err)
 		}
 		return src
+	}
+	run := func(workers, block int, text string) *Source {
+		return runLocal(workers, block, defaultLocalEntries, text)
 	}
 	seq := run(1, 1<<20, text)
 	if seq.Paths.Len() < 3000 || warningCount(seq, WarnMalformedLine) != 1 || warningCount(seq, WarnDuplicateSpanID) == 0 {
@@ -1490,6 +1493,13 @@ func TestParallelMatchesSequential(t *testing.T) {
 			sameSource(t, seq, run(tc.workers, tc.block, text))
 		})
 	}
+	t.Run("decoder tables restarting", func(t *testing.T) {
+		// Decoders keep their tables across jobs and start them anew past
+		// a bound; the merge must follow every restart.
+		for _, local := range []int{0, 1, 7} {
+			sameSource(t, seq, runLocal(3, 2<<10, local, text))
+		}
+	})
 	t.Run("lines shuffled", func(t *testing.T) {
 		// Without the duplicates (which of two copies is kept depends on
 		// order), shuffled lines give the same paths.
