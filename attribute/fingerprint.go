@@ -52,6 +52,20 @@ type Statement struct {
 // is valid UTF-8 when raw is, and Fingerprint(system, s.Text) == s for any result s whose Text fits
 // in the limit. Empty or all-comment input gives Text "".
 func Fingerprint(system, raw string) Statement {
+	b := textBufferPool.Get().(*[]byte)
+	*b = AppendFingerprint((*b)[:0], system, raw)
+	st := statementOf(string(*b))
+	textBufferPool.Put(b)
+	return st
+}
+
+// textBufferPool keeps the buffers that Fingerprint writes text into.
+var textBufferPool = sync.Pool{New: func() any { return new([]byte) }}
+
+// AppendFingerprint appends Fingerprint(system, raw).Text to dst and returns the extended
+// slice. For SQL, given a dst with room, it allocates nothing: it is the form for hot loops
+// that need only the text.
+func AppendFingerprint(dst []byte, system, raw string) []byte {
 	if len(raw) > maxStatementInput {
 		cut := maxStatementInput
 		for k := 1; k < utf8.UTFMax && !utf8.RuneStart(raw[cut]); k++ {
@@ -61,15 +75,15 @@ func Fingerprint(system, raw string) Statement {
 	}
 	switch system = strings.ToLower(system); system {
 	case "redis", "memcached":
-		return statementOf(fingerprintCommand(raw, system == "redis"))
+		return append(dst, fingerprintCommand(raw, system == "redis")...)
 	case "mongodb":
-		return statementOf(fingerprintDocument(raw))
+		return append(dst, fingerprintDocument(raw)...)
 	}
 	d, known := dialectFor(system)
 	if j := skipSpace(raw, 0); !known && j < len(raw) && (raw[j] == '{' || raw[j] == '[') {
-		return statementOf(fingerprintDocument(raw))
+		return append(dst, fingerprintDocument(raw)...)
 	}
-	return fingerprintSQL(d, raw)
+	return appendSQL(dst, d, raw)
 }
 
 // FNV-1a, 64-bit: offset basis and prime.
@@ -166,12 +180,11 @@ const (
 
 // sqlToken is a token already written to the output of an sqlWriter.
 type sqlToken struct {
-	h   uint64 // FNV-1a hash of the output before the token and the space written in front of it
-	at  int32  // length of that output
+	at  int32 // length of the output before the token and the space written in front of it
 	tag tag
 }
 
-// sqlWriter lexes SQL and writes its fingerprint in the same pass, hashing out as it grows. It
+// sqlWriter lexes SQL and writes its fingerprint in the same pass. It
 // keeps the tokens written so far (as positions in out) so that a sign can join the number after
 // it and a closing ")" can collapse an IN list or a repeated VALUES row; what those rules remove is
 // always at the end of out.
@@ -180,7 +193,6 @@ type sqlWriter struct {
 	s     string
 	i     int
 	out   []byte
-	h     uint64 // FNV-1a hash of out
 	toks  []sqlToken
 	opens []int32  // indexes in toks of unmatched "("
 	row   [2]int32 // toks[row[0]:row[1]] is the last VALUES row kept
@@ -261,7 +273,7 @@ func (w *sqlWriter) begin(t tag, y byte) {
 		// that the text lexes into the same tokens.
 		space = !glue || sqlBytes[x]&sqlBytes[y]&bOp != 0 || x == ']' && y == ']'
 	}
-	w.toks = append(w.toks, sqlToken{w.h, int32(len(w.out)), t})
+	w.toks = append(w.toks, sqlToken{int32(len(w.out)), t})
 	if space {
 		w.put(' ')
 	}
@@ -270,7 +282,6 @@ func (w *sqlWriter) begin(t tag, y byte) {
 // put appends c to w.out.
 func (w *sqlWriter) put(c byte) {
 	w.out = append(w.out, c)
-	w.h = (w.h ^ uint64(c)) * fnvPrime
 }
 
 // literal writes "?".
@@ -282,7 +293,6 @@ func (w *sqlWriter) literal() {
 // drop removes the tokens from index k on.
 func (w *sqlWriter) drop(k int) {
 	w.out = w.out[:w.toks[k].at]
-	w.h = w.toks[k].h
 	w.toks = w.toks[:k]
 }
 
@@ -433,16 +443,14 @@ func (w *sqlWriter) write(s string, lower bool) {
 		w.out = slices.Grow(w.out, len(s))
 	}
 	w.out = w.out[:k+len(s)]
-	dst, h := w.out[k:], w.h
+	dst := w.out[k:]
 	for i := range len(s) {
 		c := s[i]
 		if lower {
 			c |= sqlBytes[c] & bUpper
 		}
 		dst[i] = c
-		h = (h ^ uint64(c)) * fnvPrime
 	}
-	w.h = h
 }
 
 // skipBlockComment skips a /* */ comment, nested unless the dialect says otherwise.
@@ -531,7 +539,7 @@ func (w *sqlWriter) word() {
 	}
 	dst := w.out[k:cap(w.out)]
 	var key uint64 // the lower-cased word, a byte a byte; complete for words of up to 8 bytes
-	n, h := 0, w.h
+	n := 0
 	for ; start+n < len(s); n++ {
 		c := s[start+n]
 		f := sqlBytes[c]
@@ -541,7 +549,6 @@ func (w *sqlWriter) word() {
 		c |= f & bUpper
 		dst[n] = c
 		key = key<<8 | uint64(c)
-		h = (h ^ uint64(c)) * fnvPrime
 	}
 	w.out = w.out[:k+n] // extend by reslicing, as in write
 	w.i = start + n
@@ -554,8 +561,6 @@ func (w *sqlWriter) word() {
 	if t == tagLiteral { // true or false
 		w.out = w.out[:k]
 		w.put('?')
-	} else {
-		w.h = h
 	}
 	w.toks[len(w.toks)-1].tag = t
 }
@@ -783,26 +788,24 @@ func (w *sqlWriter) textStart(t sqlToken) int32 {
 	return t.at
 }
 
-// sqlBuffers holds the buffers of an sqlWriter between statements.
+// sqlBuffers holds the token buffers of an sqlWriter between statements.
 type sqlBuffers struct {
-	out   []byte
 	toks  []sqlToken
 	opens []int32
 }
 
-// sqlBufferPool keeps sqlBuffers for reuse, so that fingerprinting a statement allocates only its
-// result.
+// sqlBufferPool keeps sqlBuffers for reuse, so that fingerprinting a statement allocates at most
+// its output.
 var sqlBufferPool = sync.Pool{New: func() any { return new(sqlBuffers) }}
 
-// fingerprintSQL returns the Statement of SQL raw in dialect d.
-func fingerprintSQL(d dialect, raw string) Statement {
+// appendSQL appends the fingerprint of SQL raw in dialect d to dst.
+func appendSQL(dst []byte, d dialect, raw string) []byte {
 	buf := sqlBufferPool.Get().(*sqlBuffers)
-	w := sqlWriter{d: d, s: raw, out: buf.out[:0], h: fnvOffset, toks: buf.toks[:0], opens: buf.opens[:0]}
+	w := sqlWriter{d: d, s: raw, out: dst, toks: buf.toks[:0], opens: buf.opens[:0]}
 	w.run()
-	st := Statement{Text: string(w.out), ID: w.h}
-	buf.out, buf.toks, buf.opens = w.out, w.toks, w.opens
+	buf.toks, buf.opens = w.toks, w.opens
 	sqlBufferPool.Put(buf)
-	return st
+	return w.out
 }
 
 // isPlaceholderList reports whether ts is "?" or "?, ?, …".

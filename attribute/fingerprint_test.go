@@ -278,6 +278,27 @@ func TestFingerprintID(t *testing.T) {
 	}
 }
 
+func TestAppendFingerprint(t *testing.T) {
+	// The decoders normalise every statement with AppendFingerprint into
+	// one reused buffer: it must append exactly Fingerprint's text after
+	// whatever the buffer holds, and for SQL allocate nothing once the
+	// buffer has room.
+	buf := make([]byte, 0, 1<<10)
+	for _, tc := range allCases() {
+		t.Run(tc.name, func(t *testing.T) {
+			got := AppendFingerprint(append(buf[:0], "prefix "...), tc.system, tc.raw)
+			if want := "prefix " + Fingerprint(tc.system, tc.raw).Text; string(got) != want {
+				t.Errorf("AppendFingerprint = %q, want %q", got, want)
+			}
+		})
+	}
+	raw := "SELECT data, expires_at FROM sessions WHERE token = '5a64ea8a7b0b7a0e' AND n IN (1, 2, 3)"
+	AppendFingerprint(buf[:0], "postgresql", raw) // fill the token pool
+	if n := testing.AllocsPerRun(100, func() { buf = AppendFingerprint(buf[:0], "postgresql", raw) }); n != 0 {
+		t.Errorf("AppendFingerprint allocates %v times a statement, want 0", n)
+	}
+}
+
 // stdlibFNV is the reference 64-bit FNV-1a hash from the Go standard library.
 func stdlibFNV(s string) uint64 {
 	h := fnv.New64a()
@@ -407,11 +428,25 @@ func BenchmarkFingerprintTypical(b *testing.B) {
 	for _, s := range stmts {
 		bytes += int64(len(s.raw))
 	}
-	b.SetBytes(bytes / int64(len(stmts)))
-	i := 0
-	for b.Loop() {
-		s := stmts[i%len(stmts)]
-		Fingerprint(s.system, s.raw)
-		i++
-	}
+	b.Run("Fingerprint", func(b *testing.B) {
+		b.SetBytes(bytes / int64(len(stmts)))
+		b.ReportAllocs()
+		i := 0
+		for b.Loop() {
+			s := stmts[i%len(stmts)]
+			Fingerprint(s.system, s.raw)
+			i++
+		}
+	})
+	b.Run("AppendFingerprint", func(b *testing.B) {
+		b.SetBytes(bytes / int64(len(stmts)))
+		b.ReportAllocs()
+		var buf []byte
+		i := 0
+		for b.Loop() {
+			s := stmts[i%len(stmts)]
+			buf = AppendFingerprint(buf[:0], s.system, s.raw)
+			i++
+		}
+	})
 }

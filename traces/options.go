@@ -17,10 +17,13 @@ type Options struct {
 	Service string
 	// Statement, when set, replaces every recorded database statement by
 	// its result as spans are decoded (in parallel), for example with a
-	// fingerprint that removes literals. Calls that then agree are interned
-	// once, which saves memory and time on large trace files. Nil keeps the
-	// raw text. Source.StatementsNormalized records which was done.
-	Statement func(system, raw string) string
+	// fingerprint that removes literals. It appends the result for raw to
+	// dst and returns the extended slice (as strconv's Append functions
+	// do), so that a decoder can reuse one buffer for every span. Calls
+	// that then agree are interned once, which saves memory and time on
+	// large trace files. Nil keeps the raw text.
+	// Source.StatementsNormalized records which was done.
+	Statement func(dst []byte, system, raw string) []byte
 	// SkipDigest leaves Input.SHA256 empty, for reports that do not show
 	// it: hashing is a fifth of the CPU time of reading OTLP/JSON.
 	SkipDigest bool

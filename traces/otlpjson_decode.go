@@ -51,6 +51,7 @@ type decoder struct {
 	stmts                 map[string]string
 	stmtLookups, stmtHits int
 	stmtSkip              int
+	stmtBuf               []byte // the last uncached result
 }
 
 // Statement cache bounds: entries, lookups per hit-rate check, and
@@ -61,11 +62,13 @@ const (
 	stmtSkipFor       = 1 << 16
 )
 
-// statement applies Options.Statement through the cache.
+// statement applies Options.Statement through the cache. The result may
+// be a view of d.stmtBuf, valid until the next call.
 func (d *decoder) statement(system, raw string) string {
 	if d.stmtSkip > 0 {
 		d.stmtSkip--
-		return d.c.opts.Statement(system, raw)
+		d.stmtBuf = d.c.opts.Statement(d.stmtBuf[:0], system, raw)
+		return bytesString(d.stmtBuf)
 	}
 	if d.stmtLookups++; d.stmtLookups == stmtCheckEvery {
 		if d.stmtHits*8 < d.stmtLookups {
@@ -79,7 +82,8 @@ func (d *decoder) statement(system, raw string) string {
 		d.stmtHits++
 		return v
 	}
-	v := d.c.opts.Statement(system, raw)
+	d.stmtBuf = d.c.opts.Statement(d.stmtBuf[:0], system, raw)
+	v := string(d.stmtBuf)
 	if d.stmts == nil || len(d.stmts) >= maxStatementCache {
 		d.stmts = make(map[string]string, 256)
 	}

@@ -1677,3 +1677,59 @@ func TestSourceUsesUpCollector(t *testing.T) {
 		t.Error("Add after Source succeeded")
 	}
 }
+
+func TestStatementHook(t *testing.T) {
+	// Options.Statement appends into a buffer that the decoder reuses for
+	// every span, and a cache serves repeated statements until it stops
+	// paying. Every call must still carry the normalised text of its own
+	// span: first repeated statements (served by the cache), then
+	// thousands of distinct ones (the cache switches itself off).
+	normalise := func(dst []byte, system, raw string) []byte {
+		for i := range len(raw) {
+			if c := raw[i]; '0' <= c && c <= '9' {
+				dst = append(dst, '#')
+			} else {
+				dst = append(dst, c)
+			}
+		}
+		return append(dst, " /* "+system+" */"...)
+	}
+	const n = 12_000
+	want := map[string]int{}
+	var ls []string
+	var spans []tspan
+	for i := range n {
+		raw := fmt.Sprintf("SELECT a FROM t%d WHERE x = 1", i%10)
+		if i >= 3000 {
+			raw = fmt.Sprintf("SELECT b FROM u WHERE id = %d AND tag = '%x'", i*7919%100_003, i)
+		}
+		want[string(normalise(nil, "sqlite", raw))]++
+		trace := fmt.Sprintf("%032x", i/20+1)
+		spans = append(spans, tspan{trace: trace, id: fmt.Sprintf("%016x", i+1), name: "query", kind: 3,
+			start: int64(i), end: int64(i) + 10, attrs: []attr{str("db.system.name", "sqlite"), str("db.query.text", raw)}})
+		if len(spans) == 20 {
+			ls = append(ls, line(tres{"greenhouse-api", spans}))
+			spans = nil
+		}
+	}
+	for _, workers := range []int{1, 3} {
+		t.Run(fmt.Sprintf("%d workers", workers), func(t *testing.T) {
+			src := mustCollect(t, Options{Statement: normalise, Workers: workers}, input{"q.jsonl", lines(ls...)})
+			got := map[string]int{}
+			for i := range src.Paths.Len() {
+				if p := src.Paths.At(i); p.Call != 0 {
+					got[src.Calls[p.Call].Statement]++
+				}
+			}
+			if !reflect.DeepEqual(got, want) {
+				t.Errorf("calls by statement differ: %d distinct, want %d", len(got), len(want))
+				for s, k := range got {
+					if want[s] != k {
+						t.Errorf("%q: %d calls, want %d", s, k, want[s])
+						break
+					}
+				}
+			}
+		})
+	}
+}

@@ -150,7 +150,7 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 	if !f.ShowLiterals {
 		// Fingerprint while decoding: literals never reach memory, and calls
 		// that differ only in literals are held once.
-		opts.Statement = func(system, raw string) string { return attribute.Fingerprint(system, raw).Text }
+		opts.Statement = attribute.AppendFingerprint
 	}
 	loader := traces.NewLoader(opts)
 	var total int64
