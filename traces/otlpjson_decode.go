@@ -422,17 +422,6 @@ func nanos(n json.Number) (int64, error) {
 	if n == "" {
 		return 0, nil
 	}
-	if len(n) <= 18 {
-		// Fast path: up to 18 digits cannot overflow.
-		var v int64
-		i := 0
-		for ; i < len(n) && '0' <= n[i] && n[i] <= '9'; i++ {
-			v = v*10 + int64(n[i]-'0')
-		}
-		if i == len(n) {
-			return v, nil
-		}
-	}
 	v, ok := parseInt(string(n))
 	if !ok || v < 0 {
 		return 0, &valueError{what: "invalid timestamp", raw: []byte(n)}

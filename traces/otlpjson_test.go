@@ -1733,3 +1733,36 @@ func TestStatementHook(t *testing.T) {
 		})
 	}
 }
+
+func TestParseInt(t *testing.T) {
+	// Plain digits take a fast path; the rest go to strconv. The proto3
+	// JSON mapping also accepts an integral number in exponent form.
+	for _, tc := range []struct {
+		in   string
+		want int64
+		ok   bool
+	}{
+		{"0", 0, true},
+		{"8080", 8080, true},
+		{"000123", 123, true},
+		{"1780488000048243810", 1780488000048243810, true}, // a timestamp: 19 digits
+		{"9223372036854775807", math.MaxInt64, true},
+		{"9223372036854775808", 0, false},
+		{"9999999999999999999", 0, false},
+		{"18446744073709551616", 0, false},
+		{"-42", -42, true},
+		{"+7", 7, true},
+		{"1e3", 1000, true},
+		{"1.5", 0, false},
+		{"", 0, false},
+		{"12a", 0, false},
+	} {
+		got, ok := parseInt(tc.in)
+		if got != tc.want || ok != tc.ok {
+			t.Errorf("parseInt(%q) = %d, %v; want %d, %v", tc.in, got, ok, tc.want, tc.ok)
+		}
+		if want, err := strconv.ParseInt(tc.in, 10, 64); err == nil && (got != want || !ok) {
+			t.Errorf("parseInt(%q) = %d, %v; strconv.ParseInt gives %d", tc.in, got, ok, want)
+		}
+	}
+}

@@ -184,6 +184,18 @@ func decodeBase64(dst, s []byte) (int, bool) {
 // parseInt parses a JSON number (or the content of a JSON string) as an
 // int64; proto3 JSON also allows an integral number in exponent form.
 func parseInt(s string) (int64, bool) {
+	if len(s) <= 19 {
+		// Fast path for plain digits (timestamps, ports): 19 of them
+		// cannot overflow a uint64, and one more check keeps it an int64.
+		var v uint64
+		i := 0
+		for ; i < len(s) && '0' <= s[i] && s[i] <= '9'; i++ {
+			v = v*10 + uint64(s[i]-'0')
+		}
+		if i == len(s) && i > 0 && v <= math.MaxInt64 {
+			return int64(v), true
+		}
+	}
 	if v, err := strconv.ParseInt(s, 10, 64); err == nil {
 		return v, true
 	}
