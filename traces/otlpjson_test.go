@@ -11,6 +11,7 @@ import (
 	"io"
 	"math"
 	"math/rand/v2"
+	"net"
 	"reflect"
 	"runtime"
 	"slices"
@@ -1764,5 +1765,29 @@ func TestParseInt(t *testing.T) {
 		if want, err := strconv.ParseInt(tc.in, 10, 64); err == nil && (got != want || !ok) {
 			t.Errorf("parseInt(%q) = %d, %v; strconv.ParseInt gives %d", tc.in, got, ok, want)
 		}
+	}
+}
+
+func TestPeersInTurn(t *testing.T) {
+	// Spans of one job call several peers in turn, more than the decoder
+	// remembers: every call must still name its own host:port.
+	hosts := []string{"db-a", "db-b", "rates.carrier.test", "db-a", "cache", "db-c", "db-d", "db-b"}
+	ports := []int64{5432, 5432, 443, 5433, 6379, 5432, 5432, 5432}
+	var spans []tspan
+	want := map[string]bool{}
+	for i := range 40 {
+		h, p := hosts[i%len(hosts)], ports[i%len(ports)]
+		want[fmt.Sprintf("%d %s", i+1, net.JoinHostPort(h, strconv.FormatInt(p, 10)))] = true
+		spans = append(spans, tspan{trace: "0af7651916cd43dd8448eb211c80319c", id: fmt.Sprintf("%016x", i+1), name: "query", kind: 3,
+			start: int64(i + 1), end: int64(i + 2), attrs: []attr{str("db.system.name", "postgresql"), str("server.address", h), num("server.port", p)}})
+	}
+	src := mustCollect(t, Options{Strict: true}, input{"p.jsonl", lines(line(tres{"greenhouse-api", spans}))})
+	got := map[string]bool{}
+	for i := range src.Paths.Len() {
+		p := src.Paths.At(i)
+		got[fmt.Sprintf("%d %s", i+1, src.Calls[p.Call].Peer)] = true // paths are in start order
+	}
+	if !reflect.DeepEqual(got, want) {
+		t.Errorf("calls by span:\n%v\nwant\n%v", got, want)
 	}
 }

@@ -288,23 +288,36 @@ func hostPort(host string, a *attrSet, port int, m *memo) string {
 	if !ok || p <= 0 {
 		return host
 	}
-	if host != m.host || p != m.port {
-		m.host, m.port, m.hostPort = host, p, net.JoinHostPort(host, strconv.FormatInt(p, 10))
+	for _, e := range m.peers {
+		if e.port == p && e.host == host {
+			return e.hostPort
+		}
 	}
-	return m.hostPort
+	e := &m.peers[m.nextPeer%len(m.peers)]
+	m.nextPeer++
+	*e = peerMemo{host, p, net.JoinHostPort(host, strconv.FormatInt(p, 10))}
+	return e.hostPort
 }
 
 // memo keeps the last strings that spanDetails made, so that the many
-// spans of one call site do not each allocate them again.
+// spans of one call site do not each allocate them again. A job's spans
+// call a few peers in turn (the database, a remote service): the last
+// four host:port strings are kept.
 type memo struct {
-	host     string
-	port     int64
-	hostPort string
+	peers    [4]peerMemo
+	nextPeer int
 	url      string
 	urlHost  string
 	method   string
 	route    string
 	function string
+}
+
+// peerMemo is a host, a port and their host:port.
+type peerMemo struct {
+	host     string
+	port     int64
+	hostPort string
 }
 
 // dbSystemName maps db.system values renamed by semantic conventions
