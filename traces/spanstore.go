@@ -114,15 +114,53 @@ func (s *spanStore) takeSorted(k int, traces []traceID, count []int32) sortedPar
 		count[t]++
 	}
 	start := 0
+	var keys []spanKey
 	for _, t := range ids {
 		end := int(count[t])
 		count[t] = 0
 		if end-start > 1 {
-			slices.SortStableFunc(sp.order[start:end], func(x, y int32) int {
-				return cmp.Compare(sp.at(x).id, sp.at(y).id)
-			})
+			keys = keys[:0]
+			for _, i := range sp.order[start:end] {
+				keys = append(keys, spanKey{sp.at(i).id, i})
+			}
+			sortSpanKeys(keys)
+			for j, k := range keys {
+				sp.order[start+j] = k.i
+			}
 		}
 		start = end
 	}
 	return sp
 }
+
+// spanKey is a span's ID and its index in a partition, in input order.
+type spanKey struct {
+	id uint64
+	i  int32
+}
+
+// sortSpanKeys sorts a trace's spans by span ID and input order: by
+// insertion for the few spans of most traces (keys come in input order,
+// and insertion is stable), else with slices.SortFunc on both fields.
+func sortSpanKeys(keys []spanKey) {
+	if len(keys) > smallSort {
+		slices.SortFunc(keys, func(a, b spanKey) int {
+			if c := cmp.Compare(a.id, b.id); c != 0 {
+				return c
+			}
+			return cmp.Compare(a.i, b.i)
+		})
+		return
+	}
+	for j := 1; j < len(keys); j++ {
+		k := keys[j]
+		m := j
+		for ; m > 0 && keys[m-1].id > k.id; m-- {
+			keys[m] = keys[m-1]
+		}
+		keys[m] = k
+	}
+}
+
+// smallSort is the longest run that the assembler sorts by insertion.
+const smallSort = 48
