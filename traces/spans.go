@@ -92,41 +92,7 @@ type assembler struct {
 	// Scratch space reused for every trace.
 	nodes                             []node
 	walk, count, children, topo, emit []int32
-	keys                              []emitKey
-}
-
-// emitKey is what a trace's paths are ordered by: start time and span ID;
-// k is the span's node.
-type emitKey struct {
-	start int64
-	id    uint64
-	k     int32
-}
-
-func (a emitKey) less(b emitKey) bool {
-	return a.start < b.start || a.start == b.start && a.id < b.id
-}
-
-// sortEmitKeys sorts keys: by insertion when they are few, as in
-// sortSpanKeys.
-func sortEmitKeys(keys []emitKey) {
-	if len(keys) > smallSort {
-		slices.SortFunc(keys, func(a, b emitKey) int {
-			if c := cmp.Compare(a.start, b.start); c != 0 {
-				return c
-			}
-			return cmp.Compare(a.id, b.id)
-		})
-		return
-	}
-	for j := 1; j < len(keys); j++ {
-		k := keys[j]
-		m := j
-		for ; m > 0 && k.less(keys[m-1]); m-- {
-			keys[m] = keys[m-1]
-		}
-		keys[m] = k
-	}
+	keys                              []assemblyKey
 }
 
 // partPaths is one partition's paths in the collector's trace, frame,
@@ -492,11 +458,11 @@ func (as *assembler) trace(nodes []node) error {
 	// Paths in start order, then span ID order (IDs are unique here).
 	keys := as.keys[:0]
 	for _, k := range emit {
-		keys = append(keys, emitKey{nodes[k].start, nodes[k].rec.id, k})
+		keys = append(keys, assemblyKey{nodes[k].start, nodes[k].rec.id, k})
 	}
-	sortEmitKeys(keys)
+	sortKeys(keys)
 	for j, key := range keys {
-		emit[j] = key.k
+		emit[j] = key.i
 	}
 	as.keys = keys
 

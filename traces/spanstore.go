@@ -114,16 +114,16 @@ func (s *spanStore) takeSorted(k int, traces []traceID, count []int32) sortedPar
 		count[t]++
 	}
 	start := 0
-	var keys []spanKey
+	var keys []assemblyKey
 	for _, t := range ids {
 		end := int(count[t])
 		count[t] = 0
 		if end-start > 1 {
 			keys = keys[:0]
 			for _, i := range sp.order[start:end] {
-				keys = append(keys, spanKey{sp.at(i).id, i})
+				keys = append(keys, assemblyKey{id: sp.at(i).id, i: i})
 			}
-			sortSpanKeys(keys)
+			sortKeys(keys) // by span ID, then input order
 			for j, k := range keys {
 				sp.order[start+j] = k.i
 			}
@@ -133,29 +133,39 @@ func (s *spanStore) takeSorted(k int, traces []traceID, count []int32) sortedPar
 	return sp
 }
 
-// spanKey is a span's ID and its index in a partition, in input order.
-type spanKey struct {
-	id uint64
-	i  int32
+// assemblyKey is what assembly sorts a trace's spans by: major (a start
+// time, or 0), then span ID, then i, the span's index in input order,
+// which makes the order total. Of spans with the same ID the first read
+// sorts first, and is kept.
+type assemblyKey struct {
+	major int64
+	id    uint64
+	i     int32
 }
 
-// sortSpanKeys sorts a trace's spans by span ID and input order: by
-// insertion for the few spans of most traces (keys come in input order,
-// and insertion is stable), else with slices.SortFunc on both fields.
-func sortSpanKeys(keys []spanKey) {
+func (a assemblyKey) less(b assemblyKey) bool {
+	if a.major != b.major {
+		return a.major < b.major
+	}
+	if a.id != b.id {
+		return a.id < b.id
+	}
+	return a.i < b.i
+}
+
+// sortKeys sorts keys: by insertion for the few of a typical trace, else
+// with slices.SortFunc.
+func sortKeys(keys []assemblyKey) {
 	if len(keys) > smallSort {
-		slices.SortFunc(keys, func(a, b spanKey) int {
-			if c := cmp.Compare(a.id, b.id); c != 0 {
-				return c
-			}
-			return cmp.Compare(a.i, b.i)
+		slices.SortFunc(keys, func(a, b assemblyKey) int {
+			return cmp.Or(cmp.Compare(a.major, b.major), cmp.Compare(a.id, b.id), cmp.Compare(a.i, b.i))
 		})
 		return
 	}
 	for j := 1; j < len(keys); j++ {
 		k := keys[j]
 		m := j
-		for ; m > 0 && keys[m-1].id > k.id; m-- {
+		for ; m > 0 && k.less(keys[m-1]); m-- {
 			keys[m] = keys[m-1]
 		}
 		keys[m] = k
