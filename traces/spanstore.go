@@ -144,13 +144,7 @@ type assemblyKey struct {
 }
 
 func (a assemblyKey) less(b assemblyKey) bool {
-	if a.major != b.major {
-		return a.major < b.major
-	}
-	if a.id != b.id {
-		return a.id < b.id
-	}
-	return a.i < b.i
+	return a.major < b.major || a.major == b.major && (a.id < b.id || a.id == b.id && a.i < b.i)
 }
 
 // sortKeys sorts keys: by insertion for the few of a typical trace, else
