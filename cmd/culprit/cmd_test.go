@@ -7,6 +7,7 @@ import (
 	"os"
 	"path/filepath"
 	"regexp"
+	"runtime"
 	"strings"
 	"testing"
 	"time"
@@ -382,4 +383,33 @@ func TestCPUProfileEnv(t *testing.T) {
 		t.Errorf("sample types %v, want cpu", p.SampleType)
 	}
 	startCPUProfile("")() // no path: nothing to do
+}
+
+func TestReportsDoNotDependOnCores(t *testing.T) {
+	// Reading, assembly and charging use every core and hand their
+	// results back in input order: the report must be byte for byte the
+	// one a single core gives. (CI also runs this under the race
+	// detector.)
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
+	for _, args := range [][]string{
+		{"demo", "--format", "json", "--limit", "0"},
+		{"demo", "--traces", "--format", "json", "--limit", "0"},
+		{"demo", "--traces", "--format", "csv", "--limit", "0", "--inclusive"},
+	} {
+		t.Run(strings.Join(args[1:], " "), func(t *testing.T) {
+			var want string
+			for _, procs := range []int{1, 2, 5} {
+				runtime.GOMAXPROCS(procs)
+				code, out, errOut := runTest(t, "", args...)
+				if code != exitOK {
+					t.Fatalf("GOMAXPROCS=%d: exit %d: %s", procs, code, errOut)
+				}
+				if procs == 1 {
+					want = out
+				} else if out != want {
+					t.Errorf("GOMAXPROCS=%d: the report differs from the one-core report", procs)
+				}
+			}
+		})
+	}
 }
