@@ -157,7 +157,8 @@ func cloneCall(k Call) Call {
 // run decodes one job.
 func (d *decoder) run(j *job) *batch {
 	// Decoded strings refer to the job's data, whose array is reused
-	// once the batch is merged: nothing may carry over to the next job.
+	// once the batch is merged: nothing that refers to it may carry over
+	// to the next job (the tables hold copies).
 	d.b = &batch{}
 	select {
 	case d.b.spans = <-d.spare:
