@@ -134,9 +134,10 @@ func (s *spanStore) takeSorted(k int, traces []traceID, count []int32) sortedPar
 }
 
 // assemblyKey is what assembly sorts a trace's spans by: major (a start
-// time, or 0), then span ID, then i, the span's index in input order,
-// which makes the order total. Of spans with the same ID the first read
-// sorts first, and is kept.
+// time, or 0), then span ID, then i, the index it carries along, which
+// makes the order total. Sorting a partition's spans, i is the span's
+// index in input order, so that of spans with the same ID the first read
+// sorts first and is kept; sorting a trace's paths, it is the node.
 type assemblyKey struct {
 	major int64
 	id    uint64
