@@ -421,52 +421,28 @@ func (c *SpanCollector) merge(name string, input int32, b *batch, ws *Warnings) 
 		*ids = globalIDs{frames: ids.frames[:0], calls: ids.calls[:0], strs: ids.strs[:0]}
 	}
 	for _, f := range b.frames {
-		id, ok := c.frameIndex[f]
-		if !ok {
-			if len(c.frames)-1 >= c.limits.MaxFrames {
-				line, local := 0, int32(len(ids.frames))
-				for _, s := range b.spans {
-					if s.frame == local {
-						line = int(s.line)
-						break
-					}
+		if _, ok := c.frameIndex[f]; !ok && len(c.frames)-1 >= c.limits.MaxFrames {
+			line, local := 0, int32(len(ids.frames))
+			for _, s := range b.spans {
+				if s.frame == local {
+					line = int(s.line)
+					break
 				}
-				return &ParseError{File: name, Line: line,
-					Err: fmt.Errorf("%w: more than %d distinct frames", ErrLimit, c.limits.MaxFrames)}
 			}
-			id = int32(len(c.frames))
-			c.frames = append(c.frames, f) // the decoder's copy
-			c.frameIndex[f] = id
+			return &ParseError{File: name, Line: line,
+				Err: fmt.Errorf("%w: more than %d distinct frames", ErrLimit, c.limits.MaxFrames)}
 		}
-		ids.frames = append(ids.frames, id)
+		ids.frames = append(ids.frames, intern(c.frameIndex, &c.frames, f)) // keeps the decoder's copy
 	}
 	for _, k := range b.calls {
-		id, ok := c.callIndex[k]
-		if !ok {
-			id = int32(len(c.calls))
-			c.calls = append(c.calls, k)
-			c.callIndex[k] = id
-		}
-		ids.calls = append(ids.calls, id)
+		ids.calls = append(ids.calls, intern(c.callIndex, &c.calls, k))
 	}
 	for _, s := range b.strs {
-		id, ok := c.strIndex[s]
-		if !ok {
-			id = int32(len(c.strs))
-			c.strs = append(c.strs, s)
-			c.strIndex[s] = id
-		}
-		ids.strs = append(ids.strs, id)
+		ids.strs = append(ids.strs, intern(c.strIndex, &c.strs, s))
 	}
 	tmap := make([]int32, len(b.traces))
 	for i, t := range b.traces {
-		id, ok := c.traceIndex[t]
-		if !ok {
-			id = int32(len(c.traceIDs))
-			c.traceIDs = append(c.traceIDs, t)
-			c.traceIndex[t] = id
-		}
-		tmap[i] = id
+		tmap[i] = intern(c.traceIndex, &c.traceIDs, t)
 	}
 	fmap, cmap, smap := ids.frames, ids.calls, ids.strs
 	for _, s := range b.spans {
