@@ -455,6 +455,9 @@ func (d *decoder) span(sp *jsonSpan, service string, line int64) error {
 	}
 	if problem != "" {
 		msg := fmt.Sprintf("span %q skipped: invalid %s", truncate(sp.Name, 60), problem)
+		if !d.c.opts.ShowLiterals {
+			msg = redactText(msg)
+		}
 		if d.c.opts.Strict {
 			d.b.err = &ParseError{File: d.name, Line: clampLine(line), Err: fmt.Errorf("%w: %s: %s", ErrSpanRepair, WarnInvalidID, msg)}
 			return nil
@@ -470,6 +473,9 @@ func (d *decoder) span(sp *jsonSpan, service string, line int64) error {
 		}
 	}
 	frame, call, route := spanDetails(SpanKind(sp.Kind), sp.Name, service, &d.attrs, &d.memo)
+	if !d.c.opts.ShowLiterals {
+		d.redactSpan(sp.Name, &frame, &call)
+	}
 	if call.Statement != "" && d.c.opts.Statement != nil {
 		// Normalise here, in the parallel decoders, so that calls differing
 		// only in literals intern to one Call.

@@ -146,6 +146,8 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 		Strict:     f.Strict,
 		Service:    f.Service,
 		SkipDigest: f.skipDigest,
+
+		ShowLiterals: f.ShowLiterals,
 	}
 	if !f.ShowLiterals {
 		// Fingerprint while decoding: literals never reach memory, and calls

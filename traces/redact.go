@@ -1,0 +1,235 @@
+package traces
+
+import (
+	"net/url"
+	"strings"
+)
+
+// This file keeps literal values out of what spans contribute to a
+// report. Statements are fingerprinted (Options.Statement); the rest of a
+// span's text — its name when it becomes a frame, database operation
+// names and summaries, HTTP URLs, peers — is redacted here while the span
+// is decoded, unless Options.ShowLiterals is set. Names that come from
+// code (code.function.name) and route templates (http.route) are kept:
+// they name code, not data.
+
+// redactSpan removes literals from a decoded span's frame and call. name
+// is the span's name; f.Function equal to it means the frame was named
+// after the span.
+func (d *decoder) redactSpan(name string, f *Frame, call *Call) {
+	database := f.Protocol == ProtocolDatabase
+	switch {
+	case f.Function == name && database:
+		// Older instrumentations put the whole statement in the span name.
+		f.Function = d.redactStatement(f.System, name)
+	case f.Function == name:
+		f.Function = redactText(name)
+	case f.Function == d.attrs.str(aMessagingDestinationName, aMessagingDestination):
+		f.Function = redactText(f.Function)
+	}
+	if database {
+		call.Summary = d.redactStatement(f.System, call.Summary)
+		call.Operation = d.redactStatement(f.System, call.Operation)
+	} else {
+		call.Operation = redactText(call.Operation)
+	}
+	call.Peer = redactPeer(call.Peer)
+}
+
+// redactStatement fingerprints text that may be a statement: a database
+// span's name, operation name or summary. Words without digits, quotes or
+// operators (SELECT, "SELECT orders") are kept as they are.
+func (d *decoder) redactStatement(system, s string) string {
+	if plainWords(s) {
+		return s
+	}
+	// Words first: a fingerprint may split an e-mail address into
+	// identifiers it keeps.
+	s = redactText(s)
+	if d.c.opts.Statement != nil {
+		s = strings.Clone(d.statement(system, s))
+	}
+	return s
+}
+
+// plainWords reports whether s holds only ASCII letters, '_', '.', '*',
+// ',', parentheses and spaces: nothing a literal is written with.
+func plainWords(s string) bool {
+	for i := 0; i < len(s); i++ {
+		c := s[i]
+		if !('a' <= c && c <= 'z' || 'A' <= c && c <= 'Z' || strings.IndexByte("_.*,() ", c) >= 0) {
+			return false
+		}
+	}
+	return true
+}
+
+// redactPeer drops user information from a host or service name
+// ("alice@db.example" → "db.example").
+func redactPeer(s string) string {
+	if i := strings.LastIndexByte(s, '@'); i >= 0 {
+		return s[i+1:]
+	}
+	return s
+}
+
+// mayHoldLiteral reports whether s has a byte that redactText may change.
+func mayHoldLiteral(s string) bool {
+	for i := 0; i < len(s); i++ {
+		if c := s[i]; '0' <= c && c <= '9' || strings.IndexByte("@'\"?%=#", c) >= 0 {
+			return true
+		}
+	}
+	return false
+}
+
+// redactText replaces the literal values in free text (a span name, an
+// HTTP operation, a message) by "?": quoted strings, numbers, e-mail
+// addresses and other words with '@', long hexadecimal IDs and UUIDs,
+// path segments holding any of those, and the values of query strings.
+// A URL keeps its scheme, host and redacted path; user information,
+// query values and the fragment are dropped. Words mixing letters and
+// digits (v2, func1, sha256) are kept: they name things.
+func redactText(s string) string {
+	if !mayHoldLiteral(s) {
+		return s
+	}
+	if strings.ContainsAny(s, "'\"`") {
+		s = redactQuotes(s) // quoted strings may hold spaces
+	}
+	var b strings.Builder
+	for i, tok := range strings.Split(s, " ") {
+		if i > 0 {
+			b.WriteByte(' ')
+		}
+		switch {
+		case strings.Contains(tok, "://"):
+			b.WriteString(redactURL(tok))
+		case strings.HasPrefix(tok, "/"):
+			path, query, hasQuery := strings.Cut(tok, "?")
+			path, _, _ = strings.Cut(path, "#")
+			b.WriteString(redactWords(path))
+			if hasQuery {
+				b.WriteString(redactQuery(query))
+			}
+		default:
+			b.WriteString(redactWords(tok))
+		}
+	}
+	return b.String()
+}
+
+// redactURL keeps a URL's scheme, host and port, its path with literal
+// segments replaced, and the keys of its query; anything it cannot parse
+// becomes "?".
+func redactURL(s string) string {
+	u, err := url.Parse(s)
+	if err != nil || u.Host == "" {
+		return "?"
+	}
+	out := u.Scheme + "://" + u.Host + redactWords(u.Path)
+	if u.RawQuery != "" {
+		out += redactQuery(u.RawQuery)
+	}
+	return out
+}
+
+// redactQuery renders a query string as "?key=?&key2=?": values dropped,
+// keys redacted like words.
+func redactQuery(q string) string {
+	var b strings.Builder
+	for i, kv := range strings.Split(q, "&") {
+		b.WriteByte("?&"[min(i, 1)])
+		k, _, _ := strings.Cut(kv, "=")
+		k, _, _ = strings.Cut(k, "#")
+		b.WriteString(redactWords(k))
+		b.WriteString("=?")
+	}
+	return b.String()
+}
+
+// isWordSep reports whether c separates the words redactWords judges.
+func isWordSep(c byte) bool { return strings.IndexByte("/=,;&:()[]{}<>|\t", c) >= 0 }
+
+// redactWords replaces the literal words of s (quotes already gone) by "?".
+func redactWords(s string) string {
+	if !mayHoldLiteral(s) {
+		return s
+	}
+	var b strings.Builder
+	for i := 0; i < len(s); {
+		c := s[i]
+		if isWordSep(c) {
+			b.WriteByte(c)
+			i++
+		} else {
+			j := i
+			for j < len(s) && !isWordSep(s[j]) {
+				j++
+			}
+			if w := s[i:j]; literalWord(w) {
+				b.WriteByte('?')
+			} else {
+				b.WriteString(w)
+			}
+			i = j
+		}
+	}
+	return b.String()
+}
+
+// redactQuotes replaces each quoted string of s by "?".
+func redactQuotes(s string) string {
+	var b strings.Builder
+	for i := 0; i < len(s); {
+		if c := s[i]; c == '\'' || c == '"' || c == '`' {
+			i = closingQuote(s, i)
+			b.WriteByte('?')
+			continue
+		}
+		b.WriteByte(s[i])
+		i++
+	}
+	return b.String()
+}
+
+// closingQuote returns the index after the quote closing the one at s[i]
+// (backslash escapes skipped), or len(s).
+func closingQuote(s string, i int) int {
+	q := s[i]
+	for j := i + 1; j < len(s); j++ {
+		switch s[j] {
+		case '\\':
+			j++
+		case q:
+			return j + 1
+		}
+	}
+	return len(s)
+}
+
+// literalWord reports whether w is a value rather than a name: it holds
+// '@', '?', '#' or a percent escape, or it is a number (digits with
+// signs, dots, dashes, underscores), or a hexadecimal ID of 16 or more
+// characters (UUIDs, trace and span IDs).
+func literalWord(w string) bool {
+	if strings.ContainsAny(w, "@?#%") {
+		return true
+	}
+	digits, hex, other := 0, 0, 0
+	for i := 0; i < len(w); i++ {
+		switch c := w[i]; {
+		case '0' <= c && c <= '9':
+			digits++
+		case 'a' <= c && c <= 'f' || 'A' <= c && c <= 'F':
+			hex++
+		case c == '-' || c == '.' || c == '+' || c == '_':
+		default:
+			other++
+		}
+	}
+	if digits == 0 {
+		return false
+	}
+	return hex == 0 && other == 0 || other == 0 && digits+hex >= 16
+}
