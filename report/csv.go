@@ -1,7 +1,6 @@
 package report
 
 import (
-	"encoding/csv"
 	"io"
 	"strconv"
 
@@ -60,7 +59,7 @@ var csvHeader = []string{
 
 // Render implements Renderer.
 func (CSV) Render(w io.Writer, r *attribute.Result, opts Options) error {
-	cw := csv.NewWriter(w)
+	cw := newCSVWriter(w)
 	if err := cw.Write(csvHeader); err != nil {
 		return err
 	}

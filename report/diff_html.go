@@ -36,7 +36,7 @@ type DiffHTML struct{}
 var diffSource string
 
 // diffTemplate is compiled once; a broken template fails every test.
-var diffTemplate = template.Must(template.New("diff.tmpl").Parse(diffSource))
+var diffTemplate = template.Must(template.New("diff.tmpl").Funcs(htmlFuncs).Parse(diffSource))
 
 // Change chart geometry in SVG user units (px at 100%).
 const (

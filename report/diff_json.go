@@ -1,7 +1,6 @@
 package report
 
 import (
-	"encoding/json"
 	"io"
 
 	"github.com/culprithq/culprit/attribute"
@@ -38,7 +37,5 @@ func (DiffJSON) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) e
 		cp.Changes = shown
 		doc.Comparison = &cp
 	}
-	enc := json.NewEncoder(w)
-	enc.SetIndent("", "  ")
-	return enc.Encode(doc)
+	return writeJSON(w, doc)
 }

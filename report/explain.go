@@ -2,7 +2,6 @@ package report
 
 import (
 	"bufio"
-	"encoding/json"
 	"fmt"
 	"io"
 	"strings"
@@ -18,9 +17,7 @@ const ExplainSchema = "culprit.explain/v1"
 func RenderExplanations(w io.Writer, format string, ex []attribute.Explanation, unit string, opts Options) error {
 	switch format {
 	case "json":
-		enc := json.NewEncoder(w)
-		enc.SetIndent("", "  ")
-		return enc.Encode(struct {
+		return writeJSON(w, struct {
 			Schema       string                  `json:"schema"`
 			Provenance   Provenance              `json:"producedBy"`
 			Explanations []attribute.Explanation `json:"explanations"`

@@ -31,7 +31,7 @@ type HTML struct{}
 var htmlSource string
 
 // htmlTemplate is compiled once; a broken template fails every test.
-var htmlTemplate = template.Must(template.New("html.tmpl").Parse(htmlSource))
+var htmlTemplate = template.Must(template.New("html.tmpl").Funcs(htmlFuncs).Parse(htmlSource))
 
 // sortScript sorts a table.sortable by the clicked header: numerically on
 // the cells' data-v attribute for th[data-type=num], else by text; rank

@@ -1,7 +1,6 @@
 package report
 
 import (
-	"encoding/json"
 	"io"
 
 	"github.com/culprithq/culprit/attribute"
@@ -28,7 +27,5 @@ func (JSON) Render(w io.Writer, r *attribute.Result, opts Options) error {
 		cp.Causes = r.Causes[:opts.Limit]
 		doc.Result = &cp
 	}
-	enc := json.NewEncoder(w)
-	enc.SetIndent("", "  ")
-	return enc.Encode(doc)
+	return writeJSON(w, doc)
 }
