@@ -8,6 +8,9 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/google/pprof/profile"
+	"golang.org/x/net/html"
 )
 
 // Personal data planted in a test input: an e-mail address, a card-like
@@ -142,4 +145,125 @@ func dotSVG(t *testing.T, doc string) []byte {
 		t.Fatalf("dot -Tsvg: %v\n%s", err, stderr.String())
 	}
 	return svg
+}
+
+// hostileProfile is greenhouseProfile with application functions named to
+// attack each output: a DOT HTML-like ID with a script URL, an HTML event
+// handler, a bidirectional override, a URL and an e-mail address, and a
+// name of 30,000 characters.
+func hostileProfile() []byte {
+	p := greenhouseProfile()
+	names := []string{
+		`example.com/greenhouse/<x> [URL="javascript:alert(1)"]; <y>`,
+		`example.com/greenhouse/orders.<img src=x onerror=alert(2)> "q" \N`,
+		"example.com/greenhouse/catalog.Total\u202e 0001 \u2066gnp.exe\u2069\u200b\ufeff",
+		"example.com/greenhouse/see.https://attacker.invalid/x.www.attacker.invalid.alice@example.org",
+		"example.com/greenhouse/" + strings.Repeat("x", 30000),
+	}
+	p.Function[1].Name, p.Function[1].SystemName = names[0], names[0]
+	p.Function[3].Name, p.Function[3].SystemName = names[1], names[1]
+	for i, name := range names[2:] {
+		id := uint64(10 + i)
+		f := &profile.Function{ID: id, Name: name, SystemName: name, Filename: "/src/greenhouse/h.go"}
+		l := &profile.Location{ID: id, Address: 0x402000 + id*16, Line: []profile.Line{{Function: f, Line: 1}}}
+		p.Function, p.Location = append(p.Function, f), append(p.Location, l)
+		p.Sample = append(p.Sample, &profile.Sample{Location: []*profile.Location{p.Location[2], l, p.Location[0]},
+			Value: []int64{int64(3 + i), int64(3+i) * 10_000_000}})
+	}
+	return rawProfile(p)
+}
+
+// isHidden reports the characters that must not reach a reader raw: the
+// bidirectional controls and invisible characters of the safety issue.
+func isHidden(r rune) bool {
+	return r >= 0x202a && r <= 0x202e || r >= 0x2066 && r <= 0x2069 || r >= 0x200b && r <= 0x200f || r == 0xfeff
+}
+
+// Hostile function names through every rank, diff and explain format,
+// and through graph and Graphviz's SVG of it: no output holds a raw
+// bidirectional or invisible character, the HTML pages run only their
+// own script, and the SVG holds no link, script URL or event handler.
+func TestHostileNamesEveryFormat(t *testing.T) {
+	dir := t.TempDir()
+	in := filepath.Join(dir, "hostile.pprof")
+	if err := os.WriteFile(in, hostileProfile(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	outputs := map[string]string{}
+	run := func(name string, args ...string) string {
+		code, out, errOut := runTest(t, "", args...)
+		if code != exitOK && code != 3 {
+			t.Fatalf("%s: exit %d: %s", name, code, errOut)
+		}
+		outputs[name] = out + errOut
+		return out
+	}
+	for _, f := range []string{"text", "markdown", "json", "csv", "html"} {
+		run("rank "+f, "rank", in, "--limit", "0", "--format", f, "--app", "example.com/")
+		run("diff "+f, "diff", in, in, "--limit", "0", "--format", f, "--app", "example.com/")
+	}
+	for _, f := range []string{"text", "json"} {
+		run("explain "+f, "explain", ".", in, "--format", f, "--app", "example.com/")
+	}
+	graph := run("graph", "graph", in, "--min-share", "0", "--app", "example.com/")
+	if !strings.Contains(graph, "javascript") || !strings.Contains(graph, `\\u202e`) {
+		t.Fatalf("the hostile names are not in the graph:\n%.2000s", graph)
+	}
+	for name, out := range outputs {
+		if i := strings.IndexFunc(out, isHidden); i >= 0 {
+			t.Errorf("%s holds a raw invisible character at byte %d", name, i)
+		}
+	}
+	for _, name := range []string{"rank html", "diff html"} {
+		checkMarkup(t, name, outputs[name], 1)
+	}
+	if _, err := exec.LookPath("dot"); err != nil {
+		t.Skip("Graphviz dot not installed")
+	}
+	svg := string(dotSVG(t, graph))
+	if strings.IndexFunc(svg, isHidden) >= 0 {
+		t.Error("the SVG holds a raw invisible character")
+	}
+	if !strings.Contains(svg, "gnp.exe") {
+		t.Error("the SVG lost the names")
+	}
+	checkMarkup(t, "graph svg", svg, 0)
+}
+
+// checkMarkup parses an HTML or SVG document with golang.org/x/net/html
+// (the HTML5 parsing algorithm) and fails on event-handler attributes,
+// javascript: URLs, links, and more <script> elements than scripts. A
+// name may still show "javascript:" as text or in a title, which is
+// inert.
+func checkMarkup(t *testing.T, name, doc string, scripts int) {
+	t.Helper()
+	root, err := html.Parse(strings.NewReader(doc))
+	if err != nil {
+		t.Fatalf("%s: %v", name, err)
+	}
+	var walk func(n *html.Node)
+	walk = func(n *html.Node) {
+		if n.Type == html.ElementNode {
+			switch n.Data {
+			case "script":
+				scripts--
+			case "a", "iframe", "object", "embed", "foreignobject":
+				t.Errorf("%s has a <%s> element", name, n.Data)
+			}
+			for _, a := range n.Attr {
+				key := strings.ToLower(a.Key)
+				url := key == "href" || key == "src" || key == "action" || key == "formaction" || key == "data" || strings.HasSuffix(key, ":href")
+				if strings.HasPrefix(key, "on") || url && strings.Contains(strings.ToLower(a.Val), "javascript:") {
+					t.Errorf("%s: <%s %s=%q>", name, n.Data, a.Key, a.Val)
+				}
+			}
+		}
+		for c := n.FirstChild; c != nil; c = c.NextSibling {
+			walk(c)
+		}
+	}
+	walk(root)
+	if scripts < 0 {
+		t.Errorf("%s has %d more <script> elements than its own", name, -scripts)
+	}
 }
