@@ -97,24 +97,44 @@ func redactText(s string) string {
 	if strings.ContainsAny(s, "'\"`") {
 		s = redactQuotes(s) // quoted strings may hold spaces
 	}
+	// Build the result only from the first token that changes: most names
+	// with digits (v2, pool-1) change nothing and allocate nothing.
 	var b strings.Builder
-	for i, tok := range strings.Split(s, " ") {
-		if i > 0 {
-			b.WriteByte(' ')
-		}
+	changed := false
+	for at, rest := 0, s; ; {
+		tok, more, found := strings.Cut(rest, " ")
+		var out string
 		switch {
 		case strings.Contains(tok, "://"):
-			b.WriteString(redactURL(tok))
+			out = redactURL(tok)
 		case strings.HasPrefix(tok, "/"):
 			path, query, hasQuery := strings.Cut(tok, "?")
 			path, _, _ = strings.Cut(path, "#")
-			b.WriteString(redactWords(path))
+			out = redactWords(path)
 			if hasQuery {
-				b.WriteString(redactQuery(query))
+				out += redactQuery(query)
 			}
 		default:
-			b.WriteString(redactWords(tok))
+			out = redactWords(tok)
 		}
+		if out != tok && !changed {
+			changed = true
+			b.WriteString(s[:at])
+		}
+		if changed {
+			b.WriteString(out)
+			if found {
+				b.WriteByte(' ')
+			}
+		}
+		if !found {
+			break
+		}
+		at += len(tok) + 1
+		rest = more
+	}
+	if !changed {
+		return s
 	}
 	return b.String()
 }
@@ -157,23 +177,31 @@ func redactWords(s string) string {
 		return s
 	}
 	var b strings.Builder
+	changed := false
 	for i := 0; i < len(s); {
-		c := s[i]
-		if isWordSep(c) {
-			b.WriteByte(c)
-			i++
-		} else {
-			j := i
-			for j < len(s) && !isWordSep(s[j]) {
-				j++
-			}
-			if w := s[i:j]; literalWord(w) {
+		j := i
+		for j < len(s) && !isWordSep(s[j]) {
+			j++
+		}
+		lit := j > i && literalWord(s[i:j])
+		if lit && !changed {
+			changed = true
+			b.WriteString(s[:i])
+		}
+		if changed {
+			if lit {
 				b.WriteByte('?')
 			} else {
-				b.WriteString(w)
+				b.WriteString(s[i:j])
 			}
-			i = j
+			if j < len(s) {
+				b.WriteByte(s[j]) // the separator
+			}
 		}
+		i = j + 1
+	}
+	if !changed {
+		return s
 	}
 	return b.String()
 }

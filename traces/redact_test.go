@@ -1,6 +1,9 @@
 package traces
 
-import "testing"
+import (
+	"strings"
+	"testing"
+)
 
 // Literal values in span text become "?"; names of code, hosts, path
 // templates and query keys stay. URL parts as defined by RFC 3986
@@ -19,6 +22,11 @@ func TestRedactText(t *testing.T) {
 		{"trace 5b8efff798038103d269b633813fc60c", "trace ?"},
 		{"http://[::1", "?"},
 		{"", ""},
+		{"a 1", "a ?"},
+		{"1 a", "? a"},
+		{"x/1/", "x/?/"},
+		{"/", "/"},
+		{"a  b 7", "a  b ?"},
 	}
 	for _, c := range cases {
 		if got := redactText(c.in); got != c.want {
@@ -33,7 +41,23 @@ func TestRedactText(t *testing.T) {
 // Redacting a name that holds no literal allocates nothing: it runs for
 // every span.
 func TestRedactTextPlainNoAlloc(t *testing.T) {
-	if n := testing.AllocsPerRun(100, func() { _ = redactText("GET /reports/monthly") }); n != 0 {
-		t.Errorf("%v allocations", n)
+	for _, s := range []string{"GET /reports/monthly", "GET /api/v2/pools/pool-a1 func1"} {
+		if n := testing.AllocsPerRun(100, func() { _ = redactText(s) }); n != 0 {
+			t.Errorf("%q: %v allocations", s, n)
+		}
 	}
+}
+
+// FuzzRedactText: any text redacts without panicking, and no '@' (of an
+// e-mail address or of URL user information) survives.
+func FuzzRedactText(f *testing.F) {
+	for _, s := range []string{"GET https://bob:pw@api.example.net/v1/cards/4111?email=a%40b.c#x",
+		"notify alice@example.org", "/users/alice@example.org?x=1", "'unclosed @", "x://@", "http://[::1]:80/@"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		if out := redactText(s); strings.Contains(out, "@") {
+			t.Errorf("redactText(%q) = %q keeps an @", s, out)
+		}
+	})
 }
