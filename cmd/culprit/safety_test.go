@@ -6,6 +6,8 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"regexp"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -265,5 +267,38 @@ func checkMarkup(t *testing.T, name, doc string, scripts int) {
 	walk(root)
 	if scripts < 0 {
 		t.Errorf("%s has %d more <script> elements than its own", name, -scripts)
+	}
+}
+
+// dot crashed on the demo CPU profile: its edge weights were nanoseconds,
+// past the integers Graphviz ranks with. Graphviz renders the graph of
+// the demo profile and traces; every weight is 1–100, and entry points
+// are houses in both (a trace's entry is an application span).
+func TestGraphvizRendersDemoGraphs(t *testing.T) {
+	for _, in := range []string{"demo/greenhouse-v42.cpu.pb.gz", "demo/greenhouse-v42.traces.jsonl.gz"} {
+		t.Run(filepath.Base(in), func(t *testing.T) {
+			code, out, errOut := runTest(t, "", "graph", in)
+			if code != exitOK {
+				t.Fatalf("exit %d: %s", code, errOut)
+			}
+			for _, m := range regexp.MustCompile(`weight="([0-9]+)"`).FindAllStringSubmatch(out, -1) {
+				if w, _ := strconv.Atoi(m[1]); w < 1 || w > 100 {
+					t.Errorf("weight %s", m[1])
+				}
+			}
+			entry := regexp.MustCompile(`(?s)label="(GET /reports/monthly|net/http\.\(\*conn\)\.serve)\\n[^"]*"[^\]]*shape="house"`)
+			if !entry.MatchString(out) {
+				t.Errorf("the entry point is not drawn as a house:\n%.1500s", out)
+			}
+			if !regexp.MustCompile(`label="[0-9.]+(ms|s), [0-9.]+%"`).MatchString(out) {
+				t.Errorf("no edge label in human units:\n%.1500s", out)
+			}
+			if _, err := exec.LookPath("dot"); err != nil {
+				t.Skip("Graphviz dot not installed")
+			}
+			if svg := dotSVG(t, out); !strings.Contains(string(svg), "<svg") {
+				t.Error("dot wrote no SVG")
+			}
+		})
 	}
 }
