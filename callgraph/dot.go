@@ -122,8 +122,8 @@ func (g *Digraph) Edges() []*DigraphEdge {
 //     escaped, '&' is written &amp; (Graphviz decodes entities in labels),
 //     and control, format (bidirectional and invisible) and line-separator
 //     characters are shown as \uXXXX text, invalid UTF-8 as \ufffd;
-//   - labels are cut to maxLabelRunes runes, far below Graphviz's
-//     16,384-byte limit on a string;
+//   - labels are cut in the middle to maxLabelRunes runes, far below
+//     Graphviz's 16,384-byte limit on a string;
 //   - an edge's weight is its share of Total scaled to 1–100, since dot
 //     ranks with integer weights and fails on very large ones; its label
 //     gives the cost and the share ("1.20s, 38%"), as does each node's
@@ -156,8 +156,10 @@ func dotQuote(s string) string { return `"` + dotEscape(s) + `"` }
 // dotEscape escapes s for the inside of a quoted DOT string.
 func dotEscape(s string) string {
 	if utf8.RuneCountInString(s) > maxLabelRunes {
+		// Keep both ends: a package path's start and a function's name.
 		rs := []rune(s)
-		s = string(rs[:maxLabelRunes-1]) + "…"
+		half := maxLabelRunes / 2
+		s = string(rs[:half]) + "…" + string(rs[len(rs)-(maxLabelRunes-half-1):])
 	}
 	var b strings.Builder
 	for _, r := range s {

@@ -159,8 +159,12 @@ func TestDOTWeightsAndLongNames(t *testing.T) {
 			t.Errorf("edge %s: weight %s label %s, want %s %q", e, edges[e]["weight"], edges[e]["label"], w[0], w[1])
 		}
 	}
-	if n := len(nodes[`"1"`]["label"]); n > 16384 || n < 1000 {
+	label := nodes[`"1"`]["label"]
+	if n := len(label); n > 16384 || n < 1000 {
 		t.Errorf("long name's label is %d bytes, want cut below 16,384", n)
+	}
+	if !strings.Contains(label, "é…é") || !strings.HasPrefix(label, `"éé`) {
+		t.Errorf("long name not cut in the middle: %.40s…", label)
 	}
 	if !utf8.Valid(out) {
 		t.Error("cutting a name split a character")
