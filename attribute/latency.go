@@ -1,0 +1,535 @@
+package attribute
+
+import (
+	"cmp"
+	"errors"
+	"slices"
+	"sort"
+
+	"github.com/culprithq/culprit/callgraph"
+	"github.com/culprithq/culprit/traces"
+)
+
+// ErrNoTiming is returned by Latency for a source without span timing:
+// profiles have neither requests nor the order of events in time, so
+// they cannot say what a request waited on.
+var ErrNoTiming = errors.New("latency needs traces: a profile has no requests and no timing order, so it cannot tell what made requests slow; record OpenTelemetry traces of the load test and pass those")
+
+// Kinds of critical-path time beside database and network calls.
+const (
+	// KindApplication is an application span's own time on the path.
+	KindApplication Kind = "application"
+	// KindUnaccounted is time inside the request's server span that no
+	// span covers (queueing, un-instrumented work).
+	KindUnaccounted Kind = "unaccounted"
+)
+
+// DefaultTail is the default quantile at and above which a request is in
+// its entry point's tail.
+const DefaultTail = 0.95
+
+// LatencyOptions control a latency analysis. The zero value takes the
+// defaults of Options and DefaultTail.
+type LatencyOptions struct {
+	Options
+	// Tail is the quantile (0 < Tail < 1) at or above which a request's
+	// latency puts it in its entry point's tail; 0 means DefaultTail.
+	Tail float64
+	// Slowest is how many of each entry point's slowest requests keep
+	// their critical path (LatencyEntry.Slowest); 0 keeps none.
+	Slowest int
+}
+
+// LatencyResult is what made the requests of a span source slow: per
+// entry point, the latency distribution and the critical-path time of
+// each root cause. Entries are sorted by p95 latency, slowest first.
+type LatencyResult struct {
+	Inputs   []traces.Input
+	Tail     float64
+	Requests int
+	Entries  []*LatencyEntry
+	App      AppInfo
+	Warnings []string
+}
+
+// LatencyEntry is one entry point's requests. Times are in nanoseconds.
+type LatencyEntry struct {
+	Entry    string
+	Requests int
+	// P50, P95, P99 and Mean of the requests' latency (the root span's
+	// duration); quantiles interpolate linearly (Hyndman and Fan's type 7).
+	P50, P95, P99, Mean float64
+	// TailThreshold is the Tail quantile of latency; TailRequests counts
+	// the requests at or above it. MedianRequests counts those at or below P50.
+	TailThreshold  float64
+	TailRequests   int
+	MedianRequests int
+	// Latency sums the requests' latencies; TailLatency and MedianLatency
+	// those of the tail and of the requests at or below P50.
+	Latency, TailLatency, MedianLatency int64
+	// Causes are sorted by critical-path time, largest first, then name.
+	Causes []*LatencyCause
+	// Slowest are the slowest requests' critical paths, slowest first
+	// (LatencyOptions.Slowest of them).
+	Slowest []*RequestPath
+}
+
+// LatencyCause is a root cause's time on one entry point's critical paths.
+type LatencyCause struct {
+	Function string
+	Kind     Kind
+	// NoAppFrame marks a call with no application frame above it; its
+	// Function is then NoAppFramePrefix and the entry point.
+	NoAppFrame bool
+	// Path is the time on the critical path summed over all requests;
+	// TailPath over the tail requests, MedianPath over those at or below P50.
+	Path, TailPath, MedianPath int64
+	// Summed is the cause's time whether on the critical path or not: its
+	// calls' whole durations, or its spans' own time. Summed ≥ Path; the
+	// difference is time hidden by parallel work.
+	Summed int64
+	// Requests counts the requests with time on the path for this cause.
+	Requests int
+}
+
+// Share returns the cause's fraction of the entry point's latency over
+// all requests, the tail and the median requests.
+func (c *LatencyCause) Share(e *LatencyEntry) (all, tail, median float64) {
+	return ratio(c.Path, e.Latency), ratio(c.TailPath, e.TailLatency), ratio(c.MedianPath, e.MedianLatency)
+}
+
+func ratio(a, b int64) float64 {
+	if b <= 0 {
+		return 0
+	}
+	return float64(a) / float64(b)
+}
+
+// RequestPath is one request's critical path as a tree of spans.
+type RequestPath struct {
+	Request string // trace ID
+	Latency int64
+	Root    *PathSpan
+}
+
+// PathSpan is a span of a request with its time on the critical path
+// (OnPath, which counts the span's own pieces only) and the children
+// that have time on it, in start order.
+type PathSpan struct {
+	Function string
+	Kind     Kind   // of the span's own time: database, network, application or unaccounted
+	Cause    string // the root cause its time is charged to
+	Start    int64  // ns after the request's start
+	Duration int64
+	OnPath   int64
+	Children []*PathSpan
+}
+
+// spanRole is how a span's time on the path is charged.
+type spanRole struct {
+	cause int32 // index into the analysis's causes; -1 for a span inside a call
+	call  bool  // a database or network call: the walk does not enter it
+}
+
+type pathCause struct {
+	function string
+	kind     Kind
+	noApp    bool
+}
+
+// latencyRun holds one analysis's state.
+type latencyRun struct {
+	src         *traces.Source
+	t           *callgraph.Tree
+	c           *Classifier
+	w           *walkState
+	entryLabels []string
+
+	causes  []pathCause
+	causeIx map[pathCause]int32
+	roles   []spanRole // by path index within the current request
+}
+
+func (r *latencyRun) cause(k pathCause) int32 {
+	if i, ok := r.causeIx[k]; ok {
+		return i
+	}
+	i := int32(len(r.causes))
+	r.causes = append(r.causes, k)
+	r.causeIx[k] = i
+	return i
+}
+
+// reqRecord is one request as the aggregation needs it.
+type reqRecord struct {
+	lo, hi  int // its paths
+	id      traces.RequestID
+	entry   int32
+	latency int64
+	pieces  []cpTally // its causes' time on the path
+	summed  []cpTally // and in all
+}
+
+type cpTally struct {
+	cause int32
+	dur   int64
+}
+
+// Latency computes, for every request of a span source read with
+// traces.Options.Timing, its critical path (see criticalPath) and charges
+// each piece with the attribution contract: a database or network call's
+// time to its root cause, an application span's own time to its function,
+// time of the server span that no span covers to unaccounted. A span
+// created by library code (instrumentation of a framework) is charged like
+// its nearest application span above it, else unaccounted. A request is a
+// trace; its latency is its root span's duration (of several root spans,
+// the server or consumer span that lasts longest).
+func Latency(t *callgraph.Tree, c *Classifier, opts LatencyOptions) (*LatencyResult, error) {
+	src := t.Source()
+	if src.Kind != traces.Spans || src.Timing == nil {
+		return nil, ErrNoTiming
+	}
+	tail := opts.Tail
+	if tail <= 0 || tail >= 1 {
+		tail = DefaultTail
+	}
+	entryLabels := opts.EntryLabels
+	if entryLabels == nil {
+		entryLabels = DefaultEntryLabels
+	}
+	r := &latencyRun{src: src, t: t, c: c, w: newWalkState(t, c), entryLabels: entryLabels, causeIx: map[pathCause]int32{}}
+	res := &LatencyResult{
+		Inputs:   src.Inputs,
+		Tail:     tail,
+		App:      AppInfo{Prefixes: c.rules.App, Detected: c.Detected, RulesFiles: c.rules.Files},
+		Warnings: src.Warnings.Strings(),
+	}
+	entryIx := map[string]int32{}
+	var entries []*LatencyEntry
+	var reqs []reqRecord
+	var cp cpSpans
+	var scratch cpScratch
+	n := src.Paths.Len()
+	for lo := 0; lo < n; {
+		req := src.Paths.At(lo).Request
+		hi := lo + 1
+		for hi < n && src.Paths.At(hi).Request == req {
+			hi++
+		}
+		if req != 0 {
+			if rec, ok := r.request(lo, hi, &cp, &scratch, entryIx, &entries); ok {
+				reqs = append(reqs, rec)
+			}
+		}
+		lo = hi
+	}
+	res.Requests = len(reqs)
+	r.aggregate(entries, reqs, tail)
+	if opts.Slowest > 0 {
+		r.slowest(entries, reqs, opts.Slowest, &cp, &scratch)
+	}
+	slices.SortFunc(entries, func(a, b *LatencyEntry) int {
+		return cmp.Or(cmp.Compare(b.P95, a.P95), cmp.Compare(b.Requests, a.Requests), cmp.Compare(a.Entry, b.Entry))
+	})
+	res.Entries = entries
+	return res, nil
+}
+
+// build fills cp with the spans of paths [lo, hi) and returns the root.
+func (r *latencyRun) build(lo, hi int, cp *cpSpans) int32 {
+	src, tm := r.src, r.src.Timing
+	n := hi - lo
+	cp.start, cp.end = cp.start[:0], cp.end[:0]
+	cp.kidAt = append(cp.kidAt[:0], make([]int32, n+1)...)
+	root, rootDur, rootEntry := int32(-1), int64(-1), false
+	for i := range n {
+		pi := lo + i
+		s := tm.Start[pi]
+		d := src.Paths.Value(pi, 0)
+		cp.start = append(cp.start, s)
+		cp.end = append(cp.end, s+d)
+		if par := tm.Parent[pi]; par >= 0 {
+			cp.kidAt[int(par)-lo+1]++
+			continue
+		}
+		p := src.Paths.At(pi)
+		f := &src.Frames[p.Frames[len(p.Frames)-1]]
+		entry := f.SpanKind == traces.SpanKindServer || f.SpanKind == traces.SpanKindConsumer
+		if root < 0 || entry && !rootEntry || entry == rootEntry && d > rootDur {
+			root, rootDur, rootEntry = int32(i), d, entry
+		}
+	}
+	for i := 1; i <= n; i++ {
+		cp.kidAt[i] += cp.kidAt[i-1]
+	}
+	cp.kids = append(cp.kids[:0], make([]int32, cp.kidAt[n])...)
+	fill := slices.Clone(cp.kidAt[:n])
+	for i := range n {
+		if par := tm.Parent[lo+i]; par >= 0 {
+			k := int(par) - lo
+			cp.kids[fill[k]] = int32(i)
+			fill[k]++
+		}
+	}
+	return root
+}
+
+// request analyses the request of paths [lo, hi).
+func (r *latencyRun) request(lo, hi int, cp *cpSpans, sc *cpScratch, entryIx map[string]int32, entries *[]*LatencyEntry) (reqRecord, bool) {
+	root := r.build(lo, hi, cp)
+	if root < 0 {
+		return reqRecord{}, false
+	}
+	rootPath := r.src.Paths.At(lo + int(root))
+	name := entryName(r.src, r.t, r.w, &rootPath, r.t.Leaf(lo+int(root)), r.entryLabels)
+	ei, ok := entryIx[name]
+	if !ok {
+		ei = int32(len(*entries))
+		entryIx[name] = ei
+		*entries = append(*entries, &LatencyEntry{Entry: name})
+	}
+	r.assignRoles(lo, cp, root, name)
+	rec := reqRecord{lo: lo, hi: hi, id: rootPath.Request, entry: ei, latency: max(0, cp.end[root]-cp.start[root])}
+	criticalPath(cp, root, func(i int32) bool { return !r.roles[i].call },
+		func(p cpPiece) { rec.pieces = addTally(rec.pieces, r.roles[p.span].cause, p.dur) }, sc)
+	// Summed time: calls whole, other spans their own time (not covered
+	// by a child), over the spans below the root.
+	r.summed(cp, root, &rec)
+	return rec, true
+}
+
+// assignRoles decides, for each span of the request below root, what its
+// time on the path is charged to, parents before children.
+func (r *latencyRun) assignRoles(lo int, cp *cpSpans, root int32, entry string) {
+	n := len(cp.start)
+	r.roles = slices.Grow(r.roles[:0], n)[:n]
+	for i := range r.roles {
+		r.roles[i] = spanRole{cause: -1}
+	}
+	unaccounted := r.cause(pathCause{function: entry, kind: KindUnaccounted})
+	stack := [][2]int32{{root, unaccounted}}
+	for len(stack) > 0 {
+		top := stack[len(stack)-1]
+		stack = stack[:len(stack)-1]
+		i, inherited := top[0], top[1]
+		role := r.role(lo+int(i), inherited, i == root, entry)
+		r.roles[i] = role
+		if role.call {
+			continue
+		}
+		for _, k := range cp.kids[cp.kidAt[i]:cp.kidAt[i+1]] {
+			stack = append(stack, [2]int32{k, role.cause})
+		}
+	}
+}
+
+// role charges span path pi: a boundary call to its root cause, an
+// application span to itself, an entry span to unaccounted, anything
+// else as its parent's own time (inherited).
+func (r *latencyRun) role(pi int, inherited int32, isRoot bool, entry string) spanRole {
+	src, t, w, c := r.src, r.t, r.w, r.c
+	p := src.Paths.At(pi)
+	leaf := t.Leaf(pi)
+	if b := w.boundary[leaf]; b != 0 {
+		if len(p.Frames) > t.Depth(b) {
+			return spanRole{cause: -1, call: true} // inside a call: never reached
+		}
+		kind := KindDatabase
+		if c.Verdict(t.Frame(b)).Class == Network {
+			kind = KindNetwork
+		}
+		if ra := w.lastApp[b]; ra != 0 {
+			return spanRole{cause: r.cause(pathCause{function: src.Frames[t.Frame(ra)].Function, kind: kind}), call: true}
+		}
+		return spanRole{cause: r.cause(pathCause{function: NoAppFramePrefix + entry, kind: kind, noApp: true}), call: true}
+	}
+	f := p.Frames[len(p.Frames)-1]
+	class, isEntry := c.class(f)
+	switch {
+	case isRoot || isEntry:
+		return spanRole{cause: r.cause(pathCause{function: entry, kind: KindUnaccounted})}
+	case class == Application:
+		return spanRole{cause: r.cause(pathCause{function: src.Frames[f].Function, kind: KindApplication})}
+	}
+	return spanRole{cause: inherited}
+}
+
+// summed adds each span's time below root to rec.summed: a call's whole
+// duration, another span's time covered by none of its children.
+func (r *latencyRun) summed(cp *cpSpans, root int32, rec *reqRecord) {
+	stack := []int32{root}
+	var iv [][2]int64
+	for len(stack) > 0 {
+		i := stack[len(stack)-1]
+		stack = stack[:len(stack)-1]
+		role := r.roles[i]
+		a, b := cp.start[i], cp.end[i]
+		if b <= a {
+			continue
+		}
+		if role.call {
+			rec.summed = addTally(rec.summed, role.cause, b-a)
+			continue
+		}
+		iv = iv[:0]
+		for _, k := range cp.kids[cp.kidAt[i]:cp.kidAt[i+1]] {
+			stack = append(stack, k)
+			if s, e := max(cp.start[k], a), min(cp.end[k], b); e > s {
+				iv = append(iv, [2]int64{s, e})
+			}
+		}
+		rec.summed = addTally(rec.summed, role.cause, (b-a)-union(iv))
+	}
+}
+
+// union returns the length of the union of intervals iv (sorted in place).
+func union(iv [][2]int64) int64 {
+	slices.SortFunc(iv, func(x, y [2]int64) int { return cmp.Compare(x[0], y[0]) })
+	var total, end int64
+	first := true
+	for _, v := range iv {
+		switch {
+		case first || v[0] >= end:
+			total += v[1] - v[0]
+			end = v[1]
+			first = false
+		case v[1] > end:
+			total += v[1] - end
+			end = v[1]
+		}
+	}
+	return total
+}
+
+func addTally(ts []cpTally, cause int32, d int64) []cpTally {
+	if cause < 0 || d <= 0 {
+		return ts
+	}
+	for i := range ts {
+		if ts[i].cause == cause {
+			ts[i].dur += d
+			return ts
+		}
+	}
+	return append(ts, cpTally{cause, d})
+}
+
+// aggregate fills the entries' statistics from their requests.
+func (r *latencyRun) aggregate(entries []*LatencyEntry, reqs []reqRecord, tail float64) {
+	byEntry := make([][]int, len(entries))
+	for i := range reqs {
+		byEntry[reqs[i].entry] = append(byEntry[reqs[i].entry], i)
+	}
+	for ei, e := range entries {
+		idx := byEntry[ei]
+		lat := make([]float64, len(idx))
+		var sum int64
+		for j, ri := range idx {
+			lat[j] = float64(reqs[ri].latency)
+			sum += reqs[ri].latency
+		}
+		sort.Float64s(lat)
+		e.Requests = len(idx)
+		e.P50, e.P95, e.P99 = Quantile(lat, 0.5), Quantile(lat, 0.95), Quantile(lat, 0.99)
+		e.Mean = float64(sum) / float64(len(idx))
+		e.Latency = sum
+		e.TailThreshold = Quantile(lat, tail)
+		causes := map[int32]*LatencyCause{}
+		get := func(ci int32) *LatencyCause {
+			lc := causes[ci]
+			if lc == nil {
+				k := r.causes[ci]
+				lc = &LatencyCause{Function: k.function, Kind: k.kind, NoAppFrame: k.noApp}
+				causes[ci] = lc
+			}
+			return lc
+		}
+		for _, ri := range idx {
+			rq := &reqs[ri]
+			l := float64(rq.latency)
+			inTail, inMedian := l >= e.TailThreshold, l <= e.P50
+			if inTail {
+				e.TailRequests++
+				e.TailLatency += rq.latency
+			}
+			if inMedian {
+				e.MedianRequests++
+				e.MedianLatency += rq.latency
+			}
+			for _, p := range rq.pieces {
+				lc := get(p.cause)
+				lc.Path += p.dur
+				lc.Requests++
+				if inTail {
+					lc.TailPath += p.dur
+				}
+				if inMedian {
+					lc.MedianPath += p.dur
+				}
+			}
+			for _, s := range rq.summed {
+				get(s.cause).Summed += s.dur
+			}
+		}
+		for _, lc := range causes {
+			e.Causes = append(e.Causes, lc)
+		}
+		slices.SortFunc(e.Causes, func(a, b *LatencyCause) int {
+			return cmp.Or(cmp.Compare(b.Path, a.Path), cmp.Compare(b.Summed, a.Summed),
+				cmp.Compare(a.Function, b.Function), cmp.Compare(a.Kind, b.Kind))
+		})
+	}
+}
+
+// slowest keeps the critical paths of each entry point's n slowest
+// requests (ties: the lower request ID first).
+func (r *latencyRun) slowest(entries []*LatencyEntry, reqs []reqRecord, n int, cp *cpSpans, sc *cpScratch) {
+	order := make([]int, len(reqs))
+	for i := range order {
+		order[i] = i
+	}
+	slices.SortStableFunc(order, func(a, b int) int {
+		return cmp.Or(cmp.Compare(reqs[b].latency, reqs[a].latency), cmp.Compare(reqs[a].id, reqs[b].id))
+	})
+	for _, ri := range order {
+		rq := &reqs[ri]
+		e := entries[rq.entry]
+		if len(e.Slowest) >= n {
+			continue
+		}
+		e.Slowest = append(e.Slowest, r.requestPath(rq, e.Entry, cp, sc))
+	}
+}
+
+// requestPath recomputes one request's critical path as a span tree.
+func (r *latencyRun) requestPath(rq *reqRecord, entry string, cp *cpSpans, sc *cpScratch) *RequestPath {
+	root := r.build(rq.lo, rq.hi, cp)
+	r.assignRoles(rq.lo, cp, root, entry)
+	on := make([]int64, len(cp.start))
+	criticalPath(cp, root, func(i int32) bool { return !r.roles[i].call },
+		func(p cpPiece) { on[p.span] += p.dur }, sc)
+	t0 := cp.start[root]
+	var node func(i int32) *PathSpan
+	node = func(i int32) *PathSpan {
+		var kids []*PathSpan
+		if !r.roles[i].call {
+			for _, k := range cp.kids[cp.kidAt[i]:cp.kidAt[i+1]] {
+				if c := node(k); c != nil {
+					kids = append(kids, c)
+				}
+			}
+		}
+		if on[i] == 0 && len(kids) == 0 && i != root {
+			return nil
+		}
+		slices.SortStableFunc(kids, func(a, b *PathSpan) int { return cmp.Compare(a.Start, b.Start) })
+		p := r.src.Paths.At(rq.lo + int(i))
+		ps := &PathSpan{Function: r.src.Frames[p.Frames[len(p.Frames)-1]].Function,
+			Start: cp.start[i] - t0, Duration: cp.end[i] - cp.start[i], OnPath: on[i], Children: kids}
+		if ci := r.roles[i].cause; ci >= 0 {
+			ps.Kind, ps.Cause = r.causes[ci].kind, r.causes[ci].function
+		}
+		return ps
+	}
+	return &RequestPath{Request: r.src.Requests[rq.id], Latency: rq.latency, Root: node(root)}
+}
