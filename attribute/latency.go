@@ -148,6 +148,13 @@ type latencyRun struct {
 	causes  []pathCause
 	causeIx map[pathCause]int32
 	roles   []spanRole // by path index within the current request
+	// Caches of cause indices, +1 (0: not yet known): of a call's
+	// application root cause by its tree node, of an application span by
+	// its frame.
+	callCause map[callgraph.NodeID]int32
+	appCause  []int32
+	// unaccounted is the current request's unaccounted cause.
+	unaccounted int32
 }
 
 func (r *latencyRun) cause(k pathCause) int32 {
@@ -197,7 +204,8 @@ func Latency(t *callgraph.Tree, c *Classifier, opts LatencyOptions) (*LatencyRes
 	if entryLabels == nil {
 		entryLabels = DefaultEntryLabels
 	}
-	r := &latencyRun{src: src, t: t, c: c, w: newWalkState(t, c), entryLabels: entryLabels, causeIx: map[pathCause]int32{}}
+	r := &latencyRun{src: src, t: t, c: c, w: newWalkState(t, c), entryLabels: entryLabels, causeIx: map[pathCause]int32{},
+		callCause: map[callgraph.NodeID]int32{}, appCause: make([]int32, len(src.Frames))}
 	res := &LatencyResult{
 		Inputs:   src.Inputs,
 		Tail:     tail,
@@ -307,6 +315,7 @@ func (r *latencyRun) assignRoles(lo int, cp *cpSpans, root int32, entry string) 
 		r.roles[i] = spanRole{cause: -1}
 	}
 	unaccounted := r.cause(pathCause{function: entry, kind: KindUnaccounted})
+	r.unaccounted = unaccounted
 	stack := [][2]int32{{root, unaccounted}}
 	for len(stack) > 0 {
 		top := stack[len(stack)-1]
@@ -339,7 +348,12 @@ func (r *latencyRun) role(pi int, inherited int32, isRoot bool, entry string) sp
 			kind = KindNetwork
 		}
 		if ra := w.lastApp[b]; ra != 0 {
-			return spanRole{cause: r.cause(pathCause{function: src.Frames[t.Frame(ra)].Function, kind: kind}), call: true}
+			ci := r.callCause[b] - 1
+			if ci < 0 {
+				ci = r.cause(pathCause{function: src.Frames[t.Frame(ra)].Function, kind: kind})
+				r.callCause[b] = ci + 1
+			}
+			return spanRole{cause: ci, call: true}
 		}
 		return spanRole{cause: r.cause(pathCause{function: NoAppFramePrefix + entry, kind: kind, noApp: true}), call: true}
 	}
@@ -347,9 +361,14 @@ func (r *latencyRun) role(pi int, inherited int32, isRoot bool, entry string) sp
 	class, isEntry := c.class(f)
 	switch {
 	case isRoot || isEntry:
-		return spanRole{cause: r.cause(pathCause{function: entry, kind: KindUnaccounted})}
+		return spanRole{cause: r.unaccounted}
 	case class == Application:
-		return spanRole{cause: r.cause(pathCause{function: src.Frames[f].Function, kind: KindApplication})}
+		ci := r.appCause[f] - 1
+		if ci < 0 {
+			ci = r.cause(pathCause{function: src.Frames[f].Function, kind: KindApplication})
+			r.appCause[f] = ci + 1
+		}
+		return spanRole{cause: ci}
 	}
 	return spanRole{cause: inherited}
 }
