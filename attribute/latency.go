@@ -155,6 +155,42 @@ type latencyRun struct {
 	appCause  []int32
 	// unaccounted is the current request's unaccounted cause.
 	unaccounted int32
+
+	// tallies holds every request's time per cause (reqRecord), and pos
+	// the position of each cause's tally in the run being added, +1.
+	tallies []cpTally
+	pos     []int32
+	runAt   int32
+	// Scratch space.
+	roleStack [][2]int32
+	stack     []int32
+	iv        [][2]int64
+	fill      []int32
+}
+
+// startRun starts a run of tallies (one per cause) at the end of tallies.
+func (r *latencyRun) startRun() int32 {
+	for _, t := range r.tallies[r.runAt:] {
+		r.pos[t.cause] = 0
+	}
+	r.runAt = int32(len(r.tallies))
+	return r.runAt
+}
+
+// add adds d to cause's tally in the current run.
+func (r *latencyRun) add(cause int32, d int64) {
+	if cause < 0 || d <= 0 {
+		return
+	}
+	for int(cause) >= len(r.pos) {
+		r.pos = append(r.pos, 0)
+	}
+	if p := r.pos[cause]; p > 0 {
+		r.tallies[r.runAt+p-1].dur += d
+		return
+	}
+	r.tallies = append(r.tallies, cpTally{cause, d})
+	r.pos[cause] = int32(len(r.tallies)) - r.runAt
 }
 
 func (r *latencyRun) cause(k pathCause) int32 {
@@ -173,8 +209,9 @@ type reqRecord struct {
 	id      traces.RequestID
 	entry   int32
 	latency int64
-	pieces  []cpTally // its causes' time on the path
-	summed  []cpTally // and in all
+	// Its causes' time on the path and in all are latencyRun.tallies
+	// [at, mid) and [mid, end).
+	at, mid, end int32
 }
 
 type cpTally struct {
@@ -248,7 +285,7 @@ func (r *latencyRun) build(lo, hi int, cp *cpSpans) int32 {
 	src, tm := r.src, r.src.Timing
 	n := hi - lo
 	cp.start, cp.end = cp.start[:0], cp.end[:0]
-	cp.kidAt = append(cp.kidAt[:0], make([]int32, n+1)...)
+	cp.kidAt = grow(cp.kidAt, n+1)
 	root, rootDur, rootEntry := int32(-1), int64(-1), false
 	for i := range n {
 		pi := lo + i
@@ -270,8 +307,9 @@ func (r *latencyRun) build(lo, hi int, cp *cpSpans) int32 {
 	for i := 1; i <= n; i++ {
 		cp.kidAt[i] += cp.kidAt[i-1]
 	}
-	cp.kids = append(cp.kids[:0], make([]int32, cp.kidAt[n])...)
-	fill := slices.Clone(cp.kidAt[:n])
+	cp.kids = grow(cp.kids, int(cp.kidAt[n]))
+	fill := append(r.fill[:0], cp.kidAt[:n]...)
+	r.fill = fill
 	for i := range n {
 		if par := tm.Parent[lo+i]; par >= 0 {
 			k := int(par) - lo
@@ -298,13 +336,18 @@ func (r *latencyRun) request(lo, hi int, cp *cpSpans, sc *cpScratch, entryIx map
 	}
 	r.assignRoles(lo, cp, root, name)
 	rec := reqRecord{lo: lo, hi: hi, id: rootPath.Request, entry: ei, latency: max(0, cp.end[root]-cp.start[root])}
-	criticalPath(cp, root, func(i int32) bool { return !r.roles[i].call },
-		func(p cpPiece) { rec.pieces = addTally(rec.pieces, r.roles[p.span].cause, p.dur) }, sc)
+	rec.at = r.startRun()
+	criticalPath(cp, root, r.enter, r.emit, sc)
+	rec.mid = r.startRun()
 	// Summed time: calls whole, other spans their own time (not covered
 	// by a child), over the spans below the root.
-	r.summed(cp, root, &rec)
+	r.summed(cp, root)
+	rec.end = r.startRun()
 	return rec, true
 }
+
+func (r *latencyRun) enter(i int32) bool { return !r.roles[i].call }
+func (r *latencyRun) emit(p cpPiece)     { r.add(r.roles[p.span].cause, p.dur) }
 
 // assignRoles decides, for each span of the request below root, what its
 // time on the path is charged to, parents before children.
@@ -316,7 +359,8 @@ func (r *latencyRun) assignRoles(lo int, cp *cpSpans, root int32, entry string) 
 	}
 	unaccounted := r.cause(pathCause{function: entry, kind: KindUnaccounted})
 	r.unaccounted = unaccounted
-	stack := [][2]int32{{root, unaccounted}}
+	stack := append(r.roleStack[:0], [2]int32{root, unaccounted})
+	defer func() { r.roleStack = stack[:0] }()
 	for len(stack) > 0 {
 		top := stack[len(stack)-1]
 		stack = stack[:len(stack)-1]
@@ -373,11 +417,12 @@ func (r *latencyRun) role(pi int, inherited int32, isRoot bool, entry string) sp
 	return spanRole{cause: inherited}
 }
 
-// summed adds each span's time below root to rec.summed: a call's whole
-// duration, another span's time covered by none of its children.
-func (r *latencyRun) summed(cp *cpSpans, root int32, rec *reqRecord) {
-	stack := []int32{root}
-	var iv [][2]int64
+// summed adds each span's time below root to the current run: a call's
+// whole duration, another span's time covered by none of its children.
+func (r *latencyRun) summed(cp *cpSpans, root int32) {
+	stack := append(r.stack[:0], root)
+	iv := r.iv
+	defer func() { r.stack, r.iv = stack[:0], iv[:0] }()
 	for len(stack) > 0 {
 		i := stack[len(stack)-1]
 		stack = stack[:len(stack)-1]
@@ -387,7 +432,7 @@ func (r *latencyRun) summed(cp *cpSpans, root int32, rec *reqRecord) {
 			continue
 		}
 		if role.call {
-			rec.summed = addTally(rec.summed, role.cause, b-a)
+			r.add(role.cause, b-a)
 			continue
 		}
 		iv = iv[:0]
@@ -397,7 +442,7 @@ func (r *latencyRun) summed(cp *cpSpans, root int32, rec *reqRecord) {
 				iv = append(iv, [2]int64{s, e})
 			}
 		}
-		rec.summed = addTally(rec.summed, role.cause, (b-a)-union(iv))
+		r.add(role.cause, (b-a)-union(iv))
 	}
 }
 
@@ -418,19 +463,6 @@ func union(iv [][2]int64) int64 {
 		}
 	}
 	return total
-}
-
-func addTally(ts []cpTally, cause int32, d int64) []cpTally {
-	if cause < 0 || d <= 0 {
-		return ts
-	}
-	for i := range ts {
-		if ts[i].cause == cause {
-			ts[i].dur += d
-			return ts
-		}
-	}
-	return append(ts, cpTally{cause, d})
 }
 
 // aggregate fills the entries' statistics from their requests.
@@ -475,7 +507,7 @@ func (r *latencyRun) aggregate(entries []*LatencyEntry, reqs []reqRecord, tail f
 				e.MedianRequests++
 				e.MedianLatency += rq.latency
 			}
-			for _, p := range rq.pieces {
+			for _, p := range r.tallies[rq.at:rq.mid] {
 				lc := get(p.cause)
 				lc.Path += p.dur
 				lc.Requests++
@@ -486,7 +518,7 @@ func (r *latencyRun) aggregate(entries []*LatencyEntry, reqs []reqRecord, tail f
 					lc.MedianPath += p.dur
 				}
 			}
-			for _, s := range rq.summed {
+			for _, s := range r.tallies[rq.mid:rq.end] {
 				get(s.cause).Summed += s.dur
 			}
 		}
@@ -525,8 +557,7 @@ func (r *latencyRun) requestPath(rq *reqRecord, entry string, cp *cpSpans, sc *c
 	root := r.build(rq.lo, rq.hi, cp)
 	r.assignRoles(rq.lo, cp, root, entry)
 	on := make([]int64, len(cp.start))
-	criticalPath(cp, root, func(i int32) bool { return !r.roles[i].call },
-		func(p cpPiece) { on[p.span] += p.dur }, sc)
+	criticalPath(cp, root, r.enter, func(p cpPiece) { on[p.span] += p.dur }, sc)
 	t0 := cp.start[root]
 	var node func(i int32) *PathSpan
 	node = func(i int32) *PathSpan {
@@ -551,4 +582,14 @@ func (r *latencyRun) requestPath(rq *reqRecord, entry string, cp *cpSpans, sc *c
 		return ps
 	}
 	return &RequestPath{Request: r.src.Requests[rq.id], Latency: rq.latency, Root: node(root)}
+}
+
+// grow returns s with length n and zero elements, reusing its array.
+func grow(s []int32, n int) []int32 {
+	if cap(s) < n {
+		return make([]int32, n, max(n, 2*cap(s)))
+	}
+	s = s[:n]
+	clear(s)
+	return s
 }

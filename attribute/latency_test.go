@@ -209,3 +209,35 @@ func TestLatencyProfileRefused(t *testing.T) {
 		t.Fatalf("err = %v, want ErrNoTiming", err)
 	}
 }
+
+// latencyBenchInput is 2,000 requests of plantsRequest (12,000 spans).
+func latencyBenchInput() string {
+	var in strings.Builder
+	for i := range 2000 {
+		in.WriteString(plantsRequest(fmt.Sprintf("b%x", i), int64(1+i%7)))
+	}
+	return in.String()
+}
+
+// BenchmarkLatency measures the latency analysis alone (tree and
+// classification built once); BenchmarkLatencyRank is the ranking on the
+// same source, its yardstick (the target: latency within 1.3× of rank).
+func BenchmarkLatency(b *testing.B) {
+	tree, cls := loadSpans(b, latencyBenchInput(), true)
+	b.ReportAllocs()
+	for b.Loop() {
+		if res, err := Latency(tree, cls, LatencyOptions{}); err != nil || res.Requests != 2000 {
+			b.Fatal(err)
+		}
+	}
+}
+
+func BenchmarkLatencyRank(b *testing.B) {
+	tree, cls := loadSpans(b, latencyBenchInput(), true)
+	b.ReportAllocs()
+	for b.Loop() {
+		if res := Attribute(tree, cls, Options{DropRequestVectors: true}); len(res.Causes) == 0 {
+			b.Fatal("no root causes")
+		}
+	}
+}
