@@ -4,7 +4,6 @@ import (
 	"cmp"
 	"errors"
 	"slices"
-	"sort"
 
 	"github.com/culprithq/culprit/callgraph"
 	"github.com/culprithq/culprit/traces"
@@ -90,6 +89,8 @@ type LatencyCause struct {
 	Summed int64
 	// Requests counts the requests with time on the path for this cause.
 	Requests int
+
+	entry int32 // index of its entry point while it is being tallied
 }
 
 // Share returns the cause's fraction of the entry point's latency over
@@ -156,8 +157,9 @@ type latencyRun struct {
 	// unaccounted is the current request's unaccounted cause.
 	unaccounted int32
 
-	// tallies holds every request's time per cause (reqRecord), and pos
-	// the position of each cause's tally in the run being added, +1.
+	// tallies holds the current request's time per cause, in runs (one
+	// for the critical path, one for the summed time), and pos the
+	// position of each cause's tally in the run being added, +1.
 	tallies []cpTally
 	pos     []int32
 	runAt   int32
@@ -209,9 +211,6 @@ type reqRecord struct {
 	id      traces.RequestID
 	entry   int32
 	latency int64
-	// Its causes' time on the path and in all are latencyRun.tallies
-	// [at, mid) and [mid, end).
-	at, mid, end int32
 }
 
 type cpTally struct {
@@ -249,6 +248,10 @@ func Latency(t *callgraph.Tree, c *Classifier, opts LatencyOptions) (*LatencyRes
 		App:      AppInfo{Prefixes: c.rules.App, Detected: c.Detected, RulesFiles: c.rules.Files},
 		Warnings: src.Warnings.Strings(),
 	}
+	// Pass 1: each request's root, entry point and latency, then each
+	// entry point's quantiles. Pass 2: the critical paths, added straight
+	// into the entry points' tallies, so that nothing per request but its
+	// latency is kept.
 	entryIx := map[string]int32{}
 	var entries []*LatencyEntry
 	var reqs []reqRecord
@@ -262,14 +265,28 @@ func Latency(t *callgraph.Tree, c *Classifier, opts LatencyOptions) (*LatencyRes
 			hi++
 		}
 		if req != 0 {
-			if rec, ok := r.request(lo, hi, &cp, &scratch, entryIx, &entries); ok {
+			if rec, ok := r.request(lo, hi, entryIx, &entries); ok {
 				reqs = append(reqs, rec)
 			}
 		}
 		lo = hi
 	}
 	res.Requests = len(reqs)
-	r.aggregate(entries, reqs, tail)
+	r.quantiles(entries, reqs, tail)
+	accs := map[[2]int32]*LatencyCause{}
+	for i := range reqs {
+		r.charge(&reqs[i], entries, accs, &cp, &scratch)
+	}
+	for _, lc := range accs {
+		e := entries[lc.entry]
+		e.Causes = append(e.Causes, lc)
+	}
+	for _, e := range entries {
+		slices.SortFunc(e.Causes, func(a, b *LatencyCause) int {
+			return cmp.Or(cmp.Compare(b.Path, a.Path), cmp.Compare(b.Summed, a.Summed),
+				cmp.Compare(a.Function, b.Function), cmp.Compare(a.Kind, b.Kind))
+		})
+	}
 	if opts.Slowest > 0 {
 		r.slowest(entries, reqs, opts.Slowest, &cp, &scratch)
 	}
@@ -280,28 +297,19 @@ func Latency(t *callgraph.Tree, c *Classifier, opts LatencyOptions) (*LatencyRes
 	return res, nil
 }
 
-// build fills cp with the spans of paths [lo, hi) and returns the root.
+// build fills cp with the spans of paths [lo, hi) and returns the root
+// (an index into cp).
 func (r *latencyRun) build(lo, hi int, cp *cpSpans) int32 {
 	src, tm := r.src, r.src.Timing
 	n := hi - lo
 	cp.start, cp.end = cp.start[:0], cp.end[:0]
 	cp.kidAt = grow(cp.kidAt, n+1)
-	root, rootDur, rootEntry := int32(-1), int64(-1), false
-	for i := range n {
-		pi := lo + i
+	for pi := lo; pi < hi; pi++ {
 		s := tm.Start[pi]
-		d := src.Paths.Value(pi, 0)
 		cp.start = append(cp.start, s)
-		cp.end = append(cp.end, s+d)
+		cp.end = append(cp.end, s+src.Paths.Value(pi, 0))
 		if par := tm.Parent[pi]; par >= 0 {
 			cp.kidAt[int(par)-lo+1]++
-			continue
-		}
-		p := src.Paths.At(pi)
-		f := &src.Frames[p.Frames[len(p.Frames)-1]]
-		entry := f.SpanKind == traces.SpanKindServer || f.SpanKind == traces.SpanKindConsumer
-		if root < 0 || entry && !rootEntry || entry == rootEntry && d > rootDur {
-			root, rootDur, rootEntry = int32(i), d, entry
 		}
 	}
 	for i := 1; i <= n; i++ {
@@ -317,33 +325,86 @@ func (r *latencyRun) build(lo, hi int, cp *cpSpans) int32 {
 			fill[k]++
 		}
 	}
-	return root
+	return int32(r.root(lo, hi) - lo)
 }
 
-// request analyses the request of paths [lo, hi).
-func (r *latencyRun) request(lo, hi int, cp *cpSpans, sc *cpScratch, entryIx map[string]int32, entries *[]*LatencyEntry) (reqRecord, bool) {
-	root := r.build(lo, hi, cp)
+// request finds the root, entry point and latency of the request of
+// paths [lo, hi).
+func (r *latencyRun) request(lo, hi int, entryIx map[string]int32, entries *[]*LatencyEntry) (reqRecord, bool) {
+	root := r.root(lo, hi)
 	if root < 0 {
 		return reqRecord{}, false
 	}
-	rootPath := r.src.Paths.At(lo + int(root))
-	name := entryName(r.src, r.t, r.w, &rootPath, r.t.Leaf(lo+int(root)), r.entryLabels)
+	rootPath := r.src.Paths.At(root)
+	name := entryName(r.src, r.t, r.w, &rootPath, r.t.Leaf(root), r.entryLabels)
 	ei, ok := entryIx[name]
 	if !ok {
 		ei = int32(len(*entries))
 		entryIx[name] = ei
 		*entries = append(*entries, &LatencyEntry{Entry: name})
 	}
-	r.assignRoles(lo, cp, root, name)
-	rec := reqRecord{lo: lo, hi: hi, id: rootPath.Request, entry: ei, latency: max(0, cp.end[root]-cp.start[root])}
-	rec.at = r.startRun()
+	return reqRecord{lo: lo, hi: hi, id: rootPath.Request, entry: ei, latency: max(0, rootPath.Values[0])}, true
+}
+
+// root returns the path of the root span of paths [lo, hi): of the spans
+// with no parent, a server or consumer span before others, then the
+// longest, then the first; -1 if there is none.
+func (r *latencyRun) root(lo, hi int) int {
+	src, tm := r.src, r.src.Timing
+	root, rootDur, rootEntry := -1, int64(-1), false
+	for pi := lo; pi < hi; pi++ {
+		if tm.Parent[pi] >= 0 {
+			continue
+		}
+		p := src.Paths.At(pi)
+		d := p.Values[0]
+		f := &src.Frames[p.Frames[len(p.Frames)-1]]
+		entry := f.SpanKind == traces.SpanKindServer || f.SpanKind == traces.SpanKindConsumer
+		if root < 0 || entry && !rootEntry || entry == rootEntry && d > rootDur {
+			root, rootDur, rootEntry = pi, d, entry
+		}
+	}
+	return root
+}
+
+// charge walks the critical path of request rq and adds its pieces and
+// its summed time to the tallies of its entry point's causes.
+func (r *latencyRun) charge(rq *reqRecord, entries []*LatencyEntry, accs map[[2]int32]*LatencyCause, cp *cpSpans, sc *cpScratch) {
+	e := entries[rq.entry]
+	root := r.build(rq.lo, rq.hi, cp)
+	r.assignRoles(rq.lo, cp, root, e.Entry)
+	l := float64(rq.latency)
+	inTail, inMedian := l >= e.TailThreshold, l <= e.P50
+	get := func(ci int32) *LatencyCause {
+		k := [2]int32{rq.entry, ci}
+		lc := accs[k]
+		if lc == nil {
+			pc := r.causes[ci]
+			lc = &LatencyCause{Function: pc.function, Kind: pc.kind, NoAppFrame: pc.noApp, entry: rq.entry}
+			accs[k] = lc
+		}
+		return lc
+	}
+	r.startRun()
 	criticalPath(cp, root, r.enter, r.emit, sc)
-	rec.mid = r.startRun()
-	// Summed time: calls whole, other spans their own time (not covered
-	// by a child), over the spans below the root.
+	for _, t := range r.tallies[r.runAt:] {
+		lc := get(t.cause)
+		lc.Path += t.dur
+		lc.Requests++
+		if inTail {
+			lc.TailPath += t.dur
+		}
+		if inMedian {
+			lc.MedianPath += t.dur
+		}
+	}
+	r.startRun()
 	r.summed(cp, root)
-	rec.end = r.startRun()
-	return rec, true
+	for _, t := range r.tallies[r.runAt:] {
+		get(t.cause).Summed += t.dur
+	}
+	r.startRun()
+	r.tallies, r.runAt = r.tallies[:0], 0
 }
 
 func (r *latencyRun) enter(i int32) bool { return !r.roles[i].call }
@@ -465,70 +526,36 @@ func union(iv [][2]int64) int64 {
 	return total
 }
 
-// aggregate fills the entries' statistics from their requests.
-func (r *latencyRun) aggregate(entries []*LatencyEntry, reqs []reqRecord, tail float64) {
-	byEntry := make([][]int, len(entries))
+// quantiles fills the entries' latency statistics from their requests.
+func (r *latencyRun) quantiles(entries []*LatencyEntry, reqs []reqRecord, tail float64) {
+	byEntry := make([][]float64, len(entries))
 	for i := range reqs {
-		byEntry[reqs[i].entry] = append(byEntry[reqs[i].entry], i)
+		byEntry[reqs[i].entry] = append(byEntry[reqs[i].entry], float64(reqs[i].latency))
 	}
 	for ei, e := range entries {
-		idx := byEntry[ei]
-		lat := make([]float64, len(idx))
-		var sum int64
-		for j, ri := range idx {
-			lat[j] = float64(reqs[ri].latency)
-			sum += reqs[ri].latency
+		lat := byEntry[ei]
+		slices.Sort(lat)
+		var sum float64
+		for _, l := range lat {
+			sum += l
 		}
-		sort.Float64s(lat)
-		e.Requests = len(idx)
+		e.Requests = len(lat)
 		e.P50, e.P95, e.P99 = Quantile(lat, 0.5), Quantile(lat, 0.95), Quantile(lat, 0.99)
-		e.Mean = float64(sum) / float64(len(idx))
-		e.Latency = sum
+		e.Mean = sum / float64(len(lat))
 		e.TailThreshold = Quantile(lat, tail)
-		causes := map[int32]*LatencyCause{}
-		get := func(ci int32) *LatencyCause {
-			lc := causes[ci]
-			if lc == nil {
-				k := r.causes[ci]
-				lc = &LatencyCause{Function: k.function, Kind: k.kind, NoAppFrame: k.noApp}
-				causes[ci] = lc
-			}
-			return lc
+	}
+	for i := range reqs {
+		rq := &reqs[i]
+		e := entries[rq.entry]
+		e.Latency += rq.latency
+		if l := float64(rq.latency); l >= e.TailThreshold {
+			e.TailRequests++
+			e.TailLatency += rq.latency
 		}
-		for _, ri := range idx {
-			rq := &reqs[ri]
-			l := float64(rq.latency)
-			inTail, inMedian := l >= e.TailThreshold, l <= e.P50
-			if inTail {
-				e.TailRequests++
-				e.TailLatency += rq.latency
-			}
-			if inMedian {
-				e.MedianRequests++
-				e.MedianLatency += rq.latency
-			}
-			for _, p := range r.tallies[rq.at:rq.mid] {
-				lc := get(p.cause)
-				lc.Path += p.dur
-				lc.Requests++
-				if inTail {
-					lc.TailPath += p.dur
-				}
-				if inMedian {
-					lc.MedianPath += p.dur
-				}
-			}
-			for _, s := range r.tallies[rq.mid:rq.end] {
-				get(s.cause).Summed += s.dur
-			}
+		if float64(rq.latency) <= e.P50 {
+			e.MedianRequests++
+			e.MedianLatency += rq.latency
 		}
-		for _, lc := range causes {
-			e.Causes = append(e.Causes, lc)
-		}
-		slices.SortFunc(e.Causes, func(a, b *LatencyCause) int {
-			return cmp.Or(cmp.Compare(b.Path, a.Path), cmp.Compare(b.Summed, a.Summed),
-				cmp.Compare(a.Function, b.Function), cmp.Compare(a.Kind, b.Kind))
-		})
 	}
 }
 
