@@ -37,6 +37,8 @@ type LatencyOptions struct {
 	// Slowest is how many of each entry point's slowest requests keep
 	// their critical path (LatencyEntry.Slowest); 0 keeps none.
 	Slowest int
+	// Vectors keeps the per-request values NewLatencySnapshot needs.
+	Vectors bool
 }
 
 // LatencyResult is what made the requests of a span source slow: per
@@ -49,6 +51,8 @@ type LatencyResult struct {
 	Entries  []*LatencyEntry
 	App      AppInfo
 	Warnings []string
+
+	vectors bool // per-request values kept (LatencyOptions.Vectors)
 }
 
 // LatencyEntry is one entry point's requests. Times are in nanoseconds.
@@ -71,6 +75,8 @@ type LatencyEntry struct {
 	// Slowest are the slowest requests' critical paths, slowest first
 	// (LatencyOptions.Slowest of them).
 	Slowest []*RequestPath
+
+	latencies []float64 // ascending, with LatencyOptions.Vectors
 }
 
 // LatencyCause is a root cause's time on one entry point's critical paths.
@@ -90,7 +96,8 @@ type LatencyCause struct {
 	// Requests counts the requests with time on the path for this cause.
 	Requests int
 
-	entry int32 // index of its entry point while it is being tallied
+	entry   int32     // index of its entry point while it is being tallied
+	reqPath []float64 // time on the path per request where it has some (Vectors)
 }
 
 // Share returns the cause's fraction of the entry point's latency over
@@ -156,6 +163,7 @@ type latencyRun struct {
 	appCause  []int32
 	// unaccounted is the current request's unaccounted cause.
 	unaccounted int32
+	vectors     bool // keep per-request values
 
 	// tallies holds the current request's time per cause, in runs (one
 	// for the critical path, one for the summed time), and pos the
@@ -243,6 +251,7 @@ func Latency(t *callgraph.Tree, c *Classifier, opts LatencyOptions) (*LatencyRes
 	r := &latencyRun{src: src, t: t, c: c, w: newWalkState(t, c), entryLabels: entryLabels, causeIx: map[pathCause]int32{},
 		callCause: map[callgraph.NodeID]int32{}, appCause: make([]int32, len(src.Frames))}
 	res := &LatencyResult{
+		vectors:  opts.Vectors,
 		Inputs:   src.Inputs,
 		Tail:     tail,
 		App:      AppInfo{Prefixes: c.rules.App, Detected: c.Detected, RulesFiles: c.rules.Files},
@@ -272,8 +281,9 @@ func Latency(t *callgraph.Tree, c *Classifier, opts LatencyOptions) (*LatencyRes
 		lo = hi
 	}
 	res.Requests = len(reqs)
-	r.quantiles(entries, reqs, tail)
+	r.quantiles(entries, reqs, tail, opts.Vectors)
 	accs := map[[2]int32]*LatencyCause{}
+	r.vectors = opts.Vectors
 	for i := range reqs {
 		r.charge(&reqs[i], entries, accs, &cp, &scratch)
 	}
@@ -282,6 +292,9 @@ func Latency(t *callgraph.Tree, c *Classifier, opts LatencyOptions) (*LatencyRes
 		e.Causes = append(e.Causes, lc)
 	}
 	for _, e := range entries {
+		for _, c := range e.Causes {
+			slices.Sort(c.reqPath)
+		}
 		slices.SortFunc(e.Causes, func(a, b *LatencyCause) int {
 			return cmp.Or(cmp.Compare(b.Path, a.Path), cmp.Compare(b.Summed, a.Summed),
 				cmp.Compare(a.Function, b.Function), cmp.Compare(a.Kind, b.Kind))
@@ -391,6 +404,9 @@ func (r *latencyRun) charge(rq *reqRecord, entries []*LatencyEntry, accs map[[2]
 		lc := get(t.cause)
 		lc.Path += t.dur
 		lc.Requests++
+		if r.vectors {
+			lc.reqPath = append(lc.reqPath, float64(t.dur))
+		}
 		if inTail {
 			lc.TailPath += t.dur
 		}
@@ -527,7 +543,7 @@ func union(iv [][2]int64) int64 {
 }
 
 // quantiles fills the entries' latency statistics from their requests.
-func (r *latencyRun) quantiles(entries []*LatencyEntry, reqs []reqRecord, tail float64) {
+func (r *latencyRun) quantiles(entries []*LatencyEntry, reqs []reqRecord, tail float64, keep bool) {
 	byEntry := make([][]float64, len(entries))
 	for i := range reqs {
 		byEntry[reqs[i].entry] = append(byEntry[reqs[i].entry], float64(reqs[i].latency))
@@ -543,6 +559,9 @@ func (r *latencyRun) quantiles(entries []*LatencyEntry, reqs []reqRecord, tail f
 		e.P50, e.P95, e.P99 = Quantile(lat, 0.5), Quantile(lat, 0.95), Quantile(lat, 0.99)
 		e.Mean = sum / float64(len(lat))
 		e.TailThreshold = Quantile(lat, tail)
+		if keep {
+			e.latencies = lat
+		}
 	}
 	for i := range reqs {
 		rq := &reqs[i]

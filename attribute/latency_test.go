@@ -23,6 +23,16 @@ type tspan struct {
 // OTLP/JSON ExportTraceServiceRequest line, as the OTLP/JSON encoding
 // specifies it (hex IDs, nanosecond times as decimal strings).
 func otlpLine(svc, traceID string, spans []tspan) string {
+	ns := make([]tspan, len(spans))
+	for i, sp := range spans {
+		sp.start, sp.end = sp.start*1_000_000, sp.end*1_000_000
+		ns[i] = sp
+	}
+	return otlpLineNanos(svc, traceID, ns)
+}
+
+// otlpLineNanos is otlpLine with span times in ns.
+func otlpLineNanos(svc, traceID string, spans []tspan) string {
 	var b strings.Builder
 	fmt.Fprintf(&b, `{"resourceSpans":[{"resource":{"attributes":[{"key":"service.name","value":{"stringValue":%q}}]},"scopeSpans":[{"scope":{"name":"greenhouse"},"spans":[`, svc)
 	for i, s := range spans {
@@ -31,7 +41,7 @@ func otlpLine(svc, traceID string, spans []tspan) string {
 		}
 		fmt.Fprintf(&b, `{"traceId":%q,"spanId":%q,"name":%q,"kind":%d,"startTimeUnixNano":"%d","endTimeUnixNano":"%d"`,
 			fmt.Sprintf("%032s", traceID), fmt.Sprintf("%016s", s.id), s.name, s.kind,
-			1_700_000_000_000_000_000+s.start*1e6, 1_700_000_000_000_000_000+s.end*1e6)
+			1_700_000_000_000_000_000+s.start, 1_700_000_000_000_000_000+s.end)
 		if s.parent != "" {
 			fmt.Fprintf(&b, `,"parentSpanId":%q`, fmt.Sprintf("%016s", s.parent))
 		}

@@ -21,6 +21,8 @@ type latencyOptions struct {
 	command  string
 	// tail is the quantile from which a request is in its entry point's tail.
 	tail float64
+	// save names a latency snapshot file to write beside the report.
+	save string
 }
 
 func newLatencyCmd(s *streams, runF func(context.Context, *latencyOptions) error) *cobra.Command {
@@ -48,6 +50,9 @@ Profiles cannot answer this: they have no requests and no order in time.`,
   # The slowest 1% as JSON for a notebook
   culprit latency --tail 0.99 --format json -o latency.json traces/
 
+  # Keep this build's latency for a later diff --latency
+  culprit latency v41.traces.jsonl --save v41.latency.json
+
   # The critical paths of the slowest requests of one route
   culprit explain --latency 'GET /accessions' traces.jsonl`,
 		Args: minArgs(1),
@@ -63,6 +68,7 @@ Profiles cannot answer this: they have no requests and no order in time.`,
 	opts.analysis.register(cmd)
 	opts.output.register(cmd, report.Formats)
 	cmd.Flags().Float64Var(&opts.tail, "tail", attribute.DefaultTail, "quantile of latency at and above which a request is in its entry point's tail (0 < Q < 1)")
+	cmd.Flags().StringVar(&opts.save, "save", "", "also write a latency snapshot (culprit.latency-snapshot/v1) to `FILE`, for diff --latency")
 	return cmd
 }
 
@@ -83,10 +89,19 @@ func runLatency(ctx context.Context, opts *latencyOptions) error {
 	if err != nil {
 		return err
 	}
-	opts.analysis.skipDigest = format == "text" || format == "csv"
-	res, err := opts.analysis.latency(ctx, s, opts.inputs, attribute.LatencyOptions{Tail: opts.tail})
+	opts.analysis.skipDigest = (format == "text" || format == "csv") && opts.save == ""
+	res, err := opts.analysis.latency(ctx, s, opts.inputs, attribute.LatencyOptions{Tail: opts.tail, Vectors: opts.save != ""})
 	if err != nil {
 		return err
+	}
+	if opts.save != "" {
+		snap, err := attribute.NewLatencySnapshot(res)
+		if err != nil {
+			return err
+		}
+		if err := writeAtomic(opts.save, opts.inputs, snap.Write); err != nil {
+			return fmt.Errorf("writing snapshot: %w", err)
+		}
 	}
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
 	if err := opts.output.write(s, opts.inputs, func(w io.Writer) error {

@@ -99,3 +99,70 @@ func TestExplainLatency(t *testing.T) {
 		t.Errorf("no match: exit %d, %s", code, errOut)
 	}
 }
+
+// TestDiffLatency compares the demo's two builds by latency: the planted
+// regression (v42's catalog issues 35% more variety queries) shows as the
+// /catalog route's p95 and as VarietyByID's time on the critical path;
+// a latency snapshot compares as its traces do, and the gate exits 3.
+func TestDiffLatency(t *testing.T) {
+	const v41, v42 = "demo/greenhouse-v41.traces.jsonl.gz", "demo/greenhouse-v42.traces.jsonl.gz"
+	snap := t.TempDir() + "/v41.latency.json"
+	if code, _, errOut := runTest(t, "", "latency", "--save", snap, v41); code != exitOK {
+		t.Fatalf("latency --save: exit %d: %s", code, errOut)
+	}
+	var docs [2]string
+	for i, base := range []string{v41, snap} {
+		code, out, errOut := runTest(t, "", "diff", "--latency", "--format", "json", "--limit", "0", base, v42)
+		if code != exitOK {
+			t.Fatalf("diff --latency %s: exit %d: %s", base, code, errOut)
+		}
+		docs[i] = out
+	}
+	var doc struct {
+		Schema string
+		Routes []struct {
+			Entry, Verdict string
+			P95            struct{ RelativeChange float64 }
+		}
+		Causes struct {
+			Changes []struct{ Function, Verdict, Kind string }
+		}
+	}
+	if err := json.Unmarshal([]byte(docs[0]), &doc); err != nil {
+		t.Fatal(err)
+	}
+	var fromSnap struct {
+		Routes json.RawMessage
+		Causes struct{ Changes json.RawMessage }
+	}
+	var fromTraces = fromSnap
+	if json.Unmarshal([]byte(docs[0]), &fromTraces) != nil || json.Unmarshal([]byte(docs[1]), &fromSnap) != nil ||
+		string(fromTraces.Routes) != string(fromSnap.Routes) || string(fromTraces.Causes.Changes) != string(fromSnap.Causes.Changes) {
+		t.Error("diff --latency from a latency snapshot differs from the one from traces")
+	}
+	verdict := map[string]string{}
+	for _, r := range doc.Routes {
+		verdict[r.Entry] = r.Verdict
+	}
+	if doc.Schema != "culprit.latency-diff/v1" || verdict["/catalog"] != "regressed" {
+		t.Errorf("schema %q, routes %+v", doc.Schema, doc.Routes)
+	}
+	var found bool
+	for _, ch := range doc.Causes.Changes {
+		if strings.Contains(ch.Function, "VarietyByID") && ch.Kind == "database" {
+			found = ch.Verdict == "regressed"
+		}
+		if ch.Verdict == "regressed" && !strings.Contains(ch.Function, "/catalog") {
+			t.Errorf("unexpected regression: %+v", ch)
+		}
+	}
+	if !found {
+		t.Errorf("VarietyByID's database time on the critical path did not regress: %+v", doc.Causes.Changes)
+	}
+	if code, _, errOut := runTest(t, "", "diff", "--latency", "--fail-on", "10%", v41, v42); code != exitGate || !strings.Contains(errOut, "/catalog") {
+		t.Errorf("--fail-on 10%%: exit %d, %s", code, errOut)
+	}
+	if code, _, _ := runTest(t, "", "diff", "--latency", "demo/greenhouse-v41.goroutine.1.pb.gz", v42); code != exitError {
+		t.Errorf("diff --latency with a profile: exit %d, want %d", code, exitError)
+	}
+}
