@@ -292,18 +292,7 @@ func routeVerdict(qc *QuantileChange, b Budget) Outcome {
 	if qc.RelLo == nil || qc.RelHi == nil {
 		return OutcomeInconclusive
 	}
-	lo, hi := *qc.RelLo, *qc.RelHi
-	r, a := b.Relative, b.Absolute
-	absLo, absHi := lo*qc.Base, hi*qc.Base
-	switch {
-	case lo > r && (a == 0 || absLo > a):
-		return OutcomeRegressed
-	case hi < -r && (a == 0 || absHi < -a):
-		return OutcomeImproved
-	case (lo >= -r && hi <= r) || (a > 0 && absLo >= -a && absHi <= a):
-		return OutcomeUnchanged
-	}
-	return OutcomeInconclusive
+	return budgetVerdict(*qc.RelLo, *qc.RelHi, qc.Base, b)
 }
 
 // bootstrapQuantileRatios returns percentile bootstrap intervals of the
