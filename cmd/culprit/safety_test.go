@@ -84,7 +84,7 @@ func plantedSpans() string {
 }
 
 // A personal-data literal planted in every span field leaks through no
-// output: every rank and diff format, explain, graph (and the SVG
+// output: every rank, diff and latency format, explain, graph (and the SVG
 // Graphviz makes of it), the snapshot, warnings included. --show-literals shows it, so the
 // check can fail.
 func TestPlantedLiteralsNeverLeak(t *testing.T) {
@@ -105,6 +105,7 @@ func TestPlantedLiteralsNeverLeak(t *testing.T) {
 	for _, f := range []string{"text", "markdown", "json", "csv", "html"} {
 		run("rank "+f, "rank", in, "--limit", "0", "--format", f, "--keep-going")
 		run("diff "+f, "diff", in, in, "--limit", "0", "--format", f, "--keep-going")
+		run("latency "+f, "latency", in, "--format", f, "--keep-going")
 	}
 	for _, f := range []string{"text", "json"} {
 		run("explain "+f, "explain", ".", in, "--format", f, "--keep-going")
