@@ -65,10 +65,18 @@ func plainWords(s string) bool {
 }
 
 // redactPeer drops user information from a host or service name
-// ("alice@db.example" → "db.example").
+// ("alice@db.example" → "db.example") and replaces a host that is a bare
+// number, which names no machine, by "?". IP addresses are kept.
 func redactPeer(s string) string {
 	if i := strings.LastIndexByte(s, '@'); i >= 0 {
-		return s[i+1:]
+		s = s[i+1:]
+	}
+	host, port := s, ""
+	if i := strings.LastIndexByte(s, ':'); i > 0 && strings.IndexByte(s[:i], ':') < 0 {
+		host, port = s[:i], s[i:]
+	}
+	if host != "" && strings.Trim(host, "0123456789") == "" {
+		return "?" + port
 	}
 	return s
 }

@@ -33,8 +33,14 @@ func TestRedactText(t *testing.T) {
 			t.Errorf("redactText(%q) = %q, want %q", c.in, got, c.want)
 		}
 	}
-	if got := redactPeer("alice@db.example.net"); got != "db.example.net" {
-		t.Errorf("redactPeer = %q", got)
+	for in, want := range map[string]string{
+		"alice@db.example.net": "db.example.net", "db.example.net:5432": "db.example.net:5432",
+		"10.0.0.5:5432": "10.0.0.5:5432", "[::1]:5432": "[::1]:5432", "4111111111111111:5432": "?:5432",
+		"4111111111111111": "?", "u@4111111111111111": "?",
+	} {
+		if got := redactPeer(in); got != want {
+			t.Errorf("redactPeer(%q) = %q, want %q", in, got, want)
+		}
 	}
 }
 
