@@ -474,7 +474,7 @@ func (d *decoder) span(sp *jsonSpan, service string, line int64) error {
 	}
 	frame, call, route := spanDetails(SpanKind(sp.Kind), sp.Name, service, &d.attrs, &d.memo)
 	if !d.c.opts.ShowLiterals {
-		d.redactSpan(sp.Name, &frame, &call)
+		d.redactSpan(sp.Name, &frame, &call, &route)
 	}
 	if call.Statement != "" && d.c.opts.Statement != nil {
 		// Normalise here, in the parallel decoders, so that calls differing

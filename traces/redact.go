@@ -7,26 +7,23 @@ import (
 
 // This file keeps literal values out of what spans contribute to a
 // report. Statements are fingerprinted (Options.Statement); the rest of a
-// span's text — its name when it becomes a frame, database operation
-// names and summaries, HTTP URLs, peers — is redacted here while the span
-// is decoded, unless Options.ShowLiterals is set. Names that come from
-// code (code.function.name) and route templates (http.route) are kept:
-// they name code, not data.
+// span's text — the frame's name, file and service, the route, database
+// operation names and summaries, HTTP URLs, peers — is redacted here
+// while the span is decoded, unless Options.ShowLiterals is set. Words
+// that name code (main.(*server).handle.func1, /v2/{id}) pass unchanged.
 
-// redactSpan removes literals from a decoded span's frame and call. name
-// is the span's name; f.Function equal to it means the frame was named
-// after the span.
-func (d *decoder) redactSpan(name string, f *Frame, call *Call) {
+// redactSpan removes literals from a decoded span's frame, call and
+// route. name is the span's name; f.Function equal to it means the frame
+// was named after the span.
+func (d *decoder) redactSpan(name string, f *Frame, call *Call, route *string) {
 	database := f.Protocol == ProtocolDatabase
-	switch {
-	case f.Function == name && database:
+	if f.Function == name && database {
 		// Older instrumentations put the whole statement in the span name.
 		f.Function = d.redactStatement(f.System, name)
-	case f.Function == name:
-		f.Function = redactText(name)
-	case f.Function == d.attrs.str(aMessagingDestinationName, aMessagingDestination):
+	} else {
 		f.Function = redactText(f.Function)
 	}
+	f.File, f.Service, *route = redactText(f.File), redactText(f.Service), redactText(*route)
 	if database {
 		call.Summary = d.redactStatement(f.System, call.Summary)
 		call.Operation = d.redactStatement(f.System, call.Operation)

@@ -25,9 +25,8 @@ var planted = []string{"alice.liddell@example.org", "liddell", "4111111111111111
 // literals: span names of every kind, database statements, summaries and
 // operation names with no query text, URLs with user information, query
 // strings and path values, peers, RPC and messaging operations and
-// destinations, and the IDs of a span that is skipped with a warning.
-// Service names, code function names and route templates name code and
-// configuration, not data, and are shown as they are.
+// destinations, code function names and files, routes, and the IDs of a
+// span that is skipped with a warning.
 func plantedSpans() string {
 	const email, card, pw = "alice.liddell@example.org", "4111111111111111", "s3cr3t-pw"
 	type kv = map[string]any
@@ -49,7 +48,11 @@ func plantedSpans() string {
 	spans := []kv{
 		span("a000000000000001", "", "GET /customers/"+email+"?card="+card, 2, 0, 100e6,
 			str("http.request.method", "GET"), str("url.path", "/customers/"+email)),
+		span("a00000000000000d", "", "GET /cards/"+card, 2, 0, 10e6,
+			str("http.request.method", "GET"), str("http.route", "/cards/"+card+"/"+email)),
 		span("a000000000000002", "a000000000000001", "notify "+email+" about card "+card, 1, 1e6, 99e6),
+		span("a00000000000000c", "a000000000000002", "render", 1, 1e6, 2e6,
+			str("code.function.name", "example.com/greenhouse/mail.Send."+email), str("code.file.path", "/src/"+card+"/mail.go")),
 		span("a000000000000003", "a000000000000002", "SELECT * FROM customers WHERE email = '"+email+"' AND card = "+card, 3, 2e6, 20e6,
 			str("db.system.name", "postgresql"), str("server.address", email), num("server.port", 5432)),
 		span("a000000000000004", "a000000000000002", "UPDATE cards", 3, 21e6, 30e6,
@@ -69,6 +72,13 @@ func plantedSpans() string {
 			str("rpc.system", "grpc"), str("rpc.service", "cards"), str("rpc.method", card+email)),
 		span("a00000000000000a", "a000000000000001", email, 5, 91e6, 95e6,
 			str("messaging.system", "kafka"), str("messaging.destination.name", email)),
+	}
+	// A second request, named by its route, with a call of its own.
+	second := span("a00000000000000e", "a00000000000000d", "SELECT cards", 3, 1e6, 9e6,
+		str("db.system.name", "postgresql"), str("db.query.text", "SELECT * FROM cards WHERE n = "+card))
+	spans = append(spans, second)
+	for _, s := range []kv{spans[1], second} {
+		s["traceId"] = "6c9ecc7e1b0a4f3d8e2a5b7c9d1f3e5a"
 	}
 	bad := span("a00000000000000b", "a000000000000001", "bad IDs "+email, 3, 96e6, 97e6)
 	bad["traceId"] = email + card
