@@ -53,12 +53,25 @@ func (d *decoder) redactStatement(system, s string) string {
 // ',', parentheses and spaces: nothing a literal is written with.
 func plainWords(s string) bool {
 	for i := 0; i < len(s); i++ {
-		c := s[i]
-		if !('a' <= c && c <= 'z' || 'A' <= c && c <= 'Z' || strings.IndexByte("_.*,() ", c) >= 0) {
+		if !plainBytes[s[i]] {
 			return false
 		}
 	}
 	return true
+}
+
+// Byte classes of the redactor, as tables: it runs on every span.
+var (
+	plainBytes   = byteSet("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ_.*,() ")
+	literalBytes = byteSet("0123456789@'\"?%=#")
+	wordSeps     = byteSet("/=,;&:()[]{}<>|\t")
+)
+
+func byteSet(s string) (set [256]bool) {
+	for i := 0; i < len(s); i++ {
+		set[s[i]] = true
+	}
+	return set
 }
 
 // redactPeer drops user information from a host or service name
@@ -81,7 +94,7 @@ func redactPeer(s string) string {
 // mayHoldLiteral reports whether s has a byte that redactText may change.
 func mayHoldLiteral(s string) bool {
 	for i := 0; i < len(s); i++ {
-		if c := s[i]; '0' <= c && c <= '9' || strings.IndexByte("@'\"?%=#", c) >= 0 {
+		if literalBytes[s[i]] {
 			return true
 		}
 	}
@@ -174,7 +187,7 @@ func redactQuery(q string) string {
 }
 
 // isWordSep reports whether c separates the words redactWords judges.
-func isWordSep(c byte) bool { return strings.IndexByte("/=,;&:()[]{}<>|\t", c) >= 0 }
+func isWordSep(c byte) bool { return wordSeps[c] }
 
 // redactWords replaces the literal words of s (quotes already gone) by "?".
 func redactWords(s string) string {
@@ -246,12 +259,11 @@ func closingQuote(s string, i int) int {
 // signs, dots, dashes, underscores), or a hexadecimal ID of 16 or more
 // characters (UUIDs, trace and span IDs).
 func literalWord(w string) bool {
-	if strings.ContainsAny(w, "@?#%") {
-		return true
-	}
 	digits, hex, other := 0, 0, 0
 	for i := 0; i < len(w); i++ {
 		switch c := w[i]; {
+		case c == '@' || c == '?' || c == '#' || c == '%':
+			return true
 		case '0' <= c && c <= '9':
 			digits++
 		case 'a' <= c && c <= 'f' || 'A' <= c && c <= 'F':
