@@ -200,6 +200,7 @@ func TestHTMLLongNamesCut(t *testing.T) {
 	r.Causes[0].Function = long
 	r.Causes[0].Statements[0].Statement = "SELECT " + strings.Repeat("a, ", 10000) + "b FROM t"
 	r.Entries[0].Entry = long
+	r.Causes[1].File = long
 	var b bytes.Buffer
 	if err := (HTML{}).Render(&b, r, Options{}); err != nil {
 		t.Fatal(err)
