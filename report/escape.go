@@ -104,12 +104,14 @@ func (c csvWriter) Write(row []string) error {
 
 // csvCell neutralises a cell that a spreadsheet would run as a formula:
 // one starting with '=', '+', '-', '@', a tab or a carriage return gets a
-// leading apostrophe (the common practice, OWASP "CSV Injection"). Cells
-// that are numbers (-0.25, +3) are left alone, so numeric columns stay
-// numeric. Invisible characters are shown as \uXXXX.
+// leading apostrophe (the common practice, OWASP "CSV Injection"), and so
+// does one starting with an apostrophe, so that removing one leading
+// apostrophe always gives the text back. Cells that are numbers (-0.25,
+// +3) are left alone, so numeric columns stay numeric. Invisible
+// characters are shown as \uXXXX.
 func csvCell(s string) string {
 	s = revealInvisible(s)
-	if s == "" || strings.IndexByte("=+-@\t\r", s[0]) < 0 {
+	if s == "" || strings.IndexByte("=+-@\t\r'", s[0]) < 0 {
 		return s
 	}
 	if _, err := strconv.ParseFloat(s, 64); err == nil {

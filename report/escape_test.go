@@ -24,7 +24,7 @@ import (
 var (
 	bidiName    = "example.com/shop.(*Cart).Total\u202e 0001 \u2066gnp.exe\u2069\u202c"
 	invisName   = "zero\u200bwidth\u200c\u200d\ufeffbom\u200e\u200f\u061c\U000E0041tag"
-	formulas    = []string{`=HYPERLINK("http://attacker.invalid","x")`, "+1+cmd|' /C calc'!A0", "-2+3", "@SUM(A1:A9)", "\tlead tab", "\rlead cr"}
+	formulas    = []string{`=HYPERLINK("http://attacker.invalid","x")`, "+1+cmd|' /C calc'!A0", "-2+3", "@SUM(A1:A9)", "\tlead tab", "\rlead cr", "'quoted"}
 	linkName    = "see https://attacker.invalid/x, www.attacker.invalid, alice@example.org and mailto:bob@example.org"
 	attackNames = append([]string{bidiName, invisName, linkName}, formulas...)
 )
@@ -119,7 +119,9 @@ func TestTrojanSourceNamesShownEscaped(t *testing.T) {
 
 // Cells starting with =, +, -, @, tab or CR are formulas in a spreadsheet
 // (OWASP, "CSV Injection"): such text cells get a leading apostrophe, the
-// common practice. Numbers stay numbers, negative ones included.
+// common practice, as do cells starting with one, so that every text
+// reads back by removing one apostrophe. Numbers stay numbers, negative
+// ones included.
 func TestCSVFormulaInjection(t *testing.T) {
 	out := renderAll(t)
 	check := func(name string, textCols []string, numCols []string) {
@@ -137,6 +139,9 @@ func TestCSVFormulaInjection(t *testing.T) {
 				v := rec[col[c]]
 				if v != "" && strings.ContainsRune("=+-@\t\r", rune(v[0])) {
 					t.Errorf("%s: %s cell %q is a formula", name, c, v)
+				}
+				if strings.HasPrefix(v, "'") != (v != "" && strings.ContainsRune("=+-@\t\r'", rune(strings.TrimPrefix(v, "'")[0]))) {
+					t.Errorf("%s: %s cell %q: apostrophe not exactly where needed", name, c, v)
 				}
 				seen[strings.TrimPrefix(v, "'")] = true
 			}

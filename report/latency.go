@@ -295,11 +295,11 @@ func (latencyCSV) RenderLatency(w io.Writer, r *attribute.LatencyResult, opts Op
 	fl := func(f float64) string { return strconv.FormatFloat(share(f), 'f', -1, 64) }
 	for _, e := range r.Entries {
 		causes, cut := latencyCauses(e, opts)
-		head := []string{csvCell(e.Entry), strconv.Itoa(e.Requests), i64(e.P50), i64(e.P95), i64(e.P99), i64(e.Mean),
+		head := []string{e.Entry, strconv.Itoa(e.Requests), i64(e.P50), i64(e.P95), i64(e.P99), i64(e.Mean),
 			i64(e.TailThreshold), strconv.Itoa(e.TailRequests)}
 		for _, c := range causes {
 			all, tail, median := c.Share(e)
-			row := append(append([]string(nil), head...), csvCell(c.Function), string(c.Kind), strconv.FormatBool(c.NoAppFrame),
+			row := append(append([]string(nil), head...), c.Function, string(c.Kind), strconv.FormatBool(c.NoAppFrame),
 				strconv.Itoa(c.Requests), i64(perReq(c.Path, e.Requests)), fl(all), i64(perReq(c.TailPath, e.TailRequests)),
 				fl(tail), fl(median), i64(perReq(c.Summed, e.Requests)))
 			if err := cw.Write(row); err != nil {

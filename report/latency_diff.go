@@ -145,7 +145,7 @@ func (latencyDiffCSV) RenderLatencyDiff(w io.Writer, c *attribute.LatencyCompari
 			name string
 			qc   attribute.QuantileChange
 		}{{"p50", r.P50}, {"p95", r.P95}} {
-			row := []string{"route", csvCell(r.Entry), q.name, num(q.qc.Base), num(q.qc.Candidate), num(q.qc.Candidate - q.qc.Base),
+			row := []string{"route", r.Entry, q.name, num(q.qc.Base), num(q.qc.Candidate), num(q.qc.Candidate - q.qc.Base),
 				csvOptional(q.qc.RelativeChange), csvOptional(q.qc.RelLo), csvOptional(q.qc.RelHi), "", string(r.Verdict), ""}
 			if err := cw.Write(row); err != nil {
 				return err
@@ -153,7 +153,7 @@ func (latencyDiffCSV) RenderLatencyDiff(w io.Writer, c *attribute.LatencyCompari
 		}
 	}
 	for _, ch := range shownChanges(c.Causes, opts) {
-		row := []string{"cause", csvCell(ch.Function), "", num(ch.Base), num(ch.Candidate), num(ch.Change),
+		row := []string{"cause", ch.Function, "", num(ch.Base), num(ch.Candidate), num(ch.Change),
 			csvOptional(ch.RelativeChange), csvOptional(ch.RelLo), csvOptional(ch.RelHi), csvOptional(ch.QValue),
 			string(ch.Verdict), string(ch.Kind)}
 		if err := cw.Write(row); err != nil {
