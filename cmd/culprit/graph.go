@@ -25,10 +25,11 @@ func newGraphCmd(s *streams, runF func(context.Context, *graphOptions) error) *c
 		Short: "Export the attribution graph as DOT",
 		Long: `Graph writes the attribution subgraph in Graphviz DOT: entry points,
 application functions and the database and network calls they reach, with
-library frames elided. Edges are labelled with the cost charged along them
-and its share of database and network cost. Shapes by class: database cylinder, network hexagon, entry house,
-application bold box. --min-share prunes functions below a share of the
-database and network cost.`,
+library frames elided. Nodes and edges are labelled with the cost charged
+along them and its share of database and network cost. Shapes by class:
+database cylinder, network hexagon, entry house, application bold box.
+Names appear only in quoted labels. --min-share prunes functions below a
+share of the database and network cost.`,
 		Example: `  culprit graph profiles/ -o charge.dot && dot -Tsvg charge.dot > charge.svg
   culprit graph traces.jsonl --min-share 0.05`,
 		Args: minArgs(1),
