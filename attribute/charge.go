@@ -179,6 +179,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		DurationNanos: src.DurationNanos,
 		App:           AppInfo{Prefixes: c.rules.App, Detected: c.Detected, RulesFiles: c.rules.Files},
 		Warnings:      src.Warnings.Strings(),
+		Notes:         inputNotes(src),
 	}
 	shared := &charger{
 		t: t, c: c, src: src, w: w, opts: &opts, vi: vi, spans: spans,

@@ -45,6 +45,9 @@ type Result struct {
 	Domains     []DomainTotal `json:"domains,omitempty"`
 	DomainsFile string        `json:"domainsFile,omitempty"`
 	Warnings    []string      `json:"warnings"`
+	// Notes say what the input held beside warnings: inputs skipped,
+	// services found and analysed, spans ending after their parent.
+	Notes []string `json:"notes,omitempty"`
 	// DurationNanos is the wall-clock time the input covers, if known.
 	DurationNanos int64 `json:"durationNanos"`
 }

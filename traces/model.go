@@ -278,6 +278,9 @@ type Source struct {
 	// Services lists the services of a span source, by name, and which
 	// of them the paths cover (see ServiceInfo).
 	Services []ServiceInfo
+	// Notes say which inputs were skipped and why (not OTLP, another kind
+	// of input than --source): information, not repairs.
+	Notes []string
 	// LateChildren counts the spans that end after their parent (async
 	// work outliving the span that started it): normal, accepted as
 	// recorded, and counted for the input summary.

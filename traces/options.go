@@ -19,6 +19,10 @@ type Options struct {
 	// called by an analysed one) is left out with everything below it,
 	// since its time is inside the caller's CLIENT span.
 	Service string
+	// Source, when set, reads only inputs of that kind (Spans or Profile)
+	// and skips the others with a note; 0 reads either kind but refuses
+	// inputs of both.
+	Source Kind
 	// AllServices keeps every service's spans, each service's outermost
 	// spans as the roots of its paths (for callers that analyse each
 	// service on their own). It overrides the default of Service "".
