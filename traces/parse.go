@@ -188,6 +188,9 @@ func (l *Loader) Source() (*Source, error) {
 	src.Inputs = l.inputs
 	src.Notes = append(l.notes, src.Notes...)
 	src.Warnings.Merge(l.warnings)
+	if err := src.checkSums(); err != nil {
+		return nil, err
+	}
 	if err := src.Validate(); err != nil {
 		return nil, err
 	}

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"errors"
 	"fmt"
+	"math"
 	"slices"
 	"strings"
 )
@@ -85,6 +86,33 @@ func (l *Loader) nothingRead(src *Source) error {
 		msg += " (" + strings.Join(why, "; ") + ")"
 	}
 	return errors.New(msg)
+}
+
+// checkSums fails when the magnitudes of a value type over all paths add
+// up to more than an int64 holds: every total and share culprit computes
+// sums a subset of them, so below that bound none can overflow (turn
+// negative, or make shares of several times 100%).
+func (s *Source) checkSums() error {
+	for v, vt := range s.ValueTypes {
+		var sum uint64
+		for i := range s.Paths.Len() {
+			x := s.Paths.Value(i, v)
+			m := uint64(x)
+			if x < 0 {
+				m = uint64(-(x + 1)) + 1 // |MinInt64| without overflow
+			}
+			if sum += m; sum < m || sum > math.MaxInt64 {
+				what := "sample values"
+				if s.Kind == Spans {
+					what = "span values"
+				}
+				return fmt.Errorf("%w: the %s of type %s add up to more than %d, which culprit cannot total; "+
+					"a writer may have recorded them in another unit (times in milliseconds beside nanoseconds, say)",
+					ErrLimit, what, vt, int64(math.MaxInt64))
+			}
+		}
+	}
+	return nil
 }
 
 // foreignJSON reports whether a JSON input is some other JSON document

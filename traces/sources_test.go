@@ -3,8 +3,11 @@ package traces
 import (
 	"bytes"
 	"errors"
+	"math"
 	"strings"
 	"testing"
+
+	"github.com/google/pprof/profile"
 )
 
 // A load test's output folder holds profiles and traces side by side:
@@ -91,5 +94,72 @@ func TestForeignJSON(t *testing.T) {
 		if _, err := l.Source(); err == nil || !strings.Contains(err.Error(), tc.want) {
 			t.Errorf("%s: err = %v, want %q", tc.name, err, tc.want)
 		}
+	}
+}
+
+// Values whose sum an int64 cannot hold are refused, never added up into
+// negative totals: sample values, and span durations from a writer that
+// wrote some times in another unit.
+func TestOverflowingSums(t *testing.T) {
+	p := testProfile("samples/count")
+	big := *p.Sample[0]
+	big.Value = []int64{math.MaxInt64/2 + 10}
+	p.Sample = []*profile.Sample{&big, &big}
+	_, err := load(t, encode(t, p, false))
+	if !errors.Is(err, ErrLimit) || !strings.Contains(err.Error(), "add up to more than") {
+		t.Errorf("profile: err = %v", err)
+	}
+
+	tr2 := "0102030405060708090a0b0c0d0e0f11"
+	data := lines(line(tres{"api", []tspan{
+		{trace: tr1, id: sA, name: "a", kind: 2, start: plausibleNanos, end: math.MaxInt64 - 1},
+		{trace: tr2, id: sB, name: "b", kind: 2, start: plausibleNanos, end: math.MaxInt64 - 1}}}))
+	l := NewLoader(Options{})
+	if err := l.Add("big.jsonl", strings.NewReader(data)); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := l.Source(); !errors.Is(err, ErrLimit) || !strings.Contains(err.Error(), "another unit") {
+		t.Errorf("spans: err = %v", err)
+	}
+}
+
+// A span with its start in milliseconds and its end in nanoseconds since
+// the epoch (a buggy writer) gets duration 0 and a warning, not a
+// duration of half a century.
+func TestMixedTimeUnits(t *testing.T) {
+	data := lines(line(tres{"api", []tspan{
+		{trace: tr1, id: sA, name: "root", kind: 2, start: t0, end: t0 + sec},
+		{trace: tr1, id: sB, parent: sA, name: "ms", kind: 1, start: t0 / 1_000_000, end: t0 + 2}}}))
+	src := mustCollect(t, Options{}, input{"units.jsonl", data})
+	if n := warningCount(src, WarnMixedTimeUnits); n != 1 {
+		t.Errorf("%d %s warnings: %v", n, WarnMixedTimeUnits, src.Warnings.Strings())
+	}
+	for i := range src.Paths.Len() {
+		if d := src.Paths.Value(i, 0); d < 0 || d > sec {
+			t.Errorf("path %d: duration %d", i, d)
+		}
+	}
+	if _, err := collect(Options{Strict: true}, input{"units.jsonl", data}); !errors.Is(err, ErrSpanRepair) {
+		t.Errorf("strict: err = %v", err)
+	}
+}
+
+// A database span of unspecified kind is taken as a CLIENT span, with a
+// warning, so that its call is not lost (nor taken as application code).
+func TestDatabaseSpanOfUnknownKind(t *testing.T) {
+	data := lines(line(tres{"api", []tspan{
+		{trace: tr1, id: sA, name: "root", kind: 2, start: t0, end: t0 + sec},
+		{trace: tr1, id: sB, parent: sA, name: "SELECT plants", kind: 0, start: t0 + 1, end: t0 + 2,
+			attrs: []attr{str("db.system.name", "postgresql"), str("db.query.text", "SELECT 1")}}}}))
+	src := mustCollect(t, Options{}, input{"kind.jsonl", data})
+	if n := warningCount(src, WarnUnknownSpanKind); n != 1 {
+		t.Errorf("%d %s warnings: %v", n, WarnUnknownSpanKind, src.Warnings.Strings())
+	}
+	p := src.Paths.At(1)
+	if f := src.Frames[p.Frames[1]]; f.SpanKind != SpanKindClient || f.Protocol != ProtocolDatabase || p.Call == 0 {
+		t.Errorf("frame %+v, call %d", f, p.Call)
+	}
+	if _, err := collect(Options{Strict: true}, input{"kind.jsonl", data}); !errors.Is(err, ErrSpanRepair) {
+		t.Errorf("strict: err = %v", err)
 	}
 }

@@ -28,6 +28,11 @@ const (
 	// WarnMissingTimestamp is a span without a start or end time; it is
 	// given the one it has (or its parent's start), and duration 0.
 	WarnMissingTimestamp = "missing-timestamp"
+	// WarnMixedTimeUnits is a span with one time in the first 11 days of
+	// 1970 and the other later: a writer recorded one of them in another
+	// unit (milliseconds or microseconds since the epoch). The later time
+	// is kept and the duration taken as 0.
+	WarnMixedTimeUnits = "mixed-time-units"
 	// WarnClockSkew is a span that starts before its parent by more than
 	// max(1 ms, 1% of the parent's duration), in the same service or
 	// across services; it is moved, with its descendants, to start with
@@ -37,6 +42,11 @@ const (
 	// they are and counted in Source.LateChildren.
 	WarnClockSkew = "clock-skew"
 )
+
+// plausibleNanos is 1e15 ns since the Unix epoch (1970-01-12T13:46:40Z):
+// no span recorded by a real clock starts before it, while times written
+// in milliseconds or microseconds since the epoch fall below it.
+const plausibleNanos = 1_000_000_000_000_000
 
 // skewMinNanos is the smallest tolerance for clock skew: 1 ms. It covers
 // SDKs that record times in whole milliseconds (a child's start truncated
@@ -573,6 +583,13 @@ func (as *assembler) place(nodes []node, k int32) error {
 			spanIDString(r.id), as.c.traceIDs[r.trace])); err != nil {
 			return err
 		}
+	case (start < plausibleNanos) != (end < plausibleNanos):
+		if err := as.repair(r, WarnMixedTimeUnits, fmt.Sprintf("span %s (trace %s) has times %d and %d ns since the epoch, one of them in another unit; its duration is taken as 0",
+			spanIDString(r.id), as.c.traceIDs[r.trace], start, end)); err != nil {
+			return err
+		}
+		start = max(start, end)
+		end = start
 	case end < start:
 		if err := as.repair(r, WarnNegativeDuration, fmt.Sprintf("span %s (trace %s) ends %d ns before it starts; its duration is taken as 0",
 			spanIDString(r.id), as.c.traceIDs[r.trace], start-end)); err != nil {
