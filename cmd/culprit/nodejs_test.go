@@ -95,6 +95,9 @@ func TestNodeJSFixture(t *testing.T) {
 		// is analysed: packet-printer answered one health check.)
 		{"seedbank", []string{"--strict", nodeFixture}},
 		{"packet-printer", []string{"--strict", "--service", "packet-printer", nodeFixture}},
+		// --app applies to spans: naming the application's tracer scope
+		// changes nothing here.
+		{"seedbank", []string{"--strict", "--app", "greenhouse-seedbank", nodeFixture}},
 	} {
 		t.Run(tc.service, func(t *testing.T) {
 			doc := rankNode(t, tc.args...)
