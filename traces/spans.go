@@ -107,6 +107,7 @@ type assembler struct {
 
 	// Scratch space reused for every trace.
 	nodes                             []node
+	lastSvc                           *ServiceInfo // as.service's last answer (reset per partition)
 	walk, count, children, topo, emit []int32
 	keys                              []assemblyKey
 }
@@ -271,6 +272,7 @@ func (c *SpanCollector) Source() (*Source, error) {
 func (as *assembler) partition(part sortedPart, out *partPaths) *partPaths {
 	c := as.c
 	as.out = out
+	as.lastSvc = nil
 	order := part.order
 	for i := 0; i < len(order); {
 		first := part.at(order[i])
@@ -600,6 +602,8 @@ func (as *assembler) place(nodes []node, k int32) error {
 	start = satAdd(start, nd.shift)
 	end = satAdd(end, nd.shift)
 	service := as.c.frames[r.frame].Service
+	si := as.service(service)
+	si.Spans++
 	if par != nil {
 		// A span called from another service is that service's work,
 		// already inside the caller's CLIENT span: unless its service was
@@ -608,12 +612,11 @@ func (as *assembler) place(nodes []node, k int32) error {
 		samesvc := as.c.frames[par.rec.frame].Service == service
 		nd.keep = nd.keep && (as.c.opts.Service != "" || as.c.opts.AllServices || samesvc && par.keep)
 		if !samesvc {
-			as.service(service).Called++
+			si.Called++
 		}
 	} else {
-		as.service(service).Entries++
+		si.Entries++
 	}
-	as.service(service).Spans++
 	if par != nil && (r.start != 0 || r.end != 0) {
 		ps, pe := par.start, par.end
 		tol := max(skewMinNanos, (pe-ps)/100)
@@ -653,6 +656,9 @@ func (as *assembler) place(nodes []node, k int32) error {
 
 // service returns the tally of the named service in the partition.
 func (as *assembler) service(name string) *ServiceInfo {
+	if si := as.lastSvc; si != nil && si.Name == name {
+		return si // spans of one service mostly come together
+	}
 	if as.out.services == nil {
 		as.out.services = map[string]*ServiceInfo{}
 	}
@@ -661,6 +667,7 @@ func (as *assembler) service(name string) *ServiceInfo {
 		si = &ServiceInfo{Name: name}
 		as.out.services[name] = si
 	}
+	as.lastSvc = si
 	return si
 }
 
