@@ -832,9 +832,12 @@ func TestRepairs(t *testing.T) {
 	}{
 		{
 			name: "orphan",
-			data: lines(api(root, child(sB, sA, "b", t0+sec, t0+sec+10)), api(child(sC, sX, "c", t0+sec, t0+sec+20))),
+			// A SERVER span whose parent is outside the input (d: the
+			// caller sent its trace context) is an entry point, no orphan.
+			data: lines(api(root, child(sB, sA, "b", t0+sec, t0+sec+10)), api(child(sC, sX, "c", t0+sec, t0+sec+20)),
+				api(tspan{trace: tr1, id: sD, parent: "00000000000000e5", name: "d", kind: 2, start: t0 + sec, end: t0 + sec + 30})),
 			kind: WarnOrphanSpan, count: 1, line: 2,
-			wantPaths: [][]string{{"root"}, {"root", "b"}, {"c"}},
+			wantPaths: [][]string{{"root"}, {"root", "b"}, {"c"}, {"d"}},
 		},
 		{
 			name: "duplicate span ID",

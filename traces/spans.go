@@ -14,7 +14,9 @@ import (
 // is an error wrapping ErrSpanRepair instead.
 const (
 	// WarnOrphanSpan is a span whose parent is in none of the inputs; it
-	// is treated as the root of a partial trace.
+	// is treated as the root of a partial trace. (A SERVER or CONSUMER
+	// span with a missing parent is not one: its caller is outside the
+	// input, and it is an entry point like a span with no parent.)
 	WarnOrphanSpan = "orphan-span"
 	// WarnDuplicateSpanID is a span whose trace and span IDs were already
 	// seen; the first one read is kept and the later ones skipped.
@@ -440,6 +442,12 @@ func (as *assembler) trace(nodes []node) error {
 		}
 		k := findSpan(nodes, p)
 		if k < 0 {
+			if kind := as.c.frames[nd.rec.frame].SpanKind; kind == SpanKindServer || kind == SpanKindConsumer {
+				// A request or message from outside the input that carried
+				// its caller's trace context (a load generator, a gateway):
+				// an entry point, not a lost span.
+				continue
+			}
 			if err := as.repair(nd.rec, WarnOrphanSpan, fmt.Sprintf("parent %s of span %s (trace %s) is missing; the span is taken as a root",
 				spanIDString(p), spanIDString(nd.rec.id), as.c.traceIDs[nd.rec.trace])); err != nil {
 				return err
