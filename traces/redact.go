@@ -7,7 +7,7 @@ import (
 
 // This file keeps literal values out of what spans contribute to a
 // report. Statements are fingerprinted (Options.Statement); the rest of a
-// span's text — the frame's name, file and service, the route, database
+// span's text — the frame's name and service, the route, database
 // operation names and summaries, HTTP URLs, peers — is redacted here
 // while the span is decoded, unless Options.ShowLiterals is set. Words
 // that name code (main.(*server).handle.func1, /v2/{id}) pass unchanged.
@@ -23,7 +23,9 @@ func (d *decoder) redactSpan(name string, f *Frame, call *Call, route *string) {
 	} else {
 		f.Function = redactText(f.Function)
 	}
-	f.File, f.Service, *route = redactText(f.File), redactText(f.Service), redactText(*route)
+	// File paths and instrumentation scopes are kept: they locate code, and
+	// classification reads module@version and @scope/package in them.
+	f.Service, *route = redactText(f.Service), redactText(*route)
 	if database {
 		call.Summary = d.redactStatement(f.System, call.Summary)
 		call.Operation = d.redactStatement(f.System, call.Operation)
@@ -34,19 +36,23 @@ func (d *decoder) redactSpan(name string, f *Frame, call *Call, route *string) {
 }
 
 // redactStatement fingerprints text that may be a statement: a database
-// span's name, operation name or summary. Words without digits, quotes or
-// operators (SELECT, "SELECT orders") are kept as they are.
+// span's name, operation name or summary. Names without literals or
+// comparisons (SELECT, "SELECT orders", pg-pool.connect) are kept as they
+// are: a fingerprint would only refold them.
 func (d *decoder) redactStatement(system, s string) string {
 	if plainWords(s) {
 		return s
 	}
 	// Words first: a fingerprint may split an e-mail address into
 	// identifiers it keeps.
-	s = redactText(s)
-	if d.c.opts.Statement != nil {
-		s = strings.Clone(d.statement(system, s))
+	r := redactText(s)
+	if r == s && !strings.ContainsAny(s, "=$") {
+		return s
 	}
-	return s
+	if d.c.opts.Statement != nil {
+		r = strings.Clone(d.statement(system, r))
+	}
+	return r
 }
 
 // plainWords reports whether s holds only ASCII letters, '_', '.', '*',

@@ -80,3 +80,40 @@ func BenchmarkRedactText(b *testing.B) {
 		}
 	}
 }
+
+// Database span names are names unless they hold literals or
+// comparisons: "pg-pool.connect" stays as it is, a whole statement in the
+// name goes through Options.Statement (here a marker, standing in for
+// the fingerprint), and --show-literals keeps everything.
+func TestRedactDatabaseSpanNames(t *testing.T) {
+	const tr = "5b8efff798038103d269b633813fc60c"
+	db := func(id, name string) tspan {
+		return tspan{trace: tr, id: id, parent: "a000000000000001", name: name, kind: 3, start: 2, end: 3,
+			attrs: []attr{str("db.system.name", "postgresql")}}
+	}
+	data := lines(line(tres{"svc", []tspan{
+		{trace: tr, id: "a000000000000001", name: "GET /x", kind: 2, start: 1, end: 9},
+		db("a000000000000002", "pg-pool.connect"),
+		db("a000000000000003", "SELECT orders"),
+		db("a000000000000004", "SELECT * FROM users WHERE email = 'alice@example.org'"),
+		db("a000000000000005", "UPDATE t SET a = b"),
+	}}))
+	mark := func(dst []byte, system, raw string) []byte { return append(append(dst, "FP:"...), raw...) }
+	functions := func(opts Options) map[string]bool {
+		src := mustCollect(t, opts, input{"x.jsonl", data})
+		out := map[string]bool{}
+		for _, f := range src.Frames {
+			out[f.Function] = true
+		}
+		return out
+	}
+	got := functions(Options{Statement: mark})
+	for _, want := range []string{"pg-pool.connect", "SELECT orders", "FP:SELECT * FROM users WHERE email = ?", "FP:UPDATE t SET a = b"} {
+		if !got[want] {
+			t.Errorf("no frame %q in %v", want, got)
+		}
+	}
+	if raw := functions(Options{Statement: mark, ShowLiterals: true}); !raw["SELECT * FROM users WHERE email = 'alice@example.org'"] {
+		t.Errorf("ShowLiterals changed a name: %v", raw)
+	}
+}
