@@ -173,7 +173,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		Inputs:        src.Inputs,
 		Source:        src.Kind.String(),
 		ValueType:     src.ValueTypes[vi],
-		Sampled:       !spans,
+		Sampled:       src.Kind == traces.Profile,
 		CPUOnly:       isCPUOnly(src, vi),
 		Inclusive:     opts.Inclusive,
 		DurationNanos: src.DurationNanos,
@@ -182,7 +182,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 	}
 	shared := &charger{
 		t: t, c: c, src: src, w: w, opts: &opts, vi: vi, spans: spans,
-		sampleIx: sampleIndex(src, vi), entryLabels: entryLabels,
+		sampleIx: sampleIndex(src, vi), entryLabels: entryLabels, callsIx: callsIndex(src),
 	}
 	if !spans {
 		shared.reqs = requestIDs(src, requestLabels)
@@ -221,7 +221,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		if acc.cause.Cost == 0 && acc.recCost == 0 {
 			continue
 		}
-		cs := acc.finish(src, denom, res.Totals.BoundarySamples, !spans, spans, !opts.DropRequestVectors, &scratch)
+		cs := acc.finish(src, denom, res.Totals.BoundarySamples, res.Sampled, spans || shared.callsIx >= 0, !opts.DropRequestVectors, &scratch)
 		if cs.Cost > 0 {
 			res.Causes = append(res.Causes, cs)
 		}
@@ -361,6 +361,20 @@ func sampleIndex(src *traces.Source, vi int) int {
 	}
 	for i, vt := range src.ValueTypes {
 		if vt.Unit == "count" && (vt.Type == "samples" || vt.Type == "goroutine" || vt.Type == "contentions") {
+			return i
+		}
+	}
+	return -1
+}
+
+// callsIndex returns the value index counting calls of a source that is
+// not made of spans (an execution trace's calls/count), -1 when none.
+func callsIndex(src *traces.Source) int {
+	if src.Kind != traces.ExecTrace {
+		return -1
+	}
+	for i, vt := range src.ValueTypes {
+		if vt.Type == "calls" && vt.Unit == "count" {
 			return i
 		}
 	}

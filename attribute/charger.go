@@ -19,6 +19,7 @@ type charger struct {
 	w            *walkState
 	opts         *Options
 	vi, sampleIx int
+	callsIx      int // calls/count of an execution trace, else -1
 	spans        bool
 	entryLabels  []string
 
@@ -45,7 +46,7 @@ type charger struct {
 // fork returns a charger with ch's shared fields and empty state.
 func (ch *charger) fork(rec *recursionFinder) *charger {
 	return &charger{
-		t: ch.t, c: ch.c, src: ch.src, w: ch.w, opts: ch.opts, vi: ch.vi, sampleIx: ch.sampleIx, spans: ch.spans,
+		t: ch.t, c: ch.c, src: ch.src, w: ch.w, opts: ch.opts, vi: ch.vi, sampleIx: ch.sampleIx, spans: ch.spans, callsIx: ch.callsIx,
 		entryLabels:   ch.entryLabels,
 		rec:           rec.fork(),
 		accs:          map[string]*causeAcc{},
@@ -162,7 +163,9 @@ func (ch *charger) charge(pi int) {
 	leaf := t.Leaf(pi)
 	val := p.Values[vi]
 	samples := int64(1)
-	if sampleIx >= 0 {
+	if ch.callsIx >= 0 {
+		samples = 0 // measured waits, not samples: requests count calls
+	} else if sampleIx >= 0 {
 		samples = p.Values[sampleIx]
 	}
 	req := p.Request
@@ -224,6 +227,8 @@ func (ch *charger) charge(pi int) {
 		if len(p.Values) > 1 {
 			calls = p.Values[1]
 		}
+	} else if ch.callsIx >= 0 {
+		calls = p.Values[ch.callsIx]
 	}
 	sys := pathSystem(c, t, w, p, leaf, b)
 	dkey := uint64(uint32(t.Frame(b)))<<32 | uint64(uint32(p.Call))

@@ -23,6 +23,7 @@ type Loader struct {
 	opts     Options
 	profiles *profileAppender
 	spans    *SpanCollector
+	exec     *ExecCollector
 	inputs   []Input
 	warnings Warnings
 	kinds    map[Kind]string // first input name of each kind
@@ -112,6 +113,17 @@ func (l *Loader) add(name string, r io.Reader) error {
 		if err := l.spans.Add(name, bb); err != nil {
 			return readError(name, err, counted.n)
 		}
+	case LooksLikeExecTrace(prefix):
+		in.Format = "go-exectrace"
+		if err := l.checkKind(ExecTrace, name); err != nil {
+			return err
+		}
+		if l.exec == nil {
+			l.exec = NewExecCollector(l.opts.Limits)
+		}
+		if err := l.exec.Add(name, bb); err != nil {
+			return readError(name, err, counted.n)
+		}
 	default:
 		in.Format = "pprof"
 		data, err := readAll(bb)
@@ -179,6 +191,8 @@ func (l *Loader) Source() (*Source, error) {
 			return nil, err
 		}
 		src = s
+	case l.exec != nil:
+		src = l.exec.Source()
 	default:
 		if l.warnings.Len() > 0 {
 			return nil, fmt.Errorf("no readable input (%s)", strings.Join(l.warnings.Strings(), "; "))
