@@ -460,7 +460,7 @@ func forecast(w http.ResponseWriter, r *http.Request) {
 type wireConnector struct{ d wireDriver }
 
 func (c *wireConnector) Connect(context.Context) (driver.Conn, error) { return c.d.Open("") }
-func (c *wireConnector) Driver() driver.Driver                         { return c.d }
+func (c *wireConnector) Driver() driver.Driver                        { return c.d }
 
 func loadExecTrace(t testing.TB, data []byte) *traces.Source {
 	l := traces.NewLoader(traces.Options{})

@@ -113,13 +113,13 @@ type stackInfo struct {
 
 // execStretch is one wait of a request, kept until the request ends.
 type execStretch struct {
-	info          *stackInfo
-	prefix        []FrameID // the creator's path, for a request's child goroutine
-	start, end    int64     // the blocked interval
-	runnable      int64
-	calls         int64
-	join          bool // ended by one of the request's own goroutines
-	wall          int64
+	info       *stackInfo
+	prefix     []FrameID // the creator's path, for a request's child goroutine
+	start, end int64     // the blocked interval
+	runnable   int64
+	calls      int64
+	join       bool // ended by one of the request's own goroutines
+	wall       int64
 }
 
 // execRequest is one request being read.
@@ -145,10 +145,10 @@ const (
 // execG is the state of one goroutine.
 type execG struct {
 	id          trace.GoID
-	known       bool // seen before this event
-	preexisting bool // seen first through its status at the start of the trace
-	conn        bool // an HTTP server connection goroutine
-	sawOut      bool // has shown an event outside a handler
+	known       bool         // seen before this event
+	preexisting bool         // seen first through its status at the start of the trace
+	conn        bool         // an HTTP server connection goroutine
+	sawOut      bool         // has shown an event outside a handler
 	req         *execRequest // open request (connection goroutine) or owner (child)
 	child       bool
 	exited      bool
@@ -157,12 +157,12 @@ type execG struct {
 	runStart    int64
 	lastOut     int64
 
-	pend        execPendKind
-	pendInfo    *stackInfo
-	pendStart   int64
-	pendWake    int64
-	pendCalls   int64
-	pendJoin    bool
+	pend      execPendKind
+	pendInfo  *stackInfo
+	pendStart int64
+	pendWake  int64
+	pendCalls int64
+	pendJoin  bool
 }
 
 // execReader reads one execution trace into a source.
