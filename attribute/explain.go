@@ -54,7 +54,7 @@ func Explain(t *callgraph.Tree, c *Classifier, opts Options, pattern *regexp.Reg
 		vi = src.DefaultValue
 	}
 	spans := src.Kind == traces.Spans
-	sampleIx := sampleIndex(src, vi)
+	sampleIx, callsIx := sampleIndex(src, vi), callsIndex(src)
 	w := newWalkState(t, c)
 	roots := map[string]*ExplainNode{}
 	var denom int64
@@ -80,6 +80,8 @@ func Explain(t *callgraph.Tree, c *Classifier, opts Options, pattern *regexp.Reg
 		}
 		if spans {
 			calls = 1
+		} else if callsIx >= 0 {
+			samples, calls = 0, p.Values[callsIx]
 		}
 		kind := KindDatabase
 		if c.Verdict(t.Frame(b)).Class == Network {
