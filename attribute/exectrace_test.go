@@ -225,7 +225,9 @@ type nursery struct {
 	listCalls, priceCalls, stockCalls, weatherCalls, orderCalls, refreshCalls atomic.Int64
 	refreshOnce                                                               sync.Once
 	stop                                                                      chan struct{}
+	mux                                                                       *http.ServeMux
 	refreshDone                                                               chan struct{}
+	entered, gate                                                             chan struct{}
 }
 
 //go:noinline
@@ -348,6 +350,15 @@ func (n *nursery) stock(w http.ResponseWriter, r *http.Request) {
 	fmt.Fprintf(w, "stock %d, %s\n", sum.Load(), forecast)
 }
 
+// slow waits at the gate, then asks one price.
+func (n *nursery) slow(w http.ResponseWriter, r *http.Request) {
+	n.entered <- struct{}{}
+	<-n.gate
+	if _, err := n.priceOf(r.Context(), 1); err != nil {
+		http.Error(w, err.Error(), 500)
+	}
+}
+
 // order: a POST with a body, one insert.
 func (n *nursery) order(w http.ResponseWriter, r *http.Request) {
 	body, err := io.ReadAll(r.Body)
@@ -363,10 +374,9 @@ func (n *nursery) order(w http.ResponseWriter, r *http.Request) {
 	io.WriteString(w, "ok\n")
 }
 
-// recordNursery runs the workload under runtime/trace (Go's own
-// execution tracer, the reference producer of the format) and returns
-// the trace, the application and the requests sent per handler.
-func recordNursery(t testing.TB, rounds int) ([]byte, *nursery, map[string]int) {
+// startNursery starts the database, the weather service and the
+// application on the loopback, and returns the application and its URL.
+func startNursery(t testing.TB) (*nursery, string) {
 	dbs := startDBServer(t)
 	connector := &wireConnector{d: wireDriver{addr: dbs.ln.Addr().String()}}
 	db := sql.OpenDB(connector)
@@ -385,11 +395,13 @@ func recordNursery(t testing.TB, rounds int) ([]byte, *nursery, map[string]int) 
 	t.Cleanup(func() { weather.Close() })
 
 	n := &nursery{db: db, client: &http.Client{Transport: &http.Transport{MaxIdleConnsPerHost: 8}},
-		weather: "http://" + wln.Addr().String() + "/forecast", stop: make(chan struct{}), refreshDone: make(chan struct{})}
+		weather: "http://" + wln.Addr().String() + "/forecast", stop: make(chan struct{}), refreshDone: make(chan struct{}),
+		entered: make(chan struct{}), gate: make(chan struct{})}
 	mux := http.NewServeMux()
 	mux.HandleFunc("GET /catalogue", n.catalogue)
 	mux.HandleFunc("GET /stock", n.stock)
 	mux.HandleFunc("POST /orders", n.order)
+	mux.HandleFunc("GET /slow", n.slow)
 	app := &http.Server{Handler: mux}
 	aln, err := net.Listen("tcp", "127.0.0.1:0")
 	if err != nil {
@@ -397,8 +409,15 @@ func recordNursery(t testing.TB, rounds int) ([]byte, *nursery, map[string]int) 
 	}
 	go app.Serve(aln)
 	t.Cleanup(func() { app.Close() })
-	base := "http://" + aln.Addr().String()
+	n.mux = mux
+	return n, "http://" + aln.Addr().String()
+}
 
+// recordNursery runs the workload under runtime/trace (Go's own
+// execution tracer, the reference producer of the format) and returns
+// the trace, the application and the requests sent per handler.
+func recordNursery(t testing.TB, rounds int) ([]byte, *nursery, map[string]int) {
+	n, base := startNursery(t)
 	var buf bytes.Buffer
 	if err := trace.Start(&buf); err != nil {
 		t.Skipf("execution tracer unavailable: %v", err)
@@ -553,4 +572,123 @@ func TestExecTraceNursery(t *testing.T) {
 	if all := sent["/catalogue"] + sent["/stock"] + sent["/orders"] + sent["/forecast"]; res.Totals.Requests != all {
 		t.Errorf("%d requests, %d were sent", res.Totals.Requests, all)
 	}
+	// Keep-alive: the sequential client's connection served its 3×rounds
+	// requests one after another on one goroutine.
+	perConn := map[string]int{}
+	for _, key := range src.Requests[1:] {
+		perConn[key[:strings.LastIndexByte(key, '.')]]++
+	}
+	most := 0
+	for _, k := range perConn {
+		most = max(most, k)
+	}
+	if most < 3*rounds {
+		t.Errorf("no connection goroutine served %d requests in a row: %v", 3*rounds, perConn)
+	}
+	// Pool waits (two connections for up to seven goroutines) are their
+	// own detail, with no calls.
+	var poolWait int64
+	for _, c := range res.Causes {
+		for _, d := range c.Statements {
+			if d.Statement == traces.ConnectionWait {
+				poolWait += d.Cost
+				if d.Calls != 0 {
+					t.Errorf("%s: a connection wait counted %d calls", c.Function, d.Calls)
+				}
+			}
+		}
+	}
+	if poolWait == 0 {
+		t.Error("no connection wait, though seven goroutines share two connections")
+	}
+	// The errgroup workers wait together: their share of the wall clock
+	// is less than their summed wait; the shares never exceed the waits.
+	wall := attribute.Attribute(callgraph.NewTree(src, callgraph.TreeOptions{}), attribute.NewClassifier(src, attribute.DefaultRules()), attribute.Options{Value: "wall"})
+	for _, c := range wall.Causes {
+		if w := byName[c.Function]; w != nil && c.Cost > w.Cost {
+			t.Errorf("%s: wall-clock share %d above its summed wait %d", c.Function, c.Cost, w.Cost)
+		}
+	}
+	if c, w := causeNamed(wall, "stockAt"), byName[pkg+"stockAt"]; c == nil || w == nil || c.Cost >= w.Cost {
+		t.Errorf("stockAt: wall-clock share %+v not below the summed wait of three concurrent workers", c)
+	}
+}
+
+// TestExecTraceCutRequests records a trace that starts while one request
+// waits inside its handler and stops while another does: both are cut
+// by the trace window and left out, with a warning; the requests in
+// between, on one keep-alive connection, are counted whole.
+func TestExecTraceCutRequests(t *testing.T) {
+	if testing.Short() {
+		t.Skip("records an execution trace of a loopback workload")
+	}
+	n, base := startNursery(t)
+	get := func(c *http.Client, path string, done chan<- struct{}) {
+		resp, err := c.Get(base + path)
+		if err == nil {
+			io.Copy(io.Discard, resp.Body)
+			resp.Body.Close()
+		} else {
+			t.Error(err)
+		}
+		if done != nil {
+			close(done)
+		}
+	}
+	aDone, bDone := make(chan struct{}), make(chan struct{})
+	go get(&http.Client{Transport: &http.Transport{}}, "/slow", aDone)
+	<-n.entered
+	var buf bytes.Buffer
+	if err := trace.Start(&buf); err != nil {
+		t.Skipf("execution tracer unavailable: %v", err)
+	}
+	n.gate <- struct{}{}
+	<-aDone
+	keep := &http.Client{Transport: &http.Transport{MaxIdleConnsPerHost: 1}}
+	for range 3 {
+		get(keep, "/catalogue", nil)
+	}
+	go get(&http.Client{Transport: &http.Transport{}}, "/slow", bDone)
+	<-n.entered
+	trace.Stop()
+	n.gate <- struct{}{}
+	<-bDone
+
+	src := loadExecTrace(t, buf.Bytes())
+	res := attribute.Attribute(callgraph.NewTree(src, callgraph.TreeOptions{}), attribute.NewClassifier(src, attribute.DefaultRules()), attribute.Options{})
+	if res.Totals.Requests != 3 {
+		t.Errorf("%d requests, want the 3 whole ones", res.Totals.Requests)
+	}
+	for _, e := range res.Entries {
+		if strings.HasSuffix(e.Entry, ".slow") {
+			t.Errorf("a cut request was counted: %+v", e)
+		}
+	}
+	// One keep-alive connection: its goroutine served all three.
+	conns := map[string]int{}
+	for _, key := range src.Requests[1:] {
+		conns[key[:strings.LastIndexByte(key, '.')]]++
+	}
+	if len(conns) != 1 {
+		t.Errorf("requests on %d connection goroutines, want 1 (keep-alive): %v", len(conns), src.Requests)
+	}
+	if c := causeNamed(res, "priceOf"); c == nil || c.Calls != 12 {
+		t.Errorf("priceOf: %+v, want 12 calls (4 in each whole request)", c)
+	}
+	warned := false
+	for _, w := range src.Warnings.Strings() {
+		warned = warned || strings.Contains(w, "2 requests cut by the trace window")
+	}
+	if !warned {
+		t.Errorf("no warning about the 2 cut requests: %v", src.Warnings.Strings())
+	}
+}
+
+func causeNamed(res *attribute.Result, suffix string) *attribute.Cause {
+	for _, c := range res.Causes {
+		if strings.HasSuffix(c.Function, "."+suffix) {
+			return c
+		}
+	}
+	return nil
 }
