@@ -1,6 +1,7 @@
 package traces
 
 import (
+	"bufio"
 	"bytes"
 	"errors"
 	"fmt"
@@ -263,7 +264,16 @@ func (c *ExecCollector) merge(o *Source) error {
 }
 
 func (x *execReader) read(cr *countingReader) error {
-	tr, err := trace.NewReader(cr)
+	br := bufio.NewReader(cr)
+	head, _ := br.Peek(16)
+	if v := execVersion(head); v != "" {
+		if minor, err := strconv.Atoi(strings.TrimPrefix(v, "1.")); err == nil && minor < 22 {
+			// The older format's parser sizes its tables from the input
+			// before reading it: no limits hold there.
+			return &ParseError{File: x.name, Err: fmt.Errorf("%w: a Go execution trace from go %s; culprit reads traces of Go 1.22 and later: record it with a newer Go", ErrFormat, v)}
+		}
+	}
+	tr, err := trace.NewReader(br)
 	if err != nil {
 		return x.headerError(err)
 	}
@@ -319,7 +329,7 @@ func (x *execReader) read(cr *countingReader) error {
 func (x *execReader) headerError(err error) error {
 	msg := err.Error()
 	if i := strings.Index(msg, "go 1."); i >= 0 && strings.Contains(msg, "unsupported") {
-		return &ParseError{File: x.name, Err: fmt.Errorf("%w: a Go execution trace from %s, which this build cannot read (it reads traces of Go 1.11 to 1.26)",
+		return &ParseError{File: x.name, Err: fmt.Errorf("%w: a Go execution trace from %s, which this build cannot read (it reads traces of Go 1.22 to 1.26)",
 			ErrFormat, strings.TrimSpace(msg[i:]))}
 	}
 	return &ParseError{File: x.name, Err: fmt.Errorf("%w: malformed Go execution trace: %v", ErrFormat, err)}
