@@ -220,7 +220,7 @@ func (c *ExecCollector) Add(name string, r io.Reader) (err error) {
 	cr := &countingReader{r: r}
 	defer func() {
 		if p := recover(); p != nil {
-			err = &ParseError{File: name, Offset: cr.n, Err: fmt.Errorf("%w: corrupt Go execution trace (%v)", ErrFormat, p)}
+			err = &ParseError{File: name, Offset: cr.n, Err: fmt.Errorf("malformed Go execution trace (the reader failed: %v)", p)}
 		}
 	}()
 	if err := x.read(cr); err != nil {
@@ -270,7 +270,7 @@ func (x *execReader) read(cr *countingReader) error {
 		if minor, err := strconv.Atoi(strings.TrimPrefix(v, "1.")); err == nil && minor < 22 {
 			// The older format's parser sizes its tables from the input
 			// before reading it: no limits hold there.
-			return &ParseError{File: x.name, Err: fmt.Errorf("%w: a Go execution trace from go %s; culprit reads traces of Go 1.22 and later: record it with a newer Go", ErrFormat, v)}
+			return &ParseError{File: x.name, Err: fmt.Errorf("a Go execution trace from go %s; culprit reads traces of Go 1.22 and later: record it with a newer Go", v)}
 		}
 	}
 	tr, err := trace.NewReader(br)
@@ -283,7 +283,11 @@ func (x *execReader) read(cr *countingReader) error {
 			break
 		}
 		if err != nil {
-			return &ParseError{File: x.name, Offset: cr.n, Err: fmt.Errorf("%w: malformed Go execution trace: %v", ErrFormat, err)}
+			// The library's message may go on with a dump of its state.
+			msg, _, _ := strings.Cut(err.Error(), "\n")
+			// The library reads through br (its own buffer is br), a batch
+			// at a time: the position is the end of what it had read.
+			return &ParseError{File: x.name, Offset: cr.n - int64(br.Buffered()), Err: fmt.Errorf("malformed Go execution trace: %s", strings.TrimSuffix(msg, ":"))}
 		}
 		if ev.Kind() != trace.EventStateTransition {
 			continue
@@ -312,6 +316,10 @@ func (x *execReader) read(cr *countingReader) error {
 	if x.first >= 0 {
 		x.src.DurationNanos += x.last - x.first
 	}
+	if x.src.RequestCount() == 0 && x.cut == 0 {
+		x.src.Warnings.Add(Warning{Kind: "no-requests", File: x.name, Message: "no HTTP server request with a wait in its handler: " +
+			"culprit charges the waits of net/http requests; was the trace taken while the service served traffic?"})
+	}
 	if x.cut > 0 {
 		x.src.Warnings.Add(Warning{Kind: "cut-request", File: x.name, Message: fmt.Sprintf(
 			"%d requests cut by the trace window were left out (%s of waits)", x.cut, fmtNanos(x.cutWait))})
@@ -329,10 +337,10 @@ func (x *execReader) read(cr *countingReader) error {
 func (x *execReader) headerError(err error) error {
 	msg := err.Error()
 	if i := strings.Index(msg, "go 1."); i >= 0 && strings.Contains(msg, "unsupported") {
-		return &ParseError{File: x.name, Err: fmt.Errorf("%w: a Go execution trace from %s, which this build cannot read (it reads traces of Go 1.22 to 1.26)",
-			ErrFormat, strings.TrimSpace(msg[i:]))}
+		return &ParseError{File: x.name, Err: fmt.Errorf("a Go execution trace from %s, which this build cannot read (it reads traces of Go 1.22 to 1.26)",
+			strings.TrimSpace(msg[i:]))}
 	}
-	return &ParseError{File: x.name, Err: fmt.Errorf("%w: malformed Go execution trace: %v", ErrFormat, err)}
+	return &ParseError{File: x.name, Err: fmt.Errorf("malformed Go execution trace: %v", err)}
 }
 
 func fmtNanos(ns int64) string {
