@@ -181,7 +181,7 @@ func corpusCases() []corpusCase {
 			want: []string{"{file}: byte 17: malformed Go execution trace"}},
 		{name: "exectrace truncated", file: "exectrace-cut.trace", gen: execTruncated, temp: true, status: exitError,
 			about: "a Go execution trace recorded by runtime/trace, its last third cut off",
-			want: []string{"{file}: byte ", "malformed Go execution trace"}},
+			want:  []string{"{file}: byte ", "malformed Go execution trace"}},
 		{name: "exectrace truncated gzip", file: "exectrace-cut.trace.gz", gen: func() []byte { return gzipped(execTruncated()) }, temp: true,
 			about: "the same, gzipped", status: exitError, want: []string{"{file}: byte ", "malformed Go execution trace"}},
 	}
