@@ -19,6 +19,7 @@ import (
 	"testing"
 	"time"
 
+	xtrace "golang.org/x/exp/trace"
 	"golang.org/x/sync/errgroup"
 
 	"github.com/culprithq/culprit/attribute"
@@ -691,4 +692,52 @@ func causeNamed(res *attribute.Result, suffix string) *attribute.Cause {
 		}
 	}
 	return nil
+}
+
+var benchTrace struct {
+	once sync.Once
+	data []byte
+}
+
+// BenchmarkExecTrace ranks a large execution trace of the nursery
+// workload (recorded once by runtime/trace) beside the floor: the
+// library's own ReadEvent loop over the same bytes. The target is rank
+// at most 1.3× the loop (README, "Go execution traces").
+func BenchmarkExecTrace(b *testing.B) {
+	benchTrace.once.Do(func() {
+		benchTrace.data, _, _ = recordNursery(b, 150)
+	})
+	data := benchTrace.data
+	b.Logf("trace of %d bytes", len(data))
+	b.Run("ReadEvent", func(b *testing.B) {
+		b.SetBytes(int64(len(data)))
+		for b.Loop() {
+			r, err := xtrace.NewReader(bytes.NewReader(data))
+			if err != nil {
+				b.Fatal(err)
+			}
+			for {
+				if _, err := r.ReadEvent(); err != nil {
+					if err != io.EOF {
+						b.Fatal(err)
+					}
+					break
+				}
+			}
+		}
+	})
+	b.Run("Rank", func(b *testing.B) {
+		b.SetBytes(int64(len(data)))
+		for b.Loop() {
+			l := traces.NewLoader(traces.Options{SkipDigest: true})
+			if err := l.Add("trace.out", bytes.NewReader(data)); err != nil {
+				b.Fatal(err)
+			}
+			src, err := l.Source()
+			if err != nil {
+				b.Fatal(err)
+			}
+			attribute.Attribute(callgraph.NewTree(src, callgraph.TreeOptions{}), attribute.NewClassifier(src, attribute.DefaultRules()), attribute.Options{})
+		}
+	})
 }

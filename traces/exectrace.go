@@ -115,12 +115,12 @@ type stackInfo struct {
 // execStretch is one wait of a request, kept until the request ends.
 type execStretch struct {
 	info       *stackInfo
-	prefix     []FrameID // the creator's path, for a request's child goroutine
-	start, end int64     // the blocked interval
+	start, end int64 // the blocked interval
 	runnable   int64
-	calls      int64
-	join       bool // ended by one of the request's own goroutines
 	wall       int64
+	prefix     int32 // index in execReader.prefixes: the creator's path of a child goroutine; 0 none
+	calls      int32
+	join       bool // ended by one of the request's own goroutines
 }
 
 // execRequest is one request being read.
@@ -153,7 +153,7 @@ type execG struct {
 	req         *execRequest // open request (connection goroutine) or owner (child)
 	child       bool
 	exited      bool
-	prefix      []FrameID
+	prefix      int32         // see execStretch.prefix
 	stretches   []execStretch // a child's, until it exits
 	runStart    int64
 	lastOut     int64
@@ -162,28 +162,36 @@ type execG struct {
 	pendInfo  *stackInfo
 	pendStart int64
 	pendWake  int64
-	pendCalls int64
+	pendCalls int32
 	pendJoin  bool
 }
 
 // execReader reads one execution trace into a source.
 type execReader struct {
-	src      *Source
-	limits   Limits
-	name     string
-	input    int // which input of the collector, for request keys
-	stacks   map[trace.Stack]*stackInfo
-	gs       map[trace.GoID]*execG
-	scratch  []FrameID
-	sfs      []trace.StackFrame
-	nreq     map[trace.GoID]int // requests ended per connection goroutine
-	cut      int
-	cutWait  int64
-	first    int64
-	last     int64
-	runnable int64
-	wait     int64
-	err      error // the first limit exceeded
+	src     *Source
+	limits  Limits
+	name    string
+	input   int // which input of the collector, for request keys
+	stacks  map[trace.Stack]*stackInfo
+	gs      map[trace.GoID]*execG
+	scratch []FrameID
+	sfs     []trace.StackFrame
+	// prefixes are the creators' paths of child goroutines ([0] is none).
+	prefixes  [][]FrameID
+	prefixIDs map[execPrefixKey]int32
+	free      [][]execStretch // emptied stretch slices, for reuse
+	edges     []execEdge      // splitWall's scratch space
+	times     []int64
+	counts    []int
+	groups    map[execGroupKey]int
+	nreq      map[trace.GoID]int // requests ended per connection goroutine
+	cut       int
+	cutWait   int64
+	first     int64
+	last      int64
+	runnable  int64
+	wait      int64
+	err       error // the first limit exceeded
 }
 
 // ExecCollector reads Go execution traces into one ExecTrace source.
@@ -215,7 +223,7 @@ func (c *ExecCollector) Add(name string, r io.Reader) (err error) {
 	x := &execReader{
 		src: NewSource(ExecTrace, ExecTraceValueTypes), limits: c.limits, name: name, input: c.inputs,
 		stacks: map[trace.Stack]*stackInfo{}, gs: map[trace.GoID]*execG{}, nreq: map[trace.GoID]int{},
-		first: -1,
+		first: -1, prefixes: [][]FrameID{nil}, prefixIDs: map[execPrefixKey]int32{}, groups: map[execGroupKey]int{},
 	}
 	cr := &countingReader{r: r}
 	defer func() {
@@ -367,15 +375,16 @@ func (x *execReader) transition(ev trace.Event, st trace.StateTransition, t int6
 	from, to := st.Goroutine()
 	id := st.Resource.Goroutine()
 	// The goroutine running the event (creator, waker) sees its own stack.
-	if actor := ev.Goroutine(); actor != trace.NoGoroutine && actor != id {
+	creates, wakes := from == trace.GoNotExist, from == trace.GoWaiting && to == trace.GoRunnable
+	if actor := ev.Goroutine(); (creates || wakes) && actor != trace.NoGoroutine && actor != id {
 		if s := ev.Stack(); s != trace.NoStack {
 			a := x.g(actor)
 			info := x.info(s)
 			x.observe(a, info, t)
 			switch {
-			case from == trace.GoNotExist:
+			case creates:
 				x.created(a, x.g(id), info)
-			case from == trace.GoWaiting && to == trace.GoRunnable:
+			case wakes:
 				// The response handed over between the connection's read
 				// loop and the round trip: one HTTP/1 round trip.
 				if w := x.gs[id]; w != nil && w.pend != pendNone {
@@ -470,15 +479,30 @@ func (x *execReader) created(a, c *execG, info *stackInfo) {
 		return
 	}
 	c.child, c.req = true, a.req
-	pre := info.frames
-	if len(a.prefix) > 0 {
-		pre = append(append(make([]FrameID, 0, len(a.prefix)+len(info.frames)), a.prefix...), info.frames...)
+	// Children created at one place share their prefix.
+	key := execPrefixKey{a.prefix, info}
+	id, ok := x.prefixIDs[key]
+	if !ok {
+		pre := info.frames
+		if a.prefix != 0 {
+			pre = append(slices.Clone(x.prefixes[a.prefix]), info.frames...)
+		}
+		if d := x.limits.MaxDepth / 2; len(pre) > d {
+			pre = pre[len(pre)-d:]
+		}
+		id = int32(len(x.prefixes))
+		x.prefixes = append(x.prefixes, pre)
+		x.prefixIDs[key] = id
 	}
-	if d := x.limits.MaxDepth / 2; len(pre) > d {
-		pre = pre[len(pre)-d:]
-	}
-	c.prefix = pre
+	c.prefix = id
 	a.req.children = append(a.req.children, c)
+}
+
+// execPrefixKey names a child goroutine's prefix: its creator's prefix
+// and the stack of the go statement.
+type execPrefixKey struct {
+	parent int32
+	info   *stackInfo
 }
 
 // add records a stretch of goroutine g, if it belongs to a request.
@@ -488,13 +512,34 @@ func (x *execReader) add(g *execG, s execStretch) {
 		return
 	case g.child:
 		if g.req.closed && s.start >= g.req.endT {
-			g.req, g.stretches = nil, nil // still at work after its request: not its own
+			x.release(g.stretches) // still at work after its request: not its own
+			g.req, g.stretches = nil, nil
 			return
 		}
 		s.prefix = g.prefix
+		if g.stretches == nil {
+			g.stretches = x.stretchSlice()
+		}
 		g.stretches = append(g.stretches, s)
 	case s.info.handler:
 		g.req.stretches = append(g.req.stretches, s)
+	}
+}
+
+// stretchSlice returns an empty slice for stretches, reused if one is free.
+func (x *execReader) stretchSlice() []execStretch {
+	if n := len(x.free); n > 0 {
+		s := x.free[n-1]
+		x.free = x.free[:n-1]
+		return s
+	}
+	return nil
+}
+
+// release gives a slice of stretches back for reuse.
+func (x *execReader) release(s []execStretch) {
+	if cap(s) > 0 && cap(s) <= 1024 && len(x.free) < 4096 {
+		x.free = append(x.free, s[:0])
 	}
 }
 
@@ -513,6 +558,7 @@ func (x *execReader) exit(g *execG, t int64) {
 			// (it had woken the handler, which finished first).
 			x.emit(r, g.stretches)
 		}
+		x.release(g.stretches)
 		g.stretches, g.req = nil, nil
 	} else if g.conn && g.req != nil {
 		x.end(g.req, t)
@@ -534,33 +580,58 @@ func (x *execReader) end(r *execRequest, t int64) {
 	key := "G" + strconv.Itoa(x.input) + "." + strconv.FormatInt(int64(r.g.id), 10) + "." + strconv.Itoa(x.nreq[r.g.id])
 	r.id = x.src.InternRequest(key)
 	x.emit(r, r.stretches)
+	x.release(r.stretches)
 	r.stretches = nil
 }
 
-// emit writes stretches of request r as paths.
+// execGroupKey is what stretches of one request must share to be one path.
+type execGroupKey struct {
+	info   *stackInfo
+	prefix int32
+}
+
+// emit writes stretches of request r as paths: one per stack (and
+// creator's path), its values the sums of its stretches'.
 func (x *execReader) emit(r *execRequest, ss []execStretch) {
-	req := r.id
-	splitWall(ss)
+	if len(ss) == 0 {
+		return
+	}
+	x.splitWall(ss)
+	clear(x.groups)
+	for i := range ss {
+		s := &ss[i]
+		k := execGroupKey{s.info, s.prefix}
+		if at, ok := x.groups[k]; ok {
+			g := &ss[at]
+			g.end += s.end - s.start // end - start is the summed wait
+			g.runnable += s.runnable
+			g.wall += s.wall
+			g.calls += s.calls
+			s.info = nil
+			continue
+		}
+		x.groups[k] = i
+	}
 	var vals [4]int64
 	for i := range ss {
 		s := &ss[i]
-		frames := s.info.frames
-		if len(s.prefix) > 0 {
-			frames = append(append(x.scratch[:0], s.prefix...), frames...)
-			x.scratch = frames
-		}
-		if len(frames) == 0 {
+		if s.info == nil || len(s.info.frames) == 0 {
 			continue
 		}
+		frames := s.info.frames
+		if s.prefix != 0 {
+			frames = append(append(x.scratch[:0], x.prefixes[s.prefix]...), frames...)
+			x.scratch = frames
+		}
 		wait := s.end - s.start
-		vals = [4]int64{wait, s.wall, s.runnable, s.calls}
+		vals = [4]int64{wait, s.wall, s.runnable, int64(s.calls)}
 		x.wait += wait
 		x.runnable += s.runnable
 		var call CallID
 		if s.info.pool {
 			call = x.src.InternCall(Call{Summary: ConnectionWait})
 		}
-		x.src.Paths.Append(Path{Frames: frames, Values: vals[:], Request: req, Call: call})
+		x.src.Paths.Append(Path{Frames: frames, Values: vals[:], Request: r.id, Call: call})
 	}
 }
 
@@ -569,31 +640,47 @@ func (x *execReader) dropCut(r *execRequest) {
 	for _, s := range r.stretches {
 		x.cutWait += s.end - s.start
 	}
+	x.release(r.stretches)
+	r.stretches = nil
 	for _, c := range r.children {
-		c.req, c.stretches = nil, nil
+		if c.req == r {
+			x.release(c.stretches)
+			c.req, c.stretches = nil, nil
+		}
 	}
+}
+
+// execEdge starts (+1) or ends (-1) a wait, for splitWall.
+type execEdge struct {
+	t     int64
+	delta int
 }
 
 // splitWall sets each stretch's share of the request's wall clock: every
 // instant during which k stretches (joins left out) wait is split k ways,
 // so that the shares add up to the union of the waits.
-func splitWall(ss []execStretch) {
-	type edge struct {
-		t     int64
-		delta int
-	}
-	var edges []edge
+func (x *execReader) splitWall(ss []execStretch) {
+	edges := x.edges[:0]
 	for i := range ss {
 		s := &ss[i]
 		if s.join || s.end <= s.start {
 			continue
 		}
-		edges = append(edges, edge{s.start, 1}, edge{s.end, -1})
+		edges = append(edges, execEdge{s.start, 1}, execEdge{s.end, -1})
 	}
+	x.edges = edges
 	if len(edges) == 0 {
 		return
 	}
-	sortEdges := func(a, b edge) int {
+	if len(edges) == 2 {
+		for i := range ss {
+			if s := &ss[i]; !s.join && s.end > s.start {
+				s.wall = s.end - s.start
+			}
+		}
+		return
+	}
+	slices.SortFunc(edges, func(a, b execEdge) int {
 		if a.t != b.t {
 			if a.t < b.t {
 				return -1
@@ -601,11 +688,9 @@ func splitWall(ss []execStretch) {
 			return 1
 		}
 		return a.delta - b.delta
-	}
-	slices.SortFunc(edges, sortEdges)
+	})
 	// Segment boundaries and the number of waits over each.
-	times := make([]int64, 0, len(edges))
-	counts := make([]int, 0, len(edges))
+	times, counts := x.times[:0], x.counts[:0]
 	k := 0
 	for i, e := range edges {
 		k += e.delta
@@ -615,6 +700,7 @@ func splitWall(ss []execStretch) {
 		times = append(times, e.t)
 		counts = append(counts, k)
 	}
+	x.times, x.counts = times, counts
 	for i := range ss {
 		s := &ss[i]
 		if s.join || s.end <= s.start {
