@@ -694,6 +694,8 @@ func (x *execReader) emit(r *execRequest, ss []execStretch) {
 		x.runnable += s.runnable
 		var call CallID
 		if s.info.pool {
+			// TODO(merge): with the span conventions' Call.Connection, mark
+			// it as a connection wait there too.
 			call = x.src.InternCall(Call{Summary: ConnectionWait})
 		}
 		x.src.Paths.Append(Path{Frames: frames, Values: vals[:], Request: r.id, Call: call})
