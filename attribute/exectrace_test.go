@@ -741,3 +741,46 @@ func BenchmarkExecTrace(b *testing.B) {
 		}
 	})
 }
+
+// TestExecTraceLongWait records a request that waits longer than a
+// generation of the trace (the runtime starts one about every second and
+// restates every goroutine's status in it): the wait is read whole.
+func TestExecTraceLongWait(t *testing.T) {
+	if testing.Short() {
+		t.Skip("records a 1.3 s execution trace")
+	}
+	n, base := startNursery(t)
+	var buf bytes.Buffer
+	if err := trace.Start(&buf); err != nil {
+		t.Skipf("execution tracer unavailable: %v", err)
+	}
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		resp, err := http.Get(base + "/slow")
+		if err != nil {
+			t.Error(err)
+			return
+		}
+		io.Copy(io.Discard, resp.Body)
+		resp.Body.Close()
+	}()
+	<-n.entered
+	time.Sleep(1200 * time.Millisecond)
+	n.gate <- struct{}{}
+	<-done
+	trace.Stop()
+
+	src := loadExecTrace(t, buf.Bytes())
+	res := attribute.Attribute(callgraph.NewTree(src, callgraph.TreeOptions{}), attribute.NewClassifier(src, attribute.DefaultRules()), attribute.Options{})
+	if res.Totals.Requests != 1 {
+		t.Fatalf("%d requests, want 1", res.Totals.Requests)
+	}
+	// The wait at the gate is the request's own (no boundary: other cost).
+	if res.Totals.Other < int64(1200*time.Millisecond) {
+		t.Errorf("other cost %v, want the 1.2 s wait at the gate", time.Duration(res.Totals.Other))
+	}
+	if c := causeNamed(res, "priceOf"); c == nil || c.Calls != 1 {
+		t.Errorf("priceOf: %+v, want 1 call", c)
+	}
+}

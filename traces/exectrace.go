@@ -456,6 +456,11 @@ func (x *execReader) transition(ev trace.Event, st trace.StateTransition, t int6
 			}
 		}
 	}
+	if from == to {
+		// A goroutine's status restated at the start of a generation of
+		// the trace (about every second): nothing changed.
+		return
+	}
 	g := x.g(id)
 	if from == trace.GoUndetermined && !g.known {
 		g.preexisting = true
