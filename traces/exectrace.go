@@ -57,7 +57,8 @@ import (
 //     (headers and body written apart) count more calls than round trips;
 //     pipelined queries written together count fewer.
 //   - Pool waits (a stack through database/sql.(*DB).conn, a semaphore or
-//     a pool's Acquire) carry the call detail "connection wait".
+//     a pool's Acquire, or a goroutine started there to open a connection)
+//     carry the call detail "connection wait".
 
 // ExecTraceValueTypes are the values of every path of an ExecTrace source.
 var ExecTraceValueTypes = []ValueType{
@@ -179,6 +180,7 @@ type execReader struct {
 	sfs     []trace.StackFrame
 	// prefixes are the creators' paths of child goroutines ([0] is none).
 	prefixes  [][]FrameID
+	inPool    []bool // the prefix waits for or opens a pooled connection
 	prefixIDs map[execPrefixKey]int32
 	free      [][]execStretch // emptied stretch slices, for reuse
 	edges     []execEdge      // splitWall's scratch space
@@ -224,7 +226,7 @@ func (c *ExecCollector) Add(name string, r io.Reader) (err error) {
 	x := &execReader{
 		src: NewSource(ExecTrace, ExecTraceValueTypes), limits: c.limits, name: name, input: c.inputs,
 		stacks: map[trace.Stack]*stackInfo{}, nreq: map[trace.GoID]int{},
-		first: -1, prefixes: [][]FrameID{nil}, prefixIDs: map[execPrefixKey]int32{}, groups: map[execGroupKey]int{},
+		first: -1, prefixes: [][]FrameID{nil}, inPool: []bool{false}, prefixIDs: map[execPrefixKey]int32{}, groups: map[execGroupKey]int{},
 	}
 	cr := &countingReader{r: r}
 	defer func() {
@@ -555,6 +557,7 @@ func (x *execReader) created(a, c *execG, info *stackInfo) {
 		}
 		id = int32(len(x.prefixes))
 		x.prefixes = append(x.prefixes, pre)
+		x.inPool = append(x.inPool, x.inPool[a.prefix] || info.pool)
 		x.prefixIDs[key] = id
 	}
 	c.prefix = id
@@ -698,7 +701,7 @@ func (x *execReader) emit(r *execRequest, ss []execStretch) {
 		x.wait += wait
 		x.runnable += s.runnable
 		var call CallID
-		if s.info.pool {
+		if s.info.pool || x.inPool[s.prefix] {
 			// TODO(merge): with the span conventions' Call.Connection, mark
 			// it as a connection wait there too.
 			call = x.src.InternCall(Call{Summary: ConnectionWait})
