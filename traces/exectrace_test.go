@@ -2,9 +2,11 @@ package traces_test
 
 import (
 	"bytes"
+	"errors"
 	"io"
 	"net"
 	"net/http"
+	"runtime/pprof"
 	"runtime/trace"
 	"strings"
 	"testing"
@@ -134,4 +136,38 @@ func FuzzExecTrace(f *testing.F) {
 			t.Fatalf("invalid source: %v", err)
 		}
 	})
+}
+
+// TestExecTraceInputs: two traces (two instances of a service) add up,
+// and a trace does not mix with a profile.
+func TestExecTraceInputs(t *testing.T) {
+	data := recordSmallTrace(t)
+	l := traces.NewLoader(traces.Options{})
+	for _, name := range []string{"a.trace", "b.trace"} {
+		if err := l.Add(name, bytes.NewReader(data)); err != nil {
+			t.Fatal(err)
+		}
+	}
+	src, err := l.Source()
+	if err != nil {
+		t.Fatal(err)
+	}
+	one := loadExec(t, data)
+	if src.RequestCount() != 2*one.RequestCount() || src.Paths.Len() != 2*one.Paths.Len() {
+		t.Errorf("two inputs: %d requests, %d paths; one: %d, %d", src.RequestCount(), src.Paths.Len(), one.RequestCount(), one.Paths.Len())
+	}
+	if src.DurationNanos != 2*one.DurationNanos {
+		t.Errorf("duration %d, want twice %d", src.DurationNanos, one.DurationNanos)
+	}
+	var prof bytes.Buffer
+	if err := pprof.Lookup("goroutine").WriteTo(&prof, 0); err != nil {
+		t.Fatal(err)
+	}
+	l = traces.NewLoader(traces.Options{})
+	if err := l.Add("a.trace", bytes.NewReader(data)); err != nil {
+		t.Fatal(err)
+	}
+	if err := l.Add("goroutine.pb.gz", &prof); !errors.Is(err, traces.ErrMismatch) {
+		t.Errorf("a profile after a trace: %v, want ErrMismatch", err)
+	}
 }
