@@ -809,8 +809,10 @@ var poolFrames = []string{
 }
 
 // socketWrites are the functions through which every write to a network
-// connection passes.
-var socketWrites = []string{"net.(*netFD).Write", "net.(*netFD).writeBuffers", "net.(*netFD).writeTo", "net.(*netFD).writeMsg"}
+// connection passes (RawWrite: drivers that write through a raw
+// connection, as pgx did before version 5.5).
+var socketWrites = []string{"net.(*netFD).Write", "net.(*netFD).writeBuffers", "net.(*netFD).writeTo", "net.(*netFD).writeMsg",
+	"internal/poll.(*FD).RawWrite"}
 
 // info returns what the reader needs of stack s, computed once per stack.
 func (x *execReader) info(s trace.Stack) *stackInfo {
