@@ -148,9 +148,18 @@ func (c *wireConn) Prepare(string) (driver.Stmt, error) { return nil, errors.New
 func (c *wireConn) Close() error                        { return c.c.Close() }
 func (c *wireConn) Begin() (driver.Tx, error)           { return nil, errors.New("not supported") }
 
-func (c *wireConn) roundTrip(query string, args []driver.NamedValue) ([][]string, error) {
+// roundTrip sends one statement and reads its reply; in pieces, it
+// writes the statement and its arguments apart (two socket writes, one
+// round trip, as drivers that send protocol messages one by one do).
+func (c *wireConn) roundTrip(query string, args []driver.NamedValue, pieces bool) ([][]string, error) {
 	var b strings.Builder
 	b.WriteString(query)
+	if pieces {
+		if _, err := io.WriteString(c.c, b.String()); err != nil {
+			return nil, err
+		}
+		b.Reset()
+	}
 	for _, a := range args {
 		fmt.Fprintf(&b, "\t%v", a.Value)
 	}
@@ -176,7 +185,7 @@ func (c *wireConn) roundTrip(query string, args []driver.NamedValue) ([][]string
 }
 
 func (c *wireConn) QueryContext(_ context.Context, q string, args []driver.NamedValue) (driver.Rows, error) {
-	rows, err := c.roundTrip(q, args)
+	rows, err := c.roundTrip(q, args, false)
 	if err != nil {
 		return nil, err
 	}
@@ -184,7 +193,7 @@ func (c *wireConn) QueryContext(_ context.Context, q string, args []driver.Named
 }
 
 func (c *wireConn) ExecContext(_ context.Context, q string, args []driver.NamedValue) (driver.Result, error) {
-	if _, err := c.roundTrip(q, args); err != nil {
+	if _, err := c.roundTrip(q, args, true); err != nil {
 		return nil, err
 	}
 	return driver.RowsAffected(1), nil

@@ -48,13 +48,14 @@ import (
 //     round trips it starts.
 //   - Calls count round trips, not waits (a reply already buffered never
 //     blocks): a socket write (net.(*netFD).Write) is one call, charged to
-//     the boundary above it; for the HTTP/1 client, whose socket writes
+//     the boundary above it, and so is a run of writes with no other wait
+//     or system call of the goroutine between them (a request written in
+//     pieces, or a write retried when the socket buffer was full); for the HTTP/1 client, whose socket writes
 //     happen on the transport's own goroutines, the response handed from
 //     the connection's read loop to net/http.(*persistConn).roundTrip (the
 //     loop wakes the round trip, or the round trip wakes the loop blocked
-//     on handing it over) is one call. A driver that writes
-//     one request in several pieces, a TLS handshake, or an HTTP/2 client
-//     (headers and body written apart) count more calls than round trips;
+//     on handing it over) is one call. A TLS handshake, or an HTTP/2
+//     client whose writes are apart, count more calls than round trips;
 //     pipelined queries written together count fewer.
 //   - Pool waits (a stack through database/sql.(*DB).conn, a semaphore or
 //     a pool's Acquire, or a goroutine started there to open a connection)
@@ -166,6 +167,7 @@ type execG struct {
 	pendWake  int64
 	pendCalls int32
 	pendJoin  bool
+	writing   bool // the last wait or system call was a socket write
 }
 
 // execReader reads one execution trace into a source.
@@ -497,13 +499,18 @@ func (x *execReader) transition(ev trace.Event, st trace.StateTransition, t int6
 		g.pend = pendNone
 		g.runStart = t
 	case from == trace.GoRunning && to == trace.GoWaiting && st.Stack != trace.NoStack:
-		g.setPend(pendBlock, x.info(st.Stack), t)
+		info := x.info(st.Stack)
+		g.setPend(pendBlock, info, t)
+		g.writing = info.write // a write waiting for room goes on
 	case from == trace.GoRunning && to == trace.GoSyscall && st.Stack != trace.NoStack:
 		info := x.info(st.Stack)
 		g.setPend(pendSyscall, info, t)
-		if info.write {
+		// A run of writes with no other wait or system call between
+		// them is one request written: one call.
+		if info.write && !g.writing {
 			g.pendCalls = 1
 		}
+		g.writing = info.write
 	case to == trace.GoNotExist:
 		x.exit(g, t)
 	case to == trace.GoRunnable || to == trace.GoWaiting:
