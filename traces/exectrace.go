@@ -704,7 +704,7 @@ func (x *execReader) emit(r *execRequest, ss []execStretch) {
 			x.scratch = frames
 		}
 		wait := s.end - s.start
-		vals = [4]int64{wait, s.wall, s.runnable, int64(s.calls)}
+		vals[execWait], vals[execWall], vals[execRunnable], vals[execCalls] = wait, s.wall, s.runnable, int64(s.calls)
 		x.wait += wait
 		x.runnable += s.runnable
 		var call CallID
