@@ -168,6 +168,20 @@ type execG struct {
 	pendCalls int32
 	pendJoin  bool
 	writing   bool // the last wait or system call was a socket write
+	// The goroutine's last stack and its information: goroutines wait
+	// at the same places again and again.
+	lastStack trace.Stack
+	lastInfo  *stackInfo
+}
+
+// stackOf returns the information of stack s of goroutine g.
+func (x *execReader) stackOf(g *execG, s trace.Stack) *stackInfo {
+	if s == g.lastStack && g.lastInfo != nil {
+		return g.lastInfo
+	}
+	in := x.info(s)
+	g.lastStack, g.lastInfo = s, in
+	return in
 }
 
 // execReader reads one execution trace into a source.
@@ -471,7 +485,7 @@ func (x *execReader) transition(ev trace.Event, st trace.StateTransition, t int6
 	}
 	g.known = true
 	if st.Stack != trace.NoStack && from != trace.GoNotExist {
-		x.observe(g, x.info(st.Stack), t)
+		x.observe(g, x.stackOf(g, st.Stack), t)
 	}
 	switch {
 	case from == trace.GoWaiting && to == trace.GoRunnable:
@@ -499,11 +513,11 @@ func (x *execReader) transition(ev trace.Event, st trace.StateTransition, t int6
 		g.pend = pendNone
 		g.runStart = t
 	case from == trace.GoRunning && to == trace.GoWaiting && st.Stack != trace.NoStack:
-		info := x.info(st.Stack)
+		info := x.stackOf(g, st.Stack)
 		g.setPend(pendBlock, info, t)
 		g.writing = info.write // a write waiting for room goes on
 	case from == trace.GoRunning && to == trace.GoSyscall && st.Stack != trace.NoStack:
-		info := x.info(st.Stack)
+		info := x.stackOf(g, st.Stack)
 		g.setPend(pendSyscall, info, t)
 		// A run of writes with no other wait or system call between
 		// them is one request written: one call.
@@ -636,7 +650,7 @@ func (x *execReader) exit(g *execG, t int64) {
 		case !r.cut:
 			// It exited after its request ended without waiting again
 			// (it had woken the handler, which finished first).
-			x.emit(r, g.stretches)
+			x.emit(r, g.stretches, false)
 		}
 		x.release(g.stretches)
 		g.stretches, g.req = nil, nil
@@ -659,7 +673,7 @@ func (x *execReader) end(r *execRequest, t int64) {
 	x.nreq[r.g.id]++
 	key := "G" + strconv.Itoa(x.input) + "." + strconv.FormatInt(int64(r.g.id), 10) + "." + strconv.Itoa(x.nreq[r.g.id])
 	r.id = x.src.InternRequest(key)
-	x.emit(r, r.stretches)
+	x.emit(r, r.stretches, len(r.children) > 0)
 	x.release(r.stretches)
 	r.stretches = nil
 }
@@ -671,12 +685,22 @@ type execGroupKey struct {
 }
 
 // emit writes stretches of request r as paths: one per stack (and
-// creator's path), its values the sums of its stretches'.
-func (x *execReader) emit(r *execRequest, ss []execStretch) {
+// creator's path), its values the sums of its stretches'. Stretches of
+// one goroutine (not concurrent) never overlap: each one's wall-clock
+// share is its wait.
+func (x *execReader) emit(r *execRequest, ss []execStretch, concurrent bool) {
 	if len(ss) == 0 {
 		return
 	}
-	x.splitWall(ss)
+	if concurrent {
+		x.splitWall(ss)
+	} else {
+		for i := range ss {
+			if s := &ss[i]; !s.join && s.end > s.start {
+				s.wall = s.end - s.start
+			}
+		}
+	}
 	clear(x.groups)
 	for i := range ss {
 		s := &ss[i]
