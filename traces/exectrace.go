@@ -19,7 +19,8 @@ import (
 // HTTP requests into paths of an ExecTrace source:
 //
 //   - A request is the stretch of an HTTP server connection goroutine
-//     (net/http.(*conn).serve) inside its handler: it opens at the first
+//     (net/http.(*conn).serve, or for HTTP/2 the goroutine that runs one
+//     request's handler, (*http2serverConn).runHandler) inside its handler: it opens at the first
 //     event whose stack holds net/http.serverHandler.ServeHTTP and ends
 //     at the goroutine's next event outside it (the response written by
 //     finishRequest, the read of the next request on a keep-alive
@@ -826,6 +827,8 @@ func (x *execReader) splitWall(ss []execStretch) {
 // Frames the reader recognises in stacks (Go 1.22 to 1.26 standard library).
 const (
 	fnConnServe     = "net/http.(*conn).serve"
+	fnH2Handler     = "net/http.(*http2serverConn).runHandler" // HTTP/2: a goroutine per request
+	fnXH2Handler    = "golang.org/x/net/http2.(*serverConn).runHandler"
 	fnServerHandler = "net/http.serverHandler.ServeHTTP"
 	fnRoundTrip     = "net/http.(*persistConn).roundTrip"
 	fnReadLoop      = "net/http.(*persistConn).readLoop"
@@ -862,7 +865,7 @@ func (x *execReader) info(s trace.Stack) *stackInfo {
 	for i, f := range sfs {
 		fn := f.Func
 		switch {
-		case fn == fnConnServe:
+		case fn == fnConnServe, fn == fnH2Handler, fn == fnXH2Handler:
 			in.connServe = true
 		case fn == fnServerHandler:
 			in.handler = true

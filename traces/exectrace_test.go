@@ -18,12 +18,17 @@ import (
 // recordSmallTrace records, with Go's own runtime/trace, a few requests
 // to a loopback HTTP server whose handler waits on a timer.
 func recordSmallTrace(t testing.TB) []byte {
+	return recordSmallTraceProtocols(t, nil)
+}
+
+// recordSmallTraceProtocols does it over the protocols p (nil: HTTP/1).
+func recordSmallTraceProtocols(t testing.TB, p *http.Protocols) []byte {
 	t.Helper()
 	ln, err := net.Listen("tcp", "127.0.0.1:0")
 	if err != nil {
 		t.Fatal(err)
 	}
-	srv := &http.Server{Handler: http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+	srv := &http.Server{Protocols: p, Handler: http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
 		time.Sleep(100 * time.Microsecond) // a wait inside the handler: see the README's pitfalls
 		io.WriteString(w, "seedlings")
 	})}
@@ -33,12 +38,15 @@ func recordSmallTrace(t testing.TB) []byte {
 	if err := trace.Start(&buf); err != nil {
 		t.Skipf("execution tracer unavailable: %v", err)
 	}
-	c := &http.Client{Transport: &http.Transport{}}
+	c := &http.Client{Transport: &http.Transport{Protocols: p}}
 	for range 3 {
 		resp, err := c.Get("http://" + ln.Addr().String() + "/")
 		if err != nil {
 			trace.Stop()
 			t.Fatal(err)
+		}
+		if p != nil && resp.ProtoMajor != 2 {
+			t.Fatalf("protocol %s, want HTTP/2", resp.Proto)
 		}
 		io.Copy(io.Discard, resp.Body)
 		resp.Body.Close()
@@ -169,5 +177,16 @@ func TestExecTraceInputs(t *testing.T) {
 	}
 	if err := l.Add("goroutine.pb.gz", &prof); !errors.Is(err, traces.ErrMismatch) {
 		t.Errorf("a profile after a trace: %v, want ErrMismatch", err)
+	}
+}
+
+// TestExecTraceHTTP2 reads requests served over HTTP/2 (unencrypted, by
+// net/http's own server and client): each runs in a goroutine of its own.
+func TestExecTraceHTTP2(t *testing.T) {
+	var p http.Protocols
+	p.SetUnencryptedHTTP2(true)
+	src := loadExec(t, recordSmallTraceProtocols(t, &p))
+	if src.RequestCount() != 3 {
+		t.Errorf("%d requests, want 3", src.RequestCount())
 	}
 }
