@@ -600,7 +600,7 @@ func TestExecTraceNursery(t *testing.T) {
 	var poolWait int64
 	for _, c := range res.Causes {
 		for _, d := range c.Statements {
-			if d.Statement == traces.ConnectionWait || string(d.Kind) == "connection" {
+			if d.Kind == attribute.KindConnection {
 				poolWait += d.Cost
 				if d.Calls != 0 {
 					t.Errorf("%s: a connection wait counted %d calls", c.Function, d.Calls)

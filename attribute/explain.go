@@ -79,7 +79,7 @@ func Explain(t *callgraph.Tree, c *Classifier, opts Options, pattern *regexp.Reg
 			samples = p.Values[sampleIx]
 		}
 		if spans {
-			calls = 1
+			calls = p.Values[1] // 0 for a connection wait
 		} else if callsIx >= 0 {
 			samples, calls = 0, p.Values[callsIx]
 		}

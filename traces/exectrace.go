@@ -60,7 +60,7 @@ import (
 //     pipelined queries written together count fewer.
 //   - Pool waits (a stack through database/sql.(*DB).conn, a semaphore or
 //     a pool's Acquire, or a goroutine started there to open a connection)
-//     carry the call detail "connection wait".
+//     are connection waits (Call.Connection), with no calls.
 
 // ExecTraceValueTypes are the values of every path of an ExecTrace source.
 var ExecTraceValueTypes = []ValueType{
@@ -77,10 +77,6 @@ const (
 	execRunnable
 	execCalls
 )
-
-// ConnectionWait is the Call.Summary of a path that waits for a pooled
-// connection or opens one.
-const ConnectionWait = "connection wait"
 
 // LooksLikeExecTrace reports whether prefix starts a Go execution trace:
 // "go 1.NN trace" and three NUL bytes.
@@ -734,9 +730,7 @@ func (x *execReader) emit(r *execRequest, ss []execStretch, concurrent bool) {
 		x.runnable += s.runnable
 		var call CallID
 		if s.info.pool || x.inPool[s.prefix] {
-			// TODO(merge): with the span conventions' Call.Connection, mark
-			// it as a connection wait there too.
-			call = x.src.InternCall(Call{Summary: ConnectionWait})
+			call = x.src.InternCall(Call{Connection: true})
 		}
 		x.src.Paths.Append(Path{Frames: frames, Values: vals[:], Request: r.id, Call: call})
 	}

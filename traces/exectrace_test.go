@@ -175,8 +175,11 @@ func TestExecTraceInputs(t *testing.T) {
 	if err := l.Add("a.trace", bytes.NewReader(data)); err != nil {
 		t.Fatal(err)
 	}
-	if err := l.Add("goroutine.pb.gz", &prof); !errors.Is(err, traces.ErrMismatch) {
-		t.Errorf("a profile after a trace: %v, want ErrMismatch", err)
+	if err := l.Add("goroutine.pb.gz", &prof); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := l.Source(); !errors.Is(err, traces.ErrMismatch) || !strings.Contains(err.Error(), "--source exectraces") {
+		t.Errorf("a profile and a trace: %v, want ErrMismatch naming --source exectraces", err)
 	}
 }
 
