@@ -49,9 +49,10 @@ import (
 //     round trips it starts.
 //   - Calls count round trips, not waits (a reply already buffered never
 //     blocks): a socket write (net.(*netFD).Write) is one call, charged to
-//     the boundary above it, and so is a run of writes with no other wait
-//     or system call of the goroutine between them (a request written in
-//     pieces, or a write retried when the socket buffer was full); for the HTTP/1 client, whose socket writes
+//     the boundary above it, and so is a run of writes by one invocation of
+//     one function (see writerKey) with no other wait or system call of the
+//     goroutine between them (a request written in pieces, or a write
+//     retried when the socket buffer was full); for the HTTP/1 client, whose socket writes
 //     happen on the transport's own goroutines, the response handed from
 //     the connection's read loop to net/http.(*persistConn).roundTrip (the
 //     loop wakes the round trip, or the round trip wakes the loop blocked
@@ -107,6 +108,7 @@ type stackInfo struct {
 	connServe bool      // an HTTP server connection goroutine
 	handler   bool      // inside its handler
 	write     bool      // a socket write
+	writer    int32     // for a socket write, which invocation of which function writes (see writerKey)
 	roundTrip bool      // inside the HTTP/1 client's round trip
 	readLoop  bool      // an HTTP/1 client connection's read loop
 	pool      bool      // waiting for or opening a pooled connection
@@ -164,7 +166,7 @@ type execG struct {
 	pendWake  int64
 	pendCalls int32
 	pendJoin  bool
-	writing   bool // the last wait or system call was a socket write
+	writing   int32 // the last wait or system call was a socket write by this writer; 0: not a write
 	// The goroutine's last stack and its information: goroutines wait
 	// at the same places again and again.
 	lastStack trace.Stack
@@ -200,6 +202,8 @@ type execReader struct {
 	times     []int64
 	counts    []int
 	groups    map[execGroupKey]int
+	writers   map[string]int32 // see writerKey
+	keyBuf    []byte
 	nreq      map[trace.GoID]int // requests ended per connection goroutine
 	cut       int
 	cutWait   int64
@@ -240,6 +244,7 @@ func (c *ExecCollector) Add(name string, r io.Reader) (err error) {
 		src: NewSource(ExecTrace, ExecTraceValueTypes), limits: c.limits, name: name, input: c.inputs,
 		stacks: map[trace.Stack]*stackInfo{}, nreq: map[trace.GoID]int{},
 		first: -1, prefixes: [][]FrameID{nil}, inPool: []bool{false}, prefixIDs: map[execPrefixKey]int32{}, groups: map[execGroupKey]int{},
+		writers: map[string]int32{},
 	}
 	cr := &countingReader{r: r}
 	defer func() {
@@ -512,16 +517,17 @@ func (x *execReader) transition(ev trace.Event, st trace.StateTransition, t int6
 	case from == trace.GoRunning && to == trace.GoWaiting && st.Stack != trace.NoStack:
 		info := x.stackOf(g, st.Stack)
 		g.setPend(pendBlock, info, t)
-		g.writing = info.write // a write waiting for room goes on
+		g.writing = info.writer // a write waiting for room goes on
 	case from == trace.GoRunning && to == trace.GoSyscall && st.Stack != trace.NoStack:
 		info := x.stackOf(g, st.Stack)
 		g.setPend(pendSyscall, info, t)
-		// A run of writes with no other wait or system call between
-		// them is one request written: one call.
-		if info.write && !g.writing {
+		// A run of writes by one function (one invocation: the same
+		// stack above it) with no other wait or system call between them
+		// is one request written: one call.
+		if info.write && info.writer != g.writing {
 			g.pendCalls = 1
 		}
-		g.writing = info.write
+		g.writing = info.writer
 	case to == trace.GoNotExist:
 		x.exit(g, t)
 	case to == trace.GoRunnable || to == trace.GoWaiting:
@@ -842,6 +848,43 @@ var poolFrames = []string{
 var socketWrites = []string{"net.(*netFD).Write", "net.(*netFD).writeBuffers", "net.(*netFD).writeTo", "net.(*netFD).writeMsg",
 	"internal/poll.(*FD).RawWrite"}
 
+// writerKey numbers the writer of a socket write, given its stack leaf
+// first: the deepest frame outside the standard library's I/O plumbing
+// (the driver's function that writes), by its name only, and the frames
+// above it with their lines. Writes of one query in several pieces, from
+// different lines of one function, get one key.
+func (x *execReader) writerKey(sfs []trace.StackFrame) int32 {
+	i := 0
+	for i < len(sfs)-1 && isIOPlumbing(sfs[i].Func) {
+		i++
+	}
+	b := x.keyBuf[:0]
+	b = append(b, sfs[i].Func...)
+	for _, f := range sfs[i+1:] {
+		b = append(b, 0)
+		b = append(b, f.Func...)
+		b = strconv.AppendUint(append(b, ':'), f.Line, 10)
+	}
+	x.keyBuf = b
+	id, ok := x.writers[string(b)]
+	if !ok {
+		id = int32(len(x.writers) + 1)
+		x.writers[string(b)] = id
+	}
+	return id
+}
+
+// isIOPlumbing reports whether fn is a function of the standard library
+// through which a write to a connection passes.
+func isIOPlumbing(fn string) bool {
+	for _, p := range []string{"runtime.", "syscall.", "internal/", "net.", "crypto/tls.", "bufio.", "io.", "os."} {
+		if strings.HasPrefix(fn, p) {
+			return true
+		}
+	}
+	return false
+}
+
 // info returns what the reader needs of stack s, computed once per stack.
 func (x *execReader) info(s trace.Stack) *stackInfo {
 	if in, ok := x.stacks[s]; ok {
@@ -873,6 +916,9 @@ func (x *execReader) info(s trace.Stack) *stackInfo {
 			in.pool = true
 		}
 		in.frames[len(sfs)-1-i] = x.src.InternFrame(Frame{Function: fn, File: f.File, Line: int64(f.Line)})
+	}
+	if in.write {
+		in.writer = x.writerKey(sfs)
 	}
 	if len(x.src.Frames) > x.limits.MaxFrames && x.err == nil {
 		x.err = fmt.Errorf("%s: %d distinct frames, more than the limit of %d (raise it with --max-frames): %w",
