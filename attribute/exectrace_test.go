@@ -21,6 +21,9 @@ import (
 
 	xtrace "golang.org/x/exp/trace"
 	"golang.org/x/sync/errgroup"
+	"google.golang.org/grpc"
+	"google.golang.org/grpc/credentials/insecure"
+	"google.golang.org/protobuf/types/known/emptypb"
 
 	"github.com/culprithq/culprit/attribute"
 	"github.com/culprithq/culprit/callgraph"
@@ -795,5 +798,62 @@ func TestExecTraceLongWait(t *testing.T) {
 	}
 	if c := causeNamed(res, "priceOf"); c == nil || c.Calls != 1 {
 		t.Errorf("priceOf: %+v, want 1 call", c)
+	}
+}
+
+// TestExecTraceGRPC reads gRPC calls served by grpc-go (its own server
+// and client, over the loopback) as requests: one per call, each with the
+// database call its handler makes.
+func TestExecTraceGRPC(t *testing.T) {
+	if testing.Short() {
+		t.Skip("records an execution trace of a loopback workload")
+	}
+	n, _ := startNursery(t)
+	srv := grpc.NewServer()
+	srv.RegisterService(&grpc.ServiceDesc{
+		ServiceName: "nursery.Seeds",
+		HandlerType: (*any)(nil),
+		Methods: []grpc.MethodDesc{{MethodName: "Price", Handler: func(_ any, ctx context.Context, dec func(any) error, _ grpc.UnaryServerInterceptor) (any, error) {
+			if err := dec(new(emptypb.Empty)); err != nil {
+				return nil, err
+			}
+			_, err := n.priceOf(ctx, 2)
+			return new(emptypb.Empty), err
+		}}},
+	}, n)
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	go srv.Serve(ln)
+	t.Cleanup(srv.Stop)
+	conn, err := grpc.NewClient(ln.Addr().String(), grpc.WithTransportCredentials(insecure.NewCredentials()))
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { conn.Close() })
+	call := func() {
+		if err := conn.Invoke(context.Background(), "/nursery.Seeds/Price", new(emptypb.Empty), new(emptypb.Empty)); err != nil {
+			t.Fatal(err)
+		}
+	}
+	call() // connect before the trace
+	var buf bytes.Buffer
+	if err := trace.Start(&buf); err != nil {
+		t.Skipf("execution tracer unavailable: %v", err)
+	}
+	before := n.priceCalls.Load()
+	for range 5 {
+		call()
+	}
+	trace.Stop()
+
+	src := loadExecTrace(t, buf.Bytes())
+	res := attribute.Attribute(callgraph.NewTree(src, callgraph.TreeOptions{}), attribute.NewClassifier(src, attribute.DefaultRules()), attribute.Options{})
+	if res.Totals.Requests != 5 {
+		t.Errorf("%d requests, want the 5 calls", res.Totals.Requests)
+	}
+	if c := causeNamed(res, "priceOf"); c == nil || c.Calls != n.priceCalls.Load()-before {
+		t.Errorf("priceOf: %+v, want the %d calls it counted", c, n.priceCalls.Load()-before)
 	}
 }

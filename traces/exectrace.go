@@ -20,7 +20,9 @@ import (
 //
 //   - A request is the stretch of an HTTP server connection goroutine
 //     (net/http.(*conn).serve, or for HTTP/2 the goroutine that runs one
-//     request's handler, (*http2serverConn).runHandler) inside its handler: it opens at the first
+//     request's handler, (*http2serverConn).runHandler) inside its handler;
+//     a gRPC call is the stretch of a goroutine inside
+//     google.golang.org/grpc.(*Server).handleStream. An HTTP request: it opens at the first
 //     event whose stack holds net/http.serverHandler.ServeHTTP and ends
 //     at the goroutine's next event outside it (the response written by
 //     finishRequest, the read of the next request on a keep-alive
@@ -346,8 +348,8 @@ func (x *execReader) read(cr *countingReader) error {
 		x.src.DurationNanos += x.last - x.first
 	}
 	if x.src.RequestCount() == 0 && x.cut == 0 {
-		x.src.Warnings.Add(Warning{Kind: "no-requests", File: x.name, Message: "no HTTP server request with a wait in its handler: " +
-			"culprit charges the waits of net/http requests; was the trace taken while the service served traffic?"})
+		x.src.Warnings.Add(Warning{Kind: "no-requests", File: x.name, Message: "no HTTP or gRPC server request with a wait in its handler: " +
+			"culprit charges the waits of requests; was the trace taken while the service served traffic?"})
 	}
 	if x.cut > 0 {
 		x.src.Warnings.Add(Warning{Kind: "cut-request", File: x.name, Message: fmt.Sprintf(
@@ -829,6 +831,7 @@ const (
 	fnConnServe     = "net/http.(*conn).serve"
 	fnH2Handler     = "net/http.(*http2serverConn).runHandler" // HTTP/2: a goroutine per request
 	fnXH2Handler    = "golang.org/x/net/http2.(*serverConn).runHandler"
+	fnGRPCStream    = "google.golang.org/grpc.(*Server).handleStream" // a gRPC call, in a goroutine per stream or a worker
 	fnServerHandler = "net/http.serverHandler.ServeHTTP"
 	fnRoundTrip     = "net/http.(*persistConn).roundTrip"
 	fnReadLoop      = "net/http.(*persistConn).readLoop"
@@ -906,6 +909,8 @@ func (x *execReader) info(s trace.Stack) *stackInfo {
 			in.connServe = true
 		case fn == fnServerHandler:
 			in.handler = true
+		case fn == fnGRPCStream:
+			in.connServe, in.handler = true, true
 		case fn == fnRoundTrip:
 			in.roundTrip = true
 		case fn == fnReadLoop:
