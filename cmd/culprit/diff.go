@@ -122,7 +122,7 @@ func runDiff(ctx context.Context, opts *diffOptions) error {
 	cmp := attribute.Compare(base, cand, attribute.CompareOptions{Alpha: opts.alpha, Budget: budget, Seed: opts.seed})
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
 	inputs := append(append([]string(nil), opts.base...), opts.candidate...)
-	if err := opts.output.write(opts.streams, inputs, func(w io.Writer) error {
+	if err := opts.output.write(ctx, opts.streams, inputs, func(w io.Writer) error {
 		return renderer.RenderDiff(w, cmp, ropts)
 	}); err != nil {
 		return err
@@ -153,7 +153,7 @@ func (opts *diffOptions) side(ctx context.Context, label string, inputs []string
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", label, err)
 	}
-	res, err := opts.analysis.analyse(src, rules)
+	res, err := opts.analysis.analyse(ctx, opts.streams, src, rules)
 	if err != nil {
 		return nil, err
 	}

@@ -77,7 +77,7 @@ func runExplain(ctx context.Context, opts *explainOptions) error {
 		ex = ex[:opts.output.Limit]
 	}
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
-	return opts.output.write(opts.streams, opts.inputs, func(w io.Writer) error {
+	return opts.output.write(ctx, opts.streams, opts.inputs, func(w io.Writer) error {
 		return report.RenderExplanations(w, format, ex, src.ValueTypes[vi].Unit, ropts)
 	})
 }

@@ -67,7 +67,7 @@ func runGraph(ctx context.Context, opts *graphOptions) error {
 		return err
 	}
 	out := outputFlags{Output: opts.output}
-	return out.write(opts.streams, opts.inputs, func(w io.Writer) error {
+	return out.write(ctx, opts.streams, opts.inputs, func(w io.Writer) error {
 		_, err := w.Write(append(data, '\n'))
 		return err
 	})

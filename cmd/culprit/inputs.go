@@ -86,8 +86,11 @@ func (f *analysisFlags) rules() (*attribute.Rules, error) {
 }
 
 // expandInputs turns the command's arguments into named readers: files,
-// every regular file below a directory (sorted, hidden names skipped),
-// or "-" for standard input.
+// every regular file below a directory (sorted, hidden names skipped), or
+// "-" for standard input. Symbolic links are followed, a directory argument
+// given as a link too; below a directory each directory and each file is
+// read once, however many links lead to it, so that a link to an ancestor
+// (a loop) adds nothing.
 func expandInputs(args []string) ([]string, error) {
 	var out []string
 	for _, a := range args {
@@ -103,35 +106,90 @@ func expandInputs(args []string) ([]string, error) {
 			out = append(out, a)
 			continue
 		}
-		var found []string
-		err = filepath.WalkDir(a, func(p string, d fs.DirEntry, err error) error {
-			if err != nil {
-				return err
-			}
-			if strings.HasPrefix(d.Name(), ".") && p != a {
-				if d.IsDir() {
-					return filepath.SkipDir
-				}
-				return nil
-			}
-			if d.Type().IsRegular() {
-				found = append(found, p)
-			}
-			return nil
-		})
-		if err != nil {
+		w := dirWalker{seen: map[fileID]bool{}}
+		if err := w.walk(a, st); err != nil {
 			return nil, err
 		}
-		if len(found) == 0 {
+		if len(w.found) == 0 {
 			return nil, fmt.Errorf("%s: directory has no input files", a)
 		}
-		sort.Strings(found)
-		out = append(out, found...)
+		sort.Strings(w.found)
+		out = append(out, w.found...)
 	}
 	return out, nil
 }
 
-// load reads every input into one source.
+// dirWalker lists the regular files below a directory, following symbolic
+// links, each directory and file once.
+type dirWalker struct {
+	found   []string
+	seen    map[fileID]bool
+	seenDir []os.FileInfo // directories, where no fileID is available
+}
+
+// visit reports whether st is seen for the first time, and records it.
+func (w *dirWalker) visit(st os.FileInfo) bool {
+	if id, ok := idOf(st); ok {
+		if w.seen[id] {
+			return false
+		}
+		w.seen[id] = true
+		return true
+	}
+	if !st.IsDir() {
+		return true
+	}
+	for _, d := range w.seenDir {
+		if os.SameFile(d, st) {
+			return false
+		}
+	}
+	w.seenDir = append(w.seenDir, st)
+	return true
+}
+
+func (w *dirWalker) walk(dir string, st os.FileInfo) error {
+	if !w.visit(st) {
+		return nil
+	}
+	entries, err := os.ReadDir(dir)
+	if err != nil {
+		return err
+	}
+	for _, e := range entries {
+		if strings.HasPrefix(e.Name(), ".") {
+			continue
+		}
+		p := filepath.Join(dir, e.Name())
+		if e.Type().IsRegular() {
+			if info, err := e.Info(); err != nil || w.visit(info) {
+				w.found = append(w.found, p)
+			}
+			continue
+		}
+		if e.Type()&fs.ModeSymlink == 0 && !e.IsDir() {
+			continue // devices, sockets and pipes are read only when named
+		}
+		info, err := os.Stat(p) // follows a link
+		switch {
+		case err != nil:
+			if e.Type()&fs.ModeSymlink != 0 {
+				return fmt.Errorf("%s: broken symbolic link: %w", p, err)
+			}
+			return err
+		case info.IsDir():
+			if err := w.walk(p, info); err != nil {
+				return err
+			}
+		case info.Mode().IsRegular() && w.visit(info):
+			w.found = append(w.found, p)
+		}
+	}
+	return nil
+}
+
+// load reads every input into one source. It returns as soon as ctx is
+// done, even while a read is blocked (see await).
 func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*traces.Source, error) {
 	names := args
 	if f.fsys == nil {
@@ -140,6 +198,10 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 			return nil, err
 		}
 	}
+	return await(ctx, func() (*traces.Source, error) { return f.read(ctx, s, names) })
+}
+
+func (f *analysisFlags) read(ctx context.Context, s *streams, names []string) (*traces.Source, error) {
 	opts := traces.Options{
 		Limits:     f.Limits,
 		KeepGoing:  f.KeepGoing,
@@ -154,41 +216,46 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 	}
 	loader := traces.NewLoader(opts)
 	var total int64
-	for _, name := range names {
-		if st, err := os.Stat(name); err == nil && f.fsys == nil && name != "-" {
-			total += st.Size()
+	if s.ErrIsTerminal {
+		for _, name := range names {
+			if st, err := os.Stat(name); err == nil && f.fsys == nil && name != "-" {
+				total += st.Size()
+			}
 		}
 	}
 	prog := startProgress(s.Err, s.ErrIsTerminal, total)
 	defer prog.Finish()
+	testPause(ctx, s, "reading")
 	stdinUsed := false
 	for _, name := range names {
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
-		var r io.Reader
 		if name == "-" {
 			if stdinUsed {
 				return nil, usagef("- (standard input) given more than once")
 			}
 			stdinUsed = true
-			r = s.In
-			name = "<stdin>"
-		} else {
-			fh, err := f.open(name)
-			if err != nil {
-				if f.KeepGoing {
-					if err := loader.Add(name, errReader{err}); err != nil {
-						return nil, err
-					}
-					continue
-				}
+			if err := loader.Add("<stdin>", ctxReader{ctx, prog.reader(s.In)}); err != nil {
 				return nil, err
 			}
-			r = fh
-			defer fh.Close()
+			continue
 		}
-		if err := loader.Add(name, ctxReader{ctx, prog.reader(r)}); err != nil {
+		// Each input is closed as soon as it is read: a directory of
+		// thousands of files stays within the descriptor limit.
+		fh, err := f.open(name)
+		if err != nil {
+			if f.KeepGoing {
+				if err := loader.Add(name, errReader{err}); err != nil {
+					return nil, err
+				}
+				continue
+			}
+			return nil, err
+		}
+		err = loader.Add(name, ctxReader{ctx, prog.reader(fh)})
+		fh.Close()
+		if err != nil {
 			return nil, err
 		}
 	}
@@ -222,8 +289,16 @@ type errReader struct{ err error }
 
 func (e errReader) Read([]byte) (int, error) { return 0, e.err }
 
-// analyse builds the tree, classifies and attributes src.
-func (f *analysisFlags) analyse(src *traces.Source, rules *attribute.Rules) (*attribute.Result, error) {
+// analyse builds the tree, classifies and attributes src. It returns as
+// soon as ctx is done (see await).
+func (f *analysisFlags) analyse(ctx context.Context, s *streams, src *traces.Source, rules *attribute.Rules) (*attribute.Result, error) {
+	return await(ctx, func() (*attribute.Result, error) {
+		testPause(ctx, s, "analysis")
+		return f.attribute(src, rules)
+	})
+}
+
+func (f *analysisFlags) attribute(src *traces.Source, rules *attribute.Rules) (*attribute.Result, error) {
 	tree, cls, _, err := f.build(src, rules)
 	if err != nil {
 		return nil, err

@@ -54,7 +54,7 @@ func runMerge(ctx context.Context, opts *mergeOptions) error {
 		return err
 	}
 	out := outputFlags{Output: opts.output}
-	return out.write(opts.streams, opts.inputs, merged.Write)
+	return out.write(ctx, opts.streams, opts.inputs, merged.Write)
 }
 
 func readSnapshotFile(name string) (*attribute.Snapshot, error) {

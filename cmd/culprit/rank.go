@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"io"
+	"path/filepath"
 	"strings"
 
 	"github.com/culprithq/culprit/attribute"
@@ -85,25 +86,37 @@ func runRank(ctx context.Context, opts *rankOptions) error {
 	if err != nil {
 		return err
 	}
+	if err := opts.checkTargets(); err != nil {
+		return err
+	}
 	src, err := opts.analysis.load(ctx, s, opts.inputs)
 	if err != nil {
 		return err
 	}
-	res, err := opts.analysis.analyse(src, rules)
+	res, err := opts.analysis.analyse(ctx, s, src, rules)
 	if err != nil {
 		return err
 	}
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
+	// The snapshot and the report succeed or fail together: the snapshot
+	// is prepared first and put in place only once the report is written.
+	var snapshot *pendingOutput
 	if opts.save != "" {
 		snap := attribute.NewSnapshot(res)
-		if err := writeAtomic(opts.save, opts.inputs, snap.Write); err != nil {
+		if snapshot, err = prepareOutput(ctx, s, opts.save, opts.inputs, snap.Write); err != nil {
 			return fmt.Errorf("writing snapshot: %w", err)
 		}
+		defer snapshot.discard()
 	}
-	if err := opts.output.write(s, opts.inputs, func(w io.Writer) error {
+	if err := opts.output.write(ctx, s, opts.inputs, func(w io.Writer) error {
 		return renderer.Render(w, res, ropts)
 	}); err != nil {
 		return err
+	}
+	if snapshot != nil {
+		if err := snapshot.commit(ctx, s); err != nil {
+			return fmt.Errorf("writing snapshot: %w", err)
+		}
 	}
 	// The text report on stdout already ends with its warnings; otherwise
 	// say them on stderr, where CI logs show them. They are summarised by
@@ -111,6 +124,30 @@ func runRank(ctx context.Context, opts *rankOptions) error {
 	if format != "text" || (opts.output.Output != "" && opts.output.Output != "-") {
 		for _, w := range res.Warnings {
 			fmt.Fprintln(s.Err, "culprit: warning: "+w)
+		}
+	}
+	return nil
+}
+
+// checkTargets refuses, before anything is read, a report and a snapshot
+// written to one file, or either written over an input.
+func (opts *rankOptions) checkTargets() error {
+	out := opts.output.Output
+	if out == "-" {
+		out = ""
+	}
+	if out != "" && opts.save != "" {
+		a, _ := filepath.Abs(out)
+		b, _ := filepath.Abs(opts.save)
+		if a == b {
+			return usagef("-o and --save name the same file %s", out)
+		}
+	}
+	for _, target := range []string{out, opts.save} {
+		if target != "" {
+			if err := checkNotInput(target, opts.inputs); err != nil {
+				return err
+			}
 		}
 	}
 	return nil
