@@ -100,10 +100,10 @@ func TestInputsAreSacred(t *testing.T) {
 		t.Fatal(err)
 	}
 	for _, tc := range [][]string{
-		{"rank", in, "-o", profile},              // found inside the directory
-		{"rank", in, "--save", profile},          // the snapshot too
-		{"rank", link, "-o", profile},            // the file a link names
-		{"rank", profile, "-o", link},            // a link to the input
+		{"rank", in, "-o", profile},     // found inside the directory
+		{"rank", in, "--save", profile}, // the snapshot too
+		{"rank", link, "-o", profile},   // the file a link names
+		{"rank", profile, "-o", link},   // a link to the input
 		{"rank", in, "-o", filepath.Join(dir, "x"), "--save", filepath.Join(dir, "x")}, // one file for both
 	} {
 		code, _, errOut := runTest(t, "", tc...)
@@ -162,7 +162,7 @@ func TestSymlinkedInputs(t *testing.T) {
 		}
 	}
 	must(os.Symlink(real, filepath.Join(dir, "dirlink")))
-	must(os.Symlink("..", filepath.Join(real, "sub", "loop")))                  // a loop
+	must(os.Symlink("..", filepath.Join(real, "sub", "loop")))                 // a loop
 	must(os.Symlink("../cpu.pb.gz", filepath.Join(real, "sub", "same.pb.gz"))) // the same file again
 	files, err := expandInputs([]string{filepath.Join(dir, "dirlink")})
 	if err != nil {

@@ -58,7 +58,6 @@ func limitedCommand(bin string, n int, args ...string) *exec.Cmd {
 	return exec.Command("sh", append([]string{"-c", `ulimit -n "$0" && exec "$@"`, strconv.Itoa(n), bin}, args...)...)
 }
 
-
 // TestSignalsAtEveryPhase is issue 13 item 9: SIGINT and SIGTERM, sent by
 // the kernel to the real binary, while it reads (blocked on a FIFO and on
 // standard input, in the middle of a large generated input), analyses,
