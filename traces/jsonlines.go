@@ -42,10 +42,16 @@ func isCompleteJSON(line []byte) bool {
 	return (line[0] == '{' || line[0] == '[') && json.Valid(line)
 }
 
+// firstBlock is the size of a blockReader's first block; each next one is
+// twice as large up to the block size, so that a small input costs a small
+// buffer.
+const firstBlock = 32 << 10
+
 // blockReader cuts a stream into blocks of complete lines.
 type blockReader struct {
 	r        io.Reader
-	size     int
+	size     int // block size; the first blocks are smaller (see firstBlock)
+	cur      int // size of the next block
 	maxLine  int
 	maxBytes int64
 	name     string
@@ -59,7 +65,11 @@ type blockReader struct {
 // its '\n') and the number of its first line; nil at the end of input.
 // Every block is a fresh slice that the caller may keep.
 func (b *blockReader) next() ([]byte, int64, error) {
-	size := max(b.size, 2*len(b.pending))
+	if b.cur == 0 {
+		b.cur = min(b.size, firstBlock)
+	}
+	size := max(b.cur, 2*len(b.pending))
+	b.cur = min(2*b.cur, b.size)
 	for {
 		if b.eof {
 			if len(b.pending) == 0 {

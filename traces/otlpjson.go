@@ -68,6 +68,11 @@ type SpanCollector struct {
 	spans    spanStore
 	inputs   []Input
 	warnings Warnings
+
+	// free and spare hold block and span buffers for reuse, across inputs:
+	// thousands of small inputs then cost no more allocation than one.
+	free  chan []byte
+	spare chan []spanRec
 }
 
 // NewSpanCollector returns an empty collector reading with opts. Zero
@@ -228,8 +233,11 @@ func (c *SpanCollector) read(name string, input int32, r io.Reader, ws *Warnings
 	// 1 MiB more of blocks a worker.
 	ahead := jobsAhead * c.workers
 	order := make(chan *job, ahead)
-	free := make(chan []byte, ahead+2)     // block buffers to reuse
-	spare := make(chan []spanRec, ahead+2) // batch span buffers to reuse
+	if c.free == nil {
+		c.free = make(chan []byte, ahead+2)     // block buffers to reuse
+		c.spare = make(chan []spanRec, ahead+2) // batch span buffers to reuse
+	}
+	free, spare := c.free, c.spare
 	jobs := make(chan *job, c.workers)
 	done := make(chan struct{})
 	var wg sync.WaitGroup

@@ -26,6 +26,9 @@ type Loader struct {
 	inputs   []Input
 	warnings Warnings
 	kinds    map[Kind]string // first input name of each kind
+	// in and plain buffer an input and its plain (not gzipped) body; they
+	// are reused from input to input.
+	in, plain *bufio.Reader
 }
 
 // NewLoader returns a Loader using opts.
@@ -62,7 +65,7 @@ func (l *Loader) add(name string, r io.Reader) error {
 		r = io.TeeReader(r, hash)
 	}
 	counted := &countingReader{r: r}
-	br := bufio.NewReaderSize(counted, 64<<10)
+	br := reuseReader(&l.in, counted)
 	// Unwrap gzip layers (a gzipped .pb.gz is not rare), each inside the
 	// ratio and size limits, so that no decoder downstream ever sees gzip:
 	// the pprof library would decompress it again without a limit.
@@ -89,7 +92,7 @@ func (l *Loader) add(name string, r io.Reader) error {
 	}
 	if body == io.Reader(br) {
 		body = &sizeLimitReader{r: br, max: l.opts.Limits.MaxBytes, name: name}
-		bb = bufio.NewReaderSize(body, 64<<10)
+		bb = reuseReader(&l.plain, body)
 	}
 	prefix, err := bb.Peek(512)
 	if err != nil && !errors.Is(err, io.EOF) && !errors.Is(err, bufio.ErrBufferFull) {
@@ -151,6 +154,16 @@ func (l *Loader) add(name string, r io.Reader) error {
 	}
 	l.inputs = append(l.inputs, in)
 	return nil
+}
+
+// reuseReader returns *b reset to read r, made on first use.
+func reuseReader(b **bufio.Reader, r io.Reader) *bufio.Reader {
+	if *b == nil {
+		*b = bufio.NewReaderSize(r, 64<<10)
+	} else {
+		(*b).Reset(r)
+	}
+	return *b
 }
 
 func (l *Loader) checkKind(k Kind, name string) error {
@@ -226,22 +239,25 @@ func (s *Source) Validate() error {
 	return nil
 }
 
-// readChunk is the size of the pieces a profile is read in: most
-// profiles fit in one. A large allocation fresh from the system is zero
-// already, so the part of it a smaller profile leaves unused costs
-// address space, not memory; it is also small enough that a gzip bomb,
-// stopped by the ratio limit, cannot make culprit allocate much.
-const readChunk = 8 << 20
+// firstChunk and readChunk bound the pieces a profile is read in: the
+// first is small, so that thousands of small profiles do not each clear
+// megabytes; each next one is twice as large up to readChunk, small
+// enough that a gzip bomb, stopped by the ratio limit, cannot make
+// culprit allocate much.
+const (
+	firstChunk = 256 << 10
+	readChunk  = 8 << 20
+)
 
-// readAll reads r to the end: in readChunk pieces, joined into one buffer
-// of the exact size when there are several. io.ReadAll grows from 512
-// bytes, copying and clearing the data a dozen times over (25 ms of
-// clearing alone for a 5 MiB profile).
+// readAll reads r to the end: in growing pieces, joined into one buffer of
+// the exact size when there are several. io.ReadAll grows from 512 bytes,
+// copying and clearing the data a dozen times over (25 ms of clearing
+// alone for a 5 MiB profile).
 func readAll(r io.Reader) ([]byte, error) {
 	var chunks [][]byte
 	total := 0
-	for done := false; !done; {
-		c := make([]byte, readChunk)
+	for size, done := firstChunk, false; !done; size = min(2*size, readChunk) {
+		c := make([]byte, size)
 		n := 0
 		for n < len(c) {
 			m, err := r.Read(c[n:])
