@@ -120,7 +120,7 @@ func corpusCases() []corpusCase {
 			want:   []string{"no-spans (e.g. {file}: no spans (is this OTLP/JSON trace data?"}},
 		{name: "deep nesting", file: "deep-nesting.json", gen: deepNesting,
 			about: "JSON nested 10,000 levels deep", status: exitError,
-			want: []string{"{file}:1:529: input limit exceeded: JSON nested deeper than 512 levels"}},
+			want: []string{"{file}:1:4113: input limit exceeded: JSON nested deeper than 4096 levels"}},
 		{name: "huge line", file: "huge-line.jsonl", gen: hugeLine,
 			about: "JSON lines whose second line is longer than the lowered --max-line-bytes",
 			flags: []string{"--max-line-bytes", "4096"}, status: exitError,
