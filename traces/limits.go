@@ -24,7 +24,7 @@ var DefaultLimits = Limits{
 	MaxBytes:     4 << 30, // 4 GiB
 	MaxRatio:     200,
 	MaxLineBytes: 256 << 20, // 256 MiB, four times OTLP's recommended request limit
-	MaxDepth:     4096, // recursive code gives stacks in the thousands
+	MaxDepth:     4096,      // recursive code gives stacks in the thousands
 	MaxFrames:    4 << 20,
 }
 
