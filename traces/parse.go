@@ -10,6 +10,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"strconv"
 	"strings"
 
 	"github.com/google/pprof/profile"
@@ -39,6 +40,10 @@ func NewLoader(opts Options) *Loader {
 
 var gzipMagic = []byte{0x1f, 0x8b}
 
+// WarnSkippedInput is an input that could not be read and was skipped
+// because Options.KeepGoing is set.
+const WarnSkippedInput = "skipped-input"
+
 // Add reads one input. name labels it in errors and in the report. With
 // Options.KeepGoing, an unreadable input is recorded as a warning and Add
 // returns nil.
@@ -46,14 +51,15 @@ func (l *Loader) Add(name string, r io.Reader) error {
 	err := l.add(name, r)
 	if err != nil && l.opts.KeepGoing && !errors.Is(err, ErrMismatch) &&
 		!errors.Is(err, context.Canceled) && !errors.Is(err, context.DeadlineExceeded) {
-		msg := err.Error()
+		w := Warning{Kind: WarnSkippedInput, File: name, Message: strings.TrimPrefix(err.Error(), name+": ")}
 		var pe *ParseError
 		if errors.As(err, &pe) && pe.File == name {
-			msg = strings.TrimPrefix(strings.TrimPrefix(msg, name), ": ")
-		} else {
-			msg = strings.TrimPrefix(msg, name+": ")
+			w.Line, w.Message = pe.Line, pe.Detail()
+			if pe.Line > 0 {
+				w.Column = pe.Offset
+			}
 		}
-		l.warnings.Add(Warning{Kind: "skipped-input", File: name, Message: msg})
+		l.warnings.Add(w)
 		return nil
 	}
 	return err
@@ -80,7 +86,7 @@ func (l *Loader) add(name string, r io.Reader) error {
 			break
 		}
 		if layer == 3 {
-			return &ParseError{File: name, Err: fmt.Errorf("%w: more than 3 nested gzip layers", ErrFormat)}
+			return &ParseError{File: name, Binary: true, Decompressed: true, Err: fmt.Errorf("%w: more than 3 nested gzip layers", ErrFormat)}
 		}
 		zr, err := gzip.NewReader(bb)
 		if err != nil {
@@ -90,7 +96,8 @@ func (l *Loader) add(name string, r io.Reader) error {
 			max: l.opts.Limits.MaxBytes, name: name}
 		bb = bufio.NewReaderSize(body, 64<<10)
 	}
-	if body == io.Reader(br) {
+	gz := body != io.Reader(br) // offsets in body are of decompressed data
+	if !gz {
 		body = &sizeLimitReader{r: br, max: l.opts.Limits.MaxBytes, name: name}
 		bb = reuseReader(&l.plain, body)
 	}
@@ -99,7 +106,7 @@ func (l *Loader) add(name string, r io.Reader) error {
 		return readError(name, err, counted.n)
 	}
 	if len(prefix) == 0 {
-		return &ParseError{File: name, Err: fmt.Errorf("%w: the input is empty", ErrFormat)}
+		return &ParseError{File: name, Binary: true, Err: fmt.Errorf("%w: the input is empty", ErrFormat)}
 	}
 
 	in := Input{Name: name}
@@ -127,12 +134,15 @@ func (l *Loader) add(name string, r io.Reader) error {
 			// input, whose error the library words.
 			lp, err := profile.ParseData(data)
 			if err != nil {
-				return pprofError(name, data, err)
+				return pprofError(name, data, err, gz)
 			}
 			p = lowerProfile(lp)
 		}
 		if len(p.sampleTypes) == 0 {
-			return &ParseError{File: name, Err: errors.New("malformed pprof profile: it has no sample types")}
+			// Nowhere: the position is where the sample types should have
+			// been, the start of the profile.
+			return &ParseError{File: name, Binary: true, Decompressed: gz,
+				Err: errors.New("malformed pprof profile: it has no sample types (field 1 of the Profile message)")}
 		}
 		if err := l.checkKind(Profile, name); err != nil {
 			return err
@@ -294,7 +304,7 @@ func readError(name string, err error, offset int64) error {
 		return fmt.Errorf("%s: %w", name, err)
 	}
 	if errors.Is(err, io.ErrUnexpectedEOF) || errors.Is(err, gzip.ErrChecksum) || errors.Is(err, gzip.ErrHeader) {
-		return &ParseError{File: name, Offset: offset, Err: fmt.Errorf("truncated or corrupt gzip stream: %w", err)}
+		return &ParseError{File: name, Offset: offset, Binary: true, Err: fmt.Errorf("truncated or corrupt gzip stream: %w", err)}
 	}
 	return &ParseError{File: name, Err: err}
 }
@@ -302,20 +312,152 @@ func readError(name string, err error, offset int64) error {
 // pprofError explains why data is not a profile. profile.ParseData falls
 // back to legacy text formats and then reports only "unrecognized profile
 // format"; the protobuf decoder's own error says more.
-func pprofError(name string, data []byte, err error) error {
+// gz says data was gzipped: offsets are then of the decompressed data.
+func pprofError(name string, data []byte, err error, gz bool) error {
 	msg := strings.TrimPrefix(err.Error(), "parsing profile: ")
 	if strings.HasPrefix(msg, "malformed profile: ") {
-		return &ParseError{File: name, Err: fmt.Errorf("malformed pprof profile: %s", strings.TrimPrefix(msg, "malformed profile: "))}
+		msg = strings.TrimPrefix(msg, "malformed profile: ")
+		pe := &ParseError{File: name, Decompressed: gz, Err: fmt.Errorf("malformed pprof profile: %s", msg)}
+		pe.Offset, pe.Binary = locateProblem(data, msg)
+		return pe
 	}
-	var offset int64
+	pe := &ParseError{File: name, Decompressed: gz}
 	if _, perr := profile.ParseUncompressed(data); perr != nil && msg == "unrecognized profile format" {
 		msg = "protobuf: " + strings.TrimPrefix(perr.Error(), "parsing profile: ")
 		if off, why := badField(data); off >= 0 {
-			offset = off
+			pe.Offset, pe.Binary = off, true
 			msg += "; " + why
 		}
 	}
-	return &ParseError{File: name, Offset: offset, Err: fmt.Errorf("%w: neither OTLP/JSON nor a pprof profile (%s)", ErrFormat, msg)}
+	pe.Err = fmt.Errorf("%w: neither OTLP/JSON nor a pprof profile (%s)", ErrFormat, msg)
+	return pe
+}
+
+// Field numbers of profile.proto's Profile message.
+const (
+	pbSampleType = 1
+	pbSample     = 2
+	pbMapping    = 3
+	pbLocation   = 4
+	pbFunction   = 5
+)
+
+// locateProblem finds the byte offset of the message that the pprof
+// library's validity check complains about in msg (profile.go's
+// CheckValid): the first sample whose values do not match the sample
+// types, or the mapping, location or function whose ID is reserved or
+// repeated. ok is false for other complaints.
+func locateProblem(data []byte, msg string) (offset int64, ok bool) {
+	var field int
+	var id uint64
+	repeated := false
+	kinds := map[string]int{"mapping": pbMapping, "mappings": pbMapping, "location": pbLocation,
+		"locations": pbLocation, "function": pbFunction, "functions": pbFunction}
+	switch {
+	case strings.HasPrefix(msg, "mismatch: sample has "):
+		field = pbSample
+	case strings.HasPrefix(msg, "found "):
+		// "found function with reserved ID=0"
+		kind, _, _ := strings.Cut(strings.TrimPrefix(msg, "found "), " ")
+		field = kinds[kind]
+	case strings.HasPrefix(msg, "multiple "):
+		// "multiple functions with same id: 7"
+		kind, rest, _ := strings.Cut(strings.TrimPrefix(msg, "multiple "), " ")
+		_, n, _ := strings.Cut(rest, ": ")
+		v, err := strconv.ParseUint(n, 10, 64)
+		if err != nil {
+			return 0, false
+		}
+		field, id, repeated = kinds[kind], v, true
+	}
+	if field == 0 {
+		return 0, false
+	}
+	types, seen := 0, 0
+	for off := 0; off < len(data); {
+		num, typ, n := protowire.ConsumeTag(data[off:])
+		if n < 0 {
+			return 0, false
+		}
+		m := protowire.ConsumeFieldValue(num, typ, data[off+n:])
+		if m < 0 {
+			return 0, false
+		}
+		body := data[off+n : off+n+m]
+		if typ == protowire.BytesType {
+			body, _ = protowire.ConsumeBytes(body)
+		}
+		switch {
+		case num == pbSampleType:
+			types++
+		case int(num) != field || typ != protowire.BytesType:
+		case field == pbSample:
+			// sample_type precedes samples in every encoder; a profile
+			// listing them after would be reported at its first sample.
+			if countValues(body, 2) != types {
+				return int64(off), true
+			}
+		case messageID(body) == id:
+			if seen++; !repeated || seen == 2 {
+				return int64(off), true
+			}
+		}
+		off += n + m
+	}
+	return 0, false
+}
+
+// countValues counts the values of repeated varint field num in msg,
+// packed or not.
+func countValues(msg []byte, num protowire.Number) int {
+	count := 0
+	for len(msg) > 0 {
+		f, typ, n := protowire.ConsumeTag(msg)
+		if n < 0 {
+			return count
+		}
+		m := protowire.ConsumeFieldValue(f, typ, msg[n:])
+		if m < 0 {
+			return count
+		}
+		if f == num {
+			if typ == protowire.BytesType {
+				packed, _ := protowire.ConsumeBytes(msg[n:])
+				for len(packed) > 0 {
+					_, k := protowire.ConsumeVarint(packed)
+					if k < 0 {
+						break
+					}
+					packed = packed[k:]
+					count++
+				}
+			} else {
+				count++
+			}
+		}
+		msg = msg[n+m:]
+	}
+	return count
+}
+
+// messageID returns field 1 (the id) of a Mapping, Location or Function.
+func messageID(msg []byte) uint64 {
+	for len(msg) > 0 {
+		f, typ, n := protowire.ConsumeTag(msg)
+		if n < 0 {
+			return 0
+		}
+		if f == 1 && typ == protowire.VarintType {
+			v, _ := protowire.ConsumeVarint(msg[n:])
+			return v
+		}
+		m := protowire.ConsumeFieldValue(f, typ, msg[n:])
+		if m < 0 {
+			return 0
+		}
+		msg = msg[n+m:]
+	}
+	return 0
 }
 
 // badField walks the top-level protobuf fields of data and returns the

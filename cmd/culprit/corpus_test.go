@@ -66,17 +66,17 @@ func corpusCases() []corpusCase {
 	return []corpusCase{
 		{name: "empty", file: "empty.bin", gen: func() []byte { return nil },
 			about: "an empty file", status: exitError,
-			want: []string{"{file}: unrecognised input format: the input is empty"}},
+			want: []string{"{file}: byte 0: unrecognised input format: the input is empty"}},
 		// The protobuf decoder's own error is reported (the pprof library
 		// hides it behind its legacy-format fallback), with the first field
 		// that does not decode; here it is the very first (byte 0, which
 		// ParseError leaves unprinted).
 		{name: "random bytes", file: "random.bin", gen: randomBytes,
 			about: "4 KiB of seeded pseudo-random bytes", status: exitError,
-			want: []string{"{file}: unrecognised input format: neither OTLP/JSON nor a pprof profile (protobuf: unknown wire type: 6; field 8: reserved wire type)"}},
+			want: []string{"{file}: byte 0: unrecognised input format: neither OTLP/JSON nor a pprof profile (protobuf: unknown wire type: 6; field 8: reserved wire type)"}},
 		{name: "random bytes keep going", file: "random.bin", gen: randomBytes,
 			flags: []string{"--keep-going"}, status: exitError,
-			want: []string{"no readable input", "skipped-input (e.g. {file}: unrecognised input format"}},
+			want: []string{"no readable input", "skipped-input (e.g. {file}: byte 0: unrecognised input format"}},
 		{name: "png header", file: "png-header.png", gen: pngHeader,
 			about: "a PNG signature and header chunk followed by junk", status: exitError,
 			want: []string{"{file}: byte 10: unrecognised input format: neither OTLP/JSON nor a pprof profile (protobuf: type mismatch; bad field tag: invalid field number)"}},
@@ -90,10 +90,10 @@ func corpusCases() []corpusCase {
 			want: []string{"{file}: byte 858: unrecognised input format: neither OTLP/JSON nor a pprof profile (protobuf: too much data; field 4: runs past the end of the input (truncated?))"}},
 		{name: "sample value count", file: "sample-value-count.pb", gen: sampleValueCount,
 			about: "a pprof profile with two sample types whose sample has one value", status: exitError,
-			want: []string{"{file}: malformed pprof profile: mismatch: sample has 1 values vs. 2 types"}},
+			want: []string{"{file}: byte 12: malformed pprof profile: mismatch: sample has 1 values vs. 2 types"}},
 		{name: "no sample types", file: "no-sample-types.pb", gen: noSampleTypes,
 			about: "a valid pprof profile without sample types or samples", status: exitError,
-			want: []string{"{file}: malformed pprof profile: it has no sample types"}},
+			want: []string{"{file}: byte 0: malformed pprof profile: it has no sample types"}},
 		{name: "gzip bomb", file: "bomb.pb.gz", gen: gzipBomb, temp: true,
 			about: "2 GiB of zeros in 2048 gzip members (about 2 MiB)", status: exitError,
 			want:     []string{"{file}: decompresses to more than 200 times its compressed size (a gzip bomb? raise it with --max-ratio): input limit exceeded"},
