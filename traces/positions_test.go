@@ -2,6 +2,7 @@ package traces
 
 import (
 	"bytes"
+	stdjson "encoding/json"
 	"errors"
 	"strings"
 	"testing"
@@ -68,7 +69,51 @@ func TestSkippedInputPosition(t *testing.T) {
 		t.Fatalf("warnings %+v", sum)
 	}
 	w := sum[0].Examples[0].String()
-	if !strings.HasPrefix(w, "B.jsonl:3:22: ") /* the sixth bracket, column 22 */ || strings.Contains(w, ": :") {
+	// The sixth bracket, too deep, is at column 22.
+	if !strings.HasPrefix(w, "B.jsonl:3:22: ") || strings.Contains(w, ": :") {
 		t.Errorf("warning %q, want it to start B.jsonl:3:COLUMN:", w)
+	}
+}
+
+// TestDocumentWarningLines is issue 13 item 12 for pretty-printed
+// documents: a warning about a span names the line the span starts on,
+// not line 1. The document is indented by encoding/json (the standard
+// library), and the expected line is found by searching the text.
+func TestDocumentWarningLines(t *testing.T) {
+	span := func(id, parent string) map[string]any {
+		return map[string]any{"traceId": "5b8efff798038103d269b633813fc60c", "spanId": id, "parentSpanId": parent,
+			"name": "GET /plants", "kind": 2, "startTimeUnixNano": "1767225600000000000", "endTimeUnixNano": "1767225600050000000"}
+	}
+	doc := map[string]any{"resourceSpans": []any{map[string]any{"scopeSpans": []any{map[string]any{"spans": []any{
+		span("eee19b7ec3c1b174", ""), span("eee19b7ec3c1b173", "eee19b7ec3c1b174"),
+		span("eee19b7ec3c1b172", "00000000000000ff"), // its parent is missing: an orphan
+	}}}}}}
+	data, err := stdjson.MarshalIndent(doc, "", "  ")
+	if err != nil {
+		t.Fatal(err)
+	}
+	c := NewSpanCollector(Options{})
+	if err := c.Add("doc.json", bytes.NewReader(data)); err != nil {
+		t.Fatal(err)
+	}
+	src, err := c.Source()
+	if err != nil {
+		t.Fatal(err)
+	}
+	// The orphan's object opens on the line before its first key
+	// (encoding/json sorts keys: "endTimeUnixNano" comes first).
+	at := bytes.Index(data, []byte(`"spanId": "eee19b7ec3c1b172"`))
+	open := bytes.LastIndexByte(data[:at], '{')
+	want := 1 + bytes.Count(data[:open], []byte{'\n'})
+	var got []int
+	for _, s := range src.Warnings.Summary() {
+		if s.Kind == WarnOrphanSpan {
+			for _, e := range s.Examples {
+				got = append(got, e.Line)
+			}
+		}
+	}
+	if len(got) != 1 || got[0] != want || want < 20 {
+		t.Errorf("orphan warning lines %v, want [%d]", got, want)
 	}
 }

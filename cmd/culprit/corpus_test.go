@@ -135,7 +135,7 @@ func corpusCases() []corpusCase {
 		// an integer, found an object".
 		{name: "time is an object", file: "wrong-type-time.json", gen: wrongTypeTime,
 			about: `a pretty-printed document with "startTimeUnixNano": {}`, status: exitError,
-			want: []string{"{file}:1: not OTLP/JSON: invalid integer object"}},
+			want: []string{"{file}:12:36: not OTLP/JSON: invalid integer object"}},
 		// Invalid UTF-8 is replaced by U+FFFD (as encoding/json does), so
 		// no invalid byte reaches a report.
 		// A repair, so it is counted in the warnings (and refused by --strict).
