@@ -19,24 +19,6 @@ func countLines(p []byte) int { return bytes.Count(p, []byte{'\n'}) }
 
 func isSpace(b byte) bool { return b == ' ' || b == '\t' || b == '\r' || b == '\n' }
 
-// firstNonBlankLine returns the first line of data that holds anything but
-// whitespace, without its line end, or nil.
-func firstNonBlankLine(data []byte) []byte {
-	for len(data) > 0 {
-		i := bytes.IndexByte(data, '\n')
-		var l []byte
-		if i < 0 {
-			l, data = data, nil
-		} else {
-			l, data = data[:i], data[i+1:]
-		}
-		if l = bytes.TrimSpace(l); len(l) > 0 {
-			return l
-		}
-	}
-	return nil
-}
-
 // isCompleteJSON reports whether line is a complete JSON object or array.
 func isCompleteJSON(line []byte) bool {
 	return (line[0] == '{' || line[0] == '[') && json.Valid(line)

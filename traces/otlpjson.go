@@ -98,23 +98,6 @@ func NewSpanCollector(opts Options) *SpanCollector {
 	}
 }
 
-// LooksLikeOTLPJSON reports whether the first bytes of an input look like
-// OTLP/JSON: a '{' after an optional UTF-8 byte order mark and whitespace.
-// It does not validate anything beyond that first byte.
-func LooksLikeOTLPJSON(prefix []byte) bool {
-	prefix = bytes.TrimPrefix(prefix, []byte(utf8BOM))
-	for _, b := range prefix {
-		switch b {
-		case ' ', '\t', '\r', '\n':
-			continue
-		case '{':
-			return true
-		}
-		return false
-	}
-	return false
-}
-
 // utf8BOM is the UTF-8 byte order mark.
 const utf8BOM = "\xEF\xBB\xBF"
 
@@ -321,9 +304,10 @@ func (c *SpanCollector) split(name string, r io.Reader, order, jobs chan<- *job,
 	}
 
 	br := &blockReader{r: r, size: c.blockSize, maxLine: c.limits.MaxLineBytes, maxBytes: c.limits.MaxBytes, name: name, line: 1, free: free}
-	// Read blocks until the first non-blank line is seen, to choose
-	// between JSON lines and a document.
+	// Read blocks until the first two non-blank lines are seen, to choose
+	// between JSON lines and a document (jsonLayout).
 	var head []*job
+	var seen []byte // the head's text while undecided
 	first := true
 	lines := false
 	for {
@@ -333,6 +317,7 @@ func (c *SpanCollector) split(name string, r io.Reader, order, jobs chan<- *job,
 			return
 		}
 		if data == nil {
+			lines, _ = jsonLayout(seen, true)
 			break
 		}
 		if first {
@@ -340,8 +325,13 @@ func (c *SpanCollector) split(name string, r io.Reader, order, jobs chan<- *job,
 			first = false
 		}
 		head = append(head, &job{data: data, line: line, col: 1, pooled: true, result: make(chan *batch, 1)})
-		if l := firstNonBlankLine(data); l != nil {
-			lines = isCompleteJSON(l)
+		if len(head) == 1 {
+			seen = data
+		} else {
+			seen = append(seen[:len(seen):len(seen)], data...)
+		}
+		var decided bool
+		if lines, decided = jsonLayout(seen, false); decided {
 			break
 		}
 	}

@@ -1420,24 +1420,30 @@ func TestServiceFilter(t *testing.T) {
 	}
 }
 
-func TestLooksLikeOTLPJSON(t *testing.T) {
+func TestSniff(t *testing.T) {
 	for _, tc := range []struct {
 		in   string
-		want bool
+		want string
 	}{
-		{`{"resourceSpans":[]}`, true},
-		{" \r\n\t{", true},
-		{"\uFEFF{", true},
-		{"\uFEFF \n{", true},
-		{"", false},
-		{"   ", false},
-		{"[{}]", false},
-		{"\x1f\x8b\x08", false},
-		{"\x0a\x05hello", false},
+		{`{"resourceSpans":[]}`, FormatOTLPJSON},
+		{" \r\n\t{", FormatOTLPJSON},
+		{"\uFEFF{", FormatOTLPJSON},
+		{"\uFEFF \n{", FormatOTLPJSON},
+		{"", ""},
+		{"   ", FormatPprof},
+		{"[{}]", FormatOTLPJSON},
+		// JSON lines whose first line is broken are still JSON.
+		{"oops\n{\"resourceSpans\":[]}\n", FormatOTLPJSON},
+		// Binary with a '{' after a newline is not.
+		{"\x0a\x05hel\x00lo\n{", FormatPprof},
+		{"\x1f\x8b\x08", FormatGzip},
+		{"\x0a\x05hello", FormatPprof},
+		// A legacy text profile (read by the pprof library).
+		{"--- contention:\ncycles/second=3000000000\n", FormatPprof},
 	} {
 		t.Run(strconv.Quote(tc.in), func(t *testing.T) {
-			if got := LooksLikeOTLPJSON([]byte(tc.in)); got != tc.want {
-				t.Errorf("LooksLikeOTLPJSON(%q) = %v, want %v", tc.in, got, tc.want)
+			if got := Sniff([]byte(tc.in)); got != tc.want {
+				t.Errorf("Sniff(%q) = %q, want %q", tc.in, got, tc.want)
 			}
 		})
 	}

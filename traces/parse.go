@@ -2,7 +2,6 @@ package traces
 
 import (
 	"bufio"
-	"bytes"
 	"compress/gzip"
 	"context"
 	"crypto/sha256"
@@ -37,8 +36,6 @@ func NewLoader(opts Options) *Loader {
 	opts.Limits = opts.Limits.withDefaults()
 	return &Loader{opts: opts, kinds: map[Kind]string{}}
 }
-
-var gzipMagic = []byte{0x1f, 0x8b}
 
 // WarnSkippedInput is an input that could not be read and was skipped
 // because Options.KeepGoing is set.
@@ -78,11 +75,11 @@ func (l *Loader) add(name string, r io.Reader) error {
 	var body io.Reader = br
 	bb := br
 	for layer := 0; ; layer++ {
-		head, err := bb.Peek(2)
-		if err != nil && !errors.Is(err, io.EOF) {
+		head, err := bb.Peek(sniffPrefix)
+		if err != nil && !errors.Is(err, io.EOF) && !errors.Is(err, bufio.ErrBufferFull) {
 			return readError(name, err, counted.n)
 		}
-		if !bytes.Equal(head, gzipMagic) {
+		if Sniff(head) != FormatGzip {
 			break
 		}
 		if layer == 3 {
@@ -101,18 +98,15 @@ func (l *Loader) add(name string, r io.Reader) error {
 		body = &sizeLimitReader{r: br, max: l.opts.Limits.MaxBytes, name: name}
 		bb = reuseReader(&l.plain, body)
 	}
-	prefix, err := bb.Peek(512)
+	prefix, err := bb.Peek(sniffPrefix)
 	if err != nil && !errors.Is(err, io.EOF) && !errors.Is(err, bufio.ErrBufferFull) {
 		return readError(name, err, counted.n)
 	}
-	if len(prefix) == 0 {
+	in := Input{Name: name, Format: Sniff(prefix)}
+	switch in.Format {
+	case "":
 		return &ParseError{File: name, Binary: true, Err: fmt.Errorf("%w: the input is empty", ErrFormat)}
-	}
-
-	in := Input{Name: name}
-	switch {
-	case LooksLikeOTLPJSON(prefix):
-		in.Format = "otlp-json"
+	case FormatOTLPJSON:
 		if err := l.checkKind(Spans, name); err != nil {
 			return err
 		}
@@ -122,8 +116,7 @@ func (l *Loader) add(name string, r io.Reader) error {
 		if err := l.spans.Add(name, bb); err != nil {
 			return readError(name, err, counted.n)
 		}
-	default:
-		in.Format = "pprof"
+	case FormatPprof:
 		data, err := readAll(bb)
 		if err != nil {
 			return readError(name, err, counted.n)
@@ -153,6 +146,9 @@ func (l *Loader) add(name string, r io.Reader) error {
 		if err := l.profiles.add(name, p); err != nil {
 			return err
 		}
+	default:
+		// A format in the sniffing table without a reader here.
+		return &ParseError{File: name, Binary: true, Err: fmt.Errorf("%w: no reader for %s input", ErrFormat, in.Format)}
 	}
 	// Drain what the decoder did not read so that the digest covers the file.
 	if _, err := io.Copy(io.Discard, counted); err != nil {
