@@ -68,10 +68,11 @@ func runExplain(ctx context.Context, opts *explainOptions) error {
 	if err != nil {
 		return err
 	}
-	tree, cls, vi, err := opts.analysis.build(src, rules)
+	b, err := opts.analysis.buildCtx(ctx, opts.streams, src, rules)
 	if err != nil {
 		return err
 	}
+	tree, cls, vi := b.tree, b.cls, b.value
 	ex := attribute.Explain(tree, cls, opts.analysis.attributeOptions(), re)
 	if opts.output.Limit > 0 && len(ex) > opts.output.Limit {
 		ex = ex[:opts.output.Limit]

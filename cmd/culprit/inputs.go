@@ -319,6 +319,22 @@ func (f *analysisFlags) attribute(src *traces.Source, rules *attribute.Rules) (*
 	return res, nil
 }
 
+// built is what build makes.
+type built struct {
+	tree  *callgraph.Tree
+	cls   *attribute.Classifier
+	value int
+}
+
+// buildCtx is build, returning as soon as ctx is done (see await).
+func (f *analysisFlags) buildCtx(ctx context.Context, s *streams, src *traces.Source, rules *attribute.Rules) (built, error) {
+	return await(ctx, func() (built, error) {
+		testPause(ctx, s, "analysis")
+		tree, cls, vi, err := f.build(src, rules)
+		return built{tree, cls, vi}, err
+	})
+}
+
 // build checks --value against src, classifies src's frames and builds its
 // calling-context tree, cut at database and network boundaries (nothing
 // below them is needed). It returns the index of the value charged.

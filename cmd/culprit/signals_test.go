@@ -1,3 +1,5 @@
+//go:build unix
+
 package main
 
 import (
@@ -15,7 +17,7 @@ import (
 	"time"
 )
 
-var built struct {
+var binaries struct {
 	once      sync.Once
 	dir       string
 	bin, gen  string
@@ -27,26 +29,26 @@ var built struct {
 // test run and returns the binary's path.
 func buildCulprit(t *testing.T) string {
 	t.Helper()
-	built.once.Do(func() {
-		built.dir, built.err = os.MkdirTemp("", "culprit-bin-")
-		if built.err != nil {
+	binaries.once.Do(func() {
+		binaries.dir, binaries.err = os.MkdirTemp("", "culprit-bin-")
+		if binaries.err != nil {
 			return
 		}
-		built.bin = filepath.Join(built.dir, "culprit")
-		built.gen = filepath.Join(built.dir, "culprit-gen")
-		cmd := exec.Command("go", "build", "-o", built.dir, ".", "../culprit-gen")
-		built.buildErrs, built.err = cmd.CombinedOutput()
+		binaries.bin = filepath.Join(binaries.dir, "culprit")
+		binaries.gen = filepath.Join(binaries.dir, "culprit-gen")
+		cmd := exec.Command("go", "build", "-o", binaries.dir, ".", "../culprit-gen")
+		binaries.buildErrs, binaries.err = cmd.CombinedOutput()
 	})
-	if built.err != nil {
-		t.Fatalf("go build: %v: %s", built.err, built.buildErrs)
+	if binaries.err != nil {
+		t.Fatalf("go build: %v: %s", binaries.err, binaries.buildErrs)
 	}
-	return built.bin
+	return binaries.bin
 }
 
 func TestMain(m *testing.M) {
 	code := m.Run()
-	if built.dir != "" {
-		os.RemoveAll(built.dir)
+	if binaries.dir != "" {
+		os.RemoveAll(binaries.dir)
 	}
 	os.Exit(code)
 }
@@ -73,7 +75,7 @@ func TestSignalsAtEveryPhase(t *testing.T) {
 	bin := buildCulprit(t)
 	work := t.TempDir()
 	big := filepath.Join(work, "big.jsonl")
-	if out, err := exec.Command(built.gen, "spans", "-out", big, "-spans", "40000").CombinedOutput(); err != nil {
+	if out, err := exec.Command(binaries.gen, "spans", "-out", big, "-spans", "40000").CombinedOutput(); err != nil {
 		t.Fatalf("culprit-gen: %v: %s", err, out)
 	}
 	bigData, err := os.ReadFile(big)
@@ -88,10 +90,19 @@ func TestSignalsAtEveryPhase(t *testing.T) {
 		{syscall.SIGINT, 130, "culprit: interrupted (SIGINT)"},
 		{syscall.SIGTERM, 143, "culprit: terminated (SIGTERM)"},
 	}
-	phases := []string{"fifo", "stdin", "analysis", "rendering", "writing"}
+	// Phases of rank; explain and graph pause in their own analysis.
+	phases := []string{"fifo", "stdin", "analysis", "rendering", "writing", "explain:analysis", "graph:analysis"}
 	for _, s := range signals {
 		for _, phase := range phases {
 			t.Run(s.sig.String()+"/"+phase, func(t *testing.T) {
+				command := []string{"rank"}
+				if c, p, ok := strings.Cut(phase, ":"); ok {
+					phase = p
+					command = []string{c}
+					if c == "explain" {
+						command = append(command, "SELECT")
+					}
+				}
 				outDir := t.TempDir()
 				out := filepath.Join(outDir, "report.json")
 				input := big
@@ -105,7 +116,11 @@ func TestSignalsAtEveryPhase(t *testing.T) {
 				if phase == "stdin" {
 					input = "-"
 				}
-				cmd := exec.Command(bin, "rank", input, "--format", "json", "-o", out, "--save", filepath.Join(outDir, "s.json"))
+				args := append(command, input, "-o", out)
+				if command[0] == "rank" {
+					args = append(args, "--format", "json", "--save", filepath.Join(outDir, "s.json"))
+				}
+				cmd := exec.Command(bin, args...)
 				cmd.Env = append(os.Environ(), pauseEnv+"="+phase)
 				var errb syncBuffer
 				cmd.Stderr = &errb
