@@ -90,7 +90,7 @@ func (b *blockReader) next() ([]byte, int64, error) {
 			} else if errors.Is(err, errInputTooLarge) {
 				return nil, 0, &ParseError{File: b.name, Line: clampLine(b.line), Err: fmt.Errorf("%w: input is larger than %d bytes", ErrLimit, b.maxBytes)}
 			} else if err != nil {
-				return nil, 0, &ParseError{File: b.name, Err: err}
+				return nil, 0, &ParseError{File: b.name, Line: clampLine(b.line), Err: err}
 			}
 		}
 		buf = buf[:n]

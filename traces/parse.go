@@ -90,7 +90,7 @@ func (l *Loader) add(name string, r io.Reader) error {
 			return readError(name, fmt.Errorf("decompressing: %w", err), counted.n)
 		}
 		body = &sizeLimitReader{r: &ratioLimitReader{r: zr, compressed: counted, limits: l.opts.Limits, name: name},
-			max: l.opts.Limits.MaxBytes, name: name}
+			max: l.opts.Limits.MaxBytes, name: name, decompressed: true}
 		bb = bufio.NewReaderSize(body, 64<<10)
 	}
 	gz := body != io.Reader(br) // offsets in body are of decompressed data
@@ -296,6 +296,10 @@ func readError(name string, err error, offset int64) error {
 	if errors.As(err, &pe) {
 		return err
 	}
+	var le *limitError
+	if errors.As(err, &le) {
+		return &ParseError{File: name, Binary: true, Offset: le.at, Decompressed: le.decompressed, Err: err}
+	}
 	if errors.Is(err, ErrLimit) {
 		return fmt.Errorf("%s: %w", name, err)
 	}
@@ -496,19 +500,36 @@ func wireProblem(code int) string {
 	return "malformed field"
 }
 
+// limitError is a limit exceeded at a byte of an input (of its
+// decompressed data when decompressed). It wraps ErrLimit.
+type limitError struct {
+	msg          string
+	at           int64
+	decompressed bool
+}
+
+func (e *limitError) Error() string { return e.msg + ": " + ErrLimit.Error() }
+func (e *limitError) Unwrap() error { return ErrLimit }
+
 // sizeLimitReader fails once more than max bytes have been read.
 type sizeLimitReader struct {
-	r    io.Reader
-	n    int64
-	max  int64
-	name string
+	r            io.Reader
+	n            int64
+	max          int64
+	name         string
+	decompressed bool // r gives decompressed data
 }
 
 func (s *sizeLimitReader) Read(p []byte) (int, error) {
 	n, err := s.r.Read(p)
 	s.n += int64(n)
 	if s.n > s.max {
-		return n, fmt.Errorf("decompressed size exceeds %d bytes (raise it with --max-bytes): %w", s.max, ErrLimit)
+		what := "size"
+		if s.decompressed {
+			what = "decompressed size"
+		}
+		return n, &limitError{msg: fmt.Sprintf("%s exceeds %d bytes (raise it with --max-bytes)", what, s.max),
+			at: s.max, decompressed: s.decompressed}
 	}
 	return n, err
 }
@@ -528,8 +549,8 @@ func (z *ratioLimitReader) Read(p []byte) (int, error) {
 	n, err := z.r.Read(p)
 	z.out += int64(n)
 	if z.out > 1<<20 && z.out > z.limits.MaxRatio*z.compressed.n {
-		return n, fmt.Errorf("decompresses to more than %d times its compressed size (a gzip bomb? raise it with --max-ratio): %w",
-			z.limits.MaxRatio, ErrLimit)
+		return n, &limitError{msg: fmt.Sprintf("decompresses to more than %d times its compressed size (a gzip bomb? raise it with --max-ratio)",
+			z.limits.MaxRatio), at: z.out - int64(n), decompressed: true}
 	}
 	return n, err
 }

@@ -96,24 +96,24 @@ func corpusCases() []corpusCase {
 			want: []string{"{file}: byte 0: malformed pprof profile: it has no sample types"}},
 		{name: "gzip bomb", file: "bomb.pb.gz", gen: gzipBomb, temp: true,
 			about: "2 GiB of zeros in 2048 gzip members (about 2 MiB)", status: exitError,
-			want:     []string{"{file}: decompresses to more than 200 times its compressed size (a gzip bomb? raise it with --max-ratio): input limit exceeded"},
+			want:     []string{"{file}: byte 13107200 of the decompressed data: decompresses to more than 200 times its compressed size (a gzip bomb? raise it with --max-ratio): input limit exceeded"},
 			maxAlloc: 128 << 20},
 		{name: "gzip bomb max bytes", file: "bomb.pb.gz", gen: gzipBomb, temp: true,
 			flags:  []string{"--max-ratio", "1000000", "--max-bytes", "16777216"},
 			status: exitError, maxAlloc: 128 << 20,
-			want: []string{"{file}: decompressed size exceeds 16777216 bytes (raise it with --max-bytes): input limit exceeded"}},
+			want: []string{"{file}: byte 16777216 of the decompressed data: decompressed size exceeds 16777216 bytes (raise it with --max-bytes): input limit exceeded"}},
 		// Every gzip layer is unwrapped inside the same limits, so the
 		// pprof library never decompresses anything without one.
 		{name: "double gzip", file: "double.pb.gz", gen: doubleGzip, temp: true,
 			about:  "8 MiB of zeros gzipped twice",
 			flags:  []string{"--max-bytes", "2097152"},
 			status: exitError, maxAlloc: 16 << 20, // 8 MiB unpacked; the race detector adds a little
-			want: []string{"{file}: decompresses to more than 200 times its compressed size (a gzip bomb? raise it with --max-ratio): input limit exceeded"}},
+			want: []string{"{file}: byte 1048576 of the decompressed data: decompresses to more than 200 times its compressed size (a gzip bomb? raise it with --max-ratio): input limit exceeded"}},
 		{name: "double gzip max bytes", file: "double.pb.gz", gen: doubleGzip, temp: true,
 			about:  "8 MiB of zeros gzipped twice",
 			flags:  []string{"--max-bytes", "2097152", "--max-ratio", "1000000"},
 			status: exitError, maxAlloc: 16 << 20, // 8 MiB unpacked; the race detector adds a little
-			want: []string{"{file}: decompressed size exceeds 2097152 bytes (raise it with --max-bytes): input limit exceeded"}},
+			want: []string{"{file}: byte 2097152 of the decompressed data: decompressed size exceeds 2097152 bytes (raise it with --max-bytes): input limit exceeded"}},
 		{name: "not OTLP", file: "not-otlp.json", gen: notOTLP,
 			about: "a JSON object that is not an OTLP export request", status: exitOK,
 			report: []string{`"format": "otlp-json"`, `"rootCauses": null`},
