@@ -65,6 +65,21 @@ func TestSpecialOutputTargets(t *testing.T) {
 		t.Errorf("the FIFO was replaced: %v, %v", st.Mode(), err)
 	}
 
+	// A descriptor the shell opened on a regular file (/dev/stdout after
+	// '>>'): the report is appended through it, the file not replaced.
+	logf, err := os.OpenFile(filepath.Join(dir, "log"), os.O_CREATE|os.O_WRONLY|os.O_APPEND, 0o644)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer logf.Close()
+	logf.WriteString("before\n")
+	if code, _, errOut := runTest(t, "", "rank", profile, "--format", "csv", "-o", fmt.Sprintf("/dev/fd/%d", logf.Fd())); code != exitOK {
+		t.Fatalf("-o /dev/fd/N: exit %d: %s", code, errOut)
+	}
+	if b, _ := os.ReadFile(logf.Name()); !strings.HasPrefix(string(b), "before\nrank,") {
+		t.Errorf("/dev/fd/N: the file holds %.60q, want the earlier line and the report after it", b)
+	}
+
 	// A directory is refused with a clear error and left as it was.
 	code, _, errOut := runTest(t, "", "rank", profile, "-o", dir)
 	if code != exitUsage || !strings.Contains(errOut, "is a directory") {

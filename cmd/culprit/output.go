@@ -80,6 +80,7 @@ type pendingOutput struct {
 	path string
 	tmp  string // temporary file renamed over path; "" for a direct target
 	data []byte // what a direct target receives
+	flag int    // how a direct target is opened
 	done bool
 }
 
@@ -96,7 +97,7 @@ func prepareOutput(ctx context.Context, s *streams, path string, inputs []string
 		return nil, err
 	}
 	st, err := os.Stat(path)
-	direct := false
+	direct, flag := false, os.O_WRONLY
 	switch {
 	case errors.Is(err, fs.ErrNotExist):
 	case err != nil:
@@ -107,7 +108,10 @@ func prepareOutput(ctx context.Context, s *streams, path string, inputs []string
 		// /dev/stdout, /dev/fd/N and /proc/self/fd/N name a descriptor
 		// the shell opened, perhaps on a regular file: renaming over its
 		// name would leave the descriptor's file unchanged.
+		// Append, as the shell's descriptor does after what it holds
+		// (nothing after '>', the earlier lines after '>>').
 		direct = strings.HasPrefix(path, "/dev/") || strings.HasPrefix(path, "/proc/")
+		flag |= os.O_APPEND
 	case st.Mode()&(fs.ModeCharDevice|fs.ModeNamedPipe) != 0:
 		direct = true
 	default:
@@ -119,7 +123,7 @@ func prepareOutput(ctx context.Context, s *streams, path string, inputs []string
 		if err := render(ctxWriter{ctx, &buf}); err != nil {
 			return nil, err
 		}
-		return &pendingOutput{path: path, data: buf.Bytes()}, ctx.Err()
+		return &pendingOutput{path: path, data: buf.Bytes(), flag: flag}, ctx.Err()
 	}
 	// Write beside the file a symbolic link names, so that the rename
 	// replaces the file and keeps the link.
@@ -180,14 +184,19 @@ func (p *pendingOutput) commit(ctx context.Context, s *streams) error {
 	}
 	p.done = true
 	if p.tmp == "" {
-		f, err := os.OpenFile(p.path, os.O_WRONLY, 0)
-		if err != nil {
-			return err
-		}
-		_, err = f.Write(p.data)
-		if cerr := f.Close(); err == nil {
-			err = cerr
-		}
+		// Opening a FIFO waits for its reader, and writing to it for room:
+		// neither may hold the command against a signal.
+		_, err := await(ctx, func() (struct{}, error) {
+			f, err := os.OpenFile(p.path, p.flag, 0)
+			if err != nil {
+				return struct{}{}, err
+			}
+			_, err = f.Write(p.data)
+			if cerr := f.Close(); err == nil {
+				err = cerr
+			}
+			return struct{}{}, err
+		})
 		return err
 	}
 	if err := os.Rename(p.tmp, p.path); err != nil {
