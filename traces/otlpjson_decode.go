@@ -277,7 +277,7 @@ func (d *decoder) record(rec []byte, line, col int64, doc bool) {
 		if doc {
 			kind = WarnMalformedDocument
 		}
-		d.b.warnings = append(d.b.warnings, Warning{Kind: kind, File: d.name, Line: pe.Line,
+		d.b.warnings = append(d.b.warnings, Warning{Kind: kind, File: d.name, Line: pe.Line, Column: pe.Offset,
 			Message: pe.Err.Error() + " (skipped)"})
 	}
 }

@@ -166,6 +166,21 @@ func corpusCases() []corpusCase {
 		{name: "duplicate IDs", file: "duplicate-ids.jsonl", gen: duplicateIDs,
 			about: "a span read twice with the same trace and span ID", status: exitOK,
 			want: []string{"duplicate-span-id (e.g. {file}:2: span eee19b7ec3c1b173", "also read at {file}:1"}},
+		// JSON lines whose first line is broken stay JSON lines: the good
+		// lines are kept with --keep-going.
+		{name: "bad first line", file: "bad-first-line.jsonl", gen: badFirstLine,
+			about: "JSON lines whose first line is not JSON", status: exitError,
+			want: []string{"{file}:1:1: malformed JSON: invalid character 'g' looking for beginning of value"}},
+		{name: "bad first line keep going", file: "bad-first-line.jsonl", gen: badFirstLine,
+			flags: []string{"--keep-going"}, status: exitOK,
+			report: []string{"select * from plants where id = ?"},
+			want:   []string{"malformed-line (e.g. {file}:1:1: malformed JSON"}},
+		// Recursive code gives stacks thousands of frames deep: the middle
+		// is elided, and counted.
+		{name: "deep stack", file: "deep-stack.pb", gen: deepStack, temp: true,
+			about: "a pprof sample 20,000 frames deep", status: exitOK,
+			report: []string{"example.com/greenhouse/catalog.(*Store).List"},
+			want:   []string{"deep-stack (e.g. {file}: sample 41 has 20000 frames, more than --max-depth 4096: the middle 15905 are elided"}},
 		{name: "duplicate IDs strict", file: "duplicate-ids.jsonl", gen: duplicateIDs,
 			flags: []string{"--strict"}, status: exitError,
 			want: []string{"{file}:2: span data needs repair (strict mode): duplicate-span-id: span eee19b7ec3c1b173"}},
@@ -439,6 +454,28 @@ func greenhouseProfile() *profile.Profile {
 		})
 	}
 	return p
+}
+
+func badFirstLine() []byte {
+	return []byte("garbage\n" + otlpLine(rootSpan(), querySpan()))
+}
+
+// deepStack is the greenhouse profile with one more sample, 20,000 frames
+// deep: main.main, a recursive catalog walk, then the store's query.
+func deepStack() []byte {
+	p := greenhouseProfile()
+	walk := &profile.Function{ID: 5, Name: "example.com/greenhouse/catalog.walk", SystemName: "example.com/greenhouse/catalog.walk",
+		Filename: "/src/greenhouse/catalog/walk.go"}
+	p.Function = append(p.Function, walk)
+	stack := []*profile.Location{p.Location[2], p.Location[1]} // leaf first
+	for i := range 20_000 - 3 {
+		l := &profile.Location{ID: uint64(len(p.Location) + 1), Line: []profile.Line{{Function: walk, Line: int64(10 + i)}}}
+		p.Location = append(p.Location, l)
+		stack = append(stack, l)
+	}
+	stack = append(stack, p.Location[0])
+	p.Sample = append(p.Sample, &profile.Sample{Location: stack, Value: []int64{1, 10_000_000}})
+	return rawProfile(p)
 }
 
 func rawProfile(p *profile.Profile) []byte {
