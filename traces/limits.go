@@ -11,9 +11,8 @@ type Limits struct {
 	// MaxLineBytes caps one line of JSON-lines input, in bytes.
 	MaxLineBytes int
 	// MaxDepth caps JSON nesting depth and call path depth. A deeper
-	// profile sample keeps its root-most and leaf-most frames (see
-	// elideMiddle); a deeper span nesting, whose paths cost memory in the
-	// square of the depth, is an error.
+	// profile sample or span keeps its root-most and leaf-most frames
+	// (see elideMiddle), so that a path costs at most MaxDepth frames.
 	MaxDepth int
 	// MaxFrames caps the number of distinct frames in a source.
 	MaxFrames int
@@ -49,8 +48,8 @@ func (l Limits) withDefaults() Limits {
 	return d
 }
 
-// WarnDeepStack is a profile sample whose stack was deeper than
-// Limits.MaxDepth: the middle of its call path is elided.
+// WarnDeepStack is a profile sample or a span whose call path was deeper
+// than Limits.MaxDepth: the middle of the path is elided.
 const WarnDeepStack = "deep-stack"
 
 // ElidedFrames is the function name of the frame that stands for the

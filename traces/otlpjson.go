@@ -68,6 +68,7 @@ type SpanCollector struct {
 	spans    spanStore
 	inputs   []Input
 	warnings Warnings
+	elided   FrameID // the frame of elided path middles (see Source)
 
 	// free and spare hold block and span buffers for reuse, across inputs:
 	// thousands of small inputs then cost no more allocation than one.
