@@ -147,7 +147,7 @@ func runDiff(ctx context.Context, opts *diffOptions) error {
 // are ranked with the command's analysis flags and turned into a snapshot.
 func (opts *diffOptions) side(ctx context.Context, label string, inputs []string, rules *attribute.Rules) (*attribute.Snapshot, error) {
 	if len(inputs) == 1 && isSnapshotFile(inputs[0]) {
-		return readSnapshotFile(inputs[0])
+		return await(ctx, func() (*attribute.Snapshot, error) { return readSnapshotFile(inputs[0]) })
 	}
 	src, err := opts.analysis.load(ctx, opts.streams, inputs)
 	if err != nil {
@@ -163,6 +163,10 @@ func (opts *diffOptions) side(ctx context.Context, label string, inputs []string
 // isSnapshotFile reports whether name is a culprit snapshot: a JSON file
 // whose schema field names culprit.snapshot.
 func isSnapshotFile(name string) bool {
+	// A FIFO or device would block the open, and lose what is peeked.
+	if st, err := os.Stat(name); err != nil || !st.Mode().IsRegular() {
+		return false
+	}
 	fh, err := os.Open(name)
 	if err != nil {
 		return false

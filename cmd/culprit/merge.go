@@ -43,7 +43,7 @@ func runMerge(ctx context.Context, opts *mergeOptions) error {
 		if err := ctx.Err(); err != nil {
 			return err
 		}
-		snap, err := readSnapshotFile(name)
+		snap, err := await(ctx, func() (*attribute.Snapshot, error) { return readSnapshotFile(name) })
 		if err != nil {
 			return err
 		}
