@@ -71,6 +71,30 @@ func (o *outputFlags) write(ctx context.Context, s *streams, inputs []string, re
 	return p.commit(ctx, s)
 }
 
+// writeWithSnapshot writes the report as write does and, when snapshot is
+// set, the snapshot to save: both succeed or fail together. The snapshot
+// is prepared first and put in place only once the report is written.
+func (o *outputFlags) writeWithSnapshot(ctx context.Context, s *streams, inputs []string, save string,
+	snapshot, render func(io.Writer) error) error {
+	var pending *pendingOutput
+	if snapshot != nil {
+		var err error
+		if pending, err = prepareOutput(ctx, s, save, inputs, snapshot); err != nil {
+			return fmt.Errorf("writing snapshot: %w", err)
+		}
+		defer pending.discard()
+	}
+	if err := o.write(ctx, s, inputs, render); err != nil {
+		return err
+	}
+	if pending != nil {
+		if err := pending.commit(ctx, s); err != nil {
+			return fmt.Errorf("writing snapshot: %w", err)
+		}
+	}
+	return nil
+}
+
 // pendingOutput is a rendered output not yet in place: a synced temporary
 // file beside a regular target, or the bytes for a device or FIFO. commit
 // puts it in place; discard forgets it. Preparing every output of a run

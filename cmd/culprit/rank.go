@@ -87,7 +87,7 @@ func runRank(ctx context.Context, opts *rankOptions) error {
 	if err != nil {
 		return err
 	}
-	if err := opts.checkTargets(); err != nil {
+	if err := checkTargets(opts.output.Output, opts.save, opts.inputs); err != nil {
 		return err
 	}
 	src, err := opts.analysis.load(ctx, s, opts.inputs)
@@ -99,25 +99,14 @@ func runRank(ctx context.Context, opts *rankOptions) error {
 		return err
 	}
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
-	// The snapshot and the report succeed or fail together: the snapshot
-	// is prepared first and put in place only once the report is written.
-	var snapshot *pendingOutput
+	var snapshot func(io.Writer) error
 	if opts.save != "" {
-		snap := attribute.NewSnapshot(res)
-		if snapshot, err = prepareOutput(ctx, s, opts.save, opts.inputs, snap.Write); err != nil {
-			return fmt.Errorf("writing snapshot: %w", err)
-		}
-		defer snapshot.discard()
+		snapshot = attribute.NewSnapshot(res).Write
 	}
-	if err := opts.output.write(ctx, s, opts.inputs, func(w io.Writer) error {
+	if err := opts.output.writeWithSnapshot(ctx, s, opts.inputs, opts.save, snapshot, func(w io.Writer) error {
 		return renderer.Render(w, res, ropts)
 	}); err != nil {
 		return err
-	}
-	if snapshot != nil {
-		if err := snapshot.commit(ctx, s); err != nil {
-			return fmt.Errorf("writing snapshot: %w", err)
-		}
 	}
 	// The text report on stdout already ends with its warnings; otherwise
 	// say them on stderr, where CI logs show them. They are summarised by
@@ -130,24 +119,23 @@ func runRank(ctx context.Context, opts *rankOptions) error {
 	return nil
 }
 
-// checkTargets refuses, before anything is read, a report and a snapshot
-// written to one file, or either written over an input.
-func (opts *rankOptions) checkTargets() error {
-	out := opts.output.Output
+// checkTargets refuses, before anything is read, a report (out) and a
+// snapshot (save) written to one file, or either written over an input.
+func checkTargets(out, save string, inputs []string) error {
 	if out == "-" {
 		out = ""
 	}
-	if out != "" && opts.save != "" {
+	if out != "" && save != "" {
 		a, _ := filepath.Abs(out)
-		b, _ := filepath.Abs(opts.save)
+		b, _ := filepath.Abs(save)
 		// Two reports may go to one device (/dev/null), not to one file.
 		if st, err := os.Stat(out); a == b && (err != nil || st.Mode().IsRegular()) {
 			return usagef("-o and --save name the same file %s", out)
 		}
 	}
-	for _, target := range []string{out, opts.save} {
+	for _, target := range []string{out, save} {
 		if target != "" {
-			if err := checkNotInput(target, opts.inputs); err != nil {
+			if err := checkNotInput(target, inputs); err != nil {
 				return err
 			}
 		}
