@@ -200,10 +200,22 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 			return nil, err
 		}
 	}
-	return await(ctx, func() (*traces.Source, error) { return f.read(ctx, s, names) })
+	var total int64
+	if s.ErrIsTerminal {
+		for _, name := range names {
+			if st, err := os.Stat(name); err == nil && f.fsys == nil && name != "-" {
+				total += st.Size()
+			}
+		}
+	}
+	// Finished here, not in read: an interrupted run clears the progress
+	// line before it says why it stopped.
+	prog := startProgress(s.Err, s.ErrIsTerminal, total)
+	defer prog.Finish()
+	return await(ctx, func() (*traces.Source, error) { return f.read(ctx, s, names, prog) })
 }
 
-func (f *analysisFlags) read(ctx context.Context, s *streams, names []string) (*traces.Source, error) {
+func (f *analysisFlags) read(ctx context.Context, s *streams, names []string, prog *progress) (*traces.Source, error) {
 	opts := traces.Options{
 		Limits:     f.Limits,
 		KeepGoing:  f.KeepGoing,
@@ -218,16 +230,6 @@ func (f *analysisFlags) read(ctx context.Context, s *streams, names []string) (*
 		opts.Statement = attribute.AppendFingerprint
 	}
 	loader := traces.NewLoader(opts)
-	var total int64
-	if s.ErrIsTerminal {
-		for _, name := range names {
-			if st, err := os.Stat(name); err == nil && f.fsys == nil && name != "-" {
-				total += st.Size()
-			}
-		}
-	}
-	prog := startProgress(s.Err, s.ErrIsTerminal, total)
-	defer prog.Finish()
 	testPause(ctx, s, "reading")
 	stdinUsed := false
 	for _, name := range names {
