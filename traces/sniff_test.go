@@ -70,3 +70,29 @@ func TestArrayInput(t *testing.T) {
 		t.Errorf("%d paths, format %q", src.Paths.Len(), src.Inputs[0].Format)
 	}
 }
+
+// FuzzSniff holds the sniffing function and the wire walk that places
+// the pprof library's complaints to their contracts on any bytes: a
+// non-empty input has a format, gzip's magic wins, JSON layout decisions
+// never panic, and a located problem lies inside the data.
+func FuzzSniff(f *testing.F) {
+	f.Add([]byte(`{"resourceSpans":[]}`+"\n"), "mismatch: sample has 1 values vs. 2 types")
+	f.Add([]byte("garbage\n{}\n"), "multiple functions with same id: 3")
+	f.Add([]byte("\x1f\x8b\x08\x00"), "found location with reserved id=0")
+	f.Add([]byte("\x0a\x04\x08\x01\x10\x02\x12\x03\x10\x01\x10"), "mismatch: sample has 2 values vs. 1 types")
+	f.Fuzz(func(t *testing.T, data []byte, msg string) {
+		prefix := data[:min(len(data), sniffPrefix)]
+		got := Sniff(prefix)
+		if (got == "") != (len(prefix) == 0) {
+			t.Fatalf("Sniff(%q) = %q", prefix, got)
+		}
+		if len(prefix) >= 2 && prefix[0] == 0x1f && prefix[1] == 0x8b && got != FormatGzip {
+			t.Fatalf("gzip magic sniffed as %q", got)
+		}
+		jsonLayout(data, false)
+		jsonLayout(data, true)
+		if off, ok := locateProblem(data, msg); ok && (off < 0 || off >= int64(len(data))) {
+			t.Fatalf("problem located at %d of %d bytes", off, len(data))
+		}
+	})
+}
