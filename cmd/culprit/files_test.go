@@ -112,6 +112,8 @@ func TestInputsAreSacred(t *testing.T) {
 	os.Mkdir(in, 0o755)
 	profile := demoProfile(t, in)
 	data, _ := os.ReadFile(profile)
+	rules := filepath.Join(dir, "rules.json")
+	os.WriteFile(rules, []byte(`{"rules":[]}`), 0o644)
 	link := filepath.Join(dir, "link.pb.gz")
 	if err := os.Symlink(profile, link); err != nil {
 		t.Fatal(err)
@@ -122,6 +124,7 @@ func TestInputsAreSacred(t *testing.T) {
 		{"rank", link, "-o", profile},   // the file a link names
 		{"rank", profile, "-o", link},   // a link to the input
 		{"rank", in, "-o", filepath.Join(dir, "x"), "--save", filepath.Join(dir, "x")}, // one file for both
+		{"rank", in, "--rules", rules, "-o", rules},                                    // the rules file
 	} {
 		code, _, errOut := runTest(t, "", tc...)
 		if code != exitUsage || !strings.Contains(errOut, "refusing to write") && !strings.Contains(errOut, "same file") {

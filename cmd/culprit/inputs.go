@@ -87,6 +87,16 @@ func (f *analysisFlags) rules() (*attribute.Rules, error) {
 	return rules, nil
 }
 
+// allInputs is args and every other file the analysis reads: rules and
+// domains files, which no output may replace either.
+func (f *analysisFlags) allInputs(args []string) []string {
+	all := append(append([]string(nil), args...), f.RulesFiles...)
+	if f.DomainsFile != "" {
+		all = append(all, f.DomainsFile)
+	}
+	return all
+}
+
 // expandInputs turns the command's arguments into named readers: files,
 // every regular file below a directory (sorted, hidden names skipped), or
 // "-" for standard input. Symbolic links are followed, a directory argument

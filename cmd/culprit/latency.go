@@ -90,7 +90,7 @@ func runLatency(ctx context.Context, opts *latencyOptions) error {
 		return err
 	}
 	opts.analysis.skipDigest = (format == "text" || format == "csv") && opts.save == ""
-	if err := checkTargets(opts.output.Output, opts.save, opts.inputs); err != nil {
+	if err := checkTargets(opts.output.Output, opts.save, opts.analysis.allInputs(opts.inputs)); err != nil {
 		return err
 	}
 	res, err := opts.analysis.latency(ctx, s, opts.inputs, attribute.LatencyOptions{Tail: opts.tail, Vectors: opts.save != ""})

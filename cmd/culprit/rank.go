@@ -87,7 +87,7 @@ func runRank(ctx context.Context, opts *rankOptions) error {
 	if err != nil {
 		return err
 	}
-	if err := checkTargets(opts.output.Output, opts.save, opts.inputs); err != nil {
+	if err := checkTargets(opts.output.Output, opts.save, opts.analysis.allInputs(opts.inputs)); err != nil {
 		return err
 	}
 	src, err := opts.analysis.load(ctx, s, opts.inputs)
