@@ -1460,6 +1460,9 @@ func TestSniff(t *testing.T) {
 		{"\x0a\x05hel\x00lo\n{", FormatPprof},
 		{"\x1f\x8b\x08", FormatGzip},
 		{"\x0a\x05hello", FormatPprof},
+		{"\xff\xfe{\x00", FormatUTF16},
+		{"{\n  \"schema\": \"culprit.snapshot/v1\",\n", FormatCulprit},
+		{`{"resourceSpans":[],"schema":"culprit.snapshot/v1"}`, FormatOTLPJSON},
 		// A legacy text profile (read by the pprof library).
 		{"--- contention:\ncycles/second=3000000000\n", FormatPprof},
 	} {

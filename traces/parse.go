@@ -146,6 +146,11 @@ func (l *Loader) add(name string, r io.Reader) error {
 		if err := l.profiles.add(name, p); err != nil {
 			return err
 		}
+	case FormatCulprit:
+		return &ParseError{File: name, Binary: true, Err: fmt.Errorf("%w: this is culprit's own output (a snapshot or JSON report), not a profile or traces; "+
+			"compare snapshots with culprit diff, add them up with culprit merge", ErrFormat)}
+	case FormatUTF16:
+		return &ParseError{File: name, Binary: true, Err: fmt.Errorf("%w: UTF-16 text; culprit reads JSON in UTF-8 (convert it first)", ErrFormat)}
 	default:
 		// A format in the sniffing table without a reader here.
 		return &ParseError{File: name, Binary: true, Err: fmt.Errorf("%w: no reader for %s input", ErrFormat, in.Format)}

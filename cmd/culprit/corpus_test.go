@@ -166,6 +166,13 @@ func corpusCases() []corpusCase {
 		{name: "duplicate IDs", file: "duplicate-ids.jsonl", gen: duplicateIDs,
 			about: "a span read twice with the same trace and span ID", status: exitOK,
 			want: []string{"duplicate-span-id (e.g. {file}:2: span eee19b7ec3c1b173", "also read at {file}:1"}},
+		// culprit's own outputs are not inputs of rank: say where they go.
+		{name: "snapshot as input", file: "snapshot.json", gen: func() []byte { return []byte("{\n  \"schema\": \"culprit.snapshot/v1\"\n}\n") },
+			about: "a culprit snapshot given to rank", status: exitError,
+			want: []string{"{file}: byte 0: unrecognised input format: this is culprit's own output (a snapshot or JSON report)"}},
+		{name: "UTF-16", file: "utf16.json", gen: func() []byte { return []byte("\xff\xfe{\x00}\x00") },
+			about: "JSON in UTF-16", status: exitError,
+			want: []string{"{file}: byte 0: unrecognised input format: UTF-16 text"}},
 		// JSON lines whose first line is broken stay JSON lines: the good
 		// lines are kept with --keep-going.
 		{name: "bad first line", file: "bad-first-line.jsonl", gen: badFirstLine,
