@@ -131,9 +131,9 @@ func prepareOutput(ctx context.Context, s *streams, path string, inputs []string
 	case st.Mode().IsRegular():
 		// /dev/stdout, /dev/fd/N and /proc/self/fd/N name a descriptor
 		// the shell opened, perhaps on a regular file: renaming over its
-		// name would leave the descriptor's file unchanged.
-		// Append, as the shell's descriptor does after what it holds
-		// (nothing after '>', the earlier lines after '>>').
+		// name would leave the descriptor's file unchanged. Write through
+		// it instead, appending after what the file holds (nothing after
+		// '>', the earlier lines after '>>').
 		direct = strings.HasPrefix(path, "/dev/") || strings.HasPrefix(path, "/proc/")
 		flag |= os.O_APPEND
 	case st.Mode()&(fs.ModeCharDevice|fs.ModeNamedPipe) != 0:
