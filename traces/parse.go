@@ -25,7 +25,8 @@ type Loader struct {
 	spans    *SpanCollector
 	inputs   []Input
 	warnings Warnings
-	kinds    map[Kind]string // first input name of each kind
+	byKind   map[Kind][]string // input names of each kind admitted (see admit)
+	notes    []string          // inputs skipped (see Source.Notes)
 	// in and plain buffer an input and its plain (not gzipped) body; they
 	// are reused from input to input.
 	in, plain *bufio.Reader
@@ -34,7 +35,7 @@ type Loader struct {
 // NewLoader returns a Loader using opts.
 func NewLoader(opts Options) *Loader {
 	opts.Limits = opts.Limits.withDefaults()
-	return &Loader{opts: opts, kinds: map[Kind]string{}}
+	return &Loader{opts: opts}
 }
 
 // WarnSkippedInput is an input that could not be read and was skipped
@@ -107,8 +108,12 @@ func (l *Loader) add(name string, r io.Reader) error {
 	case "":
 		return &ParseError{File: name, Binary: true, Err: fmt.Errorf("%w: the input is empty", ErrFormat)}
 	case FormatOTLPJSON:
-		if err := l.checkKind(Spans, name); err != nil {
-			return err
+		if key, ok := foreignJSON(prefix); ok {
+			l.notes = append(l.notes, fmt.Sprintf("%s skipped: JSON but not OTLP trace data (it starts with %q)", name, key))
+			return nil
+		}
+		if !l.admit(Spans, name) {
+			return nil
 		}
 		if l.spans == nil {
 			l.spans = NewSpanCollector(l.opts)
@@ -117,6 +122,9 @@ func (l *Loader) add(name string, r io.Reader) error {
 			return readError(name, err, counted.n)
 		}
 	case FormatPprof:
+		if !l.admit(Profile, name) {
+			return nil
+		}
 		data, err := readAll(bb)
 		if err != nil {
 			return readError(name, err, counted.n)
@@ -137,18 +145,12 @@ func (l *Loader) add(name string, r io.Reader) error {
 			return &ParseError{File: name, Binary: true, Decompressed: gz,
 				Err: errors.New("malformed pprof profile: it has no sample types (field 1 of the Profile message)")}
 		}
-		if err := l.checkKind(Profile, name); err != nil {
-			return err
-		}
 		if l.profiles == nil {
 			l.profiles = newProfileAppender(l.opts.Limits)
 		}
 		if err := l.profiles.add(name, p); err != nil {
 			return err
 		}
-	case FormatCulprit:
-		return &ParseError{File: name, Binary: true, Err: fmt.Errorf("%w: this is culprit's own output (a snapshot or JSON report), not a profile or traces; "+
-			"compare snapshots with culprit diff, add them up with culprit merge", ErrFormat)}
 	case FormatUTF16:
 		return &ParseError{File: name, Binary: true, Err: fmt.Errorf("%w: UTF-16 text; culprit reads JSON in UTF-8 (convert it first)", ErrFormat)}
 	default:
@@ -177,22 +179,14 @@ func reuseReader(b **bufio.Reader, r io.Reader) *bufio.Reader {
 	return *b
 }
 
-func (l *Loader) checkKind(k Kind, name string) error {
-	for other, first := range l.kinds {
-		if other != k {
-			return fmt.Errorf("%s is a %s input but %s is a %s input; culprit analyses profiles and traces in separate runs: %w",
-				name, k, first, other, ErrMismatch)
-		}
-	}
-	if _, ok := l.kinds[k]; !ok {
-		l.kinds[k] = name
-	}
-	return nil
-}
-
 // Source returns the merged source of everything added. It fails when
-// nothing readable was added.
+// nothing readable was added, when no input yielded a span or a sample,
+// and when the inputs hold both profiles and traces without
+// Options.Source to choose.
 func (l *Loader) Source() (*Source, error) {
+	if err := l.mixError(); err != nil {
+		return nil, err
+	}
 	var src *Source
 	switch {
 	case l.profiles != nil && l.profiles.src != nil:
@@ -207,10 +201,17 @@ func (l *Loader) Source() (*Source, error) {
 		if l.warnings.Len() > 0 {
 			return nil, fmt.Errorf("no readable input (%s)", strings.Join(l.warnings.Strings(), "; "))
 		}
-		return nil, errors.New("no input")
+		return nil, l.nothingRead(nil)
+	}
+	if src.Paths.Len() == 0 {
+		return nil, l.nothingRead(src)
 	}
 	src.Inputs = l.inputs
+	src.Notes = append(l.notes, src.Notes...)
 	src.Warnings.Merge(l.warnings)
+	if err := src.checkSums(); err != nil {
+		return nil, err
+	}
 	if err := src.Validate(); err != nil {
 		return nil, err
 	}

@@ -80,13 +80,13 @@ func TestSkippedInputPosition(t *testing.T) {
 // not line 1. The document is indented by encoding/json (the standard
 // library), and the expected line is found by searching the text.
 func TestDocumentWarningLines(t *testing.T) {
-	span := func(id, parent string) map[string]any {
+	span := func(id, parent string, kind int) map[string]any {
 		return map[string]any{"traceId": "5b8efff798038103d269b633813fc60c", "spanId": id, "parentSpanId": parent,
-			"name": "GET /plants", "kind": 2, "startTimeUnixNano": "1767225600000000000", "endTimeUnixNano": "1767225600050000000"}
+			"name": "GET /plants", "kind": kind, "startTimeUnixNano": "1767225600000000000", "endTimeUnixNano": "1767225600050000000"}
 	}
 	doc := map[string]any{"resourceSpans": []any{map[string]any{"scopeSpans": []any{map[string]any{"spans": []any{
-		span("eee19b7ec3c1b174", ""), span("eee19b7ec3c1b173", "eee19b7ec3c1b174"),
-		span("eee19b7ec3c1b172", "00000000000000ff"), // its parent is missing: an orphan
+		span("eee19b7ec3c1b174", "", 2), span("eee19b7ec3c1b173", "eee19b7ec3c1b174", 3),
+		span("eee19b7ec3c1b172", "00000000000000ff", 3), // a client span whose parent is missing: an orphan
 	}}}}}}
 	data, err := stdjson.MarshalIndent(doc, "", "  ")
 	if err != nil {

@@ -15,9 +15,6 @@ const (
 	// FormatPprof is a pprof profile (profile.proto, or a legacy text
 	// profile that the pprof library reads).
 	FormatPprof = "pprof"
-	// FormatCulprit is one of culprit's own JSON outputs (a snapshot, a
-	// JSON report): not an input of rank, which says where it goes.
-	FormatCulprit = "culprit"
 	// FormatUTF16 is text in UTF-16, which no reader takes.
 	FormatUTF16 = "utf-16"
 )
@@ -39,7 +36,6 @@ type format struct {
 var formats = []format{
 	{FormatGzip, looksLikeGzip},
 	{FormatUTF16, looksLikeUTF16},
-	{FormatCulprit, looksLikeCulprit},
 	{FormatOTLPJSON, looksLikeJSON},
 	// The pprof library reads protobuf and legacy text profiles, and
 	// words the error for anything else: it takes the rest.
@@ -65,23 +61,6 @@ var gzipMagic = []byte{0x1f, 0x8b}
 // looksLikeUTF16 accepts a UTF-16 byte order mark (either byte order).
 func looksLikeUTF16(prefix []byte) bool {
 	return bytes.HasPrefix(prefix, []byte{0xff, 0xfe}) || bytes.HasPrefix(prefix, []byte{0xfe, 0xff})
-}
-
-// looksLikeCulprit accepts a JSON object whose first member is culprit's
-// "schema" (every JSON output of culprit leads with it).
-func looksLikeCulprit(prefix []byte) bool {
-	prefix = bytes.TrimLeft(bytes.TrimPrefix(prefix, []byte(utf8BOM)), " \t\r\n")
-	if len(prefix) == 0 || prefix[0] != '{' {
-		return false
-	}
-	rest := bytes.TrimLeft(prefix[1:], " \t\r\n")
-	rest, ok := bytes.CutPrefix(rest, []byte(`"schema"`))
-	if !ok {
-		return false
-	}
-	rest = bytes.TrimLeft(rest, " \t\r\n")
-	rest, ok = bytes.CutPrefix(rest, []byte(":"))
-	return ok && bytes.HasPrefix(bytes.TrimLeft(rest, " \t\r\n"), []byte(`"culprit.`))
 }
 
 func looksLikeGzip(prefix []byte) bool { return bytes.HasPrefix(prefix, gzipMagic) }

@@ -115,9 +115,8 @@ func corpusCases() []corpusCase {
 			status: exitError, maxAlloc: 16 << 20, // 8 MiB unpacked; the race detector adds a little
 			want: []string{"{file}: byte 2097152 of the decompressed data: decompressed size exceeds 2097152 bytes (raise it with --max-bytes): input limit exceeded"}},
 		{name: "not OTLP", file: "not-otlp.json", gen: notOTLP,
-			about: "a JSON object that is not an OTLP export request", status: exitOK,
-			report: []string{`"format": "otlp-json"`, `"rootCauses": null`},
-			want:   []string{"no-spans (e.g. {file}: no spans (is this OTLP/JSON trace data?"}},
+			about: "a JSON object that is not an OTLP export request: skipped, and then no input is left", status: exitError,
+			want: []string{`no input yielded any span or sample ({file} skipped: JSON but not OTLP trace data (it starts with "hello"))`}},
 		{name: "deep nesting", file: "deep-nesting.json", gen: deepNesting,
 			about: "JSON nested 10,000 levels deep", status: exitError,
 			want: []string{"{file}:1:4113: input limit exceeded: JSON nested deeper than 4096 levels"}},
@@ -166,10 +165,6 @@ func corpusCases() []corpusCase {
 		{name: "duplicate IDs", file: "duplicate-ids.jsonl", gen: duplicateIDs,
 			about: "a span read twice with the same trace and span ID", status: exitOK,
 			want: []string{"duplicate-span-id (e.g. {file}:2: span eee19b7ec3c1b173", "also read at {file}:1"}},
-		// culprit's own outputs are not inputs of rank: say where they go.
-		{name: "snapshot as input", file: "snapshot.json", gen: func() []byte { return []byte("{\n  \"schema\": \"culprit.snapshot/v1\"\n}\n") },
-			about: "a culprit snapshot given to rank", status: exitError,
-			want: []string{"{file}: byte 0: unrecognised input format: this is culprit's own output (a snapshot or JSON report)"}},
 		{name: "UTF-16", file: "utf16.json", gen: func() []byte { return []byte("\xff\xfe{\x00}\x00") },
 			about: "JSON in UTF-16", status: exitError,
 			want: []string{"{file}: byte 0: unrecognised input format: UTF-16 text"}},

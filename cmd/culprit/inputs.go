@@ -30,6 +30,7 @@ type analysisFlags struct {
 	KeepGoing     bool
 	Strict        bool
 	Service       string
+	Source        string
 	Limits        traces.Limits
 	Findings      attribute.FindingOptions
 	DomainsFile   string
@@ -56,7 +57,8 @@ func (f *analysisFlags) register(cmd *cobra.Command) {
 	fl.BoolVar(&f.ShowLiterals, "show-literals", false, "show statements with their literal values (may expose personal data)")
 	fl.BoolVar(&f.KeepGoing, "keep-going", false, "skip unreadable files and lines, listing them as warnings")
 	fl.BoolVar(&f.Strict, "strict", false, "treat every repaired span problem (orphans, duplicates, cycles, skew) as an error")
-	fl.StringVar(&f.Service, "service", "", "keep only spans of this service.name")
+	fl.StringVar(&f.Service, "service", "", "analyse only spans of this service.name (default: the services that receive requests from outside)")
+	fl.StringVar(&f.Source, "source", "", "read only `KIND` of input, traces or profiles, from inputs that hold both, skipping the other")
 	fl.StringVar(&f.DomainsFile, "domains", "", "JSON `FILE` mapping business domains to function patterns; rolls root causes up by domain")
 	fl.Int64Var(&f.Limits.MaxBytes, "max-bytes", traces.DefaultLimits.MaxBytes, "largest decompressed input in bytes")
 	fl.Int64Var(&f.Limits.MaxRatio, "max-ratio", traces.DefaultLimits.MaxRatio, "largest decompression ratio of a gzip input")
@@ -203,6 +205,10 @@ func (w *dirWalker) walk(dir string, st os.FileInfo) error {
 // load reads every input into one source. It returns as soon as ctx is
 // done, even while a read is blocked (see await).
 func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*traces.Source, error) {
+	kind, err := traces.ParseKind(f.Source)
+	if err != nil {
+		return nil, usagef("--source: %v", err)
+	}
 	names := args
 	if f.fsys == nil {
 		var err error
@@ -222,11 +228,12 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 	// line before it says why it stopped.
 	prog := startProgress(s.Err, s.ErrIsTerminal, total)
 	defer prog.Finish()
-	return await(ctx, func() (*traces.Source, error) { return f.read(ctx, s, names, prog) })
+	return await(ctx, func() (*traces.Source, error) { return f.read(ctx, s, names, kind, prog) })
 }
 
-func (f *analysisFlags) read(ctx context.Context, s *streams, names []string, prog *progress) (*traces.Source, error) {
+func (f *analysisFlags) read(ctx context.Context, s *streams, names []string, kind traces.Kind, prog *progress) (*traces.Source, error) {
 	opts := traces.Options{
+		Source:     kind,
 		Limits:     f.Limits,
 		KeepGoing:  f.KeepGoing,
 		Strict:     f.Strict,
