@@ -5,6 +5,7 @@ import (
 	"sort"
 	"strings"
 
+	"github.com/culprithq/culprit/attribute/internal/gostd"
 	"github.com/culprithq/culprit/traces"
 )
 
@@ -26,6 +27,7 @@ type Verdict struct {
 // source; Verdict lookups are then constant time.
 type Classifier struct {
 	rules    *Rules
+	m        *matcher  // rule matches and file facts, once per distinct string
 	verdicts []Verdict // by FrameID
 	// classes holds each frame's Class, with entryBit set for entry
 	// points: what the attribution walk reads for every tree node,
@@ -53,7 +55,7 @@ type Detection struct {
 
 // NewClassifier classifies every frame of src with rules.
 func NewClassifier(src *traces.Source, rules *Rules) *Classifier {
-	c := &Classifier{rules: rules, verdicts: make([]Verdict, len(src.Frames)), classes: make([]uint8, len(src.Frames))}
+	c := &Classifier{rules: rules, m: newMatcher(rules), verdicts: make([]Verdict, len(src.Frames)), classes: make([]uint8, len(src.Frames))}
 	type det struct {
 		reason string
 		funcs  map[string]bool
@@ -169,7 +171,7 @@ func (c *Classifier) classify(f *traces.Frame) Verdict {
 	var entryRule *Rule
 	for i := range c.rules.Rules {
 		r := &c.rules.Rules[i]
-		if !r.Matches(f) {
+		if !c.m.matches(i, f) {
 			continue
 		}
 		switch r.Class {
@@ -213,19 +215,22 @@ func ruleString(r *Rule) string {
 // owned decides whether f is application code, by the App prefixes when
 // given, else by auto-detection.
 func (c *Classifier) owned(f *traces.Frame) (bool, string) {
+	ff := c.m.file(f.File)
 	if len(c.rules.App) > 0 {
-		file := slashPath(f.File)
 		for _, p := range c.rules.App {
-			if strings.HasPrefix(f.Function, p) || (file != "" && strings.Contains(file, p)) {
+			if strings.HasPrefix(f.Function, p) {
 				return true, "matches --app " + p
 			}
+		}
+		if ff.app != "" {
+			return true, "matches --app " + ff.app
 		}
 		if f.Span && f.SpanKind != traces.SpanKindClient && f.SpanKind != traces.SpanKindProducer && f.File == "" && !looksQualified(f.Function) {
 			return true, "the service's own " + f.SpanKind.String() + " span"
 		}
 		return false, "matches no --app prefix"
 	}
-	return autoOwned(f)
+	return autoOwned(f, ff)
 }
 
 // looksQualified reports whether a span's frame name looks like a code
@@ -243,9 +248,10 @@ var (
 	gorootRe = regexp.MustCompile(`(^|/)go[^/]*/src/`)
 )
 
-// autoOwned implements application auto-detection (see DESIGN.md).
-func autoOwned(f *traces.Frame) (bool, string) {
-	file := slashPath(f.File)
+// autoOwned implements application auto-detection (see DESIGN.md); ff
+// holds the facts of f.File.
+func autoOwned(f *traces.Frame, ff *fileFacts) (bool, string) {
+	file := ff.path
 	if f.Span {
 		switch f.SpanKind {
 		case traces.SpanKindClient, traces.SpanKindProducer:
@@ -254,7 +260,7 @@ func autoOwned(f *traces.Frame) (bool, string) {
 		if f.File != "" {
 			// code.file.path says where the span was made: a dependency's
 			// span is not the application's, whatever its kind.
-			if owned, reason := autoOwned(&traces.Frame{Function: f.Function, File: f.File}); !owned && lang(&traces.Frame{File: f.File}) != langUnknown {
+			if owned, reason := autoOwned(&traces.Frame{Function: f.Function, File: f.File}, ff); !owned && ff.lang != langUnknown {
 				return false, reason
 			}
 		}
@@ -263,19 +269,20 @@ func autoOwned(f *traces.Frame) (bool, string) {
 	switch lang(f) {
 	case langGo:
 		switch {
-		case strings.Contains(file, "/pkg/mod/"):
-			return false, "in the Go module cache"
-		case modVersionRe.MatchString(file):
-			return false, "a dependency (module@version path)"
-		case strings.Contains(file, "/vendor/") || strings.HasPrefix(file, "vendor/"):
-			return false, "vendored"
+		case ff.goDep != "":
+			return false, ff.goDep
 		case strings.HasPrefix(f.Function, "main."):
 			return true, "package main"
-		case isGoStd(f.Function):
-			if gorootRe.MatchString(file) || file == "" || !strings.Contains(file, "/") || isTrimmedStd(file) {
+		}
+		pkg := goPackage(f.Function)
+		switch {
+		case gostd.IsPackage(pkg):
+			if ff.goroot || file == "" || !strings.Contains(file, "/") || ff.trimmedStd {
 				return false, "Go standard library (GOROOT)"
 			}
 			return false, "Go standard library"
+		case otherReleaseStd(pkg, file, ff):
+			return false, "Go standard library (GOROOT, a package of another Go release)"
 		}
 		return true, "Go code outside GOROOT, the module cache and vendor/"
 	case langJVM:
@@ -286,12 +293,12 @@ func autoOwned(f *traces.Frame) (bool, string) {
 		}
 		return true, "JVM code outside the platform and common libraries"
 	case langPython:
-		if strings.Contains(file, "site-packages/") || strings.Contains(file, "dist-packages/") || pythonStdRe.MatchString(file) || strings.HasPrefix(file, "<") {
+		if ff.pyLib {
 			return false, "Python standard library or installed package"
 		}
 		return true, "Python code outside site-packages and the standard library"
 	case langNode:
-		if strings.Contains(file, "node_modules/") || strings.HasPrefix(file, "node:") || strings.HasPrefix(file, "internal/") {
+		if ff.nodeLib {
 			return false, "Node.js core or node_modules"
 		}
 		return true, "JavaScript outside node_modules and Node.js core"
@@ -332,7 +339,7 @@ func lang(f *traces.Frame) language {
 		return langNode
 	case file == "":
 		// Guess from the name: Go names carry import paths or main.
-		if strings.HasPrefix(f.Function, "main.") || strings.Contains(f.Function, "/") || strings.Contains(f.Function, ".(*") || isGoStd(f.Function) {
+		if strings.HasPrefix(f.Function, "main.") || strings.Contains(f.Function, "/") || strings.Contains(f.Function, ".(*") || gostd.IsPackage(goPackage(f.Function)) {
 			return langGo
 		}
 	}
@@ -353,25 +360,20 @@ func goPackage(fn string) string {
 	return fn[:slash+1+dot]
 }
 
-// isGoStd reports whether fn belongs to the Go standard library: its
-// import path's first element has no dot (and it is not package main).
-func isGoStd(fn string) bool {
-	pkg := goPackage(fn)
-	if pkg == "main" || pkg == "" {
+// otherReleaseStd reports whether pkg, which the list of this Go
+// release's standard library lacks, is a standard-library package of
+// another release: its file lies in a Go installation's source tree
+// (…/go/src/PKG/file.go) or is the -trimpath form of one (PKG/file.go),
+// and its first element is one the standard library uses (crypto, net,
+// internal…). A module path with no dot (permitoffice/…) is never taken
+// for one: its first element is not the standard library's.
+func otherReleaseStd(pkg, file string, ff *fileFacts) bool {
+	first, _, _ := strings.Cut(pkg, "/")
+	if pkg == "" || !gostd.IsTopLevel(first) {
 		return false
 	}
-	first := pkg
-	if i := strings.IndexByte(pkg, '/'); i >= 0 {
-		first = pkg[:i]
-	}
-	return !strings.Contains(first, ".")
-}
-
-// isTrimmedStd reports whether a -trimpath file path is in the standard
-// library: its first element has no dot.
-func isTrimmedStd(file string) bool {
-	i := strings.IndexByte(file, '/')
-	return i > 0 && !strings.Contains(file[:i], ".") && !strings.HasPrefix(file, "/")
+	dir := file[:max(strings.LastIndexByte(file, '/'), 0)]
+	return ff.goroot && strings.HasSuffix(dir, "/src/"+pkg) || dir == pkg
 }
 
 // appRoot groups an application function under a readable prefix for the
@@ -391,9 +393,13 @@ func appRoot(f *traces.Frame) string {
 			return "main"
 		}
 		// Common practice: hosted module paths have three elements
-		// (host/owner/repo), others two (host/module).
+		// (host/owner/repo), others two (host/module), and a module
+		// path with no dot (permitoffice) one.
 		parts := strings.Split(pkg, "/")
 		n := 2
+		if !strings.Contains(parts[0], ".") {
+			n = 1
+		}
 		switch parts[0] {
 		case "github.com", "gitlab.com", "bitbucket.org", "golang.org":
 			n = 3

@@ -60,7 +60,9 @@ func (c *Class) UnmarshalText(b []byte) error {
 // Regexp, File or Span is set.
 type Rule struct {
 	Class Class `json:"class"`
-	// Function matches function names that start with it.
+	// Function matches function names that start with it at an
+	// identifier boundary (see matchFunction): net/http.Head matches
+	// net/http.Head but not net/http.Header.Set.
 	Function string `json:"function,omitempty"`
 	// Contains matches function names that contain it.
 	Contains string `json:"contains,omitempty"`
@@ -129,7 +131,7 @@ func (r *Rule) compile() error {
 func (r *Rule) Matches(f *traces.Frame) bool {
 	switch {
 	case r.Function != "":
-		return strings.HasPrefix(f.Function, r.Function)
+		return matchFunction(r.Function, f.Function)
 	case r.Contains != "":
 		return strings.Contains(f.Function, r.Contains)
 	case r.re != nil:

@@ -1,0 +1,165 @@
+package attribute
+
+import (
+	"strings"
+
+	"github.com/culprithq/culprit/attribute/internal/gostd"
+	"github.com/culprithq/culprit/traces"
+)
+
+// matchFunction reports whether a function rule's pattern matches name:
+// name starts with pattern at an identifier boundary. A pattern that ends
+// in an identifier character (net/http.Head) must be followed in name by
+// the end or a character that is not one (net/http.Head, …Head.func1,
+// …Head-fm), so that it never matches a longer identifier
+// (net/http.Header.Set). A pattern that ends otherwise (database/sql.,
+// github.com/jackc/pgx/, example.com/db.(*Pool) matches
+// everything under it.
+func matchFunction(pattern, name string) bool {
+	if !strings.HasPrefix(name, pattern) {
+		return false
+	}
+	if len(name) == len(pattern) || pattern == "" || !identByte(pattern[len(pattern)-1]) {
+		return true
+	}
+	return !identByte(name[len(pattern)])
+}
+
+// identByte reports whether c can continue an identifier: an ASCII
+// letter, digit or underscore, or a byte of a multi-byte UTF-8 character
+// (Go and JVM identifiers may hold Unicode letters).
+func identByte(c byte) bool {
+	return c == '_' || c >= '0' && c <= '9' || c >= 'a' && c <= 'z' || c >= 'A' && c <= 'Z' || c >= 0x80
+}
+
+// matcher evaluates the rules that look at strings once per distinct
+// function name and once per distinct file path, and works out the
+// ownership facts of each file path once: a profile whose thousands of
+// functions share one long file name costs one scan of that name per
+// rule, not one per function (time linear in the input's size).
+type matcher struct {
+	rules []Rule
+	app   []string
+	words int                   // bitset length, in uint64s
+	funcs map[string][]uint64   // function name → bit i set when rule i (a name rule) matches
+	files map[string]*fileFacts // file path → its facts
+	// evals counts rule evaluations against a string, for tests.
+	evals int
+}
+
+// fileFacts is what classification needs to know of one file path.
+type fileFacts struct {
+	path  string   // with '/' separators
+	rules []uint64 // bit i set when rule i (a file rule) matches
+	lang  language // from the suffix; langUnknown for ""
+	app   string   // the first --app prefix the path contains
+	// goDep says why a Go file is a dependency's (module cache,
+	// module@version path, vendor/), "" when it is none of these.
+	goDep string
+	// goroot: the path lies in a Go installation's source tree;
+	// trimmedStd: it is a -trimpath standard-library path (net/http/server.go).
+	goroot, trimmedStd bool
+	pyLib, nodeLib     bool // Python standard library or installed package; Node.js core or node_modules
+}
+
+func newMatcher(rs *Rules) *matcher {
+	return &matcher{
+		rules: rs.Rules,
+		app:   rs.App,
+		words: (len(rs.Rules) + 63) / 64,
+		funcs: make(map[string][]uint64, 1024),
+		files: make(map[string]*fileFacts, 64),
+	}
+}
+
+// matches reports whether rule i matches f.
+func (m *matcher) matches(i int, f *traces.Frame) bool {
+	r := &m.rules[i]
+	switch {
+	case r.Span != "":
+		return r.Matches(f) // reads span fields only: constant time
+	case r.File != "":
+		if f.File == "" {
+			return false
+		}
+		return m.file(f.File).rules[i/64]&(1<<(i%64)) != 0
+	}
+	return m.function(f.Function)[i/64]&(1<<(i%64)) != 0
+}
+
+// function returns the name rules that match fn, evaluating them the
+// first time fn is seen.
+func (m *matcher) function(fn string) []uint64 {
+	if bits, ok := m.funcs[fn]; ok {
+		return bits
+	}
+	bits := make([]uint64, m.words)
+	probe := traces.Frame{Function: fn}
+	for i := range m.rules {
+		r := &m.rules[i]
+		if r.Span != "" || r.File != "" {
+			continue
+		}
+		m.evals++
+		if r.Matches(&probe) {
+			bits[i/64] |= 1 << (i % 64)
+		}
+	}
+	m.funcs[fn] = bits
+	return bits
+}
+
+// file returns the facts of file path p, working them out the first time
+// p is seen.
+func (m *matcher) file(p string) *fileFacts {
+	if ff, ok := m.files[p]; ok {
+		return ff
+	}
+	ff := newFileFacts(p, m.rules, m.app)
+	for i := range m.rules {
+		if m.rules[i].File != "" {
+			m.evals++
+		}
+	}
+	m.files[p] = ff
+	return ff
+}
+
+// newFileFacts works out the facts of file path p for rules and --app
+// prefixes app.
+func newFileFacts(p string, rules []Rule, app []string) *fileFacts {
+	file := slashPath(p)
+	ff := &fileFacts{path: file, rules: make([]uint64, (len(rules)+63)/64), lang: lang(&traces.Frame{File: p})}
+	if file == "" {
+		return ff
+	}
+	for i := range rules {
+		if r := &rules[i]; r.File != "" && strings.Contains(file, r.File) {
+			ff.rules[i/64] |= 1 << (i % 64)
+		}
+	}
+	for _, a := range app {
+		if strings.Contains(file, a) {
+			ff.app = a
+			break
+		}
+	}
+	switch ff.lang {
+	case langGo:
+		switch {
+		case strings.Contains(file, "/pkg/mod/"):
+			ff.goDep = "in the Go module cache"
+		case modVersionRe.MatchString(file):
+			ff.goDep = "a dependency (module@version path)"
+		case strings.Contains(file, "/vendor/") || strings.HasPrefix(file, "vendor/"):
+			ff.goDep = "vendored"
+		}
+		ff.goroot = gorootRe.MatchString(file)
+		ff.trimmedStd = !strings.HasPrefix(file, "/") && gostd.IsFile(file)
+	case langPython:
+		ff.pyLib = strings.Contains(file, "site-packages/") || strings.Contains(file, "dist-packages/") || pythonStdRe.MatchString(file) || strings.HasPrefix(file, "<")
+	case langNode:
+		ff.nodeLib = strings.Contains(file, "node_modules/") || strings.HasPrefix(file, "node:") || strings.HasPrefix(file, "internal/")
+	}
+	return ff
+}
