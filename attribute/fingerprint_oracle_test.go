@@ -276,12 +276,17 @@ type oracleNormaliser struct {
 }
 
 func (n *oracleNormaliser) add(t oracleToken) {
+	n.endCast(t)
 	switch {
 	case t.kind == oracleKNumber:
 		if n.unarySign() {
 			n.out = n.out[:len(n.out)-1]
 		}
-		t = oracleQmark()
+		n.literal()
+		return
+	case t.kind == oracleKLiteral:
+		n.literal()
+		return
 	case t == (oracleToken{oracleKOp, "("}):
 		n.opens = append(n.opens, len(n.out))
 	case t == (oracleToken{oracleKOp, ")"}) && len(n.opens) > 0:
@@ -292,6 +297,26 @@ func (n *oracleNormaliser) add(t oracleToken) {
 		return
 	}
 	n.out = append(n.out, t)
+}
+
+// endCast drops a cast of a literal ("?", "::", type word) unless t continues the type name.
+func (n *oracleNormaliser) endCast(t oracleToken) {
+	k := len(n.out)
+	if k >= 3 && n.out[k-2] == (oracleToken{oracleKOp, "::"}) && n.out[k-1].kind == oracleKWord && n.out[k-3] == oracleQmark() &&
+		!(t.kind == oracleKOp && (t.text == "(" || t.text == "[" || t.text == ".")) {
+		n.out = n.out[:k-2]
+	}
+}
+
+// literal appends "?", dropping the type word of a typed literal (date '…') before it.
+func (n *oracleNormaliser) literal() {
+	if k := len(n.out); k > 0 && n.out[k-1].kind == oracleKWord && (k == 1 || n.out[k-2] != (oracleToken{oracleKOp, "."})) {
+		switch n.out[k-1].text {
+		case "date", "time", "timestamp", "timestamptz":
+			n.out = n.out[:k-1]
+		}
+	}
+	n.out = append(n.out, oracleQmark())
 }
 
 // unarySign reports whether the last token is a sign that belongs to the number that follows:
@@ -329,7 +354,18 @@ func (n *oracleNormaliser) closeGroup(o int) {
 	out := n.out
 	switch {
 	case o > 0 && out[o-1] == (oracleToken{oracleKWord, "in"}) && oracleIsPlaceholderList(out[o+1:len(out)-1]):
-		n.out = append(out[:o+1], oracleQmark(), out[len(out)-1])
+		switch {
+		case len(out)-o > 3:
+			n.out = append(out[:o+1], oracleQmark(), oracleToken{oracleKOp, ","}, oracleToken{oracleKWord, "…"}, out[len(out)-1])
+		case o > 1 && out[o-2] == (oracleToken{oracleKWord, "not"}):
+			n.out = append(out[:o-2], oracleToken{oracleKOp, "<>"}, oracleQmark())
+		default:
+			n.out = append(out[:o-1], oracleToken{oracleKOp, "="}, oracleQmark())
+		}
+	case o > 0 && out[o-1] == (oracleToken{oracleKWord, "cast"}) && len(out)-o == 5 && out[o+1] == oracleQmark() &&
+		out[o+2] == (oracleToken{oracleKWord, "as"}) && out[o+3].kind == oracleKWord:
+		n.out = out[:o-1]
+		n.literal()
 	case o > 0 && out[o-1] == (oracleToken{oracleKWord, "values"}):
 		n.row = [2]int{o, len(out)}
 	case o > 1 && n.row[1] == o-1 && out[o-1] == (oracleToken{oracleKOp, ","}): // another row of the same VALUES
@@ -357,6 +393,7 @@ func oracleFingerprintSQL(d dialect, raw string) string {
 	for t, ok := l.next(); ok; t, ok = l.next() {
 		n.add(t)
 	}
+	n.endCast(oracleToken{}) // the input may end with the type of a cast
 	return oracleJoinTokens(n.out, func(a, b oracleToken) bool {
 		after := a.kind == oracleKOp && (a.text == "(" || a.text == "[" || a.text == "." || a.text == "::")
 		before := b.kind == oracleKOp && strings.Contains(",)];.[", b.text) || b == (oracleToken{oracleKOp, "::"})
