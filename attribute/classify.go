@@ -56,11 +56,7 @@ type Detection struct {
 // NewClassifier classifies every frame of src with rules.
 func NewClassifier(src *traces.Source, rules *Rules) *Classifier {
 	c := &Classifier{rules: rules, m: newMatcher(rules), verdicts: make([]Verdict, len(src.Frames)), classes: make([]uint8, len(src.Frames))}
-	type det struct {
-		reason string
-		funcs  map[string]bool
-	}
-	detected := map[string]*det{}
+	detected := map[string]*detectionGroup{}
 	// Rules never look at the line, and a profile has many lines of each
 	// function: classify each frame-without-line once. Frames are found
 	// by function name first (one string to hash), then by value.
@@ -95,11 +91,17 @@ func NewClassifier(src *traces.Source, rules *Rules) *Classifier {
 			classes = append(classes, class{key: key, v: v, fn: fn})
 			byName[f.Function] = append(byName[f.Function], ci)
 			if v.Class == Application && len(rules.App) == 0 {
-				root := appRoot(f)
-				d := detected[root]
+				ff := c.m.file(f.File)
+				d := ff.det // Python and Node.js group by file: found without hashing the path
 				if d == nil {
-					d = &det{reason: v.Reason, funcs: map[string]bool{}}
-					detected[root] = d
+					root := appRoot(f, ff)
+					if d = detected[root]; d == nil {
+						d = &detectionGroup{reason: v.Reason, funcs: map[string]bool{}}
+						detected[root] = d
+					}
+					if l := lang(f); !f.Span && (l == langPython || l == langNode) {
+						ff.det = d
+					}
 				}
 				d.funcs[f.Function] = true
 			}
@@ -123,6 +125,12 @@ func NewClassifier(src *traces.Source, rules *Rules) *Classifier {
 		return a.Prefix < b.Prefix
 	})
 	return c
+}
+
+// detectionGroup gathers the application functions of one Detection.
+type detectionGroup struct {
+	reason string
+	funcs  map[string]bool
 }
 
 const entryBit = 0x80
@@ -169,9 +177,10 @@ func (c *Classifier) Verdict(id traces.FrameID) *Verdict { return &c.verdicts[id
 
 func (c *Classifier) classify(f *traces.Frame) Verdict {
 	var entryRule *Rule
+	fn, ff := c.m.function(f.Function), c.m.file(f.File)
 	for i := range c.rules.Rules {
 		r := &c.rules.Rules[i]
-		if !c.m.matches(i, f) {
+		if !c.m.matches(i, f, fn, ff) {
 			continue
 		}
 		switch r.Class {
@@ -192,7 +201,7 @@ func (c *Classifier) classify(f *traces.Frame) Verdict {
 			return Verdict{Class: Library, Rule: r, Reason: "rule " + ruleString(r)}
 		}
 	}
-	owned, reason := c.owned(f)
+	owned, reason := c.owned(f, ff)
 	if entryRule != nil && owned && len(c.rules.App) == 0 && !f.Span && !strings.HasPrefix(f.Function, "main.") {
 		// A built-in entry rule names framework code: auto-detection must
 		// not take it for the application's.
@@ -214,8 +223,7 @@ func ruleString(r *Rule) string {
 
 // owned decides whether f is application code, by the App prefixes when
 // given, else by auto-detection.
-func (c *Classifier) owned(f *traces.Frame) (bool, string) {
-	ff := c.m.file(f.File)
+func (c *Classifier) owned(f *traces.Frame, ff *fileFacts) (bool, string) {
 	if len(c.rules.App) > 0 {
 		for _, p := range c.rules.App {
 			if strings.HasPrefix(f.Function, p) {
@@ -379,7 +387,7 @@ func otherReleaseStd(pkg, file string, ff *fileFacts) bool {
 // appRoot groups an application function under a readable prefix for the
 // detection summary: Go "main" or the first three import path elements of
 // a hosted module path; otherwise the first two name components.
-func appRoot(f *traces.Frame) string {
+func appRoot(f *traces.Frame, ff *fileFacts) string {
 	if f.Span {
 		if f.Service != "" {
 			return "service " + f.Service
@@ -409,11 +417,10 @@ func appRoot(f *traces.Frame) string {
 		}
 		return strings.Join(parts, "/")
 	case langPython, langNode:
-		dir := slashPath(f.File)
-		if i := strings.LastIndexByte(dir, '/'); i >= 0 {
-			return dir[:i+1]
+		if ff.dir == "" {
+			return ff.path
 		}
-		return dir
+		return ff.dir
 	}
 	parts := strings.SplitN(f.Function, ".", 4)
 	if len(parts) > 3 {

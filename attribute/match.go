@@ -2,6 +2,7 @@ package attribute
 
 import (
 	"strings"
+	"unsafe"
 
 	"github.com/culprithq/culprit/attribute/internal/gostd"
 	"github.com/culprithq/culprit/traces"
@@ -43,8 +44,19 @@ type matcher struct {
 	words int                   // bitset length, in uint64s
 	funcs map[string][]uint64   // function name → bit i set when rule i (a name rule) matches
 	files map[string]*fileFacts // file path → its facts
-	// evals counts rule evaluations against a string, for tests.
-	evals int
+	// byData finds the facts of a file path by where its bytes are, so
+	// that the frames of a source, which share each interned path, do
+	// not hash a long path once each.
+	byData map[stringData]*fileFacts
+	// evals counts rule evaluations against a string, and hashed the
+	// file paths looked up by content, for tests.
+	evals, hashed int
+}
+
+// stringData identifies the bytes of a string (never dereferenced).
+type stringData struct {
+	p *byte
+	n int
 }
 
 // fileFacts is what classification needs to know of one file path.
@@ -60,31 +72,36 @@ type fileFacts struct {
 	// trimmedStd: it is a -trimpath standard-library path (net/http/server.go).
 	goroot, trimmedStd bool
 	pyLib, nodeLib     bool // Python standard library or installed package; Node.js core or node_modules
+	// dir is the path up to its last '/' (inclusive): the detection
+	// summary's group for Python and Node.js code.
+	dir string
+	// det is the detection group of the application functions in this
+	// file, once NewClassifier has made it (Python and Node.js).
+	det *detectionGroup
 }
 
 func newMatcher(rs *Rules) *matcher {
 	return &matcher{
-		rules: rs.Rules,
-		app:   rs.App,
-		words: (len(rs.Rules) + 63) / 64,
-		funcs: make(map[string][]uint64, 1024),
-		files: make(map[string]*fileFacts, 64),
+		rules:  rs.Rules,
+		app:    rs.App,
+		words:  (len(rs.Rules) + 63) / 64,
+		funcs:  make(map[string][]uint64, 1024),
+		files:  make(map[string]*fileFacts, 64),
+		byData: make(map[stringData]*fileFacts, 64),
 	}
 }
 
-// matches reports whether rule i matches f.
-func (m *matcher) matches(i int, f *traces.Frame) bool {
+// matches reports whether rule i matches f, whose function name matches
+// the name rules in fn (m.function) and whose file has the facts ff.
+func (m *matcher) matches(i int, f *traces.Frame, fn []uint64, ff *fileFacts) bool {
 	r := &m.rules[i]
 	switch {
 	case r.Span != "":
 		return r.Matches(f) // reads span fields only: constant time
 	case r.File != "":
-		if f.File == "" {
-			return false
-		}
-		return m.file(f.File).rules[i/64]&(1<<(i%64)) != 0
+		return ff.rules[i/64]&(1<<(i%64)) != 0
 	}
-	return m.function(f.Function)[i/64]&(1<<(i%64)) != 0
+	return fn[i/64]&(1<<(i%64)) != 0
 }
 
 // function returns the name rules that match fn, evaluating them the
@@ -112,7 +129,13 @@ func (m *matcher) function(fn string) []uint64 {
 // file returns the facts of file path p, working them out the first time
 // p is seen.
 func (m *matcher) file(p string) *fileFacts {
+	key := stringData{unsafe.StringData(p), len(p)}
+	if ff, ok := m.byData[key]; ok {
+		return ff
+	}
+	m.hashed++
 	if ff, ok := m.files[p]; ok {
+		m.byData[key] = ff
 		return ff
 	}
 	ff := newFileFacts(p, m.rules, m.app)
@@ -122,6 +145,7 @@ func (m *matcher) file(p string) *fileFacts {
 		}
 	}
 	m.files[p] = ff
+	m.byData[key] = ff
 	return ff
 }
 
@@ -133,6 +157,7 @@ func newFileFacts(p string, rules []Rule, app []string) *fileFacts {
 	if file == "" {
 		return ff
 	}
+	ff.dir = file[:strings.LastIndexByte(file, '/')+1]
 	for i := range rules {
 		if r := &rules[i]; r.File != "" && strings.Contains(file, r.File) {
 			ff.rules[i/64] |= 1 << (i % 64)
