@@ -371,14 +371,17 @@ func goPackage(fn string) string {
 // otherReleaseStd reports whether pkg, which the list of this Go
 // release's standard library lacks, is a standard-library package of
 // another release: its file lies in a Go installation's source tree
-// (…/go/src/PKG/file.go) or is the -trimpath form of one (PKG/file.go),
-// and its first element is one the standard library uses (crypto, net,
-// internal…). A module path with no dot (permitoffice/…) is never taken
+// (…/go/src/PKG/file.go), is the -trimpath form of one (PKG/file.go) or
+// is unknown, and its first element is one the standard library uses
+// (crypto, net, internal…). A module path with no dot (permitoffice/…) is never taken
 // for one: its first element is not the standard library's.
 func otherReleaseStd(pkg, file string, ff *fileFacts) bool {
 	first, _, _ := strings.Cut(pkg, "/")
 	if pkg == "" || !gostd.IsTopLevel(first) {
 		return false
+	}
+	if file == "" {
+		return true // no file to tell by: the first element decides
 	}
 	dir := file[:max(strings.LastIndexByte(file, '/'), 0)]
 	return ff.goroot && strings.HasSuffix(dir, "/src/"+pkg) || dir == pkg

@@ -48,6 +48,7 @@ func TestAutoDetectGo(t *testing.T) {
 		// told by its GOROOT or -trimpath file and a std first element.
 		{"stdlib of another release", "crypto/sha4.Sum", "/usr/local/go/src/crypto/sha4/sha4.go", false},
 		{"stdlib of another release trimpath", "crypto/sha4.Sum", "crypto/sha4/sha4.go", false},
+		{"stdlib of an older release, no file", "runtime/internal/atomic.(*Uint32).Load", "", false},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {

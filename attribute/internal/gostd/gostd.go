@@ -41,6 +41,3 @@ func IsTopLevel(elem string) bool {
 	i := sort.SearchStrings(packages[:], elem)
 	return i < len(packages) && (packages[i] == elem || strings.HasPrefix(packages[i], elem+"/"))
 }
-
-// Packages returns a copy of the sorted list.
-func Packages() []string { return append([]string(nil), packages[:]...) }
