@@ -21,7 +21,8 @@ type pgssRecord struct {
 // TestFingerprintPostgreSQLGroups checks statement fingerprints against
 // PostgreSQL's own normalisation: pg_stat_statements of PostgreSQL 15.18
 // (Debian 15.18-0+deb12u1), which recorded the group (queryid) of each of
-// 272 statements run through a real server by testdata/pgss/record.sh.
+// 278 statements run through a real server by testdata/pgss/record.sh,
+// with literals or with bind parameters.
 //
 //   - Statements PostgreSQL puts in one group get one fingerprint (literal
 //     values, comments, case, white space, casts of literals, typed
@@ -29,9 +30,10 @@ type pgssRecord struct {
 //   - Statements of different PostgreSQL groups share a fingerprint only
 //     where the README says culprit merges them: IN lists of two or more
 //     elements whatever their length, repeated VALUES rows whatever their
-//     number, and literals of different types (culprit does not know
-//     column types). Each merged group's normalised text, as PostgreSQL
-//     wrote it, must become the same once those three are undone.
+//     number, literals of different types (culprit does not know column
+//     types), and a bind parameter against a literal in its place. Each
+//     merged group's normalised text, as PostgreSQL wrote it, must become
+//     the same once those four are undone.
 func TestFingerprintPostgreSQLGroups(t *testing.T) {
 	f, err := os.Open("testdata/pgss/pg15.jsonl")
 	if err != nil {
@@ -118,17 +120,21 @@ var (
 	pgRowsRe    = regexp.MustCompile(`\((?:\$, )*\$\)(?:, \((?:\$, )*\$\))+`)
 	pgCommentRe = regexp.MustCompile(`/\*.*?\*/|--[^\n]*`)
 	pgSpaceRe   = regexp.MustCompile(`\s+`)
+	pgPrepareRe = regexp.MustCompile(`^prepare \w+ as `)
 )
 
 // pgCanonical undoes in a normalised text of pg_stat_statements what
 // culprit deliberately merges: parameter numbers (PostgreSQL numbers
 // them, so the length of an earlier list shifts them), IN lists of two or
-// more elements, repeated VALUES rows of one arity. Literal types are
-// already invisible in the text. It also folds what pg_stat_statements
-// keeps of the first statement seen (comments, case, spacing).
+// more elements, repeated VALUES rows of one arity, and the PREPARE … AS
+// that a statement run with bind parameters is recorded under (the
+// parameters themselves read $n like literals). Literal types are already
+// invisible in the text. It also folds what pg_stat_statements keeps of
+// the first statement seen (comments, case, spacing).
 func pgCanonical(s string) string {
 	s = pgCommentRe.ReplaceAllString(s, " ")
 	s = strings.TrimSpace(pgSpaceRe.ReplaceAllString(strings.ToLower(s), " "))
+	s = pgPrepareRe.ReplaceAllString(s, "")
 	s = pgParamRe.ReplaceAllString(s, "$")
 	s = pgInListRe.ReplaceAllString(s, "in (…)")
 	return pgRowsRe.ReplaceAllStringFunc(s, func(rows string) string {

@@ -55,6 +55,14 @@ q() {
 	printf "SELECT json_build_object('queryid', queryid::text, 'normalized', query, 'statement', \$culprit\$%s\$culprit\$) FROM pg_stat_statements WHERE query NOT LIKE '%%pg_stat_statements%%';\n" "$1" >>"$script"
 }
 
+# qp NAME QUERY ARGS runs QUERY with bind parameters: PREPARE makes the
+# query tree a driver's Parse message makes, EXECUTE binds ARGS. The
+# statement recorded is QUERY, as a driver would send it.
+qp() {
+	printf 'SELECT pg_stat_statements_reset() \\g /dev/null\nPREPARE %s AS %s \\g /dev/null\nEXECUTE %s(%s) \\g /dev/null\nDEALLOCATE %s \\g /dev/null\n' "$1" "$2" "$1" "$3" "$1" >>"$script"
+	printf "SELECT json_build_object('queryid', queryid::text, 'normalized', query, 'statement', \$culprit\$%s\$culprit\$) FROM pg_stat_statements WHERE query NOT LIKE '%%pg_stat_statements%%';\n" "$2" >>"$script"
+}
+
 # Literal values, signs and numbers of one type.
 for n in 1 2 3 7 42 199 0 -1 -17 2147483647; do
 	q "SELECT name, price FROM plants WHERE id = $n"
@@ -143,6 +151,13 @@ for v in 2 2.5 3 3.75; do
 	q "SELECT name FROM plants WHERE price > $v"
 	q "SELECT name FROM plants WHERE id = $v"
 done
+# Bind parameters.
+qp s1 'SELECT name FROM plants WHERE id = $1' 5
+qp s2 'select name from plants where id = $1' 9
+qp s3 'SELECT name FROM plants WHERE id = $1 AND genus = $2' "5, 'Rosa'"
+qp s4 'SELECT name FROM plants WHERE id IN ($1, $2, $3)' '1, 2, 3'
+qp s5 'UPDATE plants SET price = $1 WHERE id = $2' '2.5, 3'
+qp s6 'UPDATE plants  SET price = $1  WHERE id = $2 /* retry */' '4.5, 3'
 # Statements of different shapes: never one group.
 q "SELECT name FROM plants WHERE id = 1 OR id = 2"
 q "SELECT name FROM plants WHERE genus = 'Rosa' ORDER BY name"
