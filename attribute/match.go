@@ -26,6 +26,16 @@ func matchFunction(pattern, name string) bool {
 	return !identByte(name[len(pattern)])
 }
 
+// rulePath returns the form of a '/'-separated file path that file rules
+// match: Debian's Python installs packages in dist-packages where pip
+// uses site-packages, and the rules name the latter.
+func rulePath(file string) string {
+	if strings.Contains(file, "/dist-packages/") {
+		return strings.ReplaceAll(file, "/dist-packages/", "/site-packages/")
+	}
+	return file
+}
+
 // identByte reports whether c can continue an identifier: an ASCII
 // letter, digit or underscore, or a byte of a multi-byte UTF-8 character
 // (Go and JVM identifiers may hold Unicode letters).
@@ -158,8 +168,9 @@ func newFileFacts(p string, rules []Rule, app []string) *fileFacts {
 		return ff
 	}
 	ff.dir = file[:strings.LastIndexByte(file, '/')+1]
+	match := rulePath(file)
 	for i := range rules {
-		if r := &rules[i]; r.File != "" && strings.Contains(file, r.File) {
+		if r := &rules[i]; r.File != "" && strings.Contains(match, r.File) {
 			ff.rules[i/64] |= 1 << (i % 64)
 		}
 	}

@@ -68,7 +68,8 @@ type Rule struct {
 	Contains string `json:"contains,omitempty"`
 	// Regexp matches function names (RE2 syntax, unanchored).
 	Regexp string `json:"regexp,omitempty"`
-	// File matches source file paths that contain it ('/' separators).
+	// File matches source file paths that contain it ('/' separators;
+	// site-packages/ also matches Debian's dist-packages/).
 	File string `json:"file,omitempty"`
 	// Span matches span frames: "client:database", "client:rpc",
 	// "client:http", "client:messaging" (client or producer spans with
@@ -137,7 +138,7 @@ func (r *Rule) Matches(f *traces.Frame) bool {
 	case r.re != nil:
 		return r.re.MatchString(f.Function)
 	case r.File != "":
-		return f.File != "" && strings.Contains(slashPath(f.File), r.File)
+		return f.File != "" && strings.Contains(rulePath(slashPath(f.File)), r.File)
 	case r.Span != "":
 		if !f.Span {
 			return false

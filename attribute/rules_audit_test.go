@@ -119,7 +119,7 @@ var ruleAudit = map[string]struct{ match, not []string }{
 	"io.grpc.stub.ServerCalls":                                     {[]string{"io.grpc.stub.ServerCalls$UnaryServerCallHandler$UnaryServerCallListener.onHalfClose"}, []string{"io.grpc.stub.ServerCallStreamObserver.onNext"}},
 	"org.springframework.kafka.listener.":                          {[]string{"org.springframework.kafka.listener.KafkaMessageListenerContainer$ListenerConsumer.run"}, []string{"org.springframework.kafka.core.KafkaTemplate.send"}},
 	// Python: file paths where pip installs the packages.
-	"site-packages/psycopg2/":             {[]string{"/venv/lib/python3.11/site-packages/psycopg2/extras.py"}, []string{"/venv/lib/python3.11/site-packages/psycopg2_pool/pool.py"}},
+	"site-packages/psycopg2/":             {[]string{"/venv/lib/python3.11/site-packages/psycopg2/extras.py", "/usr/lib/python3/dist-packages/psycopg2/extras.py"}, []string{"/venv/lib/python3.11/site-packages/psycopg2_pool/pool.py"}},
 	"site-packages/psycopg/":              {[]string{"/venv/lib/python3.11/site-packages/psycopg/cursor.py"}, []string{"/venv/lib/python3.11/site-packages/psycopg_pool/pool.py"}},
 	"site-packages/asyncpg/":              {[]string{"/venv/lib/python3.11/site-packages/asyncpg/connection.py"}, []string{"/venv/lib/python3.11/site-packages/asyncpg_listen/listener.py"}},
 	"site-packages/pymysql/":              {[]string{"/venv/lib/python3.11/site-packages/pymysql/connections.py"}, []string{"/venv/lib/python3.11/site-packages/pymysqlpool/pool.py"}},
