@@ -26,6 +26,12 @@ import (
 //     recalled from memory of those sources, not read here. Python and
 //     Node.js rules match file paths: the paths are where pip and npm
 //     install those packages.
+//   - Invented on purpose: the negatives that extend a pattern's last
+//     identifier by a letter (mysqlx, postgresqlx, hibernatex, jooqx,
+//     mongodbx, java.sqlx, feignx, restyx, amqp091-gox, ServeHTTPx,
+//     doDispatchX, HttpClientImplX, HttpURLConnectionX, django/dbx,
+//     sqlite3_helper.py) probe the identifier boundary; they name no real
+//     package.
 var ruleAudit = map[string]struct{ match, not []string }{
 	// Go: databases.
 	"github.com/jackc/pgx":                           {[]string{"github.com/jackc/pgx/v5.(*Conn).Query", "github.com/jackc/pgx/v5/pgxpool.(*Pool).Query", "github.com/jackc/pgx/v5/pgconn.(*PgConn).Exec", "github.com/jackc/pgx.(*Conn).Query"}, []string{"github.com/jackc/pgxlisten.(*Listener).Listen", "github.com/jackc/puddle/v2.(*Pool[...]).Acquire"}},
