@@ -8,6 +8,7 @@ package attribute
 // Fingerprint.
 
 import (
+	"encoding/json"
 	"os"
 	"path/filepath"
 	"slices"
@@ -508,6 +509,17 @@ func oracleSeeds(tb testing.TB) []string {
 			}
 		}
 	}
+	// The statements PostgreSQL grouped (pgss_test.go).
+	pgss, err := os.ReadFile(filepath.Join("testdata", "pgss", "pg15.jsonl"))
+	if err != nil {
+		tb.Fatal(err)
+	}
+	for line := range strings.Lines(string(pgss)) {
+		var r pgssRecord
+		if json.Unmarshal([]byte(line), &r) == nil && r.Statement != "" {
+			seeds = append(seeds, r.Statement)
+		}
+	}
 	return append(seeds,
 		"SELECT id, name FROM plants WHERE id IN (1, 2, 3) AND x IN ((1), 2) AND y IN (-1, +2, $3, ?, :a)",
 		"INSERT INTO t (a, b) VALUES (1, 'x'), (2, 'y'), (3, now()), (4, now()), (-5, +6)",
@@ -516,6 +528,10 @@ func oracleSeeds(tb testing.TB) []string {
 		"select - - 1, + + 2, -(3), a-- c\n-4, b/* c */-5, -1e-3, -.5, - 0x1F, -'s'",
 		"SELECT \"A\".\"B\"::TEXT, [x] ], `y`.`z`, a[1:2], @@Version, @x, :=, ->> ,#>> , !~* ,<=>",
 		"SELECT E'x', N'y', X'1', B'0', U&'z', Q'[q]', nq'{w}', q'<v>', q'(u)', q'!t!', u&x, e 'a'",
+		"SELECT ?::int::text, $1::int[], '1'::numeric(8,2), x::date, cast(? as int), CAST (- 1 AS bigint), cast(? as int(4))",
+		"SELECT date '2024-01-01', t.date '1', date -1, timestamp ?, TIMESTAMPTZ true, time, interval '1 day'",
+		"SELECT * FROM t WHERE a IN (1) AND b NOT IN (?) AND c IN (1, 2) AND d NOT IN ((1)) AND e IN (cast(? as int)) AND f IN ('1'::int, 2)",
+		"VALUES (1) in (2), (3) not in (4); SELECT ?::",
 	)
 }
 
