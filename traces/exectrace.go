@@ -81,6 +81,9 @@ const (
 	execCalls
 )
 
+// FormatExecTrace is the Input.Format of Go execution traces.
+const FormatExecTrace = "go-exectrace"
+
 // LooksLikeExecTrace reports whether prefix starts a Go execution trace:
 // "go 1.NN trace" and three NUL bytes.
 func LooksLikeExecTrace(prefix []byte) bool {
