@@ -33,6 +33,9 @@ type Options struct {
 	// and request), for callers that only report. Distributions are still
 	// computed.
 	DropRequestVectors bool
+	// Helpers says whether shared access helpers are detected and seen
+	// through (named ones, Rules.Helpers, always are). Zero: HelpersAuto.
+	Helpers HelperMode
 	// Thresholds for findings; zero fields take their defaults.
 	Findings FindingOptions
 
@@ -125,6 +128,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		return a.Entry < b.Entry
 	})
 	res.Findings = findings(res, accs, fo, denom)
+	res.Helpers = sharedHelpers(c, wk.w.helpers, ch.viaCost)
 	return res
 }
 

@@ -20,7 +20,8 @@ type charger struct {
 	accOf     []*causeAcc   // root-cause frame → its accumulator
 	entryList []*entryState // by the walker's entry index
 	requests  reqSet
-	r         charge // the record being charged, reused
+	viaCost   map[int32]int64 // cost charged through each shared helper (classifier function)
+	r         charge          // the record being charged, reused
 }
 
 // entryState is one entry point being totalled.
@@ -33,10 +34,11 @@ type entryState struct {
 
 func newCharger(wk *walk, rec *recursionFinder) *charger {
 	return &charger{
-		wr:    wk.newWalker(),
-		rec:   rec.fork(),
-		accs:  map[string]*causeAcc{},
-		accOf: make([]*causeAcc, len(wk.src.Frames)),
+		wr:      wk.newWalker(),
+		rec:     rec.fork(),
+		accs:    map[string]*causeAcc{},
+		viaCost: map[int32]int64{},
+		accOf:   make([]*causeAcc, len(wk.src.Frames)),
 	}
 }
 
@@ -62,6 +64,9 @@ func (ch *charger) merge(o *charger) {
 	t.Unattributed += o.totals.Unattributed
 	t.BoundarySamples += o.totals.BoundarySamples
 	ch.requests.union(&o.requests)
+	for fn, v := range o.viaCost {
+		ch.viaCost[fn] += v
+	}
 	didMap := make([]int32, len(o.wr.details))
 	for i, dk := range o.wr.details {
 		didMap[i], _ = ch.wr.detailID(dk)
@@ -152,6 +157,9 @@ func (ch *charger) charge(r *charge) {
 		et.Network += val
 	}
 	ch.totals.BoundarySamples += samples
+	if r.via != 0 {
+		ch.viaCost[ch.wr.c.fn[ch.wr.t.Frame(r.via)]] += val
+	}
 	did := r.detail
 	dk := &ch.wr.details[did]
 	if len(r.causes) == 0 {

@@ -89,7 +89,7 @@ func Explain(t *callgraph.Tree, c *Classifier, opts Options, pattern *regexp.Reg
 			}
 			d := node.details[dk]
 			if d == nil {
-				d = &Detail{Kind: dk.kind, System: dk.system, Statement: dk.statement, Peer: dk.peer}
+				d = dk.newDetail()
 				node.details[dk] = d
 			}
 			d.Cost += r.cost

@@ -96,9 +96,15 @@ type walkState struct {
 	// ("sql") a more specific driver frame names, that frame. Trees cut at
 	// boundaries have no such nodes, so it is mostly empty.
 	refined map[callgraph.NodeID]traces.FrameID
+	// helpers are the shared helpers seen through, by classifier function
+	// index; via holds, per node at or below a boundary, the helper seen
+	// through there (0: none). Both nil when there are no helpers, and
+	// lastApp then is the nearest application node above the boundary.
+	helpers map[int32]*helperInfo
+	via     []callgraph.NodeID
 }
 
-func newWalkState(t *callgraph.Tree, c *Classifier) *walkState {
+func newWalkState(t *callgraph.Tree, c *Classifier, helpers HelperMode) *walkState {
 	n := t.Len()
 	w := &walkState{
 		t:        t,
@@ -140,6 +146,9 @@ func newWalkState(t *callgraph.Tree, c *Classifier) *walkState {
 				w.entryApp[id] = id
 			}
 		}
+	}
+	if hs := findHelpers(t, c, w, helpers); hs != nil {
+		w.seeThroughHelpers(c, hs)
 	}
 	return w
 }
@@ -185,7 +194,7 @@ func newWalk(t *callgraph.Tree, c *Classifier, opts *Options, withRequests bool)
 		vi = src.DefaultValue
 	}
 	wk := &walk{
-		t: t, c: c, src: src, w: newWalkState(t, c), vi: vi, sampleIx: sampleIndex(src, vi),
+		t: t, c: c, src: src, w: newWalkState(t, c, opts.Helpers), vi: vi, sampleIx: sampleIndex(src, vi),
 		spans: src.Kind == traces.Spans, inclusive: opts.Inclusive, literals: opts.ShowLiterals,
 		entryLabels: opts.EntryLabels,
 	}
@@ -237,6 +246,12 @@ type detailKey struct {
 	system    string
 	statement string
 	peer      string
+	via       string // the shared helper seen through, "" if none
+}
+
+// newDetail returns an empty tally of detail k.
+func (k *detailKey) newDetail() *Detail {
+	return &Detail{Kind: k.kind, System: k.system, Statement: k.statement, Peer: k.peer, Via: k.via}
 }
 
 // entryKey caches a path's entry point: it depends only on the entry
@@ -318,18 +333,30 @@ func (wr *walker) next(pi int, r *charge) {
 		}
 	}
 	sys := pathSystem(wr.c, t, w, p, leaf, b)
+	via := ""
+	if w.via != nil {
+		if r.via = w.via[b]; r.via != 0 {
+			via = src.Frames[t.Frame(r.via)].Function
+		}
+	}
 	dkey := uint64(uint32(t.Frame(b)))<<32 | uint64(uint32(p.Call))
 	did, ok := wr.detailOf[dkey]
-	if !ok || wr.details[did].system != sys {
-		if did, ok = wr.detailID(detail(src, t, p, b, sys, r.kind, wr.literals)); !ok {
-			wr.detailOf[dkey] = did // the first system seen; others are looked up by value
+	if !ok || wr.details[did].system != sys || wr.details[did].via != via {
+		dk := detail(src, t, p, b, sys, r.kind, wr.literals)
+		dk.via = via
+		if did, ok = wr.detailID(dk); !ok {
+			wr.detailOf[dkey] = did // the first system and helper seen; others are looked up by value
 		}
 	}
 	r.detail = did
 	if wr.inclusive {
 		causes, ok := wr.causesOf[b]
 		if !ok {
-			causes = appAbove(t, wr.c, b)
+			from := t.Parent(b)
+			if r.via != 0 {
+				from = w.lastApp[b] // the helpers below the root cause are seen through
+			}
+			causes = appFrom(t, wr.c, from)
 			wr.causesOf[b] = causes
 		}
 		r.causes = causes
@@ -415,13 +442,13 @@ func pathSystem(c *Classifier, t *callgraph.Tree, w *walkState, p *traces.Path, 
 	return sys
 }
 
-// appAbove lists the distinct application functions above boundary node b,
-// outermost first (one node per function: the nearest to the boundary).
-func appAbove(t *callgraph.Tree, c *Classifier, b callgraph.NodeID) []callgraph.NodeID {
+// appFrom lists the distinct application functions at node from and
+// above it, outermost first (one node per function: the deepest).
+func appFrom(t *callgraph.Tree, c *Classifier, from callgraph.NodeID) []callgraph.NodeID {
 	src := t.Source()
 	seen := map[string]bool{}
 	var out []callgraph.NodeID
-	for n := t.Parent(b); n != callgraph.Root; n = t.Parent(n) {
+	for n := from; n != callgraph.Root; n = t.Parent(n) {
 		f := t.Frame(n)
 		if c.Verdict(f).Class != Application {
 			continue
