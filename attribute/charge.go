@@ -2,7 +2,6 @@ package attribute
 
 import (
 	"sort"
-	"strconv"
 	"sync"
 
 	"github.com/culprithq/culprit/callgraph"
@@ -214,5 +213,3 @@ func distribution(xs []float64) *Distribution {
 	sort.Float64s(xs)
 	return &Distribution{Median: Quantile(xs, 0.5), P95: Quantile(xs, 0.95), Max: xs[len(xs)-1]}
 }
-
-func itoa(n int64) string { return strconv.FormatInt(n, 10) }

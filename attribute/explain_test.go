@@ -1,6 +1,7 @@
 package attribute
 
 import (
+	"fmt"
 	"regexp"
 	"strings"
 	"testing"
@@ -13,7 +14,7 @@ import (
 func explainPath(n *ExplainNode) []string {
 	var out []string
 	for n != nil {
-		out = append(out, n.Function+" ["+n.Class+"] "+itoa(n.Cost)+"/"+itoa(int64(n.Skipped)))
+		out = append(out, fmt.Sprintf("%s [%s] %d/%d", n.Function, n.Class, n.Cost, n.Skipped))
 		if len(n.Children) == 0 {
 			break
 		}

@@ -35,14 +35,6 @@ func ParseHelperMode(s string) (HelperMode, error) {
 	return 0, fmt.Errorf("unknown helper mode %q; valid: %s", s, strings.Join(HelperModes, ", "))
 }
 
-// String returns the mode's name.
-func (m HelperMode) String() string {
-	if int(m) < len(HelperModes) {
-		return HelperModes[m]
-	}
-	return "unknown"
-}
-
 // Detection thresholds of shared helpers (common practice, chosen for
 // this tool: a function that one package's code calls is that package's
 // design; one that several packages go through is plumbing).

@@ -316,7 +316,8 @@ func (wr *walker) next(pi int, r *charge) {
 	r.total = !wr.spans || len(p.Frames) == 1
 	switch {
 	case b == 0:
-		return // other cost
+		r.state = chargeOther
+		return
 	case wr.spans && len(p.Frames) > t.Depth(b):
 		r.state = chargeInside
 		return

@@ -41,10 +41,10 @@ func TestTreeAndGraphMethodsExample(t *testing.T) {
 		t.Errorf("tree has %d nodes, want 12", tree.Len())
 	}
 	mainNode := tree.Parent(tree.Parent(tree.Parent(tree.Leaf(0))))
-	if got := tree.Total(mainNode, 0); got != 65 {
+	if got := total(tree, mainNode); got != 65 {
 		t.Errorf("total(main) = %d, want 65", got)
 	}
-	if got := tree.Self(tree.Leaf(2), 0); got != 20 {
+	if got := self(tree, tree.Leaf(2)); got != 20 {
 		t.Errorf("self(render) = %d, want 20", got)
 	}
 
@@ -62,12 +62,6 @@ func TestFuncGraphMergedCycle(t *testing.T) {
 		if got[i] != want[i] {
 			t.Errorf("Recursive()[%d] = %v, want %v (A↔B merged cycle, walk self-call)", i, got[i], want[i])
 		}
-	}
-	if c := g.Callees(0); len(c) != 3 || c[0] != 1 || c[1] != 2 || c[2] != 3 {
-		t.Errorf("callees of main = %v, want [1 2 3] (merged, in ID order)", c)
-	}
-	if g.Len() != 5 || len(g.Callees(4)) != 0 {
-		t.Errorf("len %d, callees of db %v", g.Len(), g.Callees(4))
 	}
 }
 
@@ -97,21 +91,16 @@ func TestFuncGraphTarjanExample(t *testing.T) {
 	}
 }
 
-func TestTreeWalk(t *testing.T) {
+func TestTreeSharedPrefix(t *testing.T) {
 	order := []string{"a>b", "a>c"}
 	src := source(map[string]int64{"a>b": 2, "a>c": 3}, order)
 	tree := NewTree(src, TreeOptions{})
 	a := tree.Parent(tree.Leaf(0))
-	if tree.Parent(tree.Leaf(1)) != a || tree.Total(a, 0) != 5 {
+	if tree.Parent(tree.Leaf(1)) != a || total(tree, a) != 5 {
 		t.Error("b and c must share their parent a, of total 5")
 	}
-	var visited []string
-	tree.Walk(func(n NodeID) bool {
-		visited = append(visited, src.Frames[tree.Frame(n)].Function)
-		return true
-	})
-	if len(visited) != 3 || visited[0] != "a" || visited[1] != "b" {
-		t.Errorf("walk order = %v, want [a b c]", visited)
+	if got := tree.Path(tree.Leaf(1)); len(got) != 2 || src.Frames[got[0]].Function != "a" || src.Frames[got[1]].Function != "c" {
+		t.Errorf("path of a>c = %v", got)
 	}
 }
 
@@ -124,13 +113,8 @@ func TestTreeDeepRecursionNoStackOverflow(t *testing.T) {
 	}
 	src.Paths.Append(traces.Path{Frames: frames, Values: []int64{1}})
 	tree := NewTree(src, TreeOptions{})
-	if tree.Len() != 100_001 || tree.Depth(tree.Leaf(0)) != 100_000 || tree.Total(tree.Leaf(0), 0) != 1 {
+	if tree.Len() != 100_001 || tree.Depth(tree.Leaf(0)) != 100_000 || len(tree.Path(tree.Leaf(0))) != 100_000 {
 		t.Errorf("tree of %d nodes, leaf depth %d", tree.Len(), tree.Depth(tree.Leaf(0)))
-	}
-	n := 0
-	tree.Walk(func(NodeID) bool { n++; return true })
-	if n != 100_000 {
-		t.Errorf("walk visited %d nodes", n)
 	}
 }
 
@@ -182,18 +166,45 @@ func TestTreeWideNodes(t *testing.T) {
 	}
 	main := tree.Parent(tree.Parent(tree.Leaf(0)))
 	var children []NodeID
-	tree.Walk(func(n NodeID) bool {
-		if tree.Parent(n) == main {
-			children = append(children, n)
+	for n := range tree.Len() {
+		if n > 0 && tree.Parent(NodeID(n)) == main {
+			children = append(children, NodeID(n))
 		}
-		return true
-	})
+	}
 	if n := len(children); n != 20 {
 		t.Errorf("main has %d children, want 20", n)
 	}
 	for _, c := range children {
-		if tree.Total(c, 0) != 3 {
-			t.Errorf("%s: total %d, want 3", tree.src.Frames[tree.Frame(c)].Function, tree.Total(c, 0))
+		if total(tree, c) != 3 {
+			t.Errorf("%s: total %d, want 3", tree.src.Frames[tree.Frame(c)].Function, total(tree, c))
 		}
 	}
+}
+
+// self adds up the first value of the paths that end at n.
+func self(t *Tree, n NodeID) int64 {
+	var v int64
+	for pi := range t.src.Paths.Len() {
+		if t.Leaf(pi) == n {
+			v += t.src.Paths.Value(pi, 0)
+		}
+	}
+	return v
+}
+
+// total adds up the first value of the paths through n.
+func total(t *Tree, n NodeID) int64 {
+	var v int64
+	for pi := range t.src.Paths.Len() {
+		for m := t.Leaf(pi); ; m = t.Parent(m) {
+			if m == n {
+				v += t.src.Paths.Value(pi, 0)
+				break
+			}
+			if m == Root {
+				break
+			}
+		}
+	}
+	return v
 }

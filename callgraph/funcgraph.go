@@ -38,15 +38,6 @@ func NewFuncGraph(n int, calls []Call) *FuncGraph {
 	return &FuncGraph{a: newAdjacency(n, packed)}
 }
 
-// Len returns the number of functions.
-func (g *FuncGraph) Len() int { return g.a.n }
-
-// Callees returns the functions f calls, in ID order; a function that
-// calls itself lists itself. The slice must not be modified.
-func (g *FuncGraph) Callees(f FuncID) []FuncID {
-	return g.a.fromTo[g.a.fromOff[f]:g.a.fromOff[f+1]]
-}
-
 // Recursive reports, by FuncID, the functions on a cycle: members of a
 // strongly connected component of two or more functions, or functions
 // that call themselves. Components are Tarjan's ("Depth-first search and

@@ -1,9 +1,6 @@
 package callgraph
 
 import (
-	"slices"
-	"sync"
-
 	"github.com/culprithq/culprit/traces"
 )
 
@@ -28,17 +25,13 @@ type treeNode struct {
 // cheaper than hashing, and keeps the map small.
 const listedChildren = 8
 
-// Tree is a weighted calling-context tree. Build one with NewTree.
+// Tree is a calling-context tree. Build one with NewTree. The values stay
+// on the source's paths: each path maps to its leaf node (Leaf), and
+// whoever needs a node's value adds up the paths through it.
 type Tree struct {
 	src   *traces.Source
 	nodes []treeNode
-	nv    int
-	// self and total are made on first use (attribution needs neither):
-	// len(nodes)*nv values of the paths ending at each node, and of
-	// those through it.
-	sums        sync.Once
-	self, total []int64
-	leaf        []NodeID
+	leaf  []NodeID
 }
 
 // TreeOptions control NewTree. The zero value keeps every frame.
@@ -55,13 +48,11 @@ type TreeOptions struct {
 
 // NewTree merges the paths of src by common prefix.
 func NewTree(src *traces.Source, opts TreeOptions) *Tree {
-	nv := len(src.ValueTypes)
 	t := &Tree{
 		src: src,
 		// The bound counts whole paths; capacity beyond what is used is
 		// never touched, so it costs address space, not memory.
 		nodes: make([]treeNode, 1, newNodesBound(src)+1),
-		nv:    nv,
 		leaf:  make([]NodeID, src.Paths.Len()),
 	}
 	b := treeBuilder{t: t, index: map[uint64]NodeID{}, children: make([]uint8, 1, cap(t.nodes))}
@@ -197,38 +188,6 @@ func (t *Tree) Parent(n NodeID) NodeID { return t.nodes[n].parent }
 // Depth returns the number of frames on n's path (0 for the root).
 func (t *Tree) Depth(n NodeID) int { return int(t.nodes[n].depth) }
 
-// Self returns value v summed over the paths that end at n.
-func (t *Tree) Self(n NodeID, v int) int64 {
-	t.sums.Do(t.sum)
-	return t.self[int(n)*t.nv+v]
-}
-
-// Total returns value v summed over the paths through n. For a Spans
-// source nested spans are counted at every level (see traces.Kind).
-func (t *Tree) Total(n NodeID, v int) int64 {
-	t.sums.Do(t.sum)
-	return t.total[int(n)*t.nv+v]
-}
-
-// sum adds the paths' values up into self and total.
-func (t *Tree) sum() {
-	nv, paths := t.nv, &t.src.Paths
-	t.self = make([]int64, len(t.nodes)*nv)
-	for pi := range paths.Len() {
-		base := int(t.leaf[pi]) * nv
-		for v := range nv {
-			t.self[base+v] += paths.Value(pi, v)
-		}
-	}
-	t.total = slices.Clone(t.self)
-	for n := len(t.nodes) - 1; n > 0; n-- {
-		pb := int(t.nodes[n].parent) * nv
-		for v := range nv {
-			t.total[pb+v] += t.total[n*nv+v]
-		}
-	}
-}
-
 // Path returns the frames from the root's first child down to n.
 func (t *Tree) Path(n NodeID) []traces.FrameID {
 	out := make([]traces.FrameID, t.nodes[n].depth)
@@ -237,26 +196,4 @@ func (t *Tree) Path(n NodeID) []traces.FrameID {
 		n = t.nodes[n].parent
 	}
 	return out
-}
-
-// Walk calls visit for every node but the root in depth-first pre-order,
-// children in creation order. It uses no recursion, so arbitrarily deep
-// trees are safe. If visit returns false the node's subtree is skipped.
-func (t *Tree) Walk(visit func(n NodeID) bool) {
-	// Children are linked newest first, so pushing them in link order
-	// leaves the oldest on top of the stack.
-	stack := make([]NodeID, 0, 64)
-	pushChildren := func(n NodeID) {
-		for c := t.nodes[n].firstChild; c != 0; c = t.nodes[c].nextSibling {
-			stack = append(stack, c)
-		}
-	}
-	pushChildren(Root)
-	for len(stack) > 0 {
-		n := stack[len(stack)-1]
-		stack = stack[:len(stack)-1]
-		if visit(n) {
-			pushChildren(n)
-		}
-	}
 }

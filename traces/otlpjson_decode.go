@@ -282,7 +282,7 @@ func unmarshal(rec []byte, v any) (err error) {
 			err = fmt.Errorf("JSON decoder failure: %v", p)
 		}
 	}()
-	return json.UnmarshalNoEscape(rec, v, json.DecodeNoCopyString())
+	return json.UnmarshalWithOption(rec, v, json.DecodeNoCopyString())
 }
 
 // requests converts the spans of decoded requests and adds them to the
@@ -314,6 +314,35 @@ func (d *decoder) requests(reqs []jsonRequest, line int64) error {
 	return nil
 }
 
+// containerInNumberField returns the offset of the first object or array
+// that is the value of an integer field of the types above
+// (startTimeUnixNano, endTimeUnixNano, intValue), and the field's name;
+// -1 if there is none.
+func containerInNumberField(rec []byte) (int, string) {
+	best, bestKey := -1, ""
+	for _, key := range []string{"startTimeUnixNano", "endTimeUnixNano", "intValue"} {
+		quoted := []byte(`"` + key + `"`)
+		for from := 0; ; {
+			i := bytes.Index(rec[from:], quoted)
+			if i < 0 {
+				break
+			}
+			j := from + i + len(quoted)
+			for j < len(rec) && (rec[j] == ' ' || rec[j] == '\t' || rec[j] == '\n' || rec[j] == '\r' || rec[j] == ':') {
+				j++
+			}
+			if j < len(rec) && (rec[j] == '{' || rec[j] == '[') {
+				if best < 0 || j < best {
+					best, bestKey = j, key
+				}
+				break
+			}
+			from = j
+		}
+	}
+	return best, bestKey
+}
+
 // decodeFailure turns a decoding error into a ParseError with the line,
 // column and an excerpt of where it happened.
 func decodeFailure(name string, rec []byte, line, col int64, err error) *ParseError {
@@ -332,10 +361,18 @@ func decodeFailure(name string, rec []byte, line, col int64, err error) *ParseEr
 			field = "top level"
 		}
 		msg = fmt.Sprintf("not OTLP/JSON: %s: unexpected JSON %s", field, te.Value)
-		if te.Type == reflect.TypeFor[json.Number]() {
+		isNumber := te.Type == reflect.TypeFor[json.Number]()
+		if isNumber {
 			msg = "not OTLP/JSON: invalid integer " + strings.TrimPrefix(te.Value, "string ")
 		}
 		switch _, quoted, _ := strings.Cut(te.Value, " "); {
+		case isNumber && te.Offset == 0 && (te.Value == "object" || te.Value == "array"):
+			// The decoder says neither where nor which field: find the
+			// first integer field holding an object or array.
+			var key string
+			if at, key = containerInNumberField(rec); at >= 0 {
+				msg = fmt.Sprintf("not OTLP/JSON: %s: expected an integer, found an %s", key, te.Value)
+			}
 		case te.Offset > 0:
 			at = valueStart(rec, int(te.Offset))
 		case strings.HasPrefix(quoted, `"`):

@@ -128,14 +128,10 @@ func corpusCases() []corpusCase {
 		{name: "spans is a string", file: "wrong-type-spans.jsonl", gen: wrongTypeSpans,
 			about: `JSON lines whose second line has "spans": "x"`, status: exitError,
 			want: []string{"{file}:2:72: not OTLP/JSON: resourceSpans.0.scopeSpans.0.spans: unexpected JSON string"}},
-		// Known gap: the position is the document's start (line 1, no
-		// column) and the field is not named; the value is at line 12,
-		// column 36. Want "{file}:12:36: not OTLP/JSON:
-		// resourceSpans.0.scopeSpans.0.spans.0.startTimeUnixNano: expected
-		// an integer, found an object".
+		// The value {} is at line 12, column 36.
 		{name: "time is an object", file: "wrong-type-time.json", gen: wrongTypeTime,
 			about: `a pretty-printed document with "startTimeUnixNano": {}`, status: exitError,
-			want: []string{"{file}:1: not OTLP/JSON: invalid integer object"}},
+			want: []string{"{file}:12:36: not OTLP/JSON: startTimeUnixNano: expected an integer, found an object"}},
 		// Invalid UTF-8 is replaced by U+FFFD (as encoding/json does), so
 		// no invalid byte reaches a report.
 		// A repair, so it is counted in the warnings (and refused by --strict).
