@@ -43,6 +43,19 @@ func BenchmarkAttribute(b *testing.B) {
 	}
 }
 
+// BenchmarkAttributeHelpersOff is BenchmarkAttribute without detecting
+// shared helpers. On these random stacks nearly every application
+// function is called from several packages: the worst case of detection.
+func BenchmarkAttributeHelpersOff(b *testing.B) {
+	tree, cls := loadTree(b, buildProfile(b, randomStacks(20_000, 1)), DefaultRules())
+	b.ReportAllocs()
+	for b.Loop() {
+		if res := Attribute(tree, cls, Options{Helpers: HelpersOff}); len(res.Causes) == 0 {
+			b.Fatal("no root causes")
+		}
+	}
+}
+
 // BenchmarkAttributeSpans measures the attribution walk alone on a span
 // source of 3,000 traces (about 40,000 spans: enough to be charged on
 // every core), the tree and classification built once.

@@ -81,7 +81,7 @@ func newRecursionFinder(t *callgraph.Tree, c *Classifier, w *walkState) *recursi
 	}
 	// The function graph of application functions: an edge between
 	// consecutive application frames above a boundary.
-	var calls []callgraph.Call
+	var calls callgraph.Calls
 	seen := newEdgeSet(len(r.names))
 	for i := 1; i < t.Len(); i++ {
 		n := callgraph.NodeID(i)
@@ -95,10 +95,10 @@ func newRecursionFinder(t *callgraph.Tree, c *Classifier, w *walkState) *recursi
 		}
 		caller := r.funcOf[t.Frame(above)]
 		if seen.add(caller, fn, uint64(uint32(caller))<<32|uint64(uint32(fn))) {
-			calls = append(calls, callgraph.Call{Caller: callgraph.FuncID(caller), Callee: callgraph.FuncID(fn)})
+			calls.Add(callgraph.FuncID(caller), callgraph.FuncID(fn))
 		}
 	}
-	r.candidate = callgraph.NewFuncGraph(len(r.names), calls).Recursive()
+	r.candidate = callgraph.NewFuncGraph(len(r.names), &calls).Recursive()
 	for _, c := range r.candidate {
 		if c {
 			r.candidates++

@@ -129,59 +129,65 @@ func findHelpers(t *callgraph.Tree, c *Classifier, w *walkState, mode HelperMode
 	}
 	if mode == HelpersAuto {
 		// The caller of each application node right above a boundary:
-		// the nearest application node above it of another function.
-		type pair struct{ helper, caller int32 }
-		pairs := map[pair]traces.FrameID{} // → a frame of the caller
-		done := map[callgraph.NodeID]bool{}
-		helperPkg := map[int32]string{}
+		// the nearest application node above it of another function,
+		// as helper<<32 | caller (classifier function indices).
+		var pairs []uint64
+		done := make([]uint64, (t.Len()+63)/64) // bit set of helper nodes seen
+		pkgs := make([]string, len(c.fnNames))  // by function; "\x00" not yet known
+		for i := range pkgs {
+			pkgs[i] = "\x00"
+		}
+		pkgOf := func(n callgraph.NodeID) string {
+			fn := c.fn[t.Frame(n)]
+			if pkgs[fn] == "\x00" {
+				pkgs[fn] = packageOf(&src.Frames[t.Frame(n)])
+			}
+			return pkgs[fn]
+		}
 		for i := 1; i < t.Len(); i++ {
 			b := callgraph.NodeID(i)
 			if w.boundary[b] != b {
 				continue
 			}
 			h := w.lastApp[b]
-			if h == 0 || done[h] {
+			if h == 0 || done[h/64]&(1<<(h%64)) != 0 {
 				continue
 			}
-			done[h] = true
+			done[h/64] |= 1 << (h % 64)
 			hf := c.fn[t.Frame(h)]
-			helperPkg[hf] = packageOf(&src.Frames[t.Frame(h)])
 			n := w.lastApp[t.Parent(h)]
 			for n != 0 && c.fn[t.Frame(n)] == hf {
 				n = w.lastApp[t.Parent(n)]
 			}
-			if n != 0 && !isEntry(c, t, n) {
-				pairs[pair{hf, c.fn[t.Frame(n)]}] = t.Frame(n)
+			if n != 0 && !isEntry(c, t, n) && pkgOf(n) != pkgOf(h) {
+				pairs = append(pairs, uint64(uint32(hf))<<32|uint64(uint32(c.fn[t.Frame(n)])))
 			}
 		}
-		type tally struct {
-			callers int
-			pkgs    map[string]bool
-		}
-		tallies := map[int32]*tally{}
-		for p, f := range pairs {
-			pkg := packageOf(&src.Frames[f])
-			if pkg == helperPkg[p.helper] {
+		slices.Sort(pairs)
+		pairs = slices.Compact(pairs)
+		// Per helper (a run of pairs): its callers and their packages.
+		var callerPkgs []string
+		for i := 0; i < len(pairs); {
+			hf := int32(pairs[i] >> 32)
+			j := i
+			callerPkgs = callerPkgs[:0]
+			for ; j < len(pairs) && int32(pairs[j]>>32) == hf; j++ {
+				callerPkgs = append(callerPkgs, pkgs[int32(uint32(pairs[j]))])
+			}
+			callers := j - i
+			i = j
+			if callers < helperMinCallers {
 				continue
 			}
-			tl := tallies[p.helper]
-			if tl == nil {
-				tl = &tally{pkgs: map[string]bool{}}
-				tallies[p.helper] = tl
+			slices.Sort(callerPkgs)
+			if np := len(slices.Compact(callerPkgs)); np >= helperMinPackages {
+				hi := out[hf]
+				if hi == nil {
+					hi = &helperInfo{}
+					out[hf] = hi
+				}
+				hi.callers, hi.packages = callers, np
 			}
-			tl.callers++
-			tl.pkgs[pkg] = true
-		}
-		for fn, tl := range tallies {
-			if tl.callers < helperMinCallers || len(tl.pkgs) < helperMinPackages {
-				continue
-			}
-			hi := out[fn]
-			if hi == nil {
-				hi = &helperInfo{}
-				out[fn] = hi
-			}
-			hi.callers, hi.packages = tl.callers, len(tl.pkgs)
 		}
 	}
 	if len(out) == 0 {
@@ -194,31 +200,45 @@ func findHelpers(t *callgraph.Tree, c *Classifier, w *walkState, mode HelperMode
 // helpers right above it to the nearest application node above them
 // that is not a helper, and records the nearest helper in w.via. A
 // boundary with no such node above the helpers, or only an entry point
-// (a route), keeps its nearest helper as the root cause. Nodes below a boundary take their boundary's.
+// (a route), keeps its nearest helper as the root cause. Nodes below a
+// boundary take their boundary's.
 func (w *walkState) seeThroughHelpers(c *Classifier, helpers map[int32]*helperInfo) {
 	t := w.t
 	w.helpers = helpers
-	w.via = make([]callgraph.NodeID, t.Len())
-	isHelper := func(n callgraph.NodeID) bool { _, ok := helpers[c.fn[t.Frame(n)]]; return ok }
+	isHelper := make([]bool, len(c.fnNames))
+	for fn := range helpers {
+		isHelper[fn] = true
+	}
+	helper := func(n callgraph.NodeID) bool { return isHelper[c.fn[t.Frame(n)]] }
+	// top is, per node above a boundary, the nearest application node at
+	// or above it that is not a helper: where a chain of helpers right
+	// above a boundary ends. One pass in ID order (parents first).
+	top := make([]callgraph.NodeID, t.Len())
 	for i := 1; i < t.Len(); i++ {
 		id := callgraph.NodeID(i)
 		b := w.boundary[id]
 		if b == 0 {
+			top[id] = top[t.Parent(id)]
+			if class, _ := c.class(t.Frame(id)); class == Application && !isHelper[c.fn[t.Frame(id)]] {
+				top[id] = id
+			}
 			continue
 		}
 		if b != id {
-			w.lastApp[id], w.via[id] = w.lastApp[b], w.via[b]
+			if w.via != nil {
+				w.lastApp[id], w.via[id] = w.lastApp[b], w.via[b]
+			}
 			continue
 		}
 		h := w.lastApp[b]
-		if h == 0 || !isHelper(h) {
+		if h == 0 || !helper(h) {
 			continue
 		}
-		n := h
-		for n != 0 && isHelper(n) {
-			n = w.lastApp[t.Parent(n)]
-		}
-		if n != 0 && !isEntry(c, t, n) {
+		if n := top[t.Parent(b)]; n != 0 && !isEntry(c, t, n) {
+			if w.via == nil {
+				// The first helper seen through: nodes before b hold none.
+				w.via = make([]callgraph.NodeID, t.Len())
+			}
 			w.lastApp[b], w.via[b] = n, h
 		}
 	}

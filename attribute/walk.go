@@ -96,10 +96,10 @@ type walkState struct {
 	// ("sql") a more specific driver frame names, that frame. Trees cut at
 	// boundaries have no such nodes, so it is mostly empty.
 	refined map[callgraph.NodeID]traces.FrameID
-	// helpers are the shared helpers seen through, by classifier function
-	// index; via holds, per node at or below a boundary, the helper seen
-	// through there (0: none). Both nil when there are no helpers, and
-	// lastApp then is the nearest application node above the boundary.
+	// helpers are the shared helpers, by classifier function index (nil:
+	// none); via holds, per node at or below a boundary, the helper seen
+	// through there (0: none; nil when none is). Without helpers seen
+	// through, lastApp is the nearest application node above the boundary.
 	helpers map[int32]*helperInfo
 	via     []callgraph.NodeID
 }

@@ -55,7 +55,7 @@ func TestTreeAndGraphMethodsExample(t *testing.T) {
 func TestFuncGraphMergedCycle(t *testing.T) {
 	// Functions: 0 main, 1 A, 2 B, 3 walk, 4 db. Calls from the paths
 	// main>A>B>db, main>B>A, main>walk>walk>db (a repeated call too).
-	g := NewFuncGraph(5, []Call{{0, 1}, {1, 2}, {2, 4}, {0, 2}, {2, 1}, {0, 3}, {3, 3}, {3, 4}, {0, 1}})
+	g := NewFuncGraph(5, callsOf(0, 1, 1, 2, 2, 4, 0, 2, 2, 1, 0, 3, 3, 3, 3, 4, 0, 1))
 	got := g.Recursive()
 	want := []bool{false, true, true, true, false}
 	for i := range want {
@@ -71,10 +71,7 @@ func TestFuncGraphMergedCycle(t *testing.T) {
 // {f,g} and {h}, where h calls itself.
 func TestFuncGraphTarjanExample(t *testing.T) {
 	const a, b, c, d, e, f, g, h = 0, 1, 2, 3, 4, 5, 6, 7
-	gr := NewFuncGraph(8, []Call{
-		{a, b}, {b, c}, {b, e}, {b, f}, {c, d}, {c, g}, {d, c}, {d, h},
-		{e, a}, {e, f}, {f, g}, {g, f}, {g, h}, {h, h},
-	})
+	gr := NewFuncGraph(8, callsOf(a, b, b, c, b, e, b, f, c, d, c, g, d, c, d, h, e, a, e, f, f, g, g, f, g, h, h, h))
 	got := gr.Recursive()
 	for i, w := range []bool{true, true, true, true, true, true, true, true} {
 		if got[i] != w {
@@ -82,10 +79,7 @@ func TestFuncGraphTarjanExample(t *testing.T) {
 		}
 	}
 	// Without h's self-call h is a component of one: not recursive.
-	gr = NewFuncGraph(8, []Call{
-		{a, b}, {b, c}, {b, e}, {b, f}, {c, d}, {c, g}, {d, c}, {d, h},
-		{e, a}, {e, f}, {f, g}, {g, f}, {g, h},
-	})
+	gr = NewFuncGraph(8, callsOf(a, b, b, c, b, e, b, f, c, d, c, g, d, c, d, h, e, a, e, f, f, g, g, f, g, h))
 	if got := gr.Recursive(); got[h] || !got[a] || !got[c] || !got[f] {
 		t.Errorf("without the self-call: %v, want all but h", got)
 	}
@@ -207,4 +201,13 @@ func total(t *Tree, n NodeID) int64 {
 		}
 	}
 	return v
+}
+
+// callsOf collects the calls caller0, callee0, caller1, callee1, ….
+func callsOf(ends ...FuncID) *Calls {
+	var c Calls
+	for i := 0; i+1 < len(ends); i += 2 {
+		c.Add(ends[i], ends[i+1])
+	}
+	return &c
 }

@@ -12,9 +12,15 @@ import (
 // whoever builds the graph.
 type FuncID int32
 
-// Call is an edge of a FuncGraph: Caller calls Callee directly (with
-// only frames the builder does not count as functions in between).
-type Call struct{ Caller, Callee FuncID }
+// Calls collects the edges of a FuncGraph under construction: Add them,
+// then pass the set to NewFuncGraph. The zero value is empty.
+type Calls struct{ packed []uint64 }
+
+// Add records that caller calls callee directly (with only frames the
+// builder does not count as functions in between). Repeats are merged.
+func (c *Calls) Add(caller, callee FuncID) {
+	c.packed = append(c.packed, uint64(uint32(caller))<<32|uint64(uint32(callee)))
+}
 
 // FuncGraph is a function-level call graph: one node per function, one
 // edge per distinct caller → callee pair seen on any path. Unlike the
@@ -28,14 +34,12 @@ type Call struct{ Caller, Callee FuncID }
 // cost no per-edge maps.
 type FuncGraph struct{ a *adjacency }
 
-// NewFuncGraph returns the graph of n functions and the given calls
-// (repeated calls are merged; calls may be reordered).
-func NewFuncGraph(n int, calls []Call) *FuncGraph {
-	packed := make([]uint64, len(calls))
-	for i, c := range calls {
-		packed[i] = uint64(uint32(c.Caller))<<32 | uint64(uint32(c.Callee))
-	}
-	return &FuncGraph{a: newAdjacency(n, packed)}
+// NewFuncGraph returns the graph of n functions and the calls collected
+// in calls, which it takes over (calls is empty afterwards).
+func NewFuncGraph(n int, calls *Calls) *FuncGraph {
+	g := &FuncGraph{a: newAdjacency(n, calls.packed)}
+	calls.packed = nil
+	return g
 }
 
 // Recursive reports, by FuncID, the functions on a cycle: members of a
