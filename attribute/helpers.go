@@ -52,7 +52,9 @@ const (
 // application frame above a boundary on some path and is called, on the
 // paths that reach a boundary through it, by at least 3 distinct
 // application functions (not entry points such as routes or main) of at
-// least 2 packages other than its own. A
+// least 2 packages other than its own, and it is right above the
+// boundary at least as often (in the calling-context tree) as it calls
+// other application functions: a helper calls out itself. A
 // function called from one package's code stays a root cause.
 type SharedHelper struct {
 	Function string `json:"function"`
@@ -163,6 +165,24 @@ func findHelpers(t *callgraph.Tree, c *Classifier, w *walkState, mode HelperMode
 				pairs = append(pairs, uint64(uint32(hf))<<32|uint64(uint32(c.fn[t.Frame(n)])))
 			}
 		}
+		// How often each function calls another application function above
+		// a boundary (once per calling node and callee node), against how
+		// often it is right above one: an access helper calls out itself,
+		// it does not merely end some paths of code that calls further.
+		near := make([]int32, len(c.fnNames))
+		calling := make([]int32, len(c.fnNames))
+		for i := 1; i < t.Len(); i++ {
+			n := callgraph.NodeID(i)
+			if done[n/64]&(1<<(n%64)) != 0 {
+				near[c.fn[t.Frame(n)]]++
+			}
+			if w.boundary[n] != 0 || w.lastApp[n] != n {
+				continue // below a boundary, or not an application node
+			}
+			if p := w.lastApp[t.Parent(n)]; p != 0 && c.fn[t.Frame(p)] != c.fn[t.Frame(n)] {
+				calling[c.fn[t.Frame(p)]]++
+			}
+		}
 		slices.Sort(pairs)
 		pairs = slices.Compact(pairs)
 		// Per helper (a run of pairs): its callers and their packages.
@@ -176,7 +196,7 @@ func findHelpers(t *callgraph.Tree, c *Classifier, w *walkState, mode HelperMode
 			}
 			callers := j - i
 			i = j
-			if callers < helperMinCallers {
+			if callers < helperMinCallers || calling[hf] > near[hf] {
 				continue
 			}
 			slices.Sort(callerPkgs)

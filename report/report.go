@@ -136,7 +136,11 @@ func Caveats(r *attribute.Result) []string {
 // HelpersSummary names the shared helpers the attribution saw through.
 func HelpersSummary(r *attribute.Result) string {
 	parts := make([]string, 0, len(r.Helpers))
-	for _, h := range r.Helpers {
+	for i, h := range r.Helpers {
+		if i == 5 {
+			parts = append(parts, fmt.Sprintf("and %d more (the JSON format lists all)", len(r.Helpers)-5))
+			break
+		}
 		if h.Named {
 			parts = append(parts, h.Function+" (named)")
 		} else {
