@@ -146,41 +146,42 @@ func findHelpers(t *callgraph.Tree, c *Classifier, w *walkState, mode HelperMode
 			}
 			return pkgs[fn]
 		}
+		// In the same pass, how often each function calls another
+		// application function above a boundary (once per calling node and
+		// callee node), against how often it is right above one: an access
+		// helper calls out itself, it does not merely end some paths of
+		// code that calls further.
+		near := make([]int32, len(c.fnNames))
+		calling := make([]int32, len(c.fnNames))
 		for i := 1; i < t.Len(); i++ {
-			b := callgraph.NodeID(i)
-			if w.boundary[b] != b {
+			n := callgraph.NodeID(i)
+			switch w.boundary[n] {
+			case 0: // above every boundary
+				if w.lastApp[n] == n {
+					if p := w.lastApp[t.Parent(n)]; p != 0 {
+						if pf := c.fn[t.Frame(p)]; pf != c.fn[t.Frame(n)] {
+							calling[pf]++
+						}
+					}
+				}
+				continue
+			case n: // a boundary
+			default: // below one
 				continue
 			}
-			h := w.lastApp[b]
+			h := w.lastApp[n]
 			if h == 0 || done[h/64]&(1<<(h%64)) != 0 {
 				continue
 			}
 			done[h/64] |= 1 << (h % 64)
 			hf := c.fn[t.Frame(h)]
-			n := w.lastApp[t.Parent(h)]
-			for n != 0 && c.fn[t.Frame(n)] == hf {
-				n = w.lastApp[t.Parent(n)]
+			near[hf]++
+			p := w.lastApp[t.Parent(h)]
+			for p != 0 && c.fn[t.Frame(p)] == hf {
+				p = w.lastApp[t.Parent(p)]
 			}
-			if n != 0 && !isEntry(c, t, n) && pkgOf(n) != pkgOf(h) {
-				pairs = append(pairs, uint64(uint32(hf))<<32|uint64(uint32(c.fn[t.Frame(n)])))
-			}
-		}
-		// How often each function calls another application function above
-		// a boundary (once per calling node and callee node), against how
-		// often it is right above one: an access helper calls out itself,
-		// it does not merely end some paths of code that calls further.
-		near := make([]int32, len(c.fnNames))
-		calling := make([]int32, len(c.fnNames))
-		for i := 1; i < t.Len(); i++ {
-			n := callgraph.NodeID(i)
-			if done[n/64]&(1<<(n%64)) != 0 {
-				near[c.fn[t.Frame(n)]]++
-			}
-			if w.boundary[n] != 0 || w.lastApp[n] != n {
-				continue // below a boundary, or not an application node
-			}
-			if p := w.lastApp[t.Parent(n)]; p != 0 && c.fn[t.Frame(p)] != c.fn[t.Frame(n)] {
-				calling[c.fn[t.Frame(p)]]++
+			if p != 0 && !isEntry(c, t, p) && pkgOf(p) != pkgOf(h) {
+				pairs = append(pairs, uint64(uint32(hf))<<32|uint64(uint32(c.fn[t.Frame(p)])))
 			}
 		}
 		slices.Sort(pairs)
