@@ -71,6 +71,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		DurationNanos: src.DurationNanos,
 		App:           AppInfo{Prefixes: c.rules.App, Detected: c.Detected, RulesFiles: c.rules.Files},
 		Warnings:      src.Warnings.Strings(),
+		Notes:         inputNotes(src),
 	}
 	shards := chargeShards(src, spans, opts.shards)
 	chs := make([]*charger, len(shards)-1)

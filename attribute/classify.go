@@ -210,16 +210,67 @@ func (c *Classifier) owned(f *traces.Frame) (bool, string) {
 	if len(c.rules.App) > 0 {
 		file := slashPath(f.File)
 		for _, p := range c.rules.App {
-			if strings.HasPrefix(f.Function, p) || (file != "" && strings.Contains(file, p)) {
+			if strings.HasPrefix(f.Function, p) || (file != "" && strings.Contains(file, p)) ||
+				(f.Span && f.Scope != "" && strings.HasPrefix(f.Scope, p)) {
 				return true, "matches --app " + p
 			}
 		}
 		if f.Span && f.SpanKind != traces.SpanKindClient && f.SpanKind != traces.SpanKindProducer && f.File == "" && !looksQualified(f.Function) {
+			if lib, reason := librarySpan(f); lib {
+				return false, reason
+			}
 			return true, "the service's own " + f.SpanKind.String() + " span"
 		}
 		return false, "matches no --app prefix"
 	}
 	return autoOwned(f)
+}
+
+// librarySpan reports whether a span frame was made by an instrumentation
+// library for its own layer (framework middleware, a router, a "request
+// handler" span) rather than for the application's code: an INTERNAL (or
+// unspecified) span from an instrumentation library's scope that names no
+// code location. SERVER and CONSUMER spans stand for the request or
+// message the service handles and stay the service's own.
+func librarySpan(f *traces.Frame) (bool, string) {
+	switch {
+	case !f.Span, f.Code, f.SpanKind == traces.SpanKindServer, f.SpanKind == traces.SpanKindConsumer:
+		return false, ""
+	case isInstrumentationScope(f.Scope):
+		return true, "made by instrumentation library " + f.Scope
+	}
+	return false, ""
+}
+
+// isInstrumentationScope reports whether an instrumentation scope name is
+// that of an instrumentation library rather than of the application's own
+// tracer. The OpenTelemetry projects name their instrumentation scopes
+// after the instrumentation package: "@opentelemetry/instrumentation-express"
+// (JavaScript), "go.opentelemetry.io/contrib/instrumentation/net/http/otelhttp"
+// (Go), "io.opentelemetry.spring-webmvc-6.0" (Java agent),
+// "opentelemetry.instrumentation.flask" (Python),
+// "OpenTelemetry.Instrumentation.AspNetCore" (.NET) and
+// "OpenTelemetry::Instrumentation::Rails" (Ruby); third-party
+// instrumentation packages follow the same conventions or are named
+// otelX (github.com/exaring/otelpgx, github.com/XSAM/otelsql). So: any
+// scope under io.opentelemetry., or with an element (split at / . - _ : @)
+// that is "instrumentation" or starts with "otel".
+func isInstrumentationScope(scope string) bool {
+	if scope == "" {
+		return false
+	}
+	if strings.HasPrefix(scope, "io.opentelemetry.") {
+		return true
+	}
+	for _, el := range strings.FieldsFunc(scope, func(r rune) bool {
+		return r == '/' || r == '.' || r == '-' || r == '_' || r == ':' || r == '@'
+	}) {
+		el = strings.ToLower(el)
+		if el == "instrumentation" || el == "instrumentations" || strings.HasPrefix(el, "otel") && el != "otel" {
+			return true
+		}
+	}
+	return false
 }
 
 // looksQualified reports whether a span's frame name looks like a code
@@ -251,6 +302,9 @@ func autoOwned(f *traces.Frame) (bool, string) {
 			if owned, reason := autoOwned(&traces.Frame{Function: f.Function, File: f.File}); !owned && lang(&traces.Frame{File: f.File}) != langUnknown {
 				return false, reason
 			}
+		}
+		if lib, reason := librarySpan(f); lib {
+			return false, reason
 		}
 		return true, "the service's own " + f.SpanKind.String() + " span"
 	}

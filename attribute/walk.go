@@ -413,6 +413,9 @@ func detail(src *traces.Source, t *callgraph.Tree, p *traces.Path, b callgraph.N
 	}
 	dk.peer = call.Peer
 	switch {
+	case call.Connection:
+		dk.kind = KindConnection
+		dk.statement = "connection wait (" + bf.Function + ")"
 	case call.Statement != "" && (literals || src.StatementsNormalized):
 		dk.statement = call.Statement
 	case call.Statement != "":
