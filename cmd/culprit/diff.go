@@ -151,7 +151,7 @@ func runDiff(ctx context.Context, opts *diffOptions) error {
 	cmp := attribute.Compare(base, cand, attribute.CompareOptions{Alpha: opts.alpha, Budget: budget, Seed: opts.seed})
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
 	inputs := append(append([]string(nil), opts.base...), opts.candidate...)
-	if err := opts.output.write(opts.streams, inputs, func(w io.Writer) error {
+	if err := opts.output.write(ctx, opts.streams, inputs, func(w io.Writer) error {
 		return renderer.RenderDiff(w, cmp, ropts)
 	}); err != nil {
 		return err
@@ -202,7 +202,7 @@ func runDiffLatency(ctx context.Context, opts *diffOptions, budget attribute.Bud
 	c := attribute.CompareLatency(base, cand, attribute.CompareOptions{Alpha: opts.alpha, Budget: budget, Seed: opts.seed})
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
 	inputs := append(append([]string(nil), opts.base...), opts.candidate...)
-	if err := opts.output.write(opts.streams, inputs, func(w io.Writer) error {
+	if err := opts.output.write(ctx, opts.streams, inputs, func(w io.Writer) error {
 		return renderer.RenderLatencyDiff(w, c, ropts)
 	}); err != nil {
 		return err
@@ -240,14 +240,14 @@ func (opts *diffOptions) latencySide(ctx context.Context, label string, inputs [
 // sorted); nil for a snapshot file.
 func (opts *diffOptions) side(ctx context.Context, label string, inputs []string, rules *attribute.Rules) (*attribute.Snapshot, []string, error) {
 	if len(inputs) == 1 && isSnapshotFile(inputs[0]) {
-		s, err := readSnapshotFile(inputs[0])
+		s, err := await(ctx, func() (*attribute.Snapshot, error) { return readSnapshotFile(inputs[0]) })
 		return s, nil, err
 	}
 	src, err := opts.analysis.load(ctx, opts.streams, inputs)
 	if err != nil {
 		return nil, nil, fmt.Errorf("%s: %w", label, err)
 	}
-	res, err := opts.analysis.analyse(src, rules)
+	res, err := opts.analysis.analyse(ctx, opts.streams, src, rules)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -278,6 +278,10 @@ func isSnapshotFile(name string) bool { return hasSchema(name, "culprit.snapshot
 // hasSchema reports whether name is a JSON file whose first 4 KiB name
 // the schema prefix.
 func hasSchema(name, schema string) bool {
+	// A FIFO or device would block the open, and lose what is peeked.
+	if st, err := os.Stat(name); err != nil || !st.Mode().IsRegular() {
+		return false
+	}
 	fh, err := os.Open(name)
 	if err != nil {
 		return false
