@@ -251,7 +251,7 @@ func Latency(t *callgraph.Tree, c *Classifier, opts LatencyOptions) (*LatencyRes
 	if entryLabels == nil {
 		entryLabels = DefaultEntryLabels
 	}
-	r := &latencyRun{src: src, t: t, c: c, w: newWalkState(t, c), entryLabels: entryLabels, causeIx: map[pathCause]int32{},
+	r := &latencyRun{src: src, t: t, c: c, w: newWalkState(t, c, opts.Helpers), entryLabels: entryLabels, causeIx: map[pathCause]int32{},
 		callCause: map[callgraph.NodeID]int32{}, appCause: make([]int32, len(src.Frames))}
 	res := &LatencyResult{
 		vectors:  opts.Vectors,

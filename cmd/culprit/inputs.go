@@ -34,6 +34,8 @@ type analysisFlags struct {
 	Limits        traces.Limits
 	Findings      attribute.FindingOptions
 	DomainsFile   string
+	Helpers       string   // --helpers: auto or off
+	HelperNames   []string // --helper
 
 	// fsys, when set, is where inputs are opened (the embedded demo data);
 	// names are then taken as given, without directory expansion.
@@ -54,6 +56,8 @@ func (f *analysisFlags) register(cmd *cobra.Command) {
 	fl.StringArrayVar(&f.EntryLabels, "entry-label", nil, "profile label `KEY` naming the entry point (default: route, http.route, endpoint)")
 	fl.StringArrayVar(&f.RequestLabels, "request-label", nil, "profile label `KEY` naming the request (default: request_id, request, trace_id)")
 	fl.BoolVar(&f.Inclusive, "inclusive", false, "charge every application function above the call, not only the nearest")
+	fl.StringVar(&f.Helpers, "helpers", "auto", "shared access helpers (your own SQL wrapper called from many packages): auto sees through them to their callers, off charges them")
+	fl.StringArrayVar(&f.HelperNames, "helper", nil, "function `NAME` (or package/type prefix ending in . or /) of a shared helper to see through (repeatable)")
 	fl.BoolVar(&f.ShowLiterals, "show-literals", false, "show statements with their literal values (may expose personal data)")
 	fl.BoolVar(&f.KeepGoing, "keep-going", false, "skip unreadable files and lines, listing them as warnings")
 	fl.BoolVar(&f.Strict, "strict", false, "treat every repaired span problem (orphans, duplicates, cycles, skew) as an error")
@@ -86,6 +90,7 @@ func (f *analysisFlags) rules() (*attribute.Rules, error) {
 		rules = attribute.Merge(rules, user)
 	}
 	rules.App = append(rules.App, f.App...)
+	rules.Helpers = append(rules.Helpers, f.HelperNames...)
 	return rules, nil
 }
 
@@ -365,6 +370,9 @@ func (f *analysisFlags) build(src *traces.Source, rules *attribute.Rules) (*call
 	if err != nil {
 		return nil, nil, 0, usagef("--value: %v", err)
 	}
+	if _, err := attribute.ParseHelperMode(f.Helpers); err != nil && f.Helpers != "" {
+		return nil, nil, 0, usagef("--helpers must be one of: %s", strings.Join(attribute.HelperModes, ", "))
+	}
 	cls := attribute.NewClassifier(src, rules)
 	return callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep}), cls, vi, nil
 }
@@ -373,10 +381,18 @@ func (f *analysisFlags) attributeOptions() attribute.Options {
 	return attribute.Options{
 		Value:              f.Value,
 		Inclusive:          f.Inclusive,
+		Helpers:            f.helperMode(),
 		EntryLabels:        f.EntryLabels,
 		RequestLabels:      f.RequestLabels,
 		ShowLiterals:       f.ShowLiterals,
 		Findings:           f.Findings,
 		DropRequestVectors: f.dropVectors,
 	}
+}
+
+// helperMode returns --helpers as a mode (build has checked it; unset
+// means auto).
+func (f *analysisFlags) helperMode() attribute.HelperMode {
+	m, _ := attribute.ParseHelperMode(f.Helpers)
+	return m
 }
