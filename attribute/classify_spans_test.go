@@ -72,7 +72,7 @@ func TestSpanOwnership(t *testing.T) {
 		t.Run(tt.name, func(t *testing.T) {
 			rules := DefaultRules()
 			rules.App = tt.app
-			c := &Classifier{rules: rules}
+			c := &Classifier{rules: rules, m: newMatcher(rules)}
 			if v := c.classify(&tt.frame); v.Class != tt.class && !(tt.class == Library && v.Class.IsBoundary()) {
 				t.Errorf("class %v (%s), want %v", v.Class, v.Reason, tt.class)
 			}

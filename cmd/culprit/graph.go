@@ -59,12 +59,12 @@ func runGraph(ctx context.Context, opts *graphOptions) error {
 	if err != nil {
 		return err
 	}
-	tree, cls, _, err := opts.analysis.build(src, rules)
+	b, err := opts.analysis.buildCtx(ctx, opts.streams, src, rules)
 	if err != nil {
 		return err
 	}
 	aopts := opts.analysis.attributeOptions()
-	g := attribute.ChargeGraph(tree, cls, aopts, opts.minShare)
+	g := attribute.ChargeGraph(b.tree, b.cls, aopts, opts.minShare)
 	vi, err := src.ValueIndex(aopts.Value)
 	if err != nil {
 		vi = src.DefaultValue
@@ -76,7 +76,7 @@ func runGraph(ctx context.Context, opts *graphOptions) error {
 		return err
 	}
 	out := outputFlags{Output: opts.output}
-	return out.write(opts.streams, opts.inputs, func(w io.Writer) error {
+	return out.write(ctx, opts.streams, opts.inputs, func(w io.Writer) error {
 		_, err := w.Write(append(data, '\n'))
 		return err
 	})
