@@ -12,6 +12,7 @@ import (
 	"io"
 	"strings"
 
+	"github.com/culprithq/culprit/traces/capture"
 	"github.com/google/pprof/profile"
 	"google.golang.org/protobuf/encoding/protowire"
 )
@@ -26,6 +27,8 @@ type Loader struct {
 	inputs   []Input
 	warnings Warnings
 	kinds    map[Kind]string // first input name of each kind
+	// capProfiles are the profile records of capture segments.
+	capProfiles []captureProfile
 }
 
 // NewLoader returns a Loader using opts.
@@ -112,11 +115,23 @@ func (l *Loader) add(name string, r io.Reader) error {
 		if err := l.spans.Add(name, bb); err != nil {
 			return readError(name, err, counted.n)
 		}
+	case capture.IsSegment(prefix):
+		in.Format = FormatCapture
+		if err := l.addSegment(name, bb); err != nil {
+			return readError(name, err, counted.n)
+		}
 	default:
 		in.Format = "pprof"
 		data, err := readAll(bb)
 		if err != nil {
 			return readError(name, err, counted.n)
+		}
+		if LooksLikeOTLPProto(data) {
+			in.Format = FormatOTLPProto
+			if err := l.addOTLPProto(name, data); err != nil {
+				return readError(name, err, counted.n)
+			}
+			break
 		}
 		p, ok := decodeProfile(data)
 		if !ok {
@@ -170,7 +185,13 @@ func (l *Loader) checkKind(k Kind, name string) error {
 // nothing readable was added.
 func (l *Loader) Source() (*Source, error) {
 	var src *Source
+	capSrc, fromCapture, err := l.captureSource()
+	if err != nil {
+		return nil, err
+	}
 	switch {
+	case fromCapture:
+		src = capSrc
 	case l.profiles != nil && l.profiles.src != nil:
 		src = l.profiles.src
 	case l.spans != nil:

@@ -1,0 +1,172 @@
+package traces
+
+import (
+	"bufio"
+	"bytes"
+	"compress/gzip"
+	"errors"
+	"fmt"
+	"io"
+
+	"github.com/culprithq/culprit/traces/capture"
+	"google.golang.org/protobuf/encoding/protowire"
+)
+
+// Input formats of binary trace inputs.
+const (
+	// FormatOTLPProto is a file holding one binary ExportTraceServiceRequest.
+	FormatOTLPProto = "otlp-protobuf"
+	// FormatCapture is a capture segment written by `culprit listen`.
+	FormatCapture = "culprit-capture"
+)
+
+// WarnTornRecord is a capture segment's last record cut short by a crash
+// (or failing its checksum with nothing after it): skipped, with
+// everything before it read.
+const WarnTornRecord = "torn-record"
+
+// WarnCaptureProfiles is a capture's profiles left unread because the
+// run reads its spans (a run reads either spans or profiles).
+const WarnCaptureProfiles = "capture-profiles"
+
+// LooksLikeOTLPProto reports whether data looks like a binary OTLP trace
+// export request (or TracesData): top-level fields that are all field 1,
+// length-delimited (resource_spans), the first of which starts with a
+// length-delimited field (resource or scope_spans). A pprof profile never
+// does: its sample types hold varints, and it always has a string table
+// (field 6).
+func LooksLikeOTLPProto(data []byte) bool {
+	first := true
+	for len(data) > 0 {
+		num, typ, n := protowire.ConsumeTag(data)
+		if n < 0 || num != 1 || typ != protowire.BytesType {
+			return false
+		}
+		v, m := protowire.ConsumeBytes(data[n:])
+		if m < 0 {
+			return false
+		}
+		if first && len(v) > 0 {
+			_, t, k := protowire.ConsumeTag(v)
+			if k < 0 || t != protowire.BytesType {
+				return false
+			}
+		}
+		first = false
+		data = data[n+m:]
+	}
+	return !first
+}
+
+// addOTLPProto reads one binary export request.
+func (l *Loader) addOTLPProto(name string, data []byte) error {
+	if err := l.checkKind(Spans, name); err != nil {
+		return err
+	}
+	if l.spans == nil {
+		l.spans = NewSpanCollector(l.opts)
+	}
+	done := false
+	return l.spans.AddRecords(name, FormatOTLPProto, func() (Record, error) {
+		if done {
+			return Record{}, io.EOF
+		}
+		done = true
+		return Record{Data: data}, nil
+	})
+}
+
+// captureProfile is a profile record of a capture, read only when the
+// run has no spans.
+type captureProfile struct {
+	name   string
+	offset int64
+	data   []byte
+}
+
+// addSegment reads one capture segment: its trace records as spans, its
+// profiles kept for Source.
+func (l *Loader) addSegment(name string, r *bufio.Reader) error {
+	seg, err := capture.NewReader(r, l.opts.Limits.MaxBytes)
+	if err != nil {
+		return segmentError(name, err)
+	}
+	if err := l.checkKind(Spans, name); err != nil {
+		return err
+	}
+	if l.spans == nil {
+		l.spans = NewSpanCollector(l.opts)
+	}
+	var profiles []captureProfile
+	var torn *capture.TornError
+	err = l.spans.AddRecords(name, FormatCapture, func() (Record, error) {
+		for {
+			rec, err := seg.Next()
+			if errors.As(err, &torn) {
+				return Record{}, io.EOF
+			}
+			if err != nil {
+				if errors.Is(err, io.EOF) {
+					return Record{}, err
+				}
+				return Record{}, segmentError(name, err)
+			}
+			switch rec.Type {
+			case capture.TraceProto, capture.TraceJSON:
+				return Record{Data: rec.Payload, JSON: rec.Type == capture.TraceJSON, Offset: rec.Offset + 9}, nil
+			case capture.Profile:
+				profiles = append(profiles, captureProfile{name: name, offset: rec.Offset, data: rec.Payload})
+			}
+		}
+	})
+	if err != nil {
+		return err
+	}
+	if torn != nil {
+		l.warnings.Add(Warning{Kind: WarnTornRecord, File: name, Message: torn.Error()})
+	}
+	l.capProfiles = append(l.capProfiles, profiles...)
+	return nil
+}
+
+// segmentError names the segment in a capture reading error.
+func segmentError(name string, err error) error {
+	var fe *capture.FormatError
+	if errors.As(err, &fe) {
+		return &ParseError{File: name, Offset: fe.Offset, Err: fmt.Errorf("%w: %s", ErrFormat, fe.Why)}
+	}
+	return &ParseError{File: name, Err: err}
+}
+
+// captureSource makes the source of a capture's profiles, for a run that
+// read captures holding no spans.
+func (l *Loader) captureSource() (*Source, bool, error) {
+	if len(l.capProfiles) == 0 || l.spans == nil || l.spans.spans.len() > 0 {
+		if len(l.capProfiles) > 0 {
+			l.warnings.Add(Warning{Kind: WarnCaptureProfiles, File: l.capProfiles[0].name,
+				Message: fmt.Sprintf("%d profiles of the capture not read: this run reads its spans", len(l.capProfiles))})
+		}
+		return nil, false, nil
+	}
+	app := newProfileAppender(l.opts.Limits)
+	for _, cp := range l.capProfiles {
+		data := cp.data
+		if bytes.HasPrefix(data, gzipMagic) {
+			zr, err := gzip.NewReader(bytes.NewReader(data))
+			if err != nil {
+				return nil, true, &ParseError{File: cp.name, Offset: cp.offset, Err: fmt.Errorf("profile record: %w", err)}
+			}
+			if data, err = readAll(&sizeLimitReader{r: zr, max: l.opts.Limits.MaxBytes, name: cp.name}); err != nil {
+				return nil, true, &ParseError{File: cp.name, Offset: cp.offset, Err: fmt.Errorf("profile record: %w", err)}
+			}
+		}
+		p, ok := decodeProfile(data)
+		if !ok {
+			return nil, true, &ParseError{File: cp.name, Offset: cp.offset, Err: fmt.Errorf("%w: profile record is not a pprof profile", ErrFormat)}
+		}
+		if err := app.add(cp.name, p); err != nil {
+			return nil, true, err
+		}
+	}
+	return app.src, true, nil
+}
