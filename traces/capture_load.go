@@ -4,6 +4,7 @@ import (
 	"bufio"
 	"bytes"
 	"compress/gzip"
+	"encoding/hex"
 	"errors"
 	"fmt"
 	"io"
@@ -85,14 +86,15 @@ type captureProfile struct {
 }
 
 // addSegment reads one capture segment: its trace records as spans, its
-// profiles kept for Source.
-func (l *Loader) addSegment(name string, r *bufio.Reader) error {
+// profiles kept for Source. It returns the segment's identity.
+func (l *Loader) addSegment(name string, r *bufio.Reader) (*SegmentID, error) {
 	seg, err := capture.NewReader(r, l.opts.Limits.MaxBytes)
 	if err != nil {
-		return segmentError(name, err)
+		return nil, segmentError(name, err)
 	}
+	id := &SegmentID{Instance: hex.EncodeToString(seg.Header.Instance[:]), Sequence: seg.Header.Sequence}
 	if err := l.checkKind(Spans, name); err != nil {
-		return err
+		return nil, err
 	}
 	if l.spans == nil {
 		l.spans = NewSpanCollector(l.opts)
@@ -120,13 +122,13 @@ func (l *Loader) addSegment(name string, r *bufio.Reader) error {
 		}
 	})
 	if err != nil {
-		return err
+		return nil, err
 	}
 	if torn != nil {
 		l.warnings.Add(Warning{Kind: WarnTornRecord, File: name, Message: torn.Error()})
 	}
 	l.capProfiles = append(l.capProfiles, profiles...)
-	return nil
+	return id, nil
 }
 
 // segmentError names the segment in a capture reading error.

@@ -178,9 +178,11 @@ func TestLooksLikeOTLPProto(t *testing.T) {
 // what the OTLP/JSON reader reads from the official types' canonical
 // OTLP/JSON.
 func FuzzOTLPProto(f *testing.F) {
-	spans, _ := recordWorkload(&testing.T{}, 2)
-	if bin, err := proto.Marshal(sdkToProto(spans)); err == nil {
-		f.Add(bin)
+	gen, _ := genInput(3, 2)
+	for l := range bytes.SplitSeq(bytes.TrimSuffix(gen, []byte("\n")), []byte("\n")) {
+		if bin, err := proto.Marshal(protoFromJSONLine(f, l)); err == nil {
+			f.Add(bin)
+		}
 	}
 	f.Add([]byte{0x0a, 0x00})
 	f.Add([]byte{0x0a, 0x04, 0x12, 0x02, 0x12, 0x00})

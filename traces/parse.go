@@ -117,7 +117,7 @@ func (l *Loader) add(name string, r io.Reader) error {
 		}
 	case capture.IsSegment(prefix):
 		in.Format = FormatCapture
-		if err := l.addSegment(name, bb); err != nil {
+		if in.Segment, err = l.addSegment(name, bb); err != nil {
 			return readError(name, err, counted.n)
 		}
 	default:

@@ -185,14 +185,7 @@ func makeSpans(tp *sdktrace.TracerProvider, n, goroutines int) {
 // reportDoc reads a JSON report without what names its inputs.
 func reportDoc(t *testing.T, path string) map[string]any {
 	t.Helper()
-	data, err := os.ReadFile(path)
-	if err != nil {
-		t.Fatal(err)
-	}
-	var doc map[string]any
-	if err := json.Unmarshal(data, &doc); err != nil {
-		t.Fatal(err)
-	}
+	doc := jsonDoc(t, path)
 	delete(doc, "producedBy")
 	delete(doc, "inputs")
 	return doc
