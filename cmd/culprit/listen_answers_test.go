@@ -46,7 +46,7 @@ func testRequest(seq, n, badIDs int) *coltracepb.ExportTraceServiceRequest {
 	return &coltracepb.ExportTraceServiceRequest{ResourceSpans: []*tracepb.ResourceSpans{{ScopeSpans: []*tracepb.ScopeSpans{{Spans: spans}}}}}
 }
 
-func marshal(t *testing.T, m proto.Message) []byte {
+func marshal(t testing.TB, m proto.Message) []byte {
 	t.Helper()
 	b, err := proto.Marshal(m)
 	if err != nil {
@@ -65,7 +65,7 @@ func gzipped(b []byte) []byte {
 
 // post sends one OTLP/HTTP request and returns the status, the
 // Retry-After header and the body.
-func post(t *testing.T, addr, contentType, encoding string, body io.Reader) (int, string, []byte) {
+func post(t testing.TB, addr, contentType, encoding string, body io.Reader) (int, string, []byte) {
 	t.Helper()
 	req, err := http.NewRequest(http.MethodPost, "http://"+addr+"/v1/traces", body)
 	if err != nil {

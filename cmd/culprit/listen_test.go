@@ -16,7 +16,9 @@ import (
 	"path/filepath"
 	"reflect"
 	"sync"
+	"sync/atomic"
 	"testing"
+	"time"
 
 	"go.opentelemetry.io/otel/attribute"
 	"go.opentelemetry.io/otel/exporters/otlp/otlptrace/otlptracegrpc"
@@ -25,6 +27,9 @@ import (
 	sdktrace "go.opentelemetry.io/otel/sdk/trace"
 	oteltrace "go.opentelemetry.io/otel/trace"
 	coltracepb "go.opentelemetry.io/proto/otlp/collector/trace/v1"
+	commonpb "go.opentelemetry.io/proto/otlp/common/v1"
+	resourcepb "go.opentelemetry.io/proto/otlp/resource/v1"
+	tracepb "go.opentelemetry.io/proto/otlp/trace/v1"
 	"google.golang.org/protobuf/encoding/protojson"
 	"google.golang.org/protobuf/proto"
 )
@@ -39,7 +44,7 @@ type listener struct {
 
 // startListen runs `culprit listen ARGS` on ephemeral loopback ports;
 // setup may change the options before it starts.
-func startListen(t *testing.T, setup func(*listenOptions), args ...string) *listener {
+func startListen(t testing.TB, setup func(*listenOptions), args ...string) *listener {
 	t.Helper()
 	s, _, errb := testStreams("")
 	ctx, cancel := context.WithCancel(context.Background())
@@ -68,7 +73,7 @@ func startListen(t *testing.T, setup func(*listenOptions), args ...string) *list
 }
 
 // stop stops the listener as SIGTERM does and waits for its report.
-func (l *listener) stop(t *testing.T) {
+func (l *listener) stop(t testing.TB) {
 	t.Helper()
 	l.cancel()
 	if err := <-l.done; err != nil {
@@ -333,4 +338,91 @@ func segmentRecords(t *testing.T, data []byte) []segRecord {
 		off += 9 + n
 	}
 	return out
+}
+
+// BenchmarkListen measures spans accepted and stored per second (each
+// request synced before it is acknowledged, the default) from 4
+// concurrent senders on loopback, with requests of 500 spans of three
+// per trace, as protobuf and as OTLP/JSON.
+func BenchmarkListen(b *testing.B) {
+	for _, media := range []string{mediaProto, mediaJSON} {
+		b.Run(media[len("application/"):], func(b *testing.B) {
+			l := startListen(b, nil, "--dir", filepath.Join(b.TempDir(), "capture"), "--max-inflight", "16")
+			bodies := make([][]byte, 64)
+			for i := range bodies {
+				req := benchRequest(i, 500)
+				if media == mediaJSON {
+					js, err := protojson.MarshalOptions{UseEnumNumbers: true}.Marshal(req)
+					if err != nil {
+						b.Fatal(err)
+					}
+					bodies[i] = js
+				} else {
+					bodies[i] = marshal(b, req)
+				}
+			}
+			var next, refused atomic.Int64
+			start := time.Now()
+			b.ResetTimer()
+			var wg sync.WaitGroup
+			for range 4 {
+				wg.Go(func() {
+					client := &http.Client{}
+					for {
+						i := next.Add(1)
+						if i > int64(b.N) {
+							return
+						}
+						resp, err := client.Post("http://"+l.httpAddr+"/v1/traces", media, bytes.NewReader(bodies[i%64]))
+						if err != nil {
+							b.Error(err)
+							return
+						}
+						io.Copy(io.Discard, resp.Body)
+						resp.Body.Close()
+						if resp.StatusCode != 200 {
+							refused.Add(1)
+						}
+					}
+				})
+			}
+			wg.Wait()
+			b.StopTimer()
+			b.ReportMetric(float64(b.N)*500/time.Since(start).Seconds(), "spans/s")
+			if refused.Load() > 0 {
+				b.Fatalf("%d requests refused", refused.Load())
+			}
+			l.cancel()
+			<-l.done
+		})
+	}
+}
+
+// benchRequest is n spans of traces like the greenhouse shop's: a server
+// span, an application span and a database call each.
+func benchRequest(seq, n int) *coltracepb.ExportTraceServiceRequest {
+	str := func(k, v string) *commonpb.KeyValue {
+		return &commonpb.KeyValue{Key: k, Value: &commonpb.AnyValue{Value: &commonpb.AnyValue_StringValue{StringValue: v}}}
+	}
+	var spans []*tracepb.Span
+	for i := range n {
+		trace := []byte(fmt.Sprintf("t%05d-%09d", seq, i/3))
+		id := func(k int) []byte { return []byte(fmt.Sprintf("%07d%d", i/3, k)) }
+		sp := &tracepb.Span{TraceId: trace, SpanId: id(i % 3), StartTimeUnixNano: 1_700_000_000_000_000_000 + uint64(i), EndTimeUnixNano: 1_700_000_000_100_000_000}
+		switch i % 3 {
+		case 0:
+			sp.Name, sp.Kind = "GET /plants/{id}", tracepb.Span_SPAN_KIND_SERVER
+			sp.Attributes = []*commonpb.KeyValue{str("http.route", "/plants/{id}"), str("http.request.method", "GET")}
+		case 1:
+			sp.Name, sp.ParentSpanId = "VarietyByID", id(0)
+			sp.Attributes = []*commonpb.KeyValue{str("code.function.name", "example.com/greenhouse/catalog.(*Repo).VarietyByID")}
+		case 2:
+			sp.Name, sp.Kind, sp.ParentSpanId = "SELECT varieties", tracepb.Span_SPAN_KIND_CLIENT, id(1)
+			sp.Attributes = []*commonpb.KeyValue{str("db.system.name", "postgresql"), str("db.query.text", "SELECT name FROM varieties WHERE id = $1")}
+		}
+		spans = append(spans, sp)
+	}
+	return &coltracepb.ExportTraceServiceRequest{ResourceSpans: []*tracepb.ResourceSpans{{
+		Resource:   &resourcepb.Resource{Attributes: []*commonpb.KeyValue{str("service.name", "greenhouse-api")}},
+		ScopeSpans: []*tracepb.ScopeSpans{{Spans: spans}}}}}
 }
