@@ -150,7 +150,11 @@ func (l *Loader) captureSource() (*Source, bool, error) {
 		}
 		return nil, false, nil
 	}
-	app := newProfileAppender(l.opts.Limits)
+	// Goroutine profiles see the time requests wait on the database and
+	// network; CPU profiles do not, and the two cannot share a
+	// denominator: the goroutine profiles are read when there are any.
+	var decoded []*rawProfile
+	goroutines := 0
 	for _, cp := range l.capProfiles {
 		data := cp.data
 		if bytes.HasPrefix(data, gzipMagic) {
@@ -163,12 +167,33 @@ func (l *Loader) captureSource() (*Source, bool, error) {
 			}
 		}
 		p, ok := decodeProfile(data)
-		if !ok {
+		if !ok || len(p.sampleTypes) == 0 {
 			return nil, true, &ParseError{File: cp.name, Offset: cp.offset, Err: fmt.Errorf("%w: profile record is not a pprof profile", ErrFormat)}
 		}
-		if err := app.add(cp.name, p); err != nil {
+		if isGoroutineProfile(p) {
+			goroutines++
+		}
+		decoded = append(decoded, p)
+	}
+	app := newProfileAppender(l.opts.Limits)
+	skipped := 0
+	for i, p := range decoded {
+		if goroutines > 0 && !isGoroutineProfile(p) {
+			skipped++
+			continue
+		}
+		if err := app.add(l.capProfiles[i].name, p); err != nil {
 			return nil, true, err
 		}
 	}
+	if skipped > 0 {
+		l.warnings.Add(Warning{Kind: WarnCaptureProfiles, File: l.capProfiles[0].name,
+			Message: fmt.Sprintf("%d CPU profiles of the capture not read: the run reads its %d goroutine profiles", skipped, goroutines)})
+	}
 	return app.src, true, nil
+}
+
+// isGoroutineProfile reports whether p counts goroutines.
+func isGoroutineProfile(p *rawProfile) bool {
+	return len(p.sampleTypes) == 1 && p.sampleTypes[0].Type == "goroutine"
 }

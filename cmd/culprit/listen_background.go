@@ -7,6 +7,7 @@ import (
 	"net/http"
 	"net/url"
 	"strings"
+	"sync"
 	"time"
 
 	"github.com/culprithq/culprit/traces/capture"
@@ -86,6 +87,13 @@ func (rc *receiver) fetchProfiles(ctx context.Context, base string, every time.D
 		return
 	}
 	client := &http.Client{Timeout: every + 30*time.Second}
+	// Each URL's failures are told once, until it works again.
+	var failing sync.Map
+	fail := func(u, format string, args ...any) {
+		if _, told := failing.LoadOrStore(u, true); !told && ctx.Err() == nil {
+			rc.warn(format, args...)
+		}
+	}
 	fetch := func(u string) {
 		req, err := http.NewRequestWithContext(ctx, http.MethodGet, u, nil)
 		if err != nil {
@@ -93,26 +101,23 @@ func (rc *receiver) fetchProfiles(ctx context.Context, base string, every time.D
 		}
 		resp, err := client.Do(req)
 		if err != nil {
-			if ctx.Err() == nil {
-				rc.warn("fetching %s: %v (will retry)", u, err)
-			}
+			fail(u, "fetching %s: %v (retrying every %s)", u, err, every)
 			return
 		}
 		defer resp.Body.Close()
 		data, err := io.ReadAll(io.LimitReader(resp.Body, rc.opts.MaxBody+1))
 		switch {
 		case err != nil:
-			if ctx.Err() == nil {
-				rc.warn("fetching %s: %v (will retry)", u, err)
-			}
+			fail(u, "fetching %s: %v (retrying every %s)", u, err, every)
 			return
 		case resp.StatusCode != http.StatusOK:
-			rc.warn("fetching %s: %s (will retry)", u, resp.Status)
+			fail(u, "fetching %s: %s (retrying every %s)", u, resp.Status, every)
 			return
 		case int64(len(data)) > rc.opts.MaxBody:
-			rc.warn("fetching %s: profile larger than --max-body", u)
+			fail(u, "fetching %s: profile larger than --max-body", u)
 			return
 		}
+		failing.Delete(u)
 		if err := rc.w.Append(capture.Profile, data); err != nil {
 			rc.diskProblem(err)
 			return
