@@ -22,10 +22,15 @@ func TestListenPprof(t *testing.T) {
 	defer srv.Close()
 	dir := filepath.Join(t.TempDir(), "capture")
 	report := filepath.Join(t.TempDir(), "rank.txt")
-	l := startListen(t, nil, "--dir", dir, "--pprof", srv.URL, "--pprof", srv.URL+"/missing/", "--pprof-every", "1s", "-o", report)
+	// On a terminal, without --quiet, a status line is rewritten every second.
+	terminal := func(o *listenOptions) { o.streams.ErrIsTerminal, o.Quiet = true, false }
+	l := startListen(t, terminal, "--dir", dir, "--pprof", srv.URL, "--pprof", srv.URL+"/missing/", "--pprof-every", "1s", "-o", report)
 	time.Sleep(2500 * time.Millisecond)
 	l.stop(t)
-	if !strings.Contains(l.stderr.String(), "404") {
+	if !strings.Contains(l.stderr.String(), "\r\x1b[Kculprit: 0 spans/s · 0 requests · 0 spans stored · 0 in flight") {
+		t.Errorf("no status line: %q", l.stderr)
+	}
+	if strings.Count(l.stderr.String(), "404") != 2 {
 		t.Errorf("no warning about the missing endpoint: %q", l.stderr)
 	}
 	segs, _ := filepath.Glob(filepath.Join(dir, "*.culprit-capture"))

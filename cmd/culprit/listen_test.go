@@ -40,14 +40,35 @@ type listener struct {
 	httpAddr, grpcAddr string
 	cancel             context.CancelFunc
 	done               chan error
-	stderr             *bytes.Buffer
+	stderr             *syncBuffer
+}
+
+// syncBuffer is a buffer that the listener's goroutines write while the
+// test reads it.
+type syncBuffer struct {
+	mu sync.Mutex
+	b  bytes.Buffer
+}
+
+func (s *syncBuffer) Write(p []byte) (int, error) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.Write(p)
+}
+
+func (s *syncBuffer) String() string {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.String()
 }
 
 // startListen runs `culprit listen ARGS` on ephemeral loopback ports;
 // setup may change the options before it starts.
 func startListen(t testing.TB, setup func(*listenOptions), args ...string) *listener {
 	t.Helper()
-	s, _, errb := testStreams("")
+	s, _, _ := testStreams("")
+	errb := &syncBuffer{}
+	s.Err = errb
 	ctx, cancel := context.WithCancel(context.Background())
 	l := &listener{cancel: cancel, done: make(chan error, 1), stderr: errb}
 	ready := make(chan struct{})
