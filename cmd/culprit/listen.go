@@ -205,6 +205,12 @@ func runListen(ctx context.Context, opts *listenOptions) error {
 	select {
 	case <-sigs:
 	case <-ctx.Done():
+		// The interrupt that cancelled ctx reached sigs too: it is this
+		// stop, not a second signal.
+		select {
+		case <-sigs:
+		default:
+		}
 	case <-timeout:
 	}
 

@@ -8,8 +8,10 @@ import (
 	"os/exec"
 	"path/filepath"
 	"regexp"
+	"strings"
 	"sync"
 	"sync/atomic"
+	"syscall"
 	"testing"
 	"time"
 )
@@ -124,5 +126,62 @@ func TestListenSIGKILL(t *testing.T) {
 	t.Logf("%d requests acknowledged, %d spans in the capture", len(acked), len(got))
 	if code, _, errOut := runTest(t, "", "rank", dir); code != 0 {
 		t.Fatalf("rank of the capture: %s", errOut)
+	}
+}
+
+// TestListenSIGTERM stops a listener process with SIGTERM: it stores
+// what it acknowledged, writes the report and exits 0.
+func TestListenSIGTERM(t *testing.T) {
+	dir := t.TempDir()
+	report := filepath.Join(dir, "rank.json")
+	cmd := exec.Command(os.Args[0], "-test.run=^TestListenHelperProcess$", "--", "listen",
+		"--http", "127.0.0.1:0", "--grpc", "", "--dir", filepath.Join(dir, "capture"), "--format", "json", "-o", report)
+	cmd.Env = append(os.Environ(), "CULPRIT_LISTEN_CHILD=1")
+	var stderr syncBuffer
+	cmd.Stderr = &stderr
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	defer cmd.Process.Kill()
+	addrRe := regexp.MustCompile(`http://([0-9.:]+)/v1/traces`)
+	var addr string
+	for range 500 {
+		if m := addrRe.FindStringSubmatch(stderr.String()); m != nil {
+			addr = m[1]
+			break
+		}
+		time.Sleep(10 * time.Millisecond)
+	}
+	if addr == "" {
+		t.Fatalf("the child did not say where it listens: %s", stderr.String())
+	}
+	for i := range 3 {
+		if code, _, body := post(t, addr, mediaProto, "", bytes.NewReader(marshal(t, benchRequest(i, 30)))); code != 200 {
+			t.Fatalf("%d %s", code, body)
+		}
+	}
+	cmd.Process.Signal(syscall.SIGTERM)
+	if err := cmd.Wait(); err != nil {
+		t.Fatalf("exit: %v\n%s", err, stderr.String())
+	}
+	if !strings.Contains(stderr.String(), "stored 90 spans in 3 requests") {
+		t.Errorf("stderr: %s", stderr.String())
+	}
+	doc := jsonDoc(t, report)
+	if causes, _ := doc["rootCauses"].([]any); len(causes) == 0 {
+		t.Fatalf("the report has no root causes: %v", doc)
+	}
+}
+
+// TestListenUsage: addresses other than loopback need --allow-remote; a
+// directory holding a capture is not reused.
+func TestListenUsage(t *testing.T) {
+	if code, _, errOut := runTest(t, "", "listen", "--http", "0.0.0.0:0", "--grpc", ""); code != exitUsage || !strings.Contains(errOut, "--allow-remote") {
+		t.Errorf("non-loopback address: exit %d: %s", code, errOut)
+	}
+	dir := t.TempDir()
+	os.WriteFile(filepath.Join(dir, "seg-000001.culprit-capture"), nil, 0o644)
+	if code, _, errOut := runTest(t, "", "listen", "--http", "127.0.0.1:0", "--grpc", "", "--dir", dir); code != exitUsage || !strings.Contains(errOut, "already holds a capture") {
+		t.Errorf("reused capture directory: exit %d: %s", code, errOut)
 	}
 }
