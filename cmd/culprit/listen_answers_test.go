@@ -271,6 +271,16 @@ func TestListenAnswers(t *testing.T) {
 	if got := len(captureSpans(t, fd.path)); got != stored {
 		t.Fatalf("capture holds %d spans, want the %d acknowledged", got, stored)
 	}
+	// The capture, protobuf and JSON records alike, reads as an input:
+	// every span but the 2 with invalid IDs, and a warning for those.
+	report := filepath.Join(t.TempDir(), "rank.json")
+	if code, _, errOut := runTest(t, "", "rank", "--format", "json", "-o", report, fd.path); code != 0 {
+		t.Fatalf("rank of the capture: %s", errOut)
+	}
+	doc := jsonDoc(t, report)
+	if ws := fmt.Sprint(doc["warnings"]); !strings.Contains(ws, "2 × invalid-id") {
+		t.Errorf("warnings %s, want the 2 spans with invalid IDs", ws)
+	}
 }
 
 // TestListenStopping: once stopping, requests get 503 with Retry-After.
