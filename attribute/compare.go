@@ -678,14 +678,22 @@ func verdictOf(st *changeStat, alpha float64, b Budget) Outcome {
 	case math.IsNaN(st.lo) || math.IsNaN(st.hi):
 		return OutcomeInconclusive
 	}
+	return budgetVerdict(st.lo, st.hi, st.base, b)
+}
+
+// budgetVerdict judges a significant change by its relative interval
+// [lo, hi] (base × interval in absolute terms) against budget b:
+// regressed or improved when the interval clears the budget, unchanged
+// when it lies within it, else inconclusive.
+func budgetVerdict(lo, hi, base float64, b Budget) Outcome {
 	r, a := b.Relative, b.Absolute
-	absLo, absHi := st.lo*st.base, st.hi*st.base
+	absLo, absHi := lo*base, hi*base
 	switch {
-	case st.lo > r && (a == 0 || absLo > a):
+	case lo > r && (a == 0 || absLo > a):
 		return OutcomeRegressed
-	case st.hi < -r && (a == 0 || absHi < -a):
+	case hi < -r && (a == 0 || absHi < -a):
 		return OutcomeImproved
-	case (st.lo >= -r && st.hi <= r) || (a > 0 && absLo >= -a && absHi <= a):
+	case (lo >= -r && hi <= r) || (a > 0 && absLo >= -a && absHi <= a):
 		return OutcomeUnchanged
 	}
 	return OutcomeInconclusive
