@@ -104,8 +104,12 @@ func (r *wireReader) fail(b []byte, i int, why string) bool {
 // next reads the field at b[*i] into f and advances *i past it.
 func (r *wireReader) next(b []byte, i *int, f *protoField) bool {
 	at := *i
-	num, typ, n := protowire.ConsumeTag(b[at:])
-	if n < 0 {
+	var num protowire.Number
+	var typ protowire.Type
+	n := 1
+	if c := b[at]; c < 0x80 && c >= 8 {
+		num, typ = protowire.Number(c>>3), protowire.Type(c&7) // the usual one-byte tag
+	} else if num, typ, n = protowire.ConsumeTag(b[at:]); n < 0 {
 		return r.fail(b, at, "bad field tag: "+wireProblem(n))
 	}
 	if num > protowire.MaxValidNumber {
@@ -124,7 +128,11 @@ func (r *wireReader) next(b []byte, i *int, f *protoField) bool {
 	case protowire.Fixed64Type:
 		f.x, m = protowire.ConsumeFixed64(b[j:])
 	case protowire.BytesType:
-		f.v, m = protowire.ConsumeBytes(b[j:])
+		if j < len(b) && b[j] < 0x80 && j+1+int(b[j]) <= len(b) {
+			f.v, m = b[j+1:j+1+int(b[j])], 1+int(b[j]) // a short value
+		} else {
+			f.v, m = protowire.ConsumeBytes(b[j:])
+		}
 	default:
 		m = protowire.ConsumeFieldValue(num, typ, b[j:])
 	}
@@ -156,13 +164,13 @@ func (r *wireReader) str(f *protoField, what string) (string, bool) {
 // message reads the fields of the message b, calling field for each; a
 // field of an unknown number, or of a known one with another wire type,
 // is skipped by field returning true.
-func (r *wireReader) message(b []byte, field func(f *protoField) bool) bool {
+func (r *wireReader) message(b []byte, field func(f protoField) bool) bool {
 	if !r.enter(b) {
 		return false
 	}
-	var f protoField
 	for i := 0; i < len(b); {
-		if !r.next(b, &i, &f) || !field(&f) {
+		var f protoField
+		if !r.next(b, &i, &f) || !field(f) {
 			return false
 		}
 	}
@@ -172,7 +180,7 @@ func (r *wireReader) message(b []byte, field func(f *protoField) bool) bool {
 
 // request reads an ExportTraceServiceRequest or TracesData.
 func (r *wireReader) request(req *jsonRequest, b []byte) bool {
-	return r.message(b, func(f *protoField) bool {
+	return r.message(b, func(f protoField) bool {
 		if f.num == 1 && f.typ == protowire.BytesType {
 			req.ResourceSpans = extend(req.ResourceSpans)
 			rs := &req.ResourceSpans[len(req.ResourceSpans)-1]
@@ -186,7 +194,7 @@ func (r *wireReader) request(req *jsonRequest, b []byte) bool {
 // resourceSpans reads a ResourceSpans: resource = 1, scope_spans = 2,
 // schema_url = 3.
 func (r *wireReader) resourceSpans(rs *jsonResourceSpans, b []byte) bool {
-	return r.message(b, func(f *protoField) bool {
+	return r.message(b, func(f protoField) bool {
 		if f.typ != protowire.BytesType {
 			return true
 		}
@@ -199,7 +207,7 @@ func (r *wireReader) resourceSpans(rs *jsonResourceSpans, b []byte) bool {
 			sc.Spans = sc.Spans[:0]
 			return r.scopeSpans(sc, f.v)
 		case 3:
-			_, ok := r.str(f, "schema_url")
+			_, ok := r.str(&f, "schema_url")
 			return ok
 		}
 		return true
@@ -209,7 +217,7 @@ func (r *wireReader) resourceSpans(rs *jsonResourceSpans, b []byte) bool {
 // resource reads a Resource: attributes = 1 (service.name kept),
 // entity_refs = 3.
 func (r *wireReader) resource(res *jsonResource, b []byte) bool {
-	return r.message(b, func(f *protoField) bool {
+	return r.message(b, func(f protoField) bool {
 		if f.typ != protowire.BytesType {
 			return true
 		}
@@ -226,9 +234,9 @@ func (r *wireReader) resource(res *jsonResource, b []byte) bool {
 // strings checks a message whose length-delimited fields 1 to 4 are all
 // strings (EntityRef: schema_url, type, id_keys, description_keys).
 func (r *wireReader) strings(b []byte, what string) bool {
-	return r.message(b, func(f *protoField) bool {
+	return r.message(b, func(f protoField) bool {
 		if f.typ == protowire.BytesType && f.num >= 1 && f.num <= 4 {
-			_, ok := r.str(f, what)
+			_, ok := r.str(&f, what)
 			return ok
 		}
 		return true
@@ -237,7 +245,7 @@ func (r *wireReader) strings(b []byte, what string) bool {
 
 // scopeSpans reads a ScopeSpans: scope = 1, spans = 2, schema_url = 3.
 func (r *wireReader) scopeSpans(sc *jsonScopeSpans, b []byte) bool {
-	return r.message(b, func(f *protoField) bool {
+	return r.message(b, func(f protoField) bool {
 		if f.typ != protowire.BytesType {
 			return true
 		}
@@ -250,7 +258,7 @@ func (r *wireReader) scopeSpans(sc *jsonScopeSpans, b []byte) bool {
 			*sp = jsonSpan{Attributes: sp.Attributes[:0], wire: true}
 			return r.span(sp, f.v)
 		case 3:
-			_, ok := r.str(f, "schema_url")
+			_, ok := r.str(&f, "schema_url")
 			return ok
 		}
 		return true
@@ -260,13 +268,13 @@ func (r *wireReader) scopeSpans(sc *jsonScopeSpans, b []byte) bool {
 // scope checks an InstrumentationScope: name = 1, version = 2,
 // attributes = 3.
 func (r *wireReader) scope(b []byte) bool {
-	return r.message(b, func(f *protoField) bool {
+	return r.message(b, func(f protoField) bool {
 		if f.typ != protowire.BytesType {
 			return true
 		}
 		switch f.num {
 		case 1, 2:
-			_, ok := r.str(f, "scope name or version")
+			_, ok := r.str(&f, "scope name or version")
 			return ok
 		case 3:
 			return r.keyValue(nil, nil, f.v)
@@ -277,7 +285,7 @@ func (r *wireReader) scope(b []byte) bool {
 
 // span reads a Span (field numbers in the switch).
 func (r *wireReader) span(sp *jsonSpan, b []byte) bool {
-	return r.message(b, func(f *protoField) bool {
+	return r.message(b, func(f protoField) bool {
 		var ok bool
 		switch f.typ {
 		case protowire.BytesType:
@@ -289,10 +297,10 @@ func (r *wireReader) span(sp *jsonSpan, b []byte) bool {
 			case 4:
 				sp.ParentSpanID = bytesString(f.v)
 			case 3:
-				_, ok = r.str(f, "trace_state")
+				_, ok = r.str(&f, "trace_state")
 				return ok
 			case 5:
-				sp.Name, ok = r.str(f, "span name")
+				sp.Name, ok = r.str(&f, "span name")
 				return ok
 			case 9:
 				return r.keyValue(&sp.Attributes, isSpanAttribute, f.v)
@@ -327,13 +335,13 @@ func (r *wireReader) span(sp *jsonSpan, b []byte) bool {
 
 // event checks a Span.Event: name = 2, attributes = 3.
 func (r *wireReader) event(b []byte) bool {
-	return r.message(b, func(f *protoField) bool {
+	return r.message(b, func(f protoField) bool {
 		if f.typ != protowire.BytesType {
 			return true
 		}
 		switch f.num {
 		case 2:
-			_, ok := r.str(f, "event name")
+			_, ok := r.str(&f, "event name")
 			return ok
 		case 3:
 			return r.keyValue(nil, nil, f.v)
@@ -344,13 +352,13 @@ func (r *wireReader) event(b []byte) bool {
 
 // link checks a Span.Link: trace_state = 3, attributes = 4.
 func (r *wireReader) link(b []byte) bool {
-	return r.message(b, func(f *protoField) bool {
+	return r.message(b, func(f protoField) bool {
 		if f.typ != protowire.BytesType {
 			return true
 		}
 		switch f.num {
 		case 3:
-			_, ok := r.str(f, "link trace_state")
+			_, ok := r.str(&f, "link trace_state")
 			return ok
 		case 4:
 			return r.keyValue(nil, nil, f.v)
@@ -361,9 +369,9 @@ func (r *wireReader) link(b []byte) bool {
 
 // status checks a Status: message = 2.
 func (r *wireReader) status(b []byte) bool {
-	return r.message(b, func(f *protoField) bool {
+	return r.message(b, func(f protoField) bool {
 		if f.typ == protowire.BytesType && f.num == 2 {
-			_, ok := r.str(f, "status message")
+			_, ok := r.str(&f, "status message")
 			return ok
 		}
 		return true
@@ -374,14 +382,14 @@ func (r *wireReader) status(b []byte) bool {
 // when keep accepts its key; with a nil list it only checks it.
 func (r *wireReader) keyValue(list *[]jsonKeyValue, keep func(string) bool, b []byte) bool {
 	var kv jsonKeyValue
-	ok := r.message(b, func(f *protoField) bool {
+	ok := r.message(b, func(f protoField) bool {
 		if f.typ != protowire.BytesType {
 			return true
 		}
 		switch f.num {
 		case 1:
 			var ok bool
-			kv.Key, ok = r.str(f, "attribute key")
+			kv.Key, ok = r.str(&f, "attribute key")
 			return ok
 		case 2:
 			return r.anyValue(&kv.Value, f.v)
@@ -404,10 +412,10 @@ var (
 // anyValue reads an AnyValue into v, which may already hold one (a
 // message field given twice is merged: the oneof member set last wins).
 func (r *wireReader) anyValue(v *jsonAnyValue, b []byte) bool {
-	return r.message(b, func(f *protoField) bool {
+	return r.message(b, func(f protoField) bool {
 		switch {
 		case f.num == 1 && f.typ == protowire.BytesType:
-			s, ok := r.str(f, "string value")
+			s, ok := r.str(&f, "string value")
 			*v = jsonAnyValue{StringValue: s}
 			return ok
 		case f.num == 2 && f.typ == protowire.VarintType:
@@ -420,7 +428,7 @@ func (r *wireReader) anyValue(v *jsonAnyValue, b []byte) bool {
 			if v.ArrayValue == nil {
 				*v = jsonAnyValue{ArrayValue: &wireArray}
 			}
-			return r.message(f.v, func(g *protoField) bool {
+			return r.message(f.v, func(g protoField) bool {
 				if g.num == 1 && g.typ == protowire.BytesType {
 					var x jsonAnyValue
 					return r.anyValue(&x, g.v)
@@ -431,7 +439,7 @@ func (r *wireReader) anyValue(v *jsonAnyValue, b []byte) bool {
 			if v.KvlistValue == nil {
 				*v = jsonAnyValue{KvlistValue: &wireKvlist}
 			}
-			return r.message(f.v, func(g *protoField) bool {
+			return r.message(f.v, func(g protoField) bool {
 				if g.num == 1 && g.typ == protowire.BytesType {
 					return r.keyValue(nil, nil, g.v)
 				}

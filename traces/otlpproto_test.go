@@ -269,6 +269,37 @@ func BenchmarkOTLPProto(b *testing.B) {
 	b.ReportMetric(float64(nSpans)*float64(b.N)/time.Since(start).Seconds(), "spans/s")
 }
 
+// BenchmarkOTLPProtoDecode is the wire reader alone: the requests
+// decoded into the reader's reused values (what proto.Unmarshal does into
+// the official types), without converting and assembling the spans.
+func BenchmarkOTLPProtoDecode(b *testing.B) {
+	reqs, nSpans := benchRequests(b)
+	var req jsonRequest
+	var text []byte
+	bools := [2]bool{false, true}
+	start := time.Now()
+	for b.Loop() {
+		n := 0
+		for _, data := range reqs {
+			req.reset()
+			text = text[:0]
+			r := wireReader{rec: data, depth: protoDepth, text: &text, bools: &bools}
+			if !r.request(&req, data) {
+				b.Fatal(r.why)
+			}
+			for _, rs := range req.ResourceSpans {
+				for _, ss := range rs.ScopeSpans {
+					n += len(ss.Spans)
+				}
+			}
+		}
+		if n != nSpans {
+			b.Fatalf("%d spans, want %d", n, nSpans)
+		}
+	}
+	b.ReportMetric(float64(nSpans)*float64(b.N)/time.Since(start).Seconds(), "spans/s")
+}
+
 func BenchmarkOTLPProtoUnmarshal(b *testing.B) {
 	reqs, nSpans := benchRequests(b)
 	start := time.Now()
