@@ -285,52 +285,65 @@ func (r *wireReader) scope(b []byte) bool {
 
 // span reads a Span (field numbers in the switch).
 func (r *wireReader) span(sp *jsonSpan, b []byte) bool {
-	return r.message(b, func(f protoField) bool {
-		var ok bool
-		switch f.typ {
-		case protowire.BytesType:
-			switch f.num {
-			case 1:
-				sp.TraceID = bytesString(f.v)
-			case 2:
-				sp.SpanID = bytesString(f.v)
-			case 4:
-				sp.ParentSpanID = bytesString(f.v)
-			case 3:
-				_, ok = r.str(&f, "trace_state")
-				return ok
-			case 5:
-				sp.Name, ok = r.str(&f, "span name")
-				return ok
-			case 9:
-				return r.keyValue(&sp.Attributes, isSpanAttribute, f.v)
-			case 11:
-				return r.event(f.v)
-			case 13:
-				return r.link(f.v)
-			case 15:
-				return r.status(f.v)
-			}
-		case protowire.VarintType:
-			if f.num == 6 {
-				// An enum is an int32; values outside the known kinds are
-				// unspecified, as for OTLP/JSON.
-				if k := int32(f.x); k >= 0 && k <= int32(SpanKindConsumer) {
-					sp.Kind = jsonKind(k)
-				} else {
-					sp.Kind = 0
-				}
-			}
-		case protowire.Fixed64Type:
-			switch f.num {
-			case 7:
-				sp.start = f.x
-			case 8:
-				sp.end = f.x
+	if !r.enter(b) {
+		return false
+	}
+	for i := 0; i < len(b); {
+		var f protoField
+		if !r.next(b, &i, &f) || !r.spanField(sp, f) {
+			return false
+		}
+	}
+	r.leave()
+	return true
+}
+
+// spanField reads one field of a Span (a direct call: spans are many).
+func (r *wireReader) spanField(sp *jsonSpan, f protoField) bool {
+	var ok bool
+	switch f.typ {
+	case protowire.BytesType:
+		switch f.num {
+		case 1:
+			sp.TraceID = bytesString(f.v)
+		case 2:
+			sp.SpanID = bytesString(f.v)
+		case 4:
+			sp.ParentSpanID = bytesString(f.v)
+		case 3:
+			_, ok = r.str(&f, "trace_state")
+			return ok
+		case 5:
+			sp.Name, ok = r.str(&f, "span name")
+			return ok
+		case 9:
+			return r.keyValue(&sp.Attributes, isSpanAttribute, f.v)
+		case 11:
+			return r.event(f.v)
+		case 13:
+			return r.link(f.v)
+		case 15:
+			return r.status(f.v)
+		}
+	case protowire.VarintType:
+		if f.num == 6 {
+			// An enum is an int32; values outside the known kinds are
+			// unspecified, as for OTLP/JSON.
+			if k := int32(f.x); k >= 0 && k <= int32(SpanKindConsumer) {
+				sp.Kind = jsonKind(k)
+			} else {
+				sp.Kind = 0
 			}
 		}
-		return true
-	})
+	case protowire.Fixed64Type:
+		switch f.num {
+		case 7:
+			sp.start = f.x
+		case 8:
+			sp.end = f.x
+		}
+	}
+	return true
 }
 
 // event checks a Span.Event: name = 2, attributes = 3.
@@ -381,25 +394,36 @@ func (r *wireReader) status(b []byte) bool {
 // keyValue reads a KeyValue (key = 1, value = 2) and appends it to list
 // when keep accepts its key; with a nil list it only checks it.
 func (r *wireReader) keyValue(list *[]jsonKeyValue, keep func(string) bool, b []byte) bool {
+	if !r.enter(b) {
+		return false
+	}
 	var kv jsonKeyValue
-	ok := r.message(b, func(f protoField) bool {
-		if f.typ != protowire.BytesType {
-			return true
+	for i := 0; i < len(b); {
+		var f protoField
+		if !r.next(b, &i, &f) {
+			return false
 		}
+		if f.typ != protowire.BytesType {
+			continue
+		}
+		var ok bool
 		switch f.num {
 		case 1:
-			var ok bool
 			kv.Key, ok = r.str(&f, "attribute key")
-			return ok
 		case 2:
-			return r.anyValue(&kv.Value, f.v)
+			ok = r.anyValue(&kv.Value, f.v)
+		default:
+			ok = true
 		}
-		return true
-	})
-	if ok && list != nil && keep(kv.Key) {
+		if !ok {
+			return false
+		}
+	}
+	r.leave()
+	if list != nil && keep(kv.Key) {
 		*list = append(*list, kv)
 	}
-	return ok
+	return true
 }
 
 // wireArray and wireKvlist stand for an array or key-value list value,
@@ -412,46 +436,59 @@ var (
 // anyValue reads an AnyValue into v, which may already hold one (a
 // message field given twice is merged: the oneof member set last wins).
 func (r *wireReader) anyValue(v *jsonAnyValue, b []byte) bool {
-	return r.message(b, func(f protoField) bool {
-		switch {
-		case f.num == 1 && f.typ == protowire.BytesType:
-			s, ok := r.str(&f, "string value")
-			*v = jsonAnyValue{StringValue: s}
-			return ok
-		case f.num == 2 && f.typ == protowire.VarintType:
-			*v = jsonAnyValue{BoolValue: &r.bools[min(f.x, 1)]}
-		case f.num == 3 && f.typ == protowire.VarintType:
-			*v = jsonAnyValue{IntValue: r.integer(int64(f.x))}
-		case f.num == 4 && f.typ == protowire.Fixed64Type:
-			*v = jsonAnyValue{DoubleValue: jsonDouble{v: math.Float64frombits(f.x), set: true}}
-		case f.num == 5 && f.typ == protowire.BytesType:
-			if v.ArrayValue == nil {
-				*v = jsonAnyValue{ArrayValue: &wireArray}
-			}
-			return r.message(f.v, func(g protoField) bool {
-				if g.num == 1 && g.typ == protowire.BytesType {
-					var x jsonAnyValue
-					return r.anyValue(&x, g.v)
-				}
-				return true
-			})
-		case f.num == 6 && f.typ == protowire.BytesType:
-			if v.KvlistValue == nil {
-				*v = jsonAnyValue{KvlistValue: &wireKvlist}
-			}
-			return r.message(f.v, func(g protoField) bool {
-				if g.num == 1 && g.typ == protowire.BytesType {
-					return r.keyValue(nil, nil, g.v)
-				}
-				return true
-			})
-		case f.num == 7 && f.typ == protowire.BytesType:
-			*v = jsonAnyValue{BytesValue: jsonBytes{n: len(f.v), set: true}}
-		case f.num == 8 && f.typ == protowire.VarintType:
-			*v = jsonAnyValue{} // string_value_strindex: profiles only
+	if !r.enter(b) {
+		return false
+	}
+	for i := 0; i < len(b); {
+		var f protoField
+		if !r.next(b, &i, &f) || !r.anyValueField(v, f) {
+			return false
 		}
-		return true
-	})
+	}
+	r.leave()
+	return true
+}
+
+// anyValueField reads one field of an AnyValue.
+func (r *wireReader) anyValueField(v *jsonAnyValue, f protoField) bool {
+	switch {
+	case f.num == 1 && f.typ == protowire.BytesType:
+		s, ok := r.str(&f, "string value")
+		*v = jsonAnyValue{StringValue: s}
+		return ok
+	case f.num == 2 && f.typ == protowire.VarintType:
+		*v = jsonAnyValue{BoolValue: &r.bools[min(f.x, 1)]}
+	case f.num == 3 && f.typ == protowire.VarintType:
+		*v = jsonAnyValue{IntValue: r.integer(int64(f.x))}
+	case f.num == 4 && f.typ == protowire.Fixed64Type:
+		*v = jsonAnyValue{DoubleValue: jsonDouble{v: math.Float64frombits(f.x), set: true}}
+	case f.num == 5 && f.typ == protowire.BytesType:
+		if v.ArrayValue == nil {
+			*v = jsonAnyValue{ArrayValue: &wireArray}
+		}
+		return r.message(f.v, func(g protoField) bool {
+			if g.num == 1 && g.typ == protowire.BytesType {
+				var x jsonAnyValue
+				return r.anyValue(&x, g.v)
+			}
+			return true
+		})
+	case f.num == 6 && f.typ == protowire.BytesType:
+		if v.KvlistValue == nil {
+			*v = jsonAnyValue{KvlistValue: &wireKvlist}
+		}
+		return r.message(f.v, func(g protoField) bool {
+			if g.num == 1 && g.typ == protowire.BytesType {
+				return r.keyValue(nil, nil, g.v)
+			}
+			return true
+		})
+	case f.num == 7 && f.typ == protowire.BytesType:
+		*v = jsonAnyValue{BytesValue: jsonBytes{n: len(f.v), set: true}}
+	case f.num == 8 && f.typ == protowire.VarintType:
+		*v = jsonAnyValue{} // string_value_strindex: profiles only
+	}
+	return true
 }
 
 // integer formats n into the arena.
