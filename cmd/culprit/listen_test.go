@@ -31,6 +31,8 @@ import (
 	commonpb "go.opentelemetry.io/proto/otlp/common/v1"
 	resourcepb "go.opentelemetry.io/proto/otlp/resource/v1"
 	tracepb "go.opentelemetry.io/proto/otlp/trace/v1"
+	"google.golang.org/grpc"
+	"google.golang.org/grpc/credentials/insecure"
 	"google.golang.org/protobuf/encoding/protojson"
 	"google.golang.org/protobuf/proto"
 )
@@ -427,6 +429,45 @@ func BenchmarkListen(b *testing.B) {
 			<-l.done
 		})
 	}
+}
+
+// BenchmarkListenGRPC is BenchmarkListen over OTLP/gRPC (the official
+// generated client, one connection, 4 goroutines).
+func BenchmarkListenGRPC(b *testing.B) {
+	l := startListen(b, nil, "--dir", filepath.Join(b.TempDir(), "capture"), "--max-inflight", "16")
+	conn, err := grpc.NewClient(l.grpcAddr, grpc.WithTransportCredentials(insecure.NewCredentials()))
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer conn.Close()
+	client := coltracepb.NewTraceServiceClient(conn)
+	reqs := make([]*coltracepb.ExportTraceServiceRequest, 64)
+	for i := range reqs {
+		reqs[i] = benchRequest(i, 500)
+	}
+	var next atomic.Int64
+	start := time.Now()
+	b.ResetTimer()
+	var wg sync.WaitGroup
+	for range 4 {
+		wg.Go(func() {
+			for {
+				i := next.Add(1)
+				if i > int64(b.N) {
+					return
+				}
+				if _, err := client.Export(context.Background(), reqs[i%64]); err != nil {
+					b.Error(err)
+					return
+				}
+			}
+		})
+	}
+	wg.Wait()
+	b.StopTimer()
+	b.ReportMetric(float64(b.N)*500/time.Since(start).Seconds(), "spans/s")
+	l.cancel()
+	<-l.done
 }
 
 // benchRequest is n spans of traces like the greenhouse shop's: a server
