@@ -162,8 +162,8 @@ func (r *Reader) Next() (Record, error) {
 		}
 		return r.corrupt(at, fmt.Sprintf("record length %d exceeds the limit of %d bytes", length, r.max))
 	}
-	payload := make([]byte, length)
-	if m, err := io.ReadFull(r.r, payload); err != nil {
+	payload, m, err := readN(r.r, length)
+	if err != nil {
 		if errors.Is(err, io.ErrUnexpectedEOF) || errors.Is(err, io.EOF) {
 			return r.torn(at, fmt.Sprintf("the segment ends %d bytes into its %d-byte payload", m, length))
 		}
@@ -179,6 +179,23 @@ func (r *Reader) Next() (Record, error) {
 	}
 	r.off += recordHead + length
 	return Record{Type: Type(h[8]), Payload: payload, Offset: at}, nil
+}
+
+// readN reads n bytes. A large n (a length field that a crash left
+// half-written says anything up to 4 GiB) is not allocated up front: the
+// buffer grows with the data that is there.
+func readN(r io.Reader, n int64) ([]byte, int64, error) {
+	if n <= 1<<20 {
+		buf := make([]byte, n)
+		m, err := io.ReadFull(r, buf)
+		return buf, int64(m), err
+	}
+	var b bytes.Buffer
+	m, err := b.ReadFrom(io.LimitReader(r, n))
+	if err == nil && m < n {
+		err = io.ErrUnexpectedEOF
+	}
+	return b.Bytes(), m, err
 }
 
 func (r *Reader) torn(at int64, why string) (Record, error) {

@@ -156,6 +156,21 @@ func TestTornTail(t *testing.T) {
 			t.Fatalf("cut at %d: %v, want a torn record at %d", cut, err, start)
 		}
 	}
+	// A length field claiming 3 GB, with a few bytes after it: torn, read
+	// without allocating the claimed size.
+	huge := append(bytes.Clone(seg), 0, 0, 0, 0xb0, 1, 2, 3, 4, 1, 'x', 'y')
+	r, err := NewReader(bytes.NewReader(huge), 4<<30)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for range 3 {
+		if _, err := r.Next(); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if _, err := r.Next(); !errors.As(err, new(*TornError)) {
+		t.Fatalf("huge length: %v", err)
+	}
 	// Zero bytes after the last record (space allocated, never written)
 	// are a torn tail too.
 	if recs, err := readAll(t, append(bytes.Clone(seg), make([]byte, 100)...)); len(recs) != 3 || !errors.As(err, new(*TornError)) {
