@@ -138,6 +138,7 @@ func runListen(ctx context.Context, opts *listenOptions) error {
 	rand.Read(instance[:])
 	w := capture.NewWriter(dir, capture.WriterOptions{Instance: instance, SegmentBytes: opts.SegmentBytes, SyncEach: opts.Sync == 0})
 	rc := newReceiver(w, opts, s.Err)
+	rc.showStatus = s.ErrIsTerminal && !opts.Quiet
 
 	// Listen first: a port in use is an error before anything runs.
 	var httpLn, grpcLn net.Listener
@@ -188,7 +189,7 @@ func runListen(ctx context.Context, opts *listenOptions) error {
 	if opts.Sync > 0 {
 		workers.Go(func() { rc.syncEvery(bg, opts.Sync) })
 	}
-	if s.ErrIsTerminal && !opts.Quiet {
+	if rc.showStatus {
 		workers.Go(func() { rc.status(bg, s.Err) })
 	}
 	for _, u := range opts.Pprof {

@@ -314,3 +314,19 @@ func (rawClientCodec) Unmarshal(data mem.BufferSlice, v any) error {
 }
 
 func (rawClientCodec) Name() string { return "proto" }
+
+// TestListenTopCause: the status line's top root cause is what rank
+// finds in the recent requests.
+func TestListenTopCause(t *testing.T) {
+	o := &listenOptions{MaxInflight: 4, MaxBody: 1 << 20}
+	rc := newReceiver(capture.NewWriter(&osDir{path: t.TempDir()}, capture.WriterOptions{}), o, io.Discard)
+	if got := rc.topCause(); got != "" {
+		t.Fatalf("with nothing received: %q", got)
+	}
+	for i := range 3 {
+		rc.recent.add(marshal(t, benchRequest(i, 30)), false)
+	}
+	if got := rc.topCause(); got != "…/catalog.(*Repo).VarietyByID 100%" {
+		t.Fatalf("top cause %q", got)
+	}
+}

@@ -1,15 +1,20 @@
 package main
 
 import (
+	"bytes"
 	"context"
 	"fmt"
 	"io"
 	"net/http"
 	"net/url"
+	"slices"
 	"strings"
 	"sync"
+	"sync/atomic"
 	"time"
 
+	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/traces"
 	"github.com/culprithq/culprit/traces/capture"
 )
 
@@ -29,12 +34,94 @@ func (rc *receiver) syncEvery(ctx context.Context, interval time.Duration) {
 	}
 }
 
-// status rewrites one status line on the terminal every second.
+// recentRequests keeps the last requests stored, for the status line's
+// top root cause.
+type recentRequests struct {
+	mu   sync.Mutex
+	reqs []traces.Record
+	next int
+}
+
+// recentKeep is how many recent requests the status line ranks.
+const recentKeep = 64
+
+func (r *recentRequests) add(data []byte, json bool) {
+	rec := traces.Record{Data: bytes.Clone(data), JSON: json}
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	if len(r.reqs) < recentKeep {
+		r.reqs = append(r.reqs, rec)
+		return
+	}
+	r.reqs[r.next] = rec
+	r.next = (r.next + 1) % recentKeep
+}
+
+func (r *recentRequests) list() []traces.Record {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	return slices.Clone(r.reqs)
+}
+
+// topCause ranks the recent requests as rank would and returns the top
+// root cause with its share, or "" when there is none.
+func (rc *receiver) topCause() string {
+	recs := rc.recent.list()
+	if len(recs) == 0 {
+		return ""
+	}
+	f := rc.opts.analysis
+	opts := traces.Options{Limits: f.Limits, Service: f.Service, SkipDigest: true}
+	if !f.ShowLiterals {
+		opts.Statement = attribute.AppendFingerprint
+	}
+	c := traces.NewSpanCollector(opts)
+	i := 0
+	if err := c.AddRecords("recent requests", traces.FormatCapture, func() (traces.Record, error) {
+		if i == len(recs) {
+			return traces.Record{}, io.EOF
+		}
+		i++
+		return recs[i-1], nil
+	}); err != nil {
+		return ""
+	}
+	src, err := c.Source()
+	if err != nil {
+		return ""
+	}
+	rules, err := f.rules()
+	if err != nil {
+		return ""
+	}
+	f.DomainsFile = ""
+	res, err := f.analyse(src, rules)
+	if err != nil || len(res.Causes) == 0 {
+		return ""
+	}
+	fn := res.Causes[0].Function
+	if i := strings.LastIndexByte(fn, '/'); i >= 0 {
+		fn = "…" + fn[i:]
+	}
+	return fmt.Sprintf("%s %.0f%%", fn, 100*res.Causes[0].Share)
+}
+
+// status rewrites one status line on the terminal every second; every
+// 10 s it ranks the recent requests for the top root cause.
 func (rc *receiver) status(ctx context.Context, w io.Writer) {
 	t := time.NewTicker(time.Second)
 	defer t.Stop()
 	last, lastAt := rc.spans.Load(), time.Now()
-	for {
+	var top atomic.Value
+	top.Store("")
+	ranking := atomic.Bool{}
+	for tick := 0; ; tick++ {
+		if tick%10 == 5 && ranking.CompareAndSwap(false, true) {
+			go func() {
+				defer ranking.Store(false)
+				top.Store(rc.topCause())
+			}()
+		}
 		select {
 		case <-ctx.Done():
 			return
@@ -46,6 +133,9 @@ func (rc *receiver) status(ctx context.Context, w io.Writer) {
 				groupDigits(int64(rate)), groupDigits(rc.requests.Load()), groupDigits(n), len(rc.slots))
 			if r := rc.refused.Load(); r > 0 {
 				line += fmt.Sprintf(" · %s refused", groupDigits(r))
+			}
+			if tc := top.Load().(string); tc != "" {
+				line += " · top (recent requests): " + tc
 			}
 			rc.errMu.Lock()
 			fmt.Fprint(w, "\r\x1b[K"+line)

@@ -57,6 +57,10 @@ type receiver struct {
 	stopping bool
 	inflight sync.WaitGroup
 
+	// showStatus: the status line is shown, and ranks the recent requests.
+	showStatus bool
+	recent     recentRequests
+
 	requests, spans, profiles, refused atomic.Int64
 	lastDiskWarn                       atomic.Int64 // unix seconds
 	errMu                              sync.Mutex   // one writer of errOut at a time
@@ -147,6 +151,9 @@ func (rc *receiver) take(data []byte, json bool) (traces.CheckResult, *refusal) 
 	}
 	rc.requests.Add(1)
 	rc.spans.Add(int64(res.Spans - res.Rejected))
+	if rc.showStatus {
+		rc.recent.add(data, json)
+	}
 	return res, nil
 }
 
