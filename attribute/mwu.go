@@ -250,14 +250,6 @@ func Quantile(sorted []float64, q float64) float64 {
 	return x + f*(y-x)
 }
 
-// Median returns the median of x (any order, no NaN; x is not modified):
-// Quantile at 0.5 of a sorted copy. It returns NaN for an empty x.
-func Median(x []float64) float64 {
-	s := slices.Clone(x)
-	slices.Sort(s)
-	return Quantile(s, 0.5)
-}
-
 // BootstrapRatioCI returns the percentile bootstrap interval (Efron, Ann. Stat.
 // 7, 1979) at level conf for the ratio of means mean(c)/mean(b): each of B
 // rounds resamples b and c with replacement, and the bounds are the (1−conf)/2

@@ -14,6 +14,11 @@ const (
 	KindDatabase Kind = "database"
 	KindNetwork  Kind = "network"
 	KindMixed    Kind = "mixed"
+	// KindConnection is the kind of a root cause's detail (never of a
+	// root cause) for connection waits: database time spent acquiring or
+	// opening a connection (a pool checkout, a connect), charged as
+	// database cost to the same root cause but not a call or a statement.
+	KindConnection Kind = "connection"
 )
 
 // Result is the attribution of one source: the ranked root causes with
@@ -35,11 +40,17 @@ type Result struct {
 	Entries   []EntryTotal `json:"entryPoints"`
 	Causes    []*Cause     `json:"rootCauses"`
 	Findings  []Finding    `json:"findings"`
+	// Helpers lists the shared helpers seen through, by cost charged
+	// through them (descending), then name; empty when none was.
+	Helpers []SharedHelper `json:"sharedHelpers,omitempty"`
 	// Domains rolls root causes up into business domains (--domains);
 	// nil when no domains file was given.
 	Domains     []DomainTotal `json:"domains,omitempty"`
 	DomainsFile string        `json:"domainsFile,omitempty"`
 	Warnings    []string      `json:"warnings"`
+	// Notes say what the input held beside warnings: inputs skipped,
+	// services found and analysed, spans ending after their parent.
+	Notes []string `json:"notes,omitempty"`
 	// DurationNanos is the wall-clock time the input covers, if known.
 	DurationNanos int64 `json:"durationNanos"`
 }
@@ -133,7 +144,8 @@ type Distribution struct {
 }
 
 // Detail is the cost a root cause spent on one boundary: a statement
-// fingerprint, an operation, or the library function called.
+// fingerprint, an operation, or the library function called; or, of
+// Kind KindConnection, its connection waits (Calls is then 0).
 type Detail struct {
 	Kind   Kind   `json:"kind"`
 	System string `json:"system,omitempty"`
@@ -142,9 +154,12 @@ type Detail struct {
 	Statement   string `json:"statement"`
 	StatementID string `json:"statementId,omitempty"`
 	Peer        string `json:"peer,omitempty"`
-	Cost        int64  `json:"cost"`
-	Calls       int64  `json:"calls"`
-	Samples     int64  `json:"samples"`
+	// Via names the shared helper seen through on the way to the call
+	// (see SharedHelper); "" when the root cause called out itself.
+	Via     string `json:"via,omitempty"`
+	Cost    int64  `json:"cost"`
+	Calls   int64  `json:"calls"`
+	Samples int64  `json:"samples"`
 }
 
 // EntryShare is the cost a root cause incurred under one entry point.
@@ -201,7 +216,10 @@ func sortDetails(ds []Detail) {
 		if x.Kind != y.Kind {
 			return x.Kind < y.Kind
 		}
-		return x.System < y.System
+		if x.System != y.System {
+			return x.System < y.System
+		}
+		return x.Via < y.Via
 	})
 }
 

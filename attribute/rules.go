@@ -60,13 +60,16 @@ func (c *Class) UnmarshalText(b []byte) error {
 // Regexp, File or Span is set.
 type Rule struct {
 	Class Class `json:"class"`
-	// Function matches function names that start with it.
+	// Function matches function names that start with it at an
+	// identifier boundary (see matchFunction): net/http.Head matches
+	// net/http.Head but not net/http.Header.Set.
 	Function string `json:"function,omitempty"`
 	// Contains matches function names that contain it.
 	Contains string `json:"contains,omitempty"`
 	// Regexp matches function names (RE2 syntax, unanchored).
 	Regexp string `json:"regexp,omitempty"`
-	// File matches source file paths that contain it ('/' separators).
+	// File matches source file paths that contain it ('/' separators;
+	// site-packages/ also matches Debian's dist-packages/).
 	File string `json:"file,omitempty"`
 	// Span matches span frames: "client:database", "client:rpc",
 	// "client:http", "client:messaging" (client or producer spans with
@@ -129,13 +132,13 @@ func (r *Rule) compile() error {
 func (r *Rule) Matches(f *traces.Frame) bool {
 	switch {
 	case r.Function != "":
-		return strings.HasPrefix(f.Function, r.Function)
+		return matchFunction(r.Function, f.Function)
 	case r.Contains != "":
 		return strings.Contains(f.Function, r.Contains)
 	case r.re != nil:
 		return r.re.MatchString(f.Function)
 	case r.File != "":
-		return f.File != "" && strings.Contains(slashPath(f.File), r.File)
+		return f.File != "" && strings.Contains(rulePath(slashPath(f.File)), r.File)
 	case r.Span != "":
 		if !f.Span {
 			return false
@@ -170,6 +173,9 @@ type Rules struct {
 	App []string `json:"app,omitempty"`
 	// Rules are tried in order.
 	Rules []Rule `json:"rules"`
+	// Helpers names shared access helpers to see through (function names,
+	// or prefixes ending at a '.' or '/'; see SharedHelper).
+	Helpers []string `json:"helpers,omitempty"`
 	// Files names the rules files that were merged in, for reports.
 	Files []string `json:"-"`
 }
@@ -201,8 +207,9 @@ func (e *RulesFileError) Unwrap() error { return e.Err }
 
 // rulesFile is the JSON schema of a user rules file.
 type rulesFile struct {
-	App   []string          `json:"app"`
-	Rules []json.RawMessage `json:"rules"`
+	App     []string          `json:"app"`
+	Rules   []json.RawMessage `json:"rules"`
+	Helpers []string          `json:"helpers"`
 }
 
 // ParseRulesFile reads a user rules file (JSON; schema in the README):
@@ -217,7 +224,7 @@ func ParseRulesFile(name string, r io.Reader) (*Rules, error) {
 	if err != nil {
 		return nil, err
 	}
-	out := &Rules{App: f.App, Files: []string{name}}
+	out := &Rules{App: f.App, Helpers: f.Helpers, Files: []string{name}}
 	// Locate each rule's start for error positions.
 	offsets := arrayOffsets(data, "rules", len(f.Rules))
 	for i, raw := range f.Rules {
@@ -324,6 +331,7 @@ func lineCol(data []byte, off int64) (line, col int) {
 func Merge(base, user *Rules) *Rules {
 	out := &Rules{}
 	out.App = append(append(out.App, user.App...), base.App...)
+	out.Helpers = append(append(out.Helpers, user.Helpers...), base.Helpers...)
 	out.Rules = append(append(out.Rules, user.Rules...), base.Rules...)
 	out.Files = append(append(out.Files, base.Files...), user.Files...)
 	return out

@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"sort"
 	"strconv"
 	"strings"
 
@@ -112,7 +111,7 @@ func Percent(share float64) string {
 
 // Caveats returns the sentences a reader must see next to the numbers.
 func Caveats(r *attribute.Result) []string {
-	var out []string
+	out := append([]string(nil), r.Notes...)
 	if r.CPUOnly {
 		out = append(out, "This is a CPU profile: it counts time on CPU only. Time spent waiting for a database or a socket is not in it, so database and network shares understate their wall-clock cost; use goroutine profiles taken during the load test, or traces, for waiting time.")
 	}
@@ -122,6 +121,9 @@ func Caveats(r *attribute.Result) []string {
 	if r.Inclusive {
 		out = append(out, "Inclusive view: every application function above a boundary is charged, so shares add up to more than 100%.")
 	}
+	if len(r.Helpers) > 0 {
+		out = append(out, HelpersSummary(r))
+	}
 	for _, c := range r.Causes {
 		if c.NoAppFrame {
 			out = append(out, "Some cost has no application frame above the database or network call; name your code with --app PREFIX (or a rules file) if detection missed it.")
@@ -129,6 +131,23 @@ func Caveats(r *attribute.Result) []string {
 		}
 	}
 	return out
+}
+
+// HelpersSummary names the shared helpers the attribution saw through.
+func HelpersSummary(r *attribute.Result) string {
+	parts := make([]string, 0, len(r.Helpers))
+	for i, h := range r.Helpers {
+		if i == 5 {
+			parts = append(parts, fmt.Sprintf("and %d more (the JSON format lists all)", len(r.Helpers)-5))
+			break
+		}
+		if h.Named {
+			parts = append(parts, h.Function+" (named)")
+		} else {
+			parts = append(parts, fmt.Sprintf("%s (%d callers in %d packages)", h.Function, h.Callers, h.Packages))
+		}
+	}
+	return "Shared helpers seen through (their callers are charged; --helpers=off charges the helpers): " + strings.Join(parts, ", ") + "."
 }
 
 // AppSummary describes what was taken as application code.
@@ -148,14 +167,4 @@ func AppSummary(r *attribute.Result) string {
 		parts = append(parts, fmt.Sprintf("%s (%d functions: %s)", d.Prefix, d.Functions, d.Reason))
 	}
 	return "application code detected: " + strings.Join(parts, "; ")
-}
-
-// sortedKeys returns m's keys in order.
-func sortedKeys[V any](m map[string]V) []string {
-	keys := make([]string, 0, len(m))
-	for k := range m {
-		keys = append(keys, k)
-	}
-	sort.Strings(keys)
-	return keys
 }

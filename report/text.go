@@ -135,6 +135,9 @@ func (Text) Render(w io.Writer, r *attribute.Result, opts Options) error {
 				if d.System != "" {
 					line += " [" + oneLine(d.System, 40) + "]"
 				}
+				if d.Via != "" {
+					line += " via " + oneLine(d.Via, 100)
+				}
 				fmt.Fprintln(bw, line)
 			}
 		}

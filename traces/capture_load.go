@@ -30,40 +30,27 @@ const WarnTornRecord = "torn-record"
 // run reads its spans (a run reads either spans or profiles).
 const WarnCaptureProfiles = "capture-profiles"
 
-// LooksLikeOTLPProto reports whether data looks like a binary OTLP trace
-// export request (or TracesData): top-level fields that are all field 1,
-// length-delimited (resource_spans), the first of which starts with a
-// length-delimited field (resource or scope_spans). A pprof profile never
-// does: its sample types hold varints, and it always has a string table
-// (field 6).
-func LooksLikeOTLPProto(data []byte) bool {
-	first := true
-	for len(data) > 0 {
-		num, typ, n := protowire.ConsumeTag(data)
-		if n < 0 || num != 1 || typ != protowire.BytesType {
-			return false
-		}
-		v, m := protowire.ConsumeBytes(data[n:])
-		if m < 0 {
-			return false
-		}
-		if first && len(v) > 0 {
-			_, t, k := protowire.ConsumeTag(v)
-			if k < 0 || t != protowire.BytesType {
-				return false
-			}
-		}
-		first = false
-		data = data[n+m:]
+// LooksLikeOTLPProto reports whether the first bytes of an input look
+// like a binary OTLP trace export request (or TracesData): field 1,
+// length-delimited (resource_spans), whose contents start with a
+// length-delimited field 1 to 3 (resource, scope_spans, schema_url). A
+// pprof profile starts with its sample types (field 1 too), whose fields
+// are varints.
+func LooksLikeOTLPProto(prefix []byte) bool {
+	num, typ, n := protowire.ConsumeTag(prefix)
+	if n < 0 || num != 1 || typ != protowire.BytesType {
+		return false
 	}
-	return !first
+	l, m := protowire.ConsumeVarint(prefix[n:])
+	if m < 0 || l == 0 || len(prefix) == n+m {
+		return false
+	}
+	num, typ, k := protowire.ConsumeTag(prefix[n+m:])
+	return k > 0 && typ == protowire.BytesType && num >= 1 && num <= 3
 }
 
 // addOTLPProto reads one binary export request.
 func (l *Loader) addOTLPProto(name string, data []byte) error {
-	if err := l.checkKind(Spans, name); err != nil {
-		return err
-	}
 	if l.spans == nil {
 		l.spans = NewSpanCollector(l.opts)
 	}
@@ -93,9 +80,6 @@ func (l *Loader) addSegment(name string, r *bufio.Reader) (*SegmentID, error) {
 		return nil, segmentError(name, err)
 	}
 	id := &SegmentID{Instance: hex.EncodeToString(seg.Header.Instance[:]), Sequence: seg.Header.Sequence}
-	if err := l.checkKind(Spans, name); err != nil {
-		return nil, err
-	}
 	if l.spans == nil {
 		l.spans = NewSpanCollector(l.opts)
 	}

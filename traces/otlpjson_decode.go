@@ -46,6 +46,10 @@ type decoder struct {
 	names   *fieldNames
 	// slow turns the fast path off (for tests that compare the paths).
 	slow bool
+	// scanFailAt is where the scanner gave up on the record, or -1.
+	scanFailAt int
+	// doc finds the lines of the spans of a multi-line document.
+	doc docLines
 	// stmts caches Options.Statement results by system and raw text:
 	// instrumentation mostly records parameterised statements, which
 	// repeat exactly. Bounded; keys are copies, never job data. When
@@ -148,7 +152,7 @@ func (t *localTable[K]) restart() {
 
 func cloneFrame(f Frame) Frame {
 	f.Function, f.File = strings.Clone(f.Function), strings.Clone(f.File)
-	f.System, f.Service = strings.Clone(f.System), strings.Clone(f.Service)
+	f.System, f.Service, f.Scope = strings.Clone(f.System), strings.Clone(f.Service), strings.Clone(f.Scope)
 	return f
 }
 
@@ -222,6 +226,11 @@ func (d *decoder) record(rec []byte, line, col int64, doc bool) {
 	if start == len(rec) {
 		return // blank line
 	}
+	d.doc = docLines{}
+	if doc {
+		d.doc = docLines{rec: rec, line: line}
+	}
+	d.scanFailAt = -1
 	if !d.slow && d.scan(rec, start, line) {
 		return
 	}
@@ -267,7 +276,7 @@ func (d *decoder) record(rec []byte, line, col int64, doc bool) {
 		// The decoder may have left data beyond the lengths that reset
 		// clears: start afresh.
 		d.req = jsonRequest{}
-		pe := decodeFailure(d.name, rec, line, col, err)
+		pe := decodeFailure(d.name, rec, line, col, err, d.scanFailAt)
 		if !d.c.opts.KeepGoing {
 			d.b.err = pe
 			return
@@ -276,21 +285,16 @@ func (d *decoder) record(rec []byte, line, col int64, doc bool) {
 		if doc {
 			kind = WarnMalformedDocument
 		}
-		d.b.warnings = append(d.b.warnings, Warning{Kind: kind, File: d.name, Line: pe.Line,
+		d.b.warnings = append(d.b.warnings, Warning{Kind: kind, File: d.name, Line: pe.Line, Column: pe.Offset,
 			Message: pe.Err.Error() + " (skipped)"})
 	}
 }
 
-// unmarshal decodes rec into v; decoded strings refer to rec. A panic of
-// the JSON decoder (a bug in it, which no input may turn into a crash) is
-// returned as an error.
-func unmarshal(rec []byte, v any) (err error) {
-	defer func() {
-		if p := recover(); p != nil {
-			err = fmt.Errorf("JSON decoder failure: %v", p)
-		}
-	}()
-	return json.UnmarshalNoEscape(rec, v, json.DecodeNoCopyString())
+// unmarshal decodes rec into v with the JSON decoder, the scanner's
+// fallback; decoded strings refer to rec. FuzzOTLPJSON and
+// FuzzOTLPJSONFastPath hold that no input makes it panic.
+func unmarshal(rec []byte, v any) error {
+	return json.UnmarshalWithOption(rec, v, json.DecodeNoCopyString())
 }
 
 // requests converts the spans of decoded requests and adds them to the
@@ -305,8 +309,12 @@ func (d *decoder) requests(reqs []jsonRequest, line int64) error {
 			service := resourceService(rs.Resource.Attributes)
 			for _, scopes := range [2][]jsonScopeSpans{rs.ScopeSpans, rs.InstrumentationLibrarySpans} {
 				for k := range scopes {
+					scope := scopes[k].Scope.Name
+					if scope == "" {
+						scope = scopes[k].InstrumentationLibrary.Name
+					}
 					for m := range scopes[k].Spans {
-						if err := d.span(&scopes[k].Spans[m], service, line); err != nil {
+						if err := d.span(&scopes[k].Spans[m], service, scope, line); err != nil {
 							d.b.spans = d.b.spans[:mark]
 							d.b.warnings = d.b.warnings[:markWarn]
 							return err
@@ -324,7 +332,9 @@ func (d *decoder) requests(reqs []jsonRequest, line int64) error {
 
 // decodeFailure turns a decoding error into a ParseError with the line,
 // column and an excerpt of where it happened.
-func decodeFailure(name string, rec []byte, line, col int64, err error) *ParseError {
+// scanFailAt, where the scanner failed (or -1), places a type error that
+// the JSON decoder does not place.
+func decodeFailure(name string, rec []byte, line, col int64, err error, scanFailAt int) *ParseError {
 	at := -1
 	msg := "malformed JSON: " + err.Error()
 	var se *json.SyntaxError
@@ -352,6 +362,9 @@ func decodeFailure(name string, rec []byte, line, col int64, err error) *ParseEr
 		case te.Field != "":
 			// Or at the first use of the field's key.
 			at = bytes.Index(rec, []byte(`"`+te.Field[strings.LastIndexByte(te.Field, '.')+1:]+`"`))
+		case scanFailAt >= 0 && scanFailAt < len(rec):
+			// Or where the scanner met the same wrong type.
+			at = scanFailAt
 		}
 	case errors.As(err, &ve):
 		at = bytes.Index(rec, ve.raw)
@@ -441,7 +454,10 @@ func nanos(n json.Number) (int64, error) {
 // span converts one decoded span and adds it to the batch. It returns an
 // error when the span is malformed (the record is then dropped), and sets
 // d.b.err when Strict forbids skipping a span with invalid IDs.
-func (d *decoder) span(sp *jsonSpan, service string, line int64) error {
+func (d *decoder) span(sp *jsonSpan, service, scope string, line int64) error {
+	if d.doc.rec != nil && sp.at > 0 {
+		line = d.doc.lineAt(sp.at - 1)
+	}
 	start, end, err := spanTimes(sp)
 	if err != nil {
 		return err
@@ -477,7 +493,15 @@ func (d *decoder) span(sp *jsonSpan, service string, line int64) error {
 			d.attrs[k] = &sp.Attributes[i].Value
 		}
 	}
-	frame, call, route := spanDetails(SpanKind(sp.Kind), sp.Name, service, &d.attrs, &d.memo)
+	frame, call, route := spanDetails(SpanKind(sp.Kind), sp.Name, service, scope, &d.attrs, &d.memo)
+	if frame.SpanKind != SpanKind(sp.Kind) {
+		msg := fmt.Sprintf("database span %q has no known span kind; it is taken as a CLIENT span", truncate(sp.Name, 60))
+		if d.c.opts.Strict {
+			d.b.err = &ParseError{File: d.name, Line: clampLine(line), Err: fmt.Errorf("%w: %s: %s", ErrSpanRepair, WarnUnknownSpanKind, msg)}
+			return nil
+		}
+		d.b.warnings = append(d.b.warnings, Warning{Kind: WarnUnknownSpanKind, File: d.name, Line: clampLine(line), Message: msg})
+	}
 	if call.Statement != "" && d.c.opts.Statement != nil {
 		// Normalise here, in the parallel decoders, so that calls differing
 		// only in literals intern to one Call.
@@ -601,4 +625,24 @@ func (v *jsonAnyValue) integer() (int64, bool) {
 		return n, err == nil
 	}
 	return 0, false
+}
+
+// docLines gives the line of a byte of a multi-line record (a document)
+// that starts at line; offsets asked for in increasing order cost one pass
+// over the record in all.
+type docLines struct {
+	rec  []byte
+	line int64 // line of rec[0]
+	at   int   // offset counted up to
+	nl   int64 // newlines in rec[:at]
+}
+
+func (d *docLines) lineAt(at int) int64 {
+	at = max(0, min(at, len(d.rec)))
+	if at < d.at {
+		d.at, d.nl = 0, 0
+	}
+	d.nl += int64(countLines(d.rec[d.at:at]))
+	d.at = at
+	return d.line + d.nl
 }

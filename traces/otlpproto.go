@@ -65,6 +65,7 @@ func (d *decoder) protoRecord(rec []byte, offset, record int64) {
 	req := &d.wire[0]
 	req.reset()
 	d.bools = [2]bool{false, true}
+	d.doc = docLines{} // no line positions in binary records
 	r := &d.wreader
 	*r = wireReader{rec: rec, depth: protoDepth, text: &d.text, bools: &d.bools}
 	var err error
@@ -204,7 +205,7 @@ func (r *wireReader) resourceSpans(rs *jsonResourceSpans, b []byte) bool {
 		case 2:
 			rs.ScopeSpans = extend(rs.ScopeSpans)
 			sc := &rs.ScopeSpans[len(rs.ScopeSpans)-1]
-			sc.Spans = sc.Spans[:0]
+			*sc = jsonScopeSpans{Spans: sc.Spans[:0]}
 			return r.scopeSpans(sc, f.v)
 		case 3:
 			_, ok := r.str(&f, "schema_url")
@@ -251,7 +252,7 @@ func (r *wireReader) scopeSpans(sc *jsonScopeSpans, b []byte) bool {
 		}
 		switch f.num {
 		case 1:
-			return r.scope(f.v)
+			return r.scope(&sc.Scope, f.v)
 		case 2:
 			sc.Spans = extend(sc.Spans)
 			sp := &sc.Spans[len(sc.Spans)-1]
@@ -265,16 +266,20 @@ func (r *wireReader) scopeSpans(sc *jsonScopeSpans, b []byte) bool {
 	})
 }
 
-// scope checks an InstrumentationScope: name = 1, version = 2,
-// attributes = 3.
-func (r *wireReader) scope(b []byte) bool {
+// scope reads an InstrumentationScope: name = 1 (kept), version = 2,
+// attributes = 3. Given twice, the later name replaces the earlier.
+func (r *wireReader) scope(sc *jsonScope, b []byte) bool {
 	return r.message(b, func(f protoField) bool {
 		if f.typ != protowire.BytesType {
 			return true
 		}
 		switch f.num {
-		case 1, 2:
-			_, ok := r.str(&f, "scope name or version")
+		case 1:
+			name, ok := r.str(&f, "scope name")
+			sc.Name = name
+			return ok
+		case 2:
+			_, ok := r.str(&f, "scope version")
 			return ok
 		case 3:
 			return r.keyValue(nil, nil, f.v)

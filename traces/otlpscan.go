@@ -48,6 +48,7 @@ type scanner struct {
 	maxDepth int
 	plain    bool // b is plain (see isPlain)
 	failed   bool
+	failAt   int      // i when it failed
 	text     *[]byte  // the decoder's arena of unescaped strings
 	bools    *[2]bool // the decoder's false and true, for boolValue
 	names    *fieldNames
@@ -56,12 +57,13 @@ type scanner struct {
 // fieldNames are the names of the fields of the objects that the scanner
 // reads, at the indexes by which it tells them.
 type fieldNames struct {
-	resourceSpans, span, keyValue, anyValue []string
+	resourceSpans, scopeSpans, span, keyValue, anyValue []string
 }
 
 func newFieldNames() *fieldNames {
 	return &fieldNames{
 		resourceSpans: []string{"resource", "scopeSpans", "instrumentationLibrarySpans"},
+		scopeSpans:    []string{"spans", "scope", "instrumentationLibrary"},
 		span: []string{"traceId", "spanId", "parentSpanId", "name", "kind",
 			"startTimeUnixNano", "endTimeUnixNano", "attributes"},
 		keyValue: []string{"key", "value"},
@@ -103,6 +105,10 @@ func (d *decoder) read(rec []byte, start int) ([]jsonRequest, bool) {
 	d.scanned = reqs
 	s.space()
 	ok := !s.failed && s.i == len(rec)
+	d.scanFailAt = -1
+	if s.failed {
+		d.scanFailAt = s.failAt
+	}
 	s.b = nil
 	return reqs, ok
 }
@@ -160,12 +166,33 @@ func isServiceName(key string) bool { return key == "service.name" }
 
 func isSpanAttribute(key string) bool { return attrIndex(key) >= 0 }
 
-// scope reads the spans of one instrumentation scope.
+// scope reads the spans of one instrumentation scope and its name.
 func (s *scanner) scope(sc *jsonScopeSpans) {
-	sc.Spans = sc.Spans[:0]
-	for o := s.object(); s.only(&o, "spans"); {
-		elements(s, &sc.Spans, (*scanner).span)
+	*sc = jsonScopeSpans{Spans: sc.Spans[:0]}
+	for o := s.object(); s.field(&o, s.names.scopeSpans); {
+		switch o.k {
+		case 0:
+			elements(s, &sc.Spans, (*scanner).span)
+		case 1:
+			sc.Scope.Name = s.scopeName()
+		case 2:
+			sc.InstrumentationLibrary.Name = s.scopeName()
+		default:
+			s.skip()
+		}
 	}
+}
+
+// scopeName reads an instrumentation scope, or null, and returns its name.
+func (s *scanner) scopeName() string {
+	if s.null() {
+		return ""
+	}
+	name := ""
+	for o := s.object(); s.only(&o, "name"); {
+		name = s.str(true)
+	}
+	return name
 }
 
 // elements reads an array, or null, appending an element to list for
@@ -184,7 +211,9 @@ func elements[T any](s *scanner, list *[]T, read func(*scanner, *T)) {
 // span reads one span.
 func (s *scanner) span(sp *jsonSpan) {
 	*sp = jsonSpan{Attributes: sp.Attributes[:0]}
-	for o := s.object(); s.field(&o, s.names.span); {
+	o := s.object()
+	sp.at = s.i // just past the span's '{'
+	for s.field(&o, s.names.span) {
 		switch o.k {
 		case 0:
 			sp.TraceID = s.str(true)
@@ -513,6 +542,9 @@ func (s *scanner) colon() {
 
 // fail gives up on the record.
 func (s *scanner) fail() {
+	if !s.failed {
+		s.failAt = s.i
+	}
 	s.failed = true
 	s.i = len(s.b)
 }

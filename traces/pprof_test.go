@@ -188,7 +188,7 @@ func TestBadInputs(t *testing.T) {
 		input []byte
 		want  string
 	}{
-		{"empty", nil, "p0.pb.gz: unrecognised input format: the input is empty"},
+		{"empty", nil, "p0.pb.gz: byte 0: unrecognised input format: the input is empty"},
 		{"junk", []byte("hello, this is not a profile"), "p0.pb.gz: byte 2: unrecognised input format: neither OTLP/JSON nor a pprof profile"},
 		{"truncated gzip", good[:len(good)/2], "p0.pb.gz"},
 	}
@@ -199,18 +199,6 @@ func TestBadInputs(t *testing.T) {
 				t.Errorf("err = %v, want it to contain %q", err, tt.want)
 			}
 		})
-	}
-}
-
-func TestMixedKindsRefused(t *testing.T) {
-	l := NewLoader(Options{})
-	if err := l.Add("cpu.pb.gz", bytes.NewReader(encode(t, testProfile("samples/count"), true))); err != nil {
-		t.Fatal(err)
-	}
-	l.kinds[Spans] = "traces.jsonl" // as if a trace file had been read first
-	err := l.Add("cpu2.pb.gz", bytes.NewReader(encode(t, testProfile("samples/count"), true)))
-	if !errors.Is(err, ErrMismatch) || !strings.Contains(err.Error(), "separate runs") {
-		t.Errorf("err = %v", err)
 	}
 }
 

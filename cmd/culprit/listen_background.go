@@ -95,7 +95,7 @@ func (rc *receiver) topCause() string {
 		return ""
 	}
 	f.DomainsFile = ""
-	res, err := f.analyse(src, rules)
+	res, err := f.attribute(src, rules)
 	if err != nil || len(res.Causes) == 0 {
 		return ""
 	}

@@ -45,25 +45,6 @@ type listener struct {
 	stderr             *syncBuffer
 }
 
-// syncBuffer is a buffer that the listener's goroutines write while the
-// test reads it.
-type syncBuffer struct {
-	mu sync.Mutex
-	b  bytes.Buffer
-}
-
-func (s *syncBuffer) Write(p []byte) (int, error) {
-	s.mu.Lock()
-	defer s.mu.Unlock()
-	return s.b.Write(p)
-}
-
-func (s *syncBuffer) String() string {
-	s.mu.Lock()
-	defer s.mu.Unlock()
-	return s.b.String()
-}
-
 // startListen runs `culprit listen ARGS` on ephemeral loopback ports;
 // setup may change the options before it starts.
 func startListen(t testing.TB, setup func(*listenOptions), args ...string) *listener {
