@@ -39,6 +39,7 @@ var formats = []format{
 	{FormatGzip, looksLikeGzip},
 	{FormatCapture, capture.IsSegment},
 	{FormatUTF16, looksLikeUTF16},
+	{FormatExecTrace, LooksLikeExecTrace},
 	{FormatOTLPJSON, looksLikeJSON},
 	{FormatOTLPProto, LooksLikeOTLPProto},
 	// The pprof library reads protobuf and legacy text profiles, and

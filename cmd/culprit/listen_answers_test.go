@@ -2,7 +2,6 @@ package main
 
 import (
 	"bytes"
-	"compress/gzip"
 	"context"
 	"fmt"
 	"io"
@@ -53,14 +52,6 @@ func marshal(t testing.TB, m proto.Message) []byte {
 		t.Fatal(err)
 	}
 	return b
-}
-
-func gzipped(b []byte) []byte {
-	var buf bytes.Buffer
-	zw := gzip.NewWriter(&buf)
-	zw.Write(b)
-	zw.Close()
-	return buf.Bytes()
 }
 
 // post sends one OTLP/HTTP request and returns the status, the
