@@ -12,7 +12,8 @@ import (
 // attribute.Comparison at the top level (lowerCamelCase; quantities that do
 // not exist are null), and "gate": the changes that fail the regression
 // budget (Comparison.Gate; [] when the gate passes). Options.Limit cuts
-// "changes" to its first Limit entries; "gate" always lists every failing
+// "changes" to its first Limit entries and adds "omitted" (how many were
+// cut, and their summed base and candidate values); "gate" always lists every failing
 // change. Options.Color and Options.Width are ignored. The document decodes
 // back into the same values with encoding/json, except that invalid UTF-8
 // in input strings is written as U+FFFD (JSON strings are UTF-8).
@@ -24,6 +25,19 @@ type diffDoc struct {
 	Provenance Provenance `json:"producedBy"`
 	*attribute.Comparison
 	Gate []attribute.Change `json:"gate"`
+	// Omitted counts the changes that Options.Limit cut (nil when none).
+	Omitted *omitted `json:"omitted,omitempty"`
+}
+
+// omitted describes the rows an explicit --limit cut from a machine
+// format: how many, and their total share (rank) or normalised cost on
+// each side (diff).
+type omitted struct {
+	Count     int      `json:"count"`
+	Share     *float64 `json:"share,omitempty"`
+	Cost      *int64   `json:"cost,omitempty"`
+	Base      *float64 `json:"base,omitempty"`
+	Candidate *float64 `json:"candidate,omitempty"`
 }
 
 // RenderDiff implements DiffRenderer.
@@ -33,10 +47,16 @@ func (DiffJSON) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) e
 		gate = []attribute.Change{}
 	}
 	doc := diffDoc{Schema: DiffSchema, Provenance: opts.Provenance, Comparison: c, Gate: gate}
-	if shown := shownChanges(c, opts); len(shown) < len(c.Changes) {
+	if shown := limitedChanges(c, opts); len(shown) < len(c.Changes) {
 		cp := *c
 		cp.Changes = shown
 		doc.Comparison = &cp
+		var b, cand float64
+		for _, ch := range c.Changes[len(shown):] {
+			b += ch.Base
+			cand += ch.Candidate
+		}
+		doc.Omitted = &omitted{Count: len(c.Changes) - len(shown), Base: &b, Candidate: &cand}
 	}
 	enc := json.NewEncoder(w)
 	enc.SetIndent("", "  ")

@@ -127,6 +127,7 @@ type htmlPage struct {
 type htmlRow struct {
 	Rank                            int
 	Share, ShareV, Cost, PerRequest string
+	PerRequestP95                   string
 	CostV, Count                    int64
 	PerRequestV, Kind, Class        string
 	Function, Site, File            string
@@ -213,7 +214,7 @@ func (HTML) Render(w io.Writer, r *attribute.Result, opts Options) error {
 	p.Headline.Function, p.Headline.Detail = clean(p.Headline.Function), clean(p.Headline.Detail)
 	for i, c := range causes {
 		row := htmlRow{Rank: i + 1, Share: shareText(r, c), ShareV: strconv.FormatFloat(c.Share, 'g', -1, 64),
-			Cost: FormatValue(c.Cost, unit), CostV: c.Cost, Count: countOf(r, c), PerRequest: perRequestText(c),
+			Cost: FormatValue(c.Cost, unit), CostV: c.Cost, Count: countOf(r, c), PerRequest: perRequestText(c)[0], PerRequestP95: perRequestText(c)[1],
 			Kind: clean(string(c.Kind)), Class: kindClass(c), Function: clean(c.Function), Site: clean(site(c)), File: clean(c.File)}
 		if c.CallsPerRequest != nil {
 			row.PerRequestV = strconv.FormatFloat(c.CallsPerRequest.Median, 'g', -1, 64)

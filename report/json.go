@@ -18,6 +18,8 @@ type rankDoc struct {
 	Provenance Provenance `json:"producedBy"`
 	*attribute.Result
 	Caveats []string `json:"caveats"`
+	// Omitted counts the root causes an explicit limit cut (nil when none).
+	Omitted *omitted `json:"omitted,omitempty"`
 }
 
 // Render implements Renderer.
@@ -27,8 +29,20 @@ func (JSON) Render(w io.Writer, r *attribute.Result, opts Options) error {
 		cp := *r
 		cp.Causes = r.Causes[:opts.Limit]
 		doc.Result = &cp
+		doc.Omitted = omittedCauses(r.Causes[opts.Limit:])
 	}
 	enc := json.NewEncoder(w)
 	enc.SetIndent("", "  ")
 	return enc.Encode(doc)
+}
+
+// omittedCauses sums the causes a limit cut.
+func omittedCauses(cs []*attribute.Cause) *omitted {
+	var share float64
+	var cost int64
+	for _, c := range cs {
+		share += c.Share
+		cost += c.Cost
+	}
+	return &omitted{Count: len(cs), Share: &share, Cost: &cost}
 }

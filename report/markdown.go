@@ -54,8 +54,8 @@ func (Markdown) Render(w io.Writer, r *attribute.Result, opts Options) error {
 		hdr := []string{"Rank", "Share", "Cost", countHeader(r)}
 		align := []string{"---:", "---:", "---:", "---:"}
 		if perReq {
-			hdr = append(hdr, "Calls/request (median/p95)")
-			align = append(align, "---:")
+			hdr = append(hdr, "Calls/request median", "Calls/request p95")
+			align = append(align, "---:", "---:")
 		}
 		hdr = append(hdr, "Kind", "Root cause", "Call site")
 		align = append(align, "---", "---", "---")
@@ -64,7 +64,7 @@ func (Markdown) Render(w io.Writer, r *attribute.Result, opts Options) error {
 		for i, c := range causes {
 			row := []string{strconv.Itoa(i + 1), shareText(r, c), FormatValue(c.Cost, unit), strconv.FormatInt(countOf(r, c), 10)}
 			if perReq {
-				row = append(row, perRequestText(c))
+				row = append(row, perRequestText(c)...)
 			}
 			row = append(row, mdText(string(c.Kind)), mdText(c.Function), mdText(site(c)))
 			mdRow(bw, row)
@@ -349,11 +349,13 @@ func anyPerRequest(causes []*attribute.Cause) bool {
 	return false
 }
 
-func perRequestText(c *attribute.Cause) string {
+// perRequestText renders the median and p95 of calls per request (over
+// the requests in which the cause appears), "–" when unknown.
+func perRequestText(c *attribute.Cause) []string {
 	if c.CallsPerRequest == nil {
-		return "–"
+		return []string{"–", "–"}
 	}
-	return num(c.CallsPerRequest.Median) + "/" + num(c.CallsPerRequest.P95)
+	return []string{numText(c.CallsPerRequest.Median), numText(c.CallsPerRequest.P95)}
 }
 
 // entryName is an entry point's name, cleaned (see clean), or a
@@ -387,7 +389,7 @@ func findingEvidence(f attribute.Finding) []evidence {
 		out = append(out, evidence{"peer", f.Peer, true})
 	}
 	if d := f.PerRequest; d != nil {
-		out = append(out, evidence{Label: "per request", Value: fmt.Sprintf("median %s, p95 %s, max %s", num(d.Median), num(d.P95), num(d.Max))})
+		out = append(out, evidence{Label: "per request", Value: fmt.Sprintf("median %s, p95 %s, max %s", numText(d.Median), numText(d.P95), numText(d.Max))})
 	}
 	if f.RequestsSeen > 0 {
 		out = append(out, evidence{Label: "requests", Value: fmt.Sprintf("%d of %d", f.Requests, f.RequestsSeen)})

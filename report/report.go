@@ -77,6 +77,9 @@ func FormatValue(v int64, unit string) string {
 
 func formatDuration(ns float64) string {
 	abs := math.Abs(ns)
+	if abs < 0.5 {
+		return "0"
+	}
 	switch {
 	case abs >= 3600e9:
 		return strconv.FormatFloat(ns/3600e9, 'f', 2, 64) + "h"
@@ -93,6 +96,9 @@ func formatDuration(ns float64) string {
 }
 
 func formatBytes(b float64) string {
+	if b == 0 {
+		return "0"
+	}
 	units := []string{"B", "KiB", "MiB", "GiB", "TiB"}
 	i := 0
 	for math.Abs(b) >= 1024 && i < len(units)-1 {
