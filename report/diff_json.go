@@ -26,18 +26,7 @@ type diffDoc struct {
 	*attribute.Comparison
 	Gate []attribute.Change `json:"gate"`
 	// Omitted counts the changes that Options.Limit cut (nil when none).
-	Omitted *omitted `json:"omitted,omitempty"`
-}
-
-// omitted describes the rows an explicit --limit cut from a machine
-// format: how many, and their total share (rank) or normalised cost on
-// each side (diff).
-type omitted struct {
-	Count     int      `json:"count"`
-	Share     *float64 `json:"share,omitempty"`
-	Cost      *int64   `json:"cost,omitempty"`
-	Base      *float64 `json:"base,omitempty"`
-	Candidate *float64 `json:"candidate,omitempty"`
+	Omitted *OmittedDoc `json:"omitted,omitempty"`
 }
 
 // RenderDiff implements DiffRenderer.
@@ -56,7 +45,7 @@ func (DiffJSON) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) e
 			b += ch.Base
 			cand += ch.Candidate
 		}
-		doc.Omitted = &omitted{Count: len(c.Changes) - len(shown), Base: &b, Candidate: &cand}
+		doc.Omitted = &OmittedDoc{Count: len(c.Changes) - len(shown), Base: &b, Candidate: &cand}
 	}
 	enc := json.NewEncoder(w)
 	enc.SetIndent("", "  ")

@@ -116,7 +116,7 @@ func corpusCases() []corpusCase {
 			want: []string{"{file}: decompressed size exceeds 2097152 bytes (raise it with --max-bytes): input limit exceeded"}},
 		{name: "not OTLP", file: "not-otlp.json", gen: notOTLP,
 			about: "a JSON object that is not an OTLP export request", status: exitOK,
-			report: []string{`"format": "otlp-json"`, `"rootCauses": null`},
+			report: []string{`"format": "otlp-json"`, `"rootCauses": []`},
 			want:   []string{"no-spans (e.g. {file}: no spans (is this OTLP/JSON trace data?"}},
 		{name: "deep nesting", file: "deep-nesting.json", gen: deepNesting,
 			about: "JSON nested 10,000 levels deep", status: exitError,

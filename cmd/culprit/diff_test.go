@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/report"
 )
 
 func demoFiles(t *testing.T) string {
@@ -83,9 +84,7 @@ func TestSnapshotSaveMergeDiff(t *testing.T) {
 	// rank → save → load → identical root causes.
 	var a, b struct{ RootCauses json.RawMessage }
 	json.Unmarshal([]byte(direct), &a)
-	again, _ := json.Marshal(struct {
-		RootCauses any `json:"rootCauses"`
-	}{s.Result().Causes})
+	again, _ := json.Marshal(report.NewRankDocument(s.Result(), report.Options{}))
 	json.Unmarshal(again, &b)
 	if string(a.RootCauses) != string(b.RootCauses) {
 		var x, y any
