@@ -385,7 +385,7 @@ func TestDiffJSON(t *testing.T) {
 	for _, tc := range diffCases() {
 		t.Run(tc.name, func(t *testing.T) {
 			out := renderDiff(t, DiffJSON{}, tc)
-			var doc diffDoc
+			var doc DiffDocument
 			if err := json.Unmarshal([]byte(out), &doc); err != nil {
 				t.Fatal(err)
 			}
@@ -402,11 +402,16 @@ func TestDiffJSON(t *testing.T) {
 			// as \ufffd, so the hostile cases round-trip only from the
 			// first decoding on (a decoded U+FFFD is then written raw).
 			if !strings.HasPrefix(tc.name, "hostile") {
-				if !reflect.DeepEqual(doc.Comparison, &want) || !reflect.DeepEqual(doc.Provenance, tc.opts.Provenance) {
+				if !reflect.DeepEqual(&doc, NewDiffDocument(tc.c, tc.opts)) || !reflect.DeepEqual(doc.ProducedBy, tc.opts.Provenance) {
 					t.Error("the document does not decode back into the comparison")
 				}
-				if len(doc.Gate) != len(gate) || len(gate) > 0 && !reflect.DeepEqual(doc.Gate, gate) {
+				if len(doc.Gate) != len(gate) {
 					t.Errorf("gate has %d changes, want %d", len(doc.Gate), len(gate))
+				}
+				for i := range want.Changes {
+					if doc.Changes[i].Function != want.Changes[i].Function || doc.Changes[i].Verdict != string(want.Changes[i].Verdict) {
+						t.Errorf("changes[%d] = %+v", i, doc.Changes[i])
+					}
 				}
 			}
 			var again bytes.Buffer
