@@ -20,26 +20,6 @@ type DiffRenderer interface {
 	RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) error
 }
 
-// DiffFormats lists the format names ForDiffFormat accepts.
-var DiffFormats = []string{"text", "markdown", "json", "csv", "html"}
-
-// ForDiffFormat returns the comparison renderer of a format name.
-func ForDiffFormat(name string) (DiffRenderer, error) {
-	switch name {
-	case "text":
-		return DiffText{}, nil
-	case "markdown":
-		return DiffMarkdown{}, nil
-	case "json":
-		return DiffJSON{}, nil
-	case "csv":
-		return DiffCSV{}, nil
-	case "html":
-		return DiffHTML{}, nil
-	}
-	return nil, fmt.Errorf("unknown format %q; --format must be one of: %s", name, strings.Join(DiffFormats, ", "))
-}
-
 // shownChanges returns the tested changes to show under opts.Limit; the
 // changes below detection (sorted last) are left for belowChanges.
 func shownChanges(c *attribute.Comparison, opts Options) []attribute.Change {

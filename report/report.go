@@ -35,26 +35,6 @@ type Renderer interface {
 	Render(w io.Writer, r *attribute.Result, opts Options) error
 }
 
-// Formats lists the format names ForFormat accepts.
-var Formats = []string{"text", "markdown", "json", "csv", "html"}
-
-// ForFormat returns the renderer of a format name.
-func ForFormat(name string) (Renderer, error) {
-	switch name {
-	case "text":
-		return Text{}, nil
-	case "markdown":
-		return Markdown{}, nil
-	case "json":
-		return JSON{}, nil
-	case "csv":
-		return CSV{}, nil
-	case "html":
-		return HTML{}, nil
-	}
-	return nil, fmt.Errorf("unknown format %q; --format must be one of: %s", name, strings.Join(Formats, ", "))
-}
-
 // shown returns the causes to show under opts.Limit.
 func shown(r *attribute.Result, opts Options) []*attribute.Cause {
 	if opts.Limit > 0 && len(r.Causes) > opts.Limit {

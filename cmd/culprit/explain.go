@@ -43,7 +43,7 @@ expression matched against root-cause function names.`,
 		},
 	}
 	opts.analysis.register(cmd)
-	opts.output.register(cmd, []string{"text", "json"})
+	opts.output.register(cmd, report.ExplainFormats)
 	return cmd
 }
 
@@ -53,8 +53,12 @@ func runExplain(ctx context.Context, opts *explainOptions) error {
 		return usagef("PATTERN: %v", err)
 	}
 	format := opts.output.Format
-	if format != "" && format != "text" && format != "json" {
-		return usagef("--format must be one of: text, json")
+	if format == "" {
+		format = "text"
+	}
+	renderer, err := report.ForExplainFormat(format)
+	if err != nil {
+		return &usageError{err: err}
 	}
 	ropts, err := opts.output.renderOptions(opts.streams)
 	if err != nil {
@@ -78,6 +82,6 @@ func runExplain(ctx context.Context, opts *explainOptions) error {
 	}
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
 	return opts.output.write(opts.streams, opts.inputs, func(w io.Writer) error {
-		return report.RenderExplanations(w, format, ex, src.ValueTypes[vi].Unit, ropts)
+		return renderer.RenderExplain(w, ex, src.ValueTypes[vi].Unit, ropts)
 	})
 }
