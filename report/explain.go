@@ -40,7 +40,7 @@ type ExplainNodeDoc struct {
 	Function      string           `json:"function"`
 	File          string           `json:"file,omitempty"`
 	Line          int64            `json:"line,omitempty"`
-	Class         string           `json:"class"`
+	Classes       []string         `json:"classes"`
 	Cost          int64            `json:"cost"`
 	Calls         int64            `json:"calls"`
 	Samples       int64            `json:"samples"`
@@ -65,7 +65,7 @@ func (ExplainJSON) RenderExplain(w io.Writer, ex []attribute.Explanation, unit s
 }
 
 func explainNodeDoc(n *attribute.ExplainNode) ExplainNodeDoc {
-	out := ExplainNodeDoc{Function: n.Function, File: n.File, Line: n.Line, Class: n.Class, Cost: n.Cost, Calls: n.Calls,
+	out := ExplainNodeDoc{Function: n.Function, File: n.File, Line: n.Line, Classes: strings.Split(n.Class, ", "), Cost: n.Cost, Calls: n.Calls,
 		Samples: n.Samples, SkippedFrames: n.Skipped, Statements: []DetailDoc{}, Children: []ExplainNodeDoc{}}
 	for _, d := range n.Statements {
 		calls := d.Calls
