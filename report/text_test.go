@@ -111,3 +111,30 @@ func checkGolden(t *testing.T, file, got string) {
 		t.Errorf("output differs from %s (go test -update rewrites it):\n%s", path, got)
 	}
 }
+
+// TestHTMLChartsTopTwenty: with more than 20 root causes the rank chart
+// draws 19 of them and one "others" bar holding the rest, and the diff
+// chart draws the 20 most severe changes; the tables list all.
+func TestHTMLChartsTopTwenty(t *testing.T) {
+	r := greenhouse()
+	base := r.Causes[0]
+	r.Causes = nil
+	for i := range 30 {
+		c := *base
+		c.Function = fmt.Sprintf("example.com/greenhouse/bed%02d.Water", i)
+		c.Share = 1.0 / 30
+		r.Causes = append(r.Causes, &c)
+	}
+	ch := newCauseChart(r, r.Causes)
+	if len(ch.Bars) != 20 || ch.Bars[19].Name != "11 others" || ch.Bars[19].Label != Percent(11.0/30) {
+		t.Errorf("%d bars, last %q %q; want 20 ending with 11 others at %s", len(ch.Bars), ch.Bars[len(ch.Bars)-1].Name,
+			ch.Bars[len(ch.Bars)-1].Label, Percent(11.0/30))
+	}
+	var b bytes.Buffer
+	if err := (HTML{}).Render(&b, r, Options{}); err != nil {
+		t.Fatal(err)
+	}
+	if n := strings.Count(b.String(), `<td class="fn">example.<wbr>com/<wbr>greenhouse/<wbr>bed`); n != 30 {
+		t.Errorf("table has %d rows, want 30", n)
+	}
+}
