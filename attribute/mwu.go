@@ -7,7 +7,7 @@ import (
 	"slices"
 )
 
-// DefaultBootstrapResamples is the number of resamples BootstrapRatioCI draws
+// DefaultBootstrapResamples is the number of resamples BootstrapRatios draws
 // when asked for zero or fewer: enough for stable 95 % percentile bounds
 // (common practice).
 const DefaultBootstrapResamples = 2000
@@ -258,22 +258,6 @@ func Median(x []float64) float64 {
 	return Quantile(s, 0.5)
 }
 
-// BootstrapRatioCI returns the percentile bootstrap interval (Efron, Ann. Stat.
-// 7, 1979) at level conf for the ratio of means mean(c)/mean(b): each of B
-// rounds resamples b and c with replacement, and the bounds are the (1−conf)/2
-// and (1+conf)/2 quantiles (type 7) of the resampled ratios. Rounds whose ratio
-// is 0/0 are dropped. The result depends only on the inputs and seed (a PCG
-// generator from math/rand/v2). B ≤ 0 means DefaultBootstrapResamples. It
-// returns NaN bounds for an empty side or conf outside (0, 1).
-func BootstrapRatioCI(b, c []float64, B int, conf float64, seed uint64) (lo, hi float64) {
-	if len(b) == 0 || len(c) == 0 || !(conf > 0 && conf < 1) {
-		return math.NaN(), math.NaN()
-	}
-	ratios := BootstrapRatios(b, c, B, seed)
-	a := (1 - conf) / 2
-	return Quantile(ratios, a), Quantile(ratios, 1-a)
-}
-
 // resampleMean returns the mean of len(x) values drawn from x with replacement.
 func resampleMean(rng *rand.Rand, x []float64) float64 {
 	s := 0.0
@@ -283,11 +267,12 @@ func resampleMean(rng *rand.Rand, x []float64) float64 {
 	return s / float64(len(x))
 }
 
-// BootstrapRatios returns the B sorted ratios of means mean(c*)/mean(b*)
-// of the percentile bootstrap that BootstrapRatioCI takes its bounds from
-// (same resampling, seed and dropped 0/0 rounds); a ratio with a zero
-// base mean is +Inf. B ≤ 0 means DefaultBootstrapResamples; nil for an
-// empty side.
+// BootstrapRatios returns the sorted ratios of means mean(c*)/mean(b*) of
+// B rounds of the percentile bootstrap (Efron, Ann. Stat. 7, 1979): each
+// round resamples b and c with replacement. Rounds whose ratio is 0/0 are
+// dropped; a ratio with a zero base mean is +Inf. The result depends only
+// on the inputs and seed (a PCG generator from math/rand/v2). B ≤ 0 means
+// DefaultBootstrapResamples; nil for an empty side.
 func BootstrapRatios(b, c []float64, B int, seed uint64) []float64 {
 	if len(b) == 0 || len(c) == 0 {
 		return nil

@@ -254,7 +254,7 @@ func TestQuantile(t *testing.T) {
 	})
 }
 
-func TestBootstrapRatioCI(t *testing.T) {
+func TestBootstrapRatios(t *testing.T) {
 	t.Run("coverage", func(t *testing.T) {
 		// Seeded coverage run of the percentile interval (Efron, Ann. Stat. 7,
 		// 1979): lognormal costs, σ = 0.5 on the log scale, n = 60 per side,
@@ -270,7 +270,7 @@ func TestBootstrapRatioCI(t *testing.T) {
 				b[i] = math.Exp(0.5 * rng.NormFloat64())
 				c[i] = ratio * math.Exp(0.5*rng.NormFloat64())
 			}
-			lo, hi := BootstrapRatioCI(b, c, 1000, 0.95, uint64(rep))
+			lo, hi := BootstrapRatioBounds(BootstrapRatios(b, c, 1000, uint64(rep)), 0.05)
 			if lo <= ratio && ratio <= hi {
 				covered++
 			}
@@ -283,46 +283,57 @@ func TestBootstrapRatioCI(t *testing.T) {
 	b := []float64{12.1, 11.8, 12.6, 13.0, 12.2}
 	c := []float64{13.4, 12.9, 14.8, 13.9, 15.1}
 	t.Run("deterministic", func(t *testing.T) {
-		lo1, hi1 := BootstrapRatioCI(b, c, 500, 0.95, 42)
-		lo2, hi2 := BootstrapRatioCI(b, c, 500, 0.95, 42)
-		if lo1 != lo2 || hi1 != hi2 {
-			t.Errorf("same seed: (%g, %g) then (%g, %g)", lo1, hi1, lo2, hi2)
+		r1, r2, r3 := BootstrapRatios(b, c, 500, 42), BootstrapRatios(b, c, 500, 42), BootstrapRatios(b, c, 500, 43)
+		if !slices.Equal(r1, r2) {
+			t.Error("same seed, different resamples")
 		}
-		lo3, hi3 := BootstrapRatioCI(b, c, 500, 0.95, 43)
-		if lo1 == lo3 && hi1 == hi3 {
-			t.Errorf("seeds 42 and 43 gave the same interval (%g, %g)", lo1, hi1)
+		if slices.Equal(r1, r3) {
+			t.Error("seeds 42 and 43 gave the same resamples")
 		}
-		if !(lo1 < 1.1361 && 1.1361 < hi1) {
-			t.Errorf("(%g, %g) misses the sample ratio 1.1361", lo1, hi1)
+		if lo, hi := BootstrapRatioBounds(r1, 0.05); !(lo < 1.1361 && 1.1361 < hi) {
+			t.Errorf("(%g, %g) misses the sample ratio 1.1361", lo, hi)
+		}
+		if !slices.Equal(BootstrapRatios(b, c, 0, 5), BootstrapRatios(b, c, DefaultBootstrapResamples, 5)) {
+			t.Error("B = 0 is not the default")
 		}
 	})
-	t.Run("default resamples", func(t *testing.T) {
-		lo1, hi1 := BootstrapRatioCI(b, c, 0, 0.9, 5)
-		lo2, hi2 := BootstrapRatioCI(b, c, DefaultBootstrapResamples, 0.9, 5)
-		if lo1 != lo2 || hi1 != hi2 {
-			t.Errorf("B = 0 gave (%g, %g), default gave (%g, %g)", lo1, hi1, lo2, hi2)
+	t.Run("p-value and interval agree", func(t *testing.T) {
+		// The p-value inverts the interval: for every level γ the bounds
+		// exclude 1 exactly when p ≤ γ (Efron & Tibshirani, An
+		// Introduction to the Bootstrap, 1993, §16.4).
+		rng := rand.New(rand.NewPCG(5, 6))
+		for rep := range 200 {
+			n := 5 + rep%40
+			x, y := make([]float64, n), make([]float64, n)
+			shift := 1 + 0.05*float64(rep%7)
+			for i := range n {
+				x[i] = math.Exp(rng.NormFloat64())
+				y[i] = shift * math.Exp(rng.NormFloat64())
+			}
+			r := BootstrapRatios(x, y, 400, uint64(rep))
+			p := BootstrapRatioP(r)
+			for _, gamma := range []float64{0.001, 0.01, 0.05, 0.2} {
+				lo, hi := BootstrapRatioBounds(r, gamma)
+				if excl := lo > 1 || hi < 1; excl != (p <= gamma) {
+					t.Fatalf("rep %d γ %g: p %g, interval (%g, %g)", rep, gamma, p, lo, hi)
+				}
+			}
 		}
 	})
 	t.Run("invalid", func(t *testing.T) {
-		for _, tt := range []struct {
-			name string
-			b, c []float64
-			conf float64
-		}{
-			{"empty base", nil, c, 0.95},
-			{"empty candidate", b, nil, 0.95},
-			{"conf 1", b, c, 1},
-		} {
-			if lo, hi := BootstrapRatioCI(tt.b, tt.c, 100, tt.conf, 1); !math.IsNaN(lo) || !math.IsNaN(hi) {
-				t.Errorf("%s: (%g, %g), want NaN", tt.name, lo, hi)
-			}
+		if r := BootstrapRatios(nil, c, 100, 1); r != nil {
+			t.Errorf("empty base: %v", r)
 		}
-		// An all-zero base makes every ratio +Inf (or NaN when c is zero too).
-		if lo, hi := BootstrapRatioCI([]float64{0, 0}, []float64{1, 2}, 100, 0.95, 1); !math.IsInf(lo, 1) || !math.IsInf(hi, 1) {
-			t.Errorf("zero base: (%g, %g), want +Inf", lo, hi)
+		if lo, hi := BootstrapRatioBounds(BootstrapRatios(b, c, 100, 1), 1); !math.IsNaN(lo) || !math.IsNaN(hi) {
+			t.Errorf("γ 1: (%g, %g), want NaN", lo, hi)
 		}
-		if lo, hi := BootstrapRatioCI([]float64{0, 0}, []float64{0, 0}, 100, 0.95, 1); !math.IsNaN(lo) || !math.IsNaN(hi) {
-			t.Errorf("all zero: (%g, %g), want NaN", lo, hi)
+		// An all-zero base makes every ratio +Inf (or NaN, dropped, when c is
+		// zero too).
+		if r := BootstrapRatios([]float64{0, 0}, []float64{1, 2}, 100, 1); !math.IsInf(r[0], 1) || BootstrapRatioP(r) != 0 {
+			t.Errorf("zero base: %v", r[:3])
+		}
+		if r := BootstrapRatios([]float64{0, 0}, []float64{0, 0}, 100, 1); len(r) != 0 || !math.IsNaN(BootstrapRatioP(r)) {
+			t.Errorf("all zero: %v", r)
 		}
 	})
 }

@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"sort"
 	"strconv"
 	"strings"
 
@@ -134,14 +133,4 @@ func AppSummary(r *attribute.Result) string {
 		parts = append(parts, fmt.Sprintf("%s (%d functions: %s)", d.Prefix, d.Functions, d.Reason))
 	}
 	return "application code detected: " + strings.Join(parts, "; ")
-}
-
-// sortedKeys returns m's keys in order.
-func sortedKeys[V any](m map[string]V) []string {
-	keys := make([]string, 0, len(m))
-	for k := range m {
-		keys = append(keys, k)
-	}
-	sort.Strings(keys)
-	return keys
 }
