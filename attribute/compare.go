@@ -255,6 +255,13 @@ type StatementChange struct {
 	// New: only in the candidate; Gone: only in the base.
 	New  bool `json:"new"`
 	Gone bool `json:"gone"`
+	// PValue tests the statement's calls per request with the exact
+	// conditional Poisson test (requests as exposure); QValue is its
+	// Benjamini–Hochberg adjustment over every statement of the
+	// comparison (a family of its own: statements detail a cause's change
+	// and do not decide its verdict). Nil when not tested.
+	PValue *float64 `json:"pValue"`
+	QValue *float64 `json:"qValue"`
 
 	baseCalls, candCalls int64
 }
@@ -451,6 +458,7 @@ func Compare(base, cand *Snapshot, opts CompareOptions) *Comparison {
 	for _, t := range tests {
 		t.level(gamma)
 	}
+	statementQValues(stats)
 	for i := range stats {
 		st := &stats[i]
 		st.decide(alpha, budget)
@@ -1007,6 +1015,24 @@ func (t *test) pointers(both bool) (rel, lo, hi, p, q, mde *float64) {
 	return rel, lo, hi, finite(t.p), finite(t.q), mde
 }
 
+// statementQValues adjusts the p-values of every statement of the
+// comparison together by Benjamini–Hochberg.
+func statementQValues(stats []changeStat) {
+	var ps []float64
+	var at []*StatementChange
+	for i := range stats {
+		for j := range stats[i].statements {
+			if sc := &stats[i].statements[j]; sc.PValue != nil {
+				ps = append(ps, *sc.PValue)
+				at = append(at, sc)
+			}
+		}
+	}
+	for i, q := range BenjaminiHochberg(ps) {
+		at[i].QValue = finite(q)
+	}
+}
+
 // statementChanges compares the calls per request of each statement of a
 // cause (statements are matched by system, statement and peer); nb and nc
 // are the sides' divisors. Statements are in the candidate's order, then
@@ -1044,6 +1070,9 @@ func statementChanges(bg, cg *group, nb, nc float64) []StatementChange {
 		sc.Base, sc.Candidate = normalise(sc.baseCalls, nb), normalise(sc.candCalls, nc)
 		sc.New = bg != nil && sc.baseCalls == 0 && sc.candCalls > 0
 		sc.Gone = cg != nil && sc.candCalls == 0 && sc.baseCalls > 0
+		if bg != nil && cg != nil && sc.baseCalls+sc.candCalls > 0 {
+			sc.PValue = finite(PoissonRateTest(float64(sc.baseCalls), float64(sc.candCalls), nb, nc).P)
+		}
 	}
 	return out
 }

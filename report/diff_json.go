@@ -101,14 +101,16 @@ type CallsChangeDoc struct {
 
 // StatementChangeDoc is one statement's calls per request on each side.
 type StatementChangeDoc struct {
-	Statement string  `json:"statement"`
-	System    string  `json:"system,omitempty"`
-	Peer      string  `json:"peer,omitempty"`
-	Kind      string  `json:"kind"`
-	Base      float64 `json:"base"`
-	Candidate float64 `json:"candidate"`
-	New       bool    `json:"new"`
-	Gone      bool    `json:"gone"`
+	Statement string   `json:"statement"`
+	System    string   `json:"system,omitempty"`
+	Peer      string   `json:"peer,omitempty"`
+	Kind      string   `json:"kind"`
+	Base      float64  `json:"base"`
+	Candidate float64  `json:"candidate"`
+	New       bool     `json:"new"`
+	Gone      bool     `json:"gone"`
+	PValue    *float64 `json:"pValue"`
+	QValue    *float64 `json:"qValue"`
 }
 
 // RenderDiff implements DiffRenderer.
@@ -170,7 +172,7 @@ func changeDoc(ch attribute.Change) ChangeDoc {
 		out.Calls = &CallsChangeDoc{cc.Base, cc.Candidate, cc.RelativeChange, cc.RelLo, cc.RelHi, cc.PValue, cc.QValue, cc.MDE, string(cc.Verdict)}
 	}
 	for _, s := range ch.Statements {
-		out.Statements = append(out.Statements, StatementChangeDoc{s.Statement, s.System, s.Peer, string(s.Kind), s.Base, s.Candidate, s.New, s.Gone})
+		out.Statements = append(out.Statements, StatementChangeDoc{s.Statement, s.System, s.Peer, string(s.Kind), s.Base, s.Candidate, s.New, s.Gone, s.PValue, s.QValue})
 	}
 	return out
 }
