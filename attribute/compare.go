@@ -898,17 +898,25 @@ func verdictOf(t *test, alpha float64, b Budget, abs bool) Outcome {
 	case math.IsNaN(t.lo) || math.IsNaN(t.hi):
 		return OutcomeInconclusive
 	}
-	r, a := b.Relative, b.Absolute
 	if !abs {
-		a = 0
+		b.Absolute = 0
 	}
-	absLo, absHi := t.lo*t.base, t.hi*t.base
+	return budgetVerdict(t.lo, t.hi, t.base, b)
+}
+
+// budgetVerdict judges a significant change by its relative interval
+// [lo, hi] (base × interval in absolute terms) against budget b:
+// regressed or improved when the interval clears the budget, unchanged
+// when it lies within it, else inconclusive.
+func budgetVerdict(lo, hi, base float64, b Budget) Outcome {
+	r, a := b.Relative, b.Absolute
+	absLo, absHi := lo*base, hi*base
 	switch {
-	case t.lo > r && (a == 0 || absLo > a):
+	case lo > r && (a == 0 || absLo > a):
 		return OutcomeRegressed
-	case t.hi < -r && (a == 0 || absHi < -a):
+	case hi < -r && (a == 0 || absHi < -a):
 		return OutcomeImproved
-	case (t.lo >= -r && t.hi <= r) || (a > 0 && absLo >= -a && absHi <= a):
+	case (lo >= -r && hi <= r) || (a > 0 && absLo >= -a && absHi <= a):
 		return OutcomeUnchanged
 	}
 	return OutcomeInconclusive

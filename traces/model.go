@@ -206,6 +206,20 @@ type Path struct {
 	Call CallID
 }
 
+// Timing places the span paths of a Spans source in time: Start[i] and
+// Parent[i] belong to path i. A span ends at Start[i] plus its duration
+// (value 0 of the path). Times are after the repairs recorded in the
+// source's warnings, in nanoseconds since the Unix epoch.
+type Timing struct {
+	// Start is when each span started.
+	Start []int64
+	// Parent is the index of the path of each span's parent span, in the
+	// same request, or -1 for a span whose parent is missing or was not
+	// kept (Options.Service). A parent may come after its child: paths are
+	// in start order and a child may start with or before its parent.
+	Parent []int32
+}
+
 // Input describes one file a source was read from.
 type Input struct {
 	Name   string `json:"name"`
@@ -239,6 +253,10 @@ type Source struct {
 	Calls    []Call
 	Requests []string // request keys (trace IDs as hex); [0] is ""
 	Paths    Paths
+
+	// Timing, when the source was read with Options.Timing, places every
+	// span path in time and in its trace's tree; nil otherwise.
+	Timing *Timing
 
 	Inputs   []Input
 	Warnings Warnings

@@ -27,4 +27,8 @@ type Options struct {
 	// SkipDigest leaves Input.SHA256 empty, for reports that do not show
 	// it: hashing is a fifth of the CPU time of reading OTLP/JSON.
 	SkipDigest bool
+	// Timing keeps, for span sources, each span's start time and parent
+	// (Source.Timing), which the latency view needs to place spans in time.
+	// Profiles have no timing; the option is ignored for them.
+	Timing bool
 }

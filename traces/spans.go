@@ -77,6 +77,7 @@ type node struct {
 	framesAt   int32    // its path's frames in the arena
 	framesLen  int32
 	entryRoute int32 // route of the first span of its path
+	pathIx     int32 // index of its path within the trace's, once emitted
 	keep       bool  // emitted as a path (its service is selected)
 	state      uint8 // cycle search: 0 new, 1 on the current walk, 2 done
 }
@@ -127,6 +128,10 @@ type partPath struct {
 	framesAt, framesLen int32
 	call, route         int32
 	dur                 int64
+	// start and parent (a path index relative to the trace's first path,
+	// -1 for none) are kept for Options.Timing.
+	start  int64
+	parent int32
 }
 
 // finisher interns the workers' paths into the source, one partition
@@ -181,6 +186,9 @@ func (c *SpanCollector) Source() (*Source, error) {
 	src.Inputs = append([]Input(nil), c.inputs...)
 	src.Warnings.Merge(c.warnings)
 	src.Paths.Grow(c.spans.len())
+	if c.opts.Timing {
+		src.Timing = &Timing{Start: make([]int64, 0, c.spans.len()), Parent: make([]int32, 0, c.spans.len())}
+	}
 
 	fin := &finisher{c: c, src: src, frameMap: make([]FrameID, len(c.frames)),
 		callMap: make([]CallID, len(c.calls)), labels: make([]*LabelSet, len(c.strs))}
@@ -297,8 +305,18 @@ func (f *finisher) add(out *partPaths) error {
 	start := int32(0)
 	for _, tr := range out.traces {
 		req := f.src.InternRequest(f.c.traceIDs[tr.trace].String())
+		base := int32(f.src.Paths.Len())
 		for i := start; i < tr.end; i++ {
-			f.path(out, &out.paths[i], req)
+			pp := &out.paths[i]
+			f.path(out, pp, req)
+			if tm := f.src.Timing; tm != nil {
+				parent := int32(-1)
+				if pp.parent >= 0 {
+					parent = base + pp.parent
+				}
+				tm.Start = append(tm.Start, pp.start)
+				tm.Parent = append(tm.Parent, parent)
+			}
 		}
 		start = tr.end
 	}
@@ -467,11 +485,20 @@ func (as *assembler) trace(nodes []node) error {
 	as.keys = keys
 
 	out := as.out
+	// A kept span's path index within the trace, for its children's
+	// parent links (state is free again after the cycle search).
+	for j, k := range emit {
+		nodes[k].pathIx = int32(j)
+	}
 	for _, k := range emit {
 		nd := &nodes[k]
 		fs := as.arena[nd.framesAt : nd.framesAt+nd.framesLen]
+		parent := int32(-1)
+		if p := nd.parent; p >= 0 && nodes[p].keep {
+			parent = nodes[p].pathIx
+		}
 		out.paths = append(out.paths, partPath{framesAt: int32(len(out.frames)), framesLen: int32(len(fs)),
-			call: nd.rec.call, route: nd.entryRoute, dur: nd.end - nd.start})
+			call: nd.rec.call, route: nd.entryRoute, dur: nd.end - nd.start, start: nd.start, parent: parent})
 		out.frames = append(out.frames, fs...)
 		if nd.start != 0 || nd.end != 0 {
 			if !out.timed || nd.start < out.minStart {

@@ -26,6 +26,10 @@ type diffOptions struct {
 	alpha     float64
 	seed      uint64
 	command   string
+	// latency compares critical paths and route latency (traces or
+	// latency snapshots) instead of root causes' summed cost.
+	latency bool
+	tail    float64
 }
 
 func newDiffCmd(s *streams, runF func(context.Context, *diffOptions) error) *cobra.Command {
@@ -47,10 +51,16 @@ q <= --alpha and an interval whose lower bound clears the budget; every
 comparison prints the smallest change it could have detected.
 
 --fail-on sets the budget (e.g. 10%, 2ms, or 10%,2ms) and makes a significant
-regression beyond it exit with status 3, for CI.`,
+regression beyond it exit with status 3, for CI.
+
+With --latency (traces, or snapshots saved by culprit latency --save), diff
+compares what requests waited on: per entry point the change of p50 and p95
+latency with bootstrap intervals, and per root cause the change of its time
+on the critical path per request, with the same verdicts, budget and gate.`,
 		Example: `  culprit diff v41.snapshot.json v42/
   culprit diff --base old/cpu.pb.gz --candidate new/cpu.pb.gz --format markdown
-  culprit diff v41.snapshot.json v42.snapshot.json --fail-on 10% || echo "regression"`,
+  culprit diff v41.snapshot.json v42.snapshot.json --fail-on 10% || echo "regression"
+  culprit diff --latency v41.traces.jsonl v42.traces.jsonl --fail-on 10%,5ms`,
 		Args: func(cmd *cobra.Command, args []string) error {
 			switch {
 			case len(opts.base) > 0 || len(opts.candidate) > 0:
@@ -81,6 +91,8 @@ regression beyond it exit with status 3, for CI.`,
 	fl.StringVar(&opts.failOn, "fail-on", "", "regression `BUDGET`: relative (10%) and/or absolute per request or second (2ms); exit 3 beyond it")
 	fl.Float64Var(&opts.alpha, "alpha", attribute.DefaultAlpha, "significance level for Benjamini-Hochberg q-values")
 	fl.Uint64Var(&opts.seed, "seed", 1, "bootstrap seed (same inputs and seed give the same report)")
+	fl.BoolVar(&opts.latency, "latency", false, "compare latency: route p50/p95 and critical-path time per root cause (traces)")
+	fl.Float64Var(&opts.tail, "tail", attribute.DefaultTail, "with --latency, for inputs: quantile from which a request is in its route's tail")
 	return cmd
 }
 
@@ -95,6 +107,9 @@ func runDiff(ctx context.Context, opts *diffOptions) error {
 	format := opts.output.Format
 	if format == "" {
 		format = "text"
+	}
+	if opts.latency {
+		return runDiffLatency(ctx, opts, budget, format)
 	}
 	renderer, err := report.ForDiffFormat(format)
 	if err != nil {
@@ -128,19 +143,81 @@ func runDiff(ctx context.Context, opts *diffOptions) error {
 		return err
 	}
 	if budget.Set {
-		if gate := cmp.Gate(); len(gate) > 0 {
-			parts := make([]string, len(gate))
-			for i, ch := range gate {
-				parts[i] = ch.Function
-				if ch.RelativeChange != nil {
-					parts[i] += fmt.Sprintf(" %+.1f%%", *ch.RelativeChange*100)
-				}
-			}
-			return fmt.Errorf("%w: %d root cause(s) regressed beyond the budget %s: %s",
-				errGate, len(gate), opts.failOn, strings.Join(parts, "; "))
-		}
+		return gateError(cmp.Gate(), opts.failOn)
 	}
 	return nil
+}
+
+// gateError is the error that makes culprit exit 3 when gate is not empty.
+func gateError(gate []attribute.Change, failOn string) error {
+	if len(gate) == 0 {
+		return nil
+	}
+	parts := make([]string, len(gate))
+	for i, ch := range gate {
+		parts[i] = ch.Function
+		if ch.RelativeChange != nil {
+			parts[i] += fmt.Sprintf(" %+.1f%%", *ch.RelativeChange*100)
+		}
+	}
+	return fmt.Errorf("%w: %d root cause(s) regressed beyond the budget %s: %s",
+		errGate, len(gate), failOn, strings.Join(parts, "; "))
+}
+
+// runDiffLatency is diff --latency.
+func runDiffLatency(ctx context.Context, opts *diffOptions, budget attribute.Budget, format string) error {
+	renderer, err := report.ForLatencyDiffFormat(format)
+	if err != nil {
+		return &usageError{err: err}
+	}
+	if opts.tail <= 0 || opts.tail >= 1 {
+		return usagef("--tail must be a quantile between 0 and 1, such as 0.95")
+	}
+	ropts, err := opts.output.renderOptions(opts.streams)
+	if err != nil {
+		return err
+	}
+	base, err := opts.latencySide(ctx, "base", opts.base)
+	if err != nil {
+		return err
+	}
+	cand, err := opts.latencySide(ctx, "candidate", opts.candidate)
+	if err != nil {
+		return err
+	}
+	c := attribute.CompareLatency(base, cand, attribute.CompareOptions{Alpha: opts.alpha, Budget: budget, Seed: opts.seed})
+	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
+	inputs := append(append([]string(nil), opts.base...), opts.candidate...)
+	if err := opts.output.write(opts.streams, inputs, func(w io.Writer) error {
+		return renderer.RenderLatencyDiff(w, c, ropts)
+	}); err != nil {
+		return err
+	}
+	if budget.Set {
+		return gateError(c.Gate(), opts.failOn)
+	}
+	return nil
+}
+
+// latencySide loads one side of diff --latency: a latency snapshot, or
+// traces whose latency is analysed with the command's flags.
+func (opts *diffOptions) latencySide(ctx context.Context, label string, inputs []string) (*attribute.LatencySnapshot, error) {
+	if len(inputs) == 1 && hasSchema(inputs[0], "culprit.latency-snapshot/") {
+		fh, err := os.Open(inputs[0])
+		if err != nil {
+			return nil, err
+		}
+		defer fh.Close()
+		return attribute.ReadLatencySnapshot(inputs[0], fh)
+	}
+	if len(inputs) == 1 && isSnapshotFile(inputs[0]) {
+		return nil, usagef("%s: %s is a rank snapshot, which has no latency; save one with culprit latency --save", label, inputs[0])
+	}
+	res, err := opts.analysis.latency(ctx, opts.streams, inputs, attribute.LatencyOptions{Tail: opts.tail, Vectors: true})
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", label, err)
+	}
+	return attribute.NewLatencySnapshot(res)
 }
 
 // side loads one side of the comparison: a snapshot file, or inputs that
@@ -162,7 +239,11 @@ func (opts *diffOptions) side(ctx context.Context, label string, inputs []string
 
 // isSnapshotFile reports whether name is a culprit snapshot: a JSON file
 // whose schema field names culprit.snapshot.
-func isSnapshotFile(name string) bool {
+func isSnapshotFile(name string) bool { return hasSchema(name, "culprit.snapshot/") }
+
+// hasSchema reports whether name is a JSON file whose first 4 KiB name
+// the schema prefix.
+func hasSchema(name, schema string) bool {
 	fh, err := os.Open(name)
 	if err != nil {
 		return false
@@ -175,7 +256,7 @@ func isSnapshotFile(name string) bool {
 	head := make([]byte, 4096)
 	n, _ := io.ReadFull(fh, head)
 	head = bytes.TrimLeft(head[:n], " \t\r\n")
-	return bytes.HasPrefix(head, []byte("{")) && bytes.Contains(head, []byte(`"culprit.snapshot/`))
+	return bytes.HasPrefix(head, []byte("{")) && bytes.Contains(head, []byte(`"`+schema))
 }
 
 // parseBudget parses --fail-on: comma-separated parts, each a relative

@@ -41,6 +41,8 @@ type analysisFlags struct {
 	// and dropVectors keeping the per-request vectors when no snapshot is
 	// made.
 	skipDigest, dropVectors bool
+	// timing keeps each span's start and parent, for the latency view.
+	timing bool
 }
 
 func (f *analysisFlags) register(cmd *cobra.Command) {
@@ -146,6 +148,7 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 		Strict:     f.Strict,
 		Service:    f.Service,
 		SkipDigest: f.skipDigest,
+		Timing:     f.timing,
 	}
 	if !f.ShowLiterals {
 		// Fingerprint while decoding: literals never reach memory, and calls

@@ -29,6 +29,7 @@ Exit status: 0 success, 1 error, 2 usage error, 3 regression gate tripped.`,
 	root.AddCommand(
 		newRankCmd(s, nil),
 		newExplainCmd(s, nil),
+		newLatencyCmd(s, nil),
 		newGraphCmd(s, nil),
 		newRulesCmd(s, nil),
 		newDiffCmd(s, nil),
