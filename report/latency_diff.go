@@ -22,19 +22,11 @@ type LatencyDiffRenderer interface {
 	RenderLatencyDiff(w io.Writer, c *attribute.LatencyComparison, opts Options) error
 }
 
-// ForLatencyDiffFormat returns the latency-diff renderer of a format name.
+// ForLatencyDiffFormat returns the latency-diff renderer of a format name
+// (see registry).
 func ForLatencyDiffFormat(name string) (LatencyDiffRenderer, error) {
-	switch name {
-	case "text", "markdown":
-		return latencyDiffDoc{name}, nil
-	case "json":
-		return latencyDiffJSON{}, nil
-	case "csv":
-		return latencyDiffCSV{}, nil
-	case "html":
-		return latencyDiffHTML{}, nil
-	}
-	return nil, fmt.Errorf("unknown format %q; --format must be one of: %s", name, strings.Join(DiffFormats, ", "))
+	f, err := lookup(name, LatencyDiffFormats, func(f Format) bool { return f.LatencyDiff != nil })
+	return f.LatencyDiff, err
 }
 
 // routeQText renders one quantile's change: "120ms → 180ms, +50% [+41%, +58%]".

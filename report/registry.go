@@ -14,24 +14,27 @@ type ExplainRenderer interface {
 	RenderExplain(w io.Writer, ex []attribute.Explanation, unit string, opts Options) error
 }
 
-// Format is one output format: its name and its renderer for each view.
+// Format is one output format: its name and its renderer for each view
+// (rank, diff, explain, latency and latency diff).
 // A nil renderer means the format does not offer that view.
 type Format struct {
-	Name    string
-	Rank    Renderer
-	Diff    DiffRenderer
-	Explain ExplainRenderer
+	Name        string
+	Rank        Renderer
+	Diff        DiffRenderer
+	Explain     ExplainRenderer
+	Latency     LatencyRenderer
+	LatencyDiff LatencyDiffRenderer
 }
 
 // registry is the one table of formats, in the order the help lists them.
 // To add a format, write its renderers and add a row here (see
 // DEVELOPERS.md, "Adding an output format").
 var registry = []Format{
-	{Name: "text", Rank: Text{}, Diff: DiffText{}, Explain: ExplainText{}},
-	{Name: "markdown", Rank: Markdown{}, Diff: DiffMarkdown{}},
-	{Name: "json", Rank: JSON{}, Diff: DiffJSON{}, Explain: ExplainJSON{}},
-	{Name: "csv", Rank: CSV{}, Diff: DiffCSV{}},
-	{Name: "html", Rank: HTML{}, Diff: DiffHTML{}},
+	{Name: "text", Rank: Text{}, Diff: DiffText{}, Explain: ExplainText{}, Latency: latencyText{}, LatencyDiff: latencyDiffDoc{"text"}},
+	{Name: "markdown", Rank: Markdown{}, Diff: DiffMarkdown{}, Latency: latencyMarkdown{}, LatencyDiff: latencyDiffDoc{"markdown"}},
+	{Name: "json", Rank: JSON{}, Diff: DiffJSON{}, Explain: ExplainJSON{}, Latency: latencyJSON{}, LatencyDiff: latencyDiffJSON{}},
+	{Name: "csv", Rank: CSV{}, Diff: DiffCSV{}, Latency: latencyCSV{}, LatencyDiff: latencyDiffCSV{}},
+	{Name: "html", Rank: HTML{}, Diff: DiffHTML{}, Latency: latencyHTML{}, LatencyDiff: latencyDiffHTML{}},
 }
 
 // Formats lists the format names ForFormat accepts.
@@ -42,6 +45,13 @@ var DiffFormats = formatNames(func(f Format) bool { return f.Diff != nil })
 
 // ExplainFormats lists the format names ForExplainFormat accepts.
 var ExplainFormats = formatNames(func(f Format) bool { return f.Explain != nil })
+
+// LatencyFormats and LatencyDiffFormats list the format names of the
+// latency view and its comparison.
+var (
+	LatencyFormats     = formatNames(func(f Format) bool { return f.Latency != nil })
+	LatencyDiffFormats = formatNames(func(f Format) bool { return f.LatencyDiff != nil })
+)
 
 func formatNames(has func(Format) bool) []string {
 	var out []string
