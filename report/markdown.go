@@ -116,11 +116,21 @@ func (Markdown) Render(w io.Writer, r *attribute.Result, opts Options) error {
 
 	if len(r.Entries) > 0 {
 		fmt.Fprint(bw, "\n## By entry point\n\n")
-		mdRow(bw, []string{"Entry point", "Database", "Network", "Other", "Total", "Requests"})
-		mdRow(bw, []string{"---", "---:", "---:", "---:", "---:", "---:"})
+		// Requests only when the source knows them (not "0" for profiles).
+		reqs := r.Totals.Requests > 0
+		hdr, align := []string{"Entry point", "Database", "Network", "Other", "Total"}, []string{"---", "---:", "---:", "---:", "---:"}
+		if reqs {
+			hdr, align = append(hdr, "Requests"), append(align, "---:")
+		}
+		mdRow(bw, hdr)
+		mdRow(bw, align)
 		for _, e := range r.Entries {
-			mdRow(bw, []string{mdText(entryName(e.Entry)), FormatValue(e.Database, unit), FormatValue(e.Network, unit),
-				FormatValue(entryOther(e), unit), FormatValue(e.Cost, unit), strconv.Itoa(e.Requests)})
+			row := []string{mdText(entryName(e.Entry)), FormatValue(e.Database, unit), FormatValue(e.Network, unit),
+				FormatValue(entryOther(e), unit), FormatValue(e.Cost, unit)}
+			if reqs {
+				row = append(row, strconv.Itoa(e.Requests))
+			}
+			mdRow(bw, row)
 		}
 	}
 
