@@ -118,3 +118,42 @@ func TestMachineFormatsHoldEveryRow(t *testing.T) {
 		t.Errorf("text report does not cut at 20 rows:\n%s", out)
 	}
 }
+
+// TestTextWidthFromEnvironment: off a terminal the text report takes
+// $COLUMNS, else 100 columns; --width overrides both.
+func TestTextWidthFromEnvironment(t *testing.T) {
+	in := manyCausesProfile(t)
+	longest := func(columns string, args ...string) int {
+		t.Helper()
+		s, out, errb := testStreams("")
+		s.Getenv = func(k string) string {
+			if k == "COLUMNS" {
+				return columns
+			}
+			return ""
+		}
+		if code := run(append([]string{"rank"}, append(args, in)...), s); code != exitOK {
+			t.Fatalf("exit %d: %s", code, errb)
+		}
+		n := 0
+		for _, line := range strings.Split(out.String(), "\n") {
+			n = max(n, len([]rune(line)))
+		}
+		return n
+	}
+	for _, tt := range []struct {
+		columns string
+		args    []string
+		max     int
+	}{
+		{"", nil, 100},
+		{"80", nil, 80},
+		{"not a number", nil, 100},
+		{"80", []string{"--width", "200"}, 200},
+		{"", []string{"--width", "72"}, 72},
+	} {
+		if got := longest(tt.columns, tt.args...); got > tt.max || got < tt.max-30 {
+			t.Errorf("COLUMNS=%q %v: longest line %d, want at most %d (and near it)", tt.columns, tt.args, got, tt.max)
+		}
+	}
+}
