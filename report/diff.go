@@ -168,8 +168,10 @@ func signedRateText(v float64, c *attribute.Comparison) string {
 		s = strconv.FormatFloat(v*100, 'f', 1, 64) + " pp"
 	}
 	switch {
+	case !nonZero(s) && c.Basis == attribute.BasisShare:
+		return "0 pp"
 	case !nonZero(s):
-		return strings.TrimPrefix(s, "-")
+		return "0"
 	case v > 0:
 		return "+" + s
 	}
@@ -202,8 +204,8 @@ func pctText(f float64) string {
 		return strconv.FormatFloat(p, 'f', 0, 64) + "%"
 	}
 	s := strconv.FormatFloat(p, 'f', 1, 64)
-	if s == "-0.0" {
-		s = "0.0"
+	if !nonZero(s) {
+		s = "0"
 	}
 	return s + "%"
 }

@@ -200,7 +200,7 @@ func TestDiffFormatting(t *testing.T) {
 		{"rel new", relText(ch[1]), "new"},
 		{"rel gone", relText(ch[4]), "gone"},
 		{"rel without interval", relText(attribute.Change{RelativeChange: fp(0.1)}), "+10%"},
-		{"rel rounds to zero", relText(attribute.Change{RelativeChange: fp(-0.0004)}), "0.0%"},
+		{"rel rounds to zero", relText(attribute.Change{RelativeChange: fp(-0.0004)}), "0%"},
 		{"q nil", qText(nil), "-"},
 		{"q tiny", qText(fp(7e-9)), "<0.0001"},
 		{"q two digits", qText(fp(0.0123)), "0.012"},
@@ -220,7 +220,7 @@ func TestDiffFormatting(t *testing.T) {
 		{"absolute budget", budgetText(&attribute.Comparison{Basis: attribute.BasisPerRequest, Unit: "nanoseconds per request",
 			ValueType: c.ValueType, Budget: attribute.Budget{Relative: 0.1, Absolute: 2e6, Set: true}}), "+10% and +2.0ms per request"},
 		{"absolute count budget", budgetText(&attribute.Comparison{Basis: attribute.BasisPerSecond, Unit: "count per second",
-			ValueType: count.ValueType, Budget: attribute.Budget{Absolute: 3, Set: true}}), "0.0% and +3 count per second"},
+			ValueType: count.ValueType, Budget: attribute.Budget{Absolute: 3, Set: true}}), "0% and +3 count per second"},
 	} {
 		t.Run(tt.name, func(t *testing.T) {
 			if tt.got != tt.want {

@@ -90,8 +90,8 @@ func (DiffText) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) e
 }
 
 // diffTable writes the changes within width: one line per change when
-// the names get at least 24 columns, else the verdict and name on one line
-// and the numbers indented below.
+// the names fit (or get at least 40 columns), else the verdict and name on
+// one line and the numbers indented below.
 func diffTable(bw io.Writer, c *attribute.Comparison, changes []attribute.Change, width int, color bool) error {
 	calls := false
 	vw := len("VERDICT")
@@ -119,7 +119,11 @@ func diffTable(bw io.Writer, c *attribute.Comparison, changes []attribute.Change
 	}
 	lines := strings.Split(strings.TrimSuffix(tb.String(), "\n"), "\n")
 	numW := utf8.RuneCountInString(lines[0])
-	oneLineRows := width-vw-2-numW >= 24
+	longest := 0
+	for _, ch := range changes {
+		longest = max(longest, utf8.RuneCountInString(oneLine(ch.Function, 0)))
+	}
+	oneLineRows := width-vw-2-numW >= min(longest, 40)
 	nameWidth := width - vw - 2 - numW
 	if !oneLineRows {
 		nameWidth = width - vw - 2

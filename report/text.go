@@ -328,6 +328,9 @@ func Shorten(name string, max int) string {
 		if avail := max - utf8.RuneCountInString(attribute.NoAppFramePrefix); avail >= 8 {
 			return attribute.NoAppFramePrefix + Shorten(rest, avail)
 		}
+		if label := attribute.NoAppFramePrefix + "…"; utf8.RuneCountInString(label) <= max {
+			return label
+		}
 		return oneLine(name, max)
 	}
 	fn := name
