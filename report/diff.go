@@ -118,13 +118,22 @@ func limitedChanges(c *attribute.Comparison, opts Options) []attribute.Change {
 	return c.Changes
 }
 
-// newStatements lists the statements of a change found only in the
-// candidate.
-func newStatements(ch attribute.Change) []attribute.StatementChange {
-	var out []attribute.StatementChange
+// stmtNote is a statement of a change worth a line of its own: Label
+// says what changed ("new statement", "calls per request 8 → 16"), Detail
+// the number behind it.
+type stmtNote struct{ Label, Statement, Detail string }
+
+// statementNotes lists the statements of a change that are new in the
+// candidate, and those whose calls per request changed significantly
+// (statement q ≤ Alpha).
+func statementNotes(c *attribute.Comparison, ch attribute.Change) []stmtNote {
+	var out []stmtNote
 	for _, s := range ch.Statements {
-		if s.New {
-			out = append(out, s)
+		switch {
+		case s.New:
+			out = append(out, stmtNote{"new statement", s.Statement, numText(s.Candidate) + " calls per request"})
+		case !s.Gone && s.QValue != nil && *s.QValue <= c.Alpha:
+			out = append(out, stmtNote{"calls per request " + numText(s.Base) + " → " + numText(s.Candidate), s.Statement, "q " + qText(s.QValue)})
 		}
 	}
 	return out

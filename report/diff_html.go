@@ -65,7 +65,8 @@ type diffPage struct {
 	Clipped    bool
 	Calls      bool
 	Below      string
-	// NewStatements lists statements found only in the candidate.
+	// NewStatements lists statements found only in the candidate and
+	// those whose calls per request changed significantly.
 	NewStatements []newStatement
 	Notes         []string
 	Warnings      []string
@@ -82,7 +83,7 @@ type diffRow struct {
 	FnParts                              []string
 }
 
-type newStatement struct{ Function, Statement, Calls string }
+type newStatement struct{ Function, Label, Statement, Detail string }
 
 type diffChart struct {
 	Width, Height, Zero, AxisY, TickY, BudgetY string
@@ -144,8 +145,9 @@ func (DiffHTML) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) e
 		p.Rows = append(p.Rows, row)
 	}
 	for _, ch := range changes {
-		for _, st := range newStatements(ch) {
-			p.NewStatements = append(p.NewStatements, newStatement{Function: clean(ch.Function), Statement: clean(st.Statement), Calls: numText(st.Candidate)})
+		for _, n := range statementNotes(c, ch) {
+			p.NewStatements = append(p.NewStatements, newStatement{Function: clean(ch.Function), Label: clean(n.Label),
+				Statement: clean(n.Statement), Detail: clean(n.Detail)})
 		}
 	}
 	if len(changes) > 0 {

@@ -78,12 +78,12 @@ func (DiffMarkdown) RenderDiff(w io.Writer, c *attribute.Comparison, opts Option
 		}
 		var news []string
 		for _, ch := range changes {
-			for _, st := range newStatements(ch) {
-				news = append(news, fmt.Sprintf("- %s: new statement %s (%s calls per request)", mdText(ch.Function), mdCode(st.Statement), numText(st.Candidate)))
+			for _, n := range statementNotes(c, ch) {
+				news = append(news, fmt.Sprintf("- %s: %s: %s (%s)", mdText(ch.Function), mdText(n.Label), mdCode(n.Statement), mdText(n.Detail)))
 			}
 		}
 		if len(news) > 0 {
-			fmt.Fprint(bw, "\n### New statements\n\n")
+			fmt.Fprint(bw, "\n### Statements that changed\n\n")
 			fmt.Fprintln(bw, strings.Join(news, "\n"))
 		}
 	}

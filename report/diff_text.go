@@ -71,9 +71,9 @@ func (DiffText) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) e
 			fmt.Fprintf(bw, "(%s not shown; --limit 0 shows all)\n", plural(more, "more change", "more changes"))
 		}
 		for _, ch := range changes {
-			for _, st := range newStatements(ch) {
-				writeWrapped(bw, fmt.Sprintf("%s: new statement: %s (%s calls per request)", Shorten(ch.Function, width/2),
-					oneLine(st.Statement, width), numText(st.Candidate)), width, "    ")
+			for _, n := range statementNotes(c, ch) {
+				writeWrapped(bw, fmt.Sprintf("%s: %s: %s (%s)", Shorten(ch.Function, width/2), n.Label,
+					oneLine(n.Statement, width), n.Detail), width, "    ")
 			}
 		}
 	}
