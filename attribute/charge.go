@@ -179,6 +179,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		DurationNanos: src.DurationNanos,
 		App:           AppInfo{Prefixes: c.rules.App, Detected: c.Detected, RulesFiles: c.rules.Files},
 		Warnings:      src.Warnings.Strings(),
+		Notes:         inputNotes(src),
 	}
 	shared := &charger{
 		t: t, c: c, src: src, w: w, opts: &opts, vi: vi, spans: spans,
@@ -297,6 +298,9 @@ func detail(src *traces.Source, t *callgraph.Tree, p *traces.Path, b callgraph.N
 	}
 	dk.peer = call.Peer
 	switch {
+	case call.Connection:
+		dk.kind = KindConnection
+		dk.statement = "connection wait (" + bf.Function + ")"
 	case call.Statement != "" && (literals || src.StatementsNormalized):
 		dk.statement = call.Statement
 	case call.Statement != "":

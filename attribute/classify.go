@@ -5,6 +5,7 @@ import (
 	"sort"
 	"strings"
 
+	"github.com/culprithq/culprit/attribute/internal/gostd"
 	"github.com/culprithq/culprit/traces"
 )
 
@@ -26,6 +27,7 @@ type Verdict struct {
 // source; Verdict lookups are then constant time.
 type Classifier struct {
 	rules    *Rules
+	m        *matcher  // rule matches and file facts, once per distinct string
 	verdicts []Verdict // by FrameID
 	// classes holds each frame's Class, with entryBit set for entry
 	// points: what the attribution walk reads for every tree node,
@@ -53,12 +55,8 @@ type Detection struct {
 
 // NewClassifier classifies every frame of src with rules.
 func NewClassifier(src *traces.Source, rules *Rules) *Classifier {
-	c := &Classifier{rules: rules, verdicts: make([]Verdict, len(src.Frames)), classes: make([]uint8, len(src.Frames))}
-	type det struct {
-		reason string
-		funcs  map[string]bool
-	}
-	detected := map[string]*det{}
+	c := &Classifier{rules: rules, m: newMatcher(rules), verdicts: make([]Verdict, len(src.Frames)), classes: make([]uint8, len(src.Frames))}
+	detected := map[string]*detectionGroup{}
 	// Rules never look at the line, and a profile has many lines of each
 	// function: classify each frame-without-line once. Frames are found
 	// by function name first (one string to hash), then by value.
@@ -93,11 +91,17 @@ func NewClassifier(src *traces.Source, rules *Rules) *Classifier {
 			classes = append(classes, class{key: key, v: v, fn: fn})
 			byName[f.Function] = append(byName[f.Function], ci)
 			if v.Class == Application && len(rules.App) == 0 {
-				root := appRoot(f)
-				d := detected[root]
+				ff := c.m.file(f.File)
+				d := ff.det // Python and Node.js group by file: found without hashing the path
 				if d == nil {
-					d = &det{reason: v.Reason, funcs: map[string]bool{}}
-					detected[root] = d
+					root := appRoot(f, ff)
+					if d = detected[root]; d == nil {
+						d = &detectionGroup{reason: v.Reason, funcs: map[string]bool{}}
+						detected[root] = d
+					}
+					if l := lang(f); !f.Span && (l == langPython || l == langNode) {
+						ff.det = d
+					}
 				}
 				d.funcs[f.Function] = true
 			}
@@ -121,6 +125,12 @@ func NewClassifier(src *traces.Source, rules *Rules) *Classifier {
 		return a.Prefix < b.Prefix
 	})
 	return c
+}
+
+// detectionGroup gathers the application functions of one Detection.
+type detectionGroup struct {
+	reason string
+	funcs  map[string]bool
 }
 
 const entryBit = 0x80
@@ -167,9 +177,10 @@ func (c *Classifier) Verdict(id traces.FrameID) *Verdict { return &c.verdicts[id
 
 func (c *Classifier) classify(f *traces.Frame) Verdict {
 	var entryRule *Rule
+	fn, ff := c.m.function(f.Function), c.m.file(f.File)
 	for i := range c.rules.Rules {
 		r := &c.rules.Rules[i]
-		if !r.Matches(f) {
+		if !c.m.matches(i, f, fn, ff) {
 			continue
 		}
 		switch r.Class {
@@ -190,7 +201,7 @@ func (c *Classifier) classify(f *traces.Frame) Verdict {
 			return Verdict{Class: Library, Rule: r, Reason: "rule " + ruleString(r)}
 		}
 	}
-	owned, reason := c.owned(f)
+	owned, reason := c.owned(f, ff)
 	if entryRule != nil && owned && len(c.rules.App) == 0 && !f.Span && !strings.HasPrefix(f.Function, "main.") {
 		// A built-in entry rule names framework code: auto-detection must
 		// not take it for the application's.
@@ -212,20 +223,72 @@ func ruleString(r *Rule) string {
 
 // owned decides whether f is application code, by the App prefixes when
 // given, else by auto-detection.
-func (c *Classifier) owned(f *traces.Frame) (bool, string) {
+func (c *Classifier) owned(f *traces.Frame, ff *fileFacts) (bool, string) {
 	if len(c.rules.App) > 0 {
-		file := slashPath(f.File)
 		for _, p := range c.rules.App {
-			if strings.HasPrefix(f.Function, p) || (file != "" && strings.Contains(file, p)) {
+			if strings.HasPrefix(f.Function, p) || (f.Span && f.Scope != "" && strings.HasPrefix(f.Scope, p)) {
 				return true, "matches --app " + p
 			}
 		}
+		if ff.app != "" {
+			return true, "matches --app " + ff.app
+		}
 		if f.Span && f.SpanKind != traces.SpanKindClient && f.SpanKind != traces.SpanKindProducer && f.File == "" && !looksQualified(f.Function) {
+			if lib, reason := librarySpan(f); lib {
+				return false, reason
+			}
 			return true, "the service's own " + f.SpanKind.String() + " span"
 		}
 		return false, "matches no --app prefix"
 	}
-	return autoOwned(f)
+	return autoOwned(f, ff)
+}
+
+// librarySpan reports whether a span frame was made by an instrumentation
+// library for its own layer (framework middleware, a router, a "request
+// handler" span) rather than for the application's code: an INTERNAL (or
+// unspecified) span from an instrumentation library's scope that names no
+// code location. SERVER and CONSUMER spans stand for the request or
+// message the service handles and stay the service's own.
+func librarySpan(f *traces.Frame) (bool, string) {
+	switch {
+	case !f.Span, f.Code, f.SpanKind == traces.SpanKindServer, f.SpanKind == traces.SpanKindConsumer:
+		return false, ""
+	case isInstrumentationScope(f.Scope):
+		return true, "made by instrumentation library " + f.Scope
+	}
+	return false, ""
+}
+
+// isInstrumentationScope reports whether an instrumentation scope name is
+// that of an instrumentation library rather than of the application's own
+// tracer. The OpenTelemetry projects name their instrumentation scopes
+// after the instrumentation package: "@opentelemetry/instrumentation-express"
+// (JavaScript), "go.opentelemetry.io/contrib/instrumentation/net/http/otelhttp"
+// (Go), "io.opentelemetry.spring-webmvc-6.0" (Java agent),
+// "opentelemetry.instrumentation.flask" (Python),
+// "OpenTelemetry.Instrumentation.AspNetCore" (.NET) and
+// "OpenTelemetry::Instrumentation::Rails" (Ruby); third-party
+// instrumentation packages follow the same conventions or are named
+// otelX (github.com/exaring/otelpgx, github.com/XSAM/otelsql). So: any
+// scope under io.opentelemetry., or with an element (split at / . - _ : @)
+// that is "instrumentation" or starts with "otel".
+func isInstrumentationScope(scope string) bool {
+	if scope == "" {
+		return false
+	}
+	if strings.HasPrefix(scope, "io.opentelemetry.") {
+		return true
+	}
+	for _, el := range strings.FieldsFunc(scope, func(r rune) bool {
+		return r == '/' || r == '.' || r == '-' || r == '_' || r == ':' || r == '@'
+	}) {
+		el = strings.ToLower(el)
+		if el == "instrumentation" || el == "instrumentations" || strings.HasPrefix(el, "otel") && el != "otel" {
+			return true
+		}
+	}
+	return false
 }
 
 // looksQualified reports whether a span's frame name looks like a code
@@ -243,9 +306,10 @@ var (
 	gorootRe = regexp.MustCompile(`(^|/)go[^/]*/src/`)
 )
 
-// autoOwned implements application auto-detection (see DESIGN.md).
-func autoOwned(f *traces.Frame) (bool, string) {
-	file := slashPath(f.File)
+// autoOwned implements application auto-detection (see DESIGN.md); ff
+// holds the facts of f.File.
+func autoOwned(f *traces.Frame, ff *fileFacts) (bool, string) {
+	file := ff.path
 	if f.Span {
 		switch f.SpanKind {
 		case traces.SpanKindClient, traces.SpanKindProducer:
@@ -254,28 +318,32 @@ func autoOwned(f *traces.Frame) (bool, string) {
 		if f.File != "" {
 			// code.file.path says where the span was made: a dependency's
 			// span is not the application's, whatever its kind.
-			if owned, reason := autoOwned(&traces.Frame{Function: f.Function, File: f.File}); !owned && lang(&traces.Frame{File: f.File}) != langUnknown {
+			if owned, reason := autoOwned(&traces.Frame{Function: f.Function, File: f.File}, ff); !owned && ff.lang != langUnknown {
 				return false, reason
 			}
+		}
+		if lib, reason := librarySpan(f); lib {
+			return false, reason
 		}
 		return true, "the service's own " + f.SpanKind.String() + " span"
 	}
 	switch lang(f) {
 	case langGo:
 		switch {
-		case strings.Contains(file, "/pkg/mod/"):
-			return false, "in the Go module cache"
-		case modVersionRe.MatchString(file):
-			return false, "a dependency (module@version path)"
-		case strings.Contains(file, "/vendor/") || strings.HasPrefix(file, "vendor/"):
-			return false, "vendored"
+		case ff.goDep != "":
+			return false, ff.goDep
 		case strings.HasPrefix(f.Function, "main."):
 			return true, "package main"
-		case isGoStd(f.Function):
-			if gorootRe.MatchString(file) || file == "" || !strings.Contains(file, "/") || isTrimmedStd(file) {
+		}
+		pkg := goPackage(f.Function)
+		switch {
+		case gostd.IsPackage(pkg):
+			if ff.goroot || file == "" || !strings.Contains(file, "/") || ff.trimmedStd {
 				return false, "Go standard library (GOROOT)"
 			}
 			return false, "Go standard library"
+		case otherReleaseStd(pkg, file, ff):
+			return false, "Go standard library (GOROOT, a package of another Go release)"
 		}
 		return true, "Go code outside GOROOT, the module cache and vendor/"
 	case langJVM:
@@ -286,12 +354,12 @@ func autoOwned(f *traces.Frame) (bool, string) {
 		}
 		return true, "JVM code outside the platform and common libraries"
 	case langPython:
-		if strings.Contains(file, "site-packages/") || strings.Contains(file, "dist-packages/") || pythonStdRe.MatchString(file) || strings.HasPrefix(file, "<") {
+		if ff.pyLib {
 			return false, "Python standard library or installed package"
 		}
 		return true, "Python code outside site-packages and the standard library"
 	case langNode:
-		if strings.Contains(file, "node_modules/") || strings.HasPrefix(file, "node:") || strings.HasPrefix(file, "internal/") {
+		if ff.nodeLib {
 			return false, "Node.js core or node_modules"
 		}
 		return true, "JavaScript outside node_modules and Node.js core"
@@ -332,7 +400,7 @@ func lang(f *traces.Frame) language {
 		return langNode
 	case file == "":
 		// Guess from the name: Go names carry import paths or main.
-		if strings.HasPrefix(f.Function, "main.") || strings.Contains(f.Function, "/") || strings.Contains(f.Function, ".(*") || isGoStd(f.Function) {
+		if strings.HasPrefix(f.Function, "main.") || strings.Contains(f.Function, "/") || strings.Contains(f.Function, ".(*") || gostd.IsPackage(goPackage(f.Function)) {
 			return langGo
 		}
 	}
@@ -353,31 +421,29 @@ func goPackage(fn string) string {
 	return fn[:slash+1+dot]
 }
 
-// isGoStd reports whether fn belongs to the Go standard library: its
-// import path's first element has no dot (and it is not package main).
-func isGoStd(fn string) bool {
-	pkg := goPackage(fn)
-	if pkg == "main" || pkg == "" {
+// otherReleaseStd reports whether pkg, which the list of this Go
+// release's standard library lacks, is a standard-library package of
+// another release: its file lies in a Go installation's source tree
+// (…/go/src/PKG/file.go), is the -trimpath form of one (PKG/file.go) or
+// is unknown, and its first element is one the standard library uses
+// (crypto, net, internal…). A module path with no dot (permitoffice/…) is never taken
+// for one: its first element is not the standard library's.
+func otherReleaseStd(pkg, file string, ff *fileFacts) bool {
+	first, _, _ := strings.Cut(pkg, "/")
+	if pkg == "" || !gostd.IsTopLevel(first) {
 		return false
 	}
-	first := pkg
-	if i := strings.IndexByte(pkg, '/'); i >= 0 {
-		first = pkg[:i]
+	if file == "" {
+		return true // no file to tell by: the first element decides
 	}
-	return !strings.Contains(first, ".")
-}
-
-// isTrimmedStd reports whether a -trimpath file path is in the standard
-// library: its first element has no dot.
-func isTrimmedStd(file string) bool {
-	i := strings.IndexByte(file, '/')
-	return i > 0 && !strings.Contains(file[:i], ".") && !strings.HasPrefix(file, "/")
+	dir := file[:max(strings.LastIndexByte(file, '/'), 0)]
+	return ff.goroot && strings.HasSuffix(dir, "/src/"+pkg) || dir == pkg
 }
 
 // appRoot groups an application function under a readable prefix for the
 // detection summary: Go "main" or the first three import path elements of
 // a hosted module path; otherwise the first two name components.
-func appRoot(f *traces.Frame) string {
+func appRoot(f *traces.Frame, ff *fileFacts) string {
 	if f.Span {
 		if f.Service != "" {
 			return "service " + f.Service
@@ -391,9 +457,13 @@ func appRoot(f *traces.Frame) string {
 			return "main"
 		}
 		// Common practice: hosted module paths have three elements
-		// (host/owner/repo), others two (host/module).
+		// (host/owner/repo), others two (host/module), and a module
+		// path with no dot (permitoffice) one.
 		parts := strings.Split(pkg, "/")
 		n := 2
+		if !strings.Contains(parts[0], ".") {
+			n = 1
+		}
 		switch parts[0] {
 		case "github.com", "gitlab.com", "bitbucket.org", "golang.org":
 			n = 3
@@ -403,11 +473,10 @@ func appRoot(f *traces.Frame) string {
 		}
 		return strings.Join(parts, "/")
 	case langPython, langNode:
-		dir := slashPath(f.File)
-		if i := strings.LastIndexByte(dir, '/'); i >= 0 {
-			return dir[:i+1]
+		if ff.dir == "" {
+			return ff.path
 		}
-		return dir
+		return ff.dir
 	}
 	parts := strings.SplitN(f.Function, ".", 4)
 	if len(parts) > 3 {

@@ -33,10 +33,26 @@ func TestAutoDetectGo(t *testing.T) {
 		{"range-over-func body", "example.com/app/store.All-range1", "/home/ci/app/store/all.go", true},
 		{"no file, stdlib name", "net/http.(*conn).serve", "", false},
 		{"no file, main", "main.work", "", true},
+		// A module path with no dot (module permitoffice): names and
+		// files as runtime.CallersFrames printed them for such a module
+		// built by go1.26 with and without -trimpath.
+		{"module path with no dot", "permitoffice/a.Where", "/home/ci/permitoffice/a/a.go", true},
+		{"module path with no dot trimpath", "permitoffice/a.Where", "permitoffice/a/a.go", true},
+		{"module path with no dot, main package file trimpath", "main.main.func1", "permitoffice/main.go", true},
+		{"module path with no dot under GOPATH", "permitoffice/a.Where", "/home/ci/go/src/permitoffice/a/a.go", true},
+		{"one-element module path", "evalharness.Run", "/home/ci/evalharness/run.go", true},
+		{"no file, module path with no dot", "permitoffice/permits.(*Store).Get", "", true},
+		{"stdlib's vendored copy", "vendor/golang.org/x/net/http2/hpack.(*Decoder).Write", "/usr/local/go/src/vendor/golang.org/x/net/http2/hpack/hpack.go", false},
+		{"trimpath stdlib asm", "runtime.memmove", "runtime/memmove_amd64.s", false},
+		// A package this release's list lacks (a newer release's):
+		// told by its GOROOT or -trimpath file and a std first element.
+		{"stdlib of another release", "crypto/sha4.Sum", "/usr/local/go/src/crypto/sha4/sha4.go", false},
+		{"stdlib of another release trimpath", "crypto/sha4.Sum", "crypto/sha4/sha4.go", false},
+		{"stdlib of an older release, no file", "runtime/internal/atomic.(*Uint32).Load", "", false},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
-			owned, reason := autoOwned(&traces.Frame{Function: tt.fn, File: tt.file})
+			owned, reason := autoOwnedFrame(&traces.Frame{Function: tt.fn, File: tt.file})
 			if owned != tt.owned {
 				t.Errorf("autoOwned(%s, %s) = %v (%s), want %v", tt.fn, tt.file, owned, reason, tt.owned)
 			}
@@ -64,7 +80,7 @@ func TestAutoDetectOtherLanguages(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
-			owned, reason := autoOwned(&traces.Frame{Function: tt.fn, File: tt.file})
+			owned, reason := autoOwnedFrame(&traces.Frame{Function: tt.fn, File: tt.file})
 			if owned != tt.owned {
 				t.Errorf("autoOwned = %v (%s), want %v", owned, reason, tt.owned)
 			}
@@ -85,7 +101,7 @@ func TestAutoDetectSpans(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.kind.String(), func(t *testing.T) {
-			owned, _ := autoOwned(&traces.Frame{Function: "op", Span: true, SpanKind: tt.kind})
+			owned, _ := autoOwnedFrame(&traces.Frame{Function: "op", Span: true, SpanKind: tt.kind})
 			if owned != tt.owned {
 				t.Errorf("owned = %v, want %v", owned, tt.owned)
 			}
@@ -133,4 +149,9 @@ func TestClassifierAppPrefix(t *testing.T) {
 	if !strings.Contains(c.Verdict(store).Reason, "--app") {
 		t.Errorf("reason = %q", c.Verdict(store).Reason)
 	}
+}
+
+// autoOwnedFrame is autoOwned with the facts of f.File worked out for it.
+func autoOwnedFrame(f *traces.Frame) (bool, string) {
+	return autoOwned(f, newFileFacts(f.File, nil, nil))
 }

@@ -79,7 +79,7 @@ func Explain(t *callgraph.Tree, c *Classifier, opts Options, pattern *regexp.Reg
 			samples = p.Values[sampleIx]
 		}
 		if spans {
-			calls = 1
+			calls = p.Values[1] // 0 for a connection wait
 		}
 		kind := KindDatabase
 		if c.Verdict(t.Frame(b)).Class == Network {

@@ -238,6 +238,9 @@ func findings(res *Result, accs map[string]*causeAcc, o FindingOptions, denom in
 				continue
 			}
 			dk := acc.details[did]
+			if dk.Kind == KindConnection {
+				continue // waits for a connection are not calls
+			}
 			min := o.RepeatMin
 			kind := "repeated-statement"
 			if dk.Kind == KindNetwork {

@@ -14,8 +14,8 @@ const maxStatementInput = 64 << 10
 // keywords and unquoted identifiers lower-cased, whitespace folded.
 //
 // Statements that differ only in literal values, bind-parameter style, comments, spacing, keyword
-// case, the length of an IN list or the number of identical rows of a multi-row VALUES clause have
-// the same Text and therefore the same ID. The zero value is not the fingerprint of empty input.
+// case, casts of literals, the length of an IN list of two or more elements or the number of
+// identical rows of a multi-row VALUES clause have the same Text and therefore the same ID. The zero value is not the fingerprint of empty input.
 type Statement struct {
 	Text string // normalised text, safe to show (no literals)
 	ID   uint64 // 64-bit FNV-1a hash of Text
@@ -33,9 +33,14 @@ type Statement struct {
 // quoted identifier. A sign joins the number after it only after an operator, "(", ",", a keyword
 // or at the start, so "a-1" becomes "a - ?" and "= -3" becomes "= ?". Bind parameters $1, ?, ?NNN,
 // :name, :1, @p1, $name, %s and %(name)s become "?". An IN list made only of literals and
-// placeholders becomes "in (?)", and repeated identical rows of a VALUES list keep one row, so its
-// arity stays. Unquoted keywords and identifiers are lower-cased (ASCII letters only); quoted ones
-// ("Foo", `Foo`, and [Foo] for SQL Server and SQLite) stay as written. Tokens are joined by single
+// placeholders becomes "in (?, …)", except a list of one, which becomes the equality it means
+// ("= ?", and "<> ?" for NOT IN, as PostgreSQL parses it), and repeated identical rows of a
+// VALUES list keep one row, so its arity stays. A cast of a literal or placeholder, "?::int" or
+// CAST(? AS integer), and the type of a typed literal (DATE '…', TIME, TIMESTAMP, TIMESTAMPTZ)
+// are dropped: PostgreSQL folds them into the constant. A cast whose type name goes on with "(",
+// "[" or "." (numeric(8,2), int[], pg_catalog.int4) is kept. Unquoted keywords and identifiers
+// are lower-cased (ASCII letters only); quoted ones ("Foo", `Foo`, and [Foo] for SQL Server and
+// SQLite) stay as written. Tokens are joined by single
 // spaces, except none before ",", ")", "]", ";", "." and "::" and none after "(", "[", "." and "::".
 //
 // Unterminated strings, quoted identifiers and comments run to the end of the input and become "?"
@@ -153,6 +158,10 @@ const (
 	tagSignKW              // keyword after which a sign belongs to the number that follows
 	tagIn                  // the keyword "in" (also a tagSignKW keyword)
 	tagValues              // the keyword "values" (also a tagSignKW keyword)
+	tagNot                 // the keyword "not" (also a tagSignKW keyword)
+	tagAs                  // the keyword "as" (also a tagSignKW keyword)
+	tagCastKW              // the keyword "cast"
+	tagTypeKW              // a type that prefixes a typed literal: date, time, timestamp, timestamptz
 	tagQuoted              // quoted identifier
 	tagLiteral             // literal or bind parameter, written "?"
 	tagOpen                // "("
@@ -174,8 +183,10 @@ const (
 	// glueBefore: no space before these tokens (unless operator bytes would touch).
 	glueBefore uint64 = 1<<tagComma | 1<<tagClose | 1<<tagRBracket | 1<<tagSemi | 1<<tagDot | 1<<tagLBracket | 1<<tagCast
 	// signAfter: a sign after these tokens belongs to the number that follows.
-	signAfter uint64 = 1<<tagSignKW | 1<<tagIn | 1<<tagValues | 1<<tagOpen | 1<<tagComma | 1<<tagMinus |
+	signAfter uint64 = 1<<tagSignKW | 1<<tagIn | 1<<tagValues | 1<<tagNot | 1<<tagAs | 1<<tagOpen | 1<<tagComma | 1<<tagMinus |
 		1<<tagPlus | 1<<tagLBracket | 1<<tagDot | 1<<tagSemi | 1<<tagCast | 1<<tagOp
+	// wordTagSet: the tags of keywords and identifiers.
+	wordTagSet uint64 = 1<<tagWord | 1<<tagSignKW | 1<<tagIn | 1<<tagValues | 1<<tagNot | 1<<tagAs | 1<<tagCastKW | 1<<tagTypeKW
 )
 
 // sqlToken is a token already written to the output of an sqlWriter.
@@ -265,6 +276,12 @@ func (w *sqlWriter) skipDigits() {
 // begin records a token with tag t whose text starts with byte y and writes the space in front
 // of it if one is due; the caller writes the text.
 func (w *sqlWriter) begin(t tag, y byte) {
+	if n := len(w.toks); n >= 3 && w.toks[n-2].tag == tagCast && t != tagOpen && t != tagLBracket && t != tagDot {
+		w.dropCast()
+	}
+	if n := len(w.toks); t == tagLiteral && n > 0 && w.toks[n-1].tag == tagTypeKW && (n == 1 || w.toks[n-2].tag != tagDot) {
+		w.drop(n - 1) // a typed literal, date '2024-01-31', is the literal
+	}
 	space := false
 	if n := len(w.toks); n > 0 {
 		x := w.out[len(w.out)-1] // the last byte of the previous token
@@ -276,6 +293,15 @@ func (w *sqlWriter) begin(t tag, y byte) {
 	w.toks = append(w.toks, sqlToken{int32(len(w.out)), t})
 	if space {
 		w.put(' ')
+	}
+}
+
+// dropCast drops a cast of a literal, "?::int" → "?", once the token after the type name shows
+// that the name is all of the type (no "(", "[" or "." follows). PostgreSQL folds such a cast
+// into the constant, so that id = 5 and id = '5'::int are one statement to it.
+func (w *sqlWriter) dropCast() {
+	if n := len(w.toks); wordTagSet>>(w.toks[n-1].tag&63)&1 != 0 && w.toks[n-3].tag == tagLiteral {
+		w.drop(n - 2)
 	}
 }
 
@@ -314,6 +340,9 @@ func (w *sqlWriter) run() {
 		default:
 			w.punct(c)
 		}
+	}
+	if len(w.toks) >= 3 && w.toks[len(w.toks)-2].tag == tagCast {
+		w.dropCast()
 	}
 }
 
@@ -557,12 +586,18 @@ func (w *sqlWriter) word() {
 		t = lookupWordTag(key)
 	} else if n == 9 && string(dst[:n]) == "returning" {
 		t = tagSignKW
+	} else if n == 9 && string(dst[:n]) == "timestamp" || n == 11 && string(dst[:n]) == "timestamptz" {
+		t = tagTypeKW
 	}
 	if t == tagLiteral { // true or false
 		w.out = w.out[:k]
 		w.put('?')
 	}
 	w.toks[len(w.toks)-1].tag = t
+	if n := len(w.toks); t == tagLiteral && n >= 2 && w.toks[n-2].tag == tagTypeKW && (n == 2 || w.toks[n-3].tag != tagDot) {
+		w.drop(n - 2) // as begin does for other literals
+		w.literal()
+	}
 }
 
 // prefixedString reports whether a prefixed string (E'…', N'…', X'…', B'…', U&'…' or Oracle's
@@ -605,7 +640,8 @@ type wordTagEntry struct {
 
 // wordTags is a hash table, built once, of the words that are not plain tagWord words: TRUE and
 // FALSE (tagLiteral), IN, VALUES and the other keywords after which a sign belongs to the number
-// that follows ("returning", the one such keyword longer than 8 bytes, is checked by word).
+// that follows, CAST and the types of typed literals ("returning", "timestamp" and "timestamptz",
+// the words longer than 8 bytes, are checked by word).
 var wordTags = func() (table [128]wordTagEntry) {
 	add := func(t tag, words string) {
 		for _, w := range strings.Fields(words) {
@@ -623,8 +659,12 @@ var wordTags = func() (table [128]wordTagEntry) {
 	add(tagLiteral, "true false")
 	add(tagIn, "in")
 	add(tagValues, "values")
-	add(tagSignKW, `all and any as between by case distinct else escape exists from having ilike into is
-		like limit not offset on or return select set some then top when where with`)
+	add(tagNot, "not")
+	add(tagAs, "as")
+	add(tagCastKW, "cast")
+	add(tagTypeKW, "date time")
+	add(tagSignKW, `all and any between by case distinct else escape exists from having ilike into is
+		like limit offset on or return select set some then top when where with`)
 	return table
 }()
 
@@ -728,15 +768,37 @@ func (w *sqlWriter) operator() {
 }
 
 // closeGroup handles the group toks[o:] that a ")" has just closed: an IN list of literals and
-// placeholders becomes "in (?)", and a VALUES row equal to the row before it is dropped.
+// placeholders becomes "= ?" (one element; NOT IN: "<> ?") or "in (?, …)", a cast of a literal,
+// CAST(? AS type), becomes "?", and a VALUES row equal to the row before it is dropped.
 func (w *sqlWriter) closeGroup(o int) {
 	toks := w.toks
 	switch {
 	case o > 0 && toks[o-1].tag == tagIn && isPlaceholderRun(toks[o+1:len(toks)-1]):
-		w.drop(o + 1)
+		switch {
+		case len(toks)-o > 3:
+			w.drop(o + 1)
+			w.literal()
+			w.begin(tagComma, ',')
+			w.put(',')
+			w.begin(tagWord, "…"[0])
+			w.write("…", false)
+			w.begin(tagClose, ')')
+			w.put(')')
+		case o > 1 && toks[o-2].tag == tagNot: // x NOT IN (?) is x <> ?, as PostgreSQL parses it
+			w.drop(o - 2)
+			w.begin(tagOp, '<')
+			w.write("<>", false)
+			w.literal()
+		default: // x IN (?) is x = ?, as PostgreSQL parses it
+			w.drop(o - 1)
+			w.begin(tagOp, '=')
+			w.put('=')
+			w.literal()
+		}
+	case o > 0 && toks[o-1].tag == tagCastKW && len(toks)-o == 5 && toks[o+1].tag == tagLiteral && toks[o+2].tag == tagAs &&
+		wordTagSet>>(toks[o+3].tag&63)&1 != 0:
+		w.drop(o - 1)
 		w.literal()
-		w.begin(tagClose, ')')
-		w.put(')')
 	case o > 0 && toks[o-1].tag == tagValues:
 		w.row = [2]int32{int32(o), int32(len(toks))}
 	case o > 1 && int(w.row[1]) == o-1 && toks[o-1].tag == tagComma: // another row of the same VALUES

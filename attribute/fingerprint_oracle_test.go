@@ -8,6 +8,7 @@ package attribute
 // Fingerprint.
 
 import (
+	"encoding/json"
 	"os"
 	"path/filepath"
 	"slices"
@@ -276,12 +277,17 @@ type oracleNormaliser struct {
 }
 
 func (n *oracleNormaliser) add(t oracleToken) {
+	n.endCast(t)
 	switch {
 	case t.kind == oracleKNumber:
 		if n.unarySign() {
 			n.out = n.out[:len(n.out)-1]
 		}
-		t = oracleQmark()
+		n.literal()
+		return
+	case t.kind == oracleKLiteral:
+		n.literal()
+		return
 	case t == (oracleToken{oracleKOp, "("}):
 		n.opens = append(n.opens, len(n.out))
 	case t == (oracleToken{oracleKOp, ")"}) && len(n.opens) > 0:
@@ -292,6 +298,26 @@ func (n *oracleNormaliser) add(t oracleToken) {
 		return
 	}
 	n.out = append(n.out, t)
+}
+
+// endCast drops a cast of a literal ("?", "::", type word) unless t continues the type name.
+func (n *oracleNormaliser) endCast(t oracleToken) {
+	k := len(n.out)
+	if k >= 3 && n.out[k-2] == (oracleToken{oracleKOp, "::"}) && n.out[k-1].kind == oracleKWord && n.out[k-3] == oracleQmark() &&
+		!(t.kind == oracleKOp && (t.text == "(" || t.text == "[" || t.text == ".")) {
+		n.out = n.out[:k-2]
+	}
+}
+
+// literal appends "?", dropping the type word of a typed literal (date '…') before it.
+func (n *oracleNormaliser) literal() {
+	if k := len(n.out); k > 0 && n.out[k-1].kind == oracleKWord && (k == 1 || n.out[k-2] != (oracleToken{oracleKOp, "."})) {
+		switch n.out[k-1].text {
+		case "date", "time", "timestamp", "timestamptz":
+			n.out = n.out[:k-1]
+		}
+	}
+	n.out = append(n.out, oracleQmark())
 }
 
 // unarySign reports whether the last token is a sign that belongs to the number that follows:
@@ -329,7 +355,18 @@ func (n *oracleNormaliser) closeGroup(o int) {
 	out := n.out
 	switch {
 	case o > 0 && out[o-1] == (oracleToken{oracleKWord, "in"}) && oracleIsPlaceholderList(out[o+1:len(out)-1]):
-		n.out = append(out[:o+1], oracleQmark(), out[len(out)-1])
+		switch {
+		case len(out)-o > 3:
+			n.out = append(out[:o+1], oracleQmark(), oracleToken{oracleKOp, ","}, oracleToken{oracleKWord, "…"}, out[len(out)-1])
+		case o > 1 && out[o-2] == (oracleToken{oracleKWord, "not"}):
+			n.out = append(out[:o-2], oracleToken{oracleKOp, "<>"}, oracleQmark())
+		default:
+			n.out = append(out[:o-1], oracleToken{oracleKOp, "="}, oracleQmark())
+		}
+	case o > 0 && out[o-1] == (oracleToken{oracleKWord, "cast"}) && len(out)-o == 5 && out[o+1] == oracleQmark() &&
+		out[o+2] == (oracleToken{oracleKWord, "as"}) && out[o+3].kind == oracleKWord:
+		n.out = out[:o-1]
+		n.literal()
 	case o > 0 && out[o-1] == (oracleToken{oracleKWord, "values"}):
 		n.row = [2]int{o, len(out)}
 	case o > 1 && n.row[1] == o-1 && out[o-1] == (oracleToken{oracleKOp, ","}): // another row of the same VALUES
@@ -357,6 +394,7 @@ func oracleFingerprintSQL(d dialect, raw string) string {
 	for t, ok := l.next(); ok; t, ok = l.next() {
 		n.add(t)
 	}
+	n.endCast(oracleToken{}) // the input may end with the type of a cast
 	return oracleJoinTokens(n.out, func(a, b oracleToken) bool {
 		after := a.kind == oracleKOp && (a.text == "(" || a.text == "[" || a.text == "." || a.text == "::")
 		before := b.kind == oracleKOp && strings.Contains(",)];.[", b.text) || b == (oracleToken{oracleKOp, "::"})
@@ -471,6 +509,17 @@ func oracleSeeds(tb testing.TB) []string {
 			}
 		}
 	}
+	// The statements PostgreSQL grouped (pgss_test.go).
+	pgss, err := os.ReadFile(filepath.Join("testdata", "pgss", "pg15.jsonl"))
+	if err != nil {
+		tb.Fatal(err)
+	}
+	for line := range strings.Lines(string(pgss)) {
+		var r pgssRecord
+		if json.Unmarshal([]byte(line), &r) == nil && r.Statement != "" {
+			seeds = append(seeds, r.Statement)
+		}
+	}
 	return append(seeds,
 		"SELECT id, name FROM plants WHERE id IN (1, 2, 3) AND x IN ((1), 2) AND y IN (-1, +2, $3, ?, :a)",
 		"INSERT INTO t (a, b) VALUES (1, 'x'), (2, 'y'), (3, now()), (4, now()), (-5, +6)",
@@ -479,6 +528,10 @@ func oracleSeeds(tb testing.TB) []string {
 		"select - - 1, + + 2, -(3), a-- c\n-4, b/* c */-5, -1e-3, -.5, - 0x1F, -'s'",
 		"SELECT \"A\".\"B\"::TEXT, [x] ], `y`.`z`, a[1:2], @@Version, @x, :=, ->> ,#>> , !~* ,<=>",
 		"SELECT E'x', N'y', X'1', B'0', U&'z', Q'[q]', nq'{w}', q'<v>', q'(u)', q'!t!', u&x, e 'a'",
+		"SELECT ?::int::text, $1::int[], '1'::numeric(8,2), x::date, cast(? as int), CAST (- 1 AS bigint), cast(? as int(4))",
+		"SELECT date '2024-01-01', t.date '1', date -1, timestamp ?, TIMESTAMPTZ true, time, interval '1 day'",
+		"SELECT * FROM t WHERE a IN (1) AND b NOT IN (?) AND c IN (1, 2) AND d NOT IN ((1)) AND e IN (cast(? as int)) AND f IN ('1'::int, 2)",
+		"VALUES (1) in (2), (3) not in (4); SELECT ?::",
 	)
 }
 

@@ -36,12 +36,18 @@ var (
 // the same Identity are compared as one (their costs add up). The rewrites:
 //
 //   - Go closures and compiler wrappers: a chain of .funcN, nested .N,
-//     .gowrapN, .deferwrapN and -rangeN suffixes becomes ".func*"
+//     .gowrapN, .deferwrapN and -rangeN suffixes becomes ".func*", after
+//     the named function that encloses the anonymous code
 //     (pkg.outer.func1.2 → pkg.outer.func*). Numbering follows source
-//     order, so adding one closure renumbers the others, and nesting
-//     changes when code moves into or out of a loop body; all anonymous
-//     code of one named function is therefore one identity. A top-level
-//     function that is really named funcN (pkg.func1) is left alone.
+//     order, so adding one closure renumbers the others, nesting changes
+//     when code moves into or out of a loop body, and inlining puts the
+//     inlining path in the name (pkg.outer.callee.outer.func1.func3 is
+//     pkg.outer.func1.1 in a build without inlining); all anonymous code
+//     of one named function is therefore one identity. The enclosing
+//     function is the name right before the last closure chain, with its
+//     receiver when written (*T): closures of a value method T.M are
+//     grouped under pkg.M.func*. A top-level function that is really
+//     named funcN (pkg.func1) is left alone.
 //   - Generic instantiations: the contents of a bracket group attached to
 //     a name become "…" (pkg.Map[go.shape.int,go.shape.string] →
 //     pkg.Map[…]), since shapes depend on the instantiations the build
@@ -79,7 +85,12 @@ func Identity(function string) string {
 // goClosures rewrites the closure chains of a Go name that occur after its
 // package path (everything up to the first '.' after the last '/'), and
 // only after some name in it: a package-level function named func1 is a
-// real name.
+// real name. A name with a closure chain becomes the named function right
+// before its last chain (with its receiver when written (*T) or (T)),
+// then ".func*", then whatever followed the chain (-fm): a closure made
+// in code the compiler inlined carries the inlining path in its name
+// (main.handler.each.handler.func1.func3 where a build without inlining
+// says main.handler.func1.1), and both are main.handler.func*.
 func goClosures(s string) string {
 	slash := strings.LastIndexByte(s, '/')
 	dot := strings.IndexByte(s[slash+1:], '.')
@@ -91,7 +102,20 @@ func goClosures(s string) string {
 	if !strings.Contains(rest, "func") && !strings.Contains(rest, "wrap") && !strings.Contains(rest, "-range") {
 		return s
 	}
-	return s[:start] + goClosureRe.ReplaceAllString(rest, ".func*")
+	chains := goClosureRe.FindAllStringIndex(rest, -1)
+	if chains == nil || chains[len(chains)-1][0] == 0 {
+		return s
+	}
+	last := chains[len(chains)-1]
+	parts := strings.Split(rest[:last[0]], ".")
+	named := parts[len(parts)-1]
+	if n := len(parts); n >= 2 && strings.HasPrefix(parts[n-2], "(") {
+		named = parts[n-2] + "." + named
+	}
+	if named == "" {
+		return s[:start] + goClosureRe.ReplaceAllString(rest, ".func*")
+	}
+	return s[:start] + named + ".func*" + rest[last[1]:]
 }
 
 // collapseBrackets replaces the contents of every non-empty bracket group

@@ -82,7 +82,10 @@ type LatencyEntry struct {
 // LatencyCause is a root cause's time on one entry point's critical paths.
 type LatencyCause struct {
 	Function string
-	Kind     Kind
+	// Kind is KindDatabase, KindNetwork, KindConnection (waiting for a
+	// pool's database connection, shown apart from the queries),
+	// KindApplication or KindUnaccounted.
+	Kind Kind
 	// NoAppFrame marks a call with no application frame above it; its
 	// Function is then NoAppFramePrefix and the entry point.
 	NoAppFrame bool
@@ -468,7 +471,14 @@ func (r *latencyRun) role(pi int, inherited int32, isRoot bool, entry string) sp
 		if c.Verdict(t.Frame(b)).Class == Network {
 			kind = KindNetwork
 		}
+		if p.Call != 0 && src.Calls[p.Call].Connection {
+			// Waiting for a pool's connection: database cost, shown apart.
+			kind = KindConnection
+		}
 		if ra := w.lastApp[b]; ra != 0 {
+			if kind == KindConnection {
+				return spanRole{cause: r.cause(pathCause{function: src.Frames[t.Frame(ra)].Function, kind: kind}), call: true}
+			}
 			ci := r.callCause[b] - 1
 			if ci < 0 {
 				ci = r.cause(pathCause{function: src.Frames[t.Frame(ra)].Function, kind: kind})

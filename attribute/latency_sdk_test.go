@@ -2,11 +2,14 @@ package attribute
 
 import (
 	"context"
+	"os"
 	"strings"
 	"sync"
 	"testing"
 	"time"
 
+	"github.com/culprithq/culprit/callgraph"
+	"github.com/culprithq/culprit/traces"
 	otelattr "go.opentelemetry.io/otel/attribute"
 	sdkresource "go.opentelemetry.io/otel/sdk/resource"
 	sdktrace "go.opentelemetry.io/otel/sdk/trace"
@@ -138,5 +141,86 @@ func TestLatencyParallelSDK(t *testing.T) {
 	}
 	if total != e.Latency {
 		t.Errorf("pieces add up to %d, latency %d", total, e.Latency)
+	}
+}
+
+// TestLatencyNodeJSParallel reads the traces the official OpenTelemetry
+// JS SDK recorded of the seed-bank service (testdata/nodejs; express and
+// pg instrumentations on PostgreSQL). Its overview route runs three
+// queries, each after a pool checkout, in Promise.all: for every request
+// the time on the critical path of database calls and connection waits
+// equals the time covered by the union of those spans (the longest
+// branch at each moment), not their sum.
+func TestLatencyNodeJSParallel(t *testing.T) {
+	fh, err := os.Open("../testdata/nodejs/recorded/seedbank.traces.jsonl.gz")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer fh.Close()
+	l := traces.NewLoader(traces.Options{Timing: true, Statement: AppendFingerprint})
+	if err := l.Add("seedbank.traces.jsonl.gz", fh); err != nil {
+		t.Fatal(err)
+	}
+	src, err := l.Source()
+	if err != nil {
+		t.Fatal(err)
+	}
+	cls := NewClassifier(src, DefaultRules())
+	tree := callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep})
+	res, err := Latency(tree, cls, LatencyOptions{Slowest: 1000})
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Union of the calls' intervals per request, from the source itself.
+	unions := map[string]int64{}
+	sums := map[string]int64{}
+	var iv [][2]int64
+	n := src.Paths.Len()
+	for lo := 0; lo < n; {
+		hi := lo + 1
+		for hi < n && src.Paths.At(hi).Request == src.Paths.At(lo).Request {
+			hi++
+		}
+		iv = iv[:0]
+		var sum int64
+		for pi := lo; pi < hi; pi++ {
+			if p := src.Paths.At(pi); p.Call != 0 && src.Calls[p.Call].System == "postgresql" {
+				s := src.Timing.Start[pi]
+				iv = append(iv, [2]int64{s, s + p.Values[0]})
+				sum += p.Values[0]
+			}
+		}
+		id := src.Requests[src.Paths.At(lo).Request]
+		unions[id], sums[id] = union(iv), sum
+		lo = hi
+	}
+	checked := 0
+	for _, e := range res.Entries {
+		if e.Entry != "/collections/:id/overview" {
+			continue
+		}
+		for _, rp := range e.Slowest {
+			var db int64
+			var walk func(s *PathSpan)
+			walk = func(s *PathSpan) {
+				if s.Kind == KindDatabase || s.Kind == KindConnection {
+					db += s.OnPath
+				}
+				for _, c := range s.Children {
+					walk(c)
+				}
+			}
+			walk(rp.Root)
+			if db != unions[rp.Request] {
+				t.Errorf("request %s: database time on the critical path %d, union of its calls %d (sum %d)", rp.Request, db, unions[rp.Request], sums[rp.Request])
+			}
+			if sums[rp.Request] <= unions[rp.Request] {
+				t.Errorf("request %s: calls do not overlap (sum %d, union %d)", rp.Request, sums[rp.Request], unions[rp.Request])
+			}
+			checked++
+		}
+	}
+	if checked != 20 {
+		t.Errorf("checked %d overview requests, the app made 20", checked)
 	}
 }

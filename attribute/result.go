@@ -14,6 +14,11 @@ const (
 	KindDatabase Kind = "database"
 	KindNetwork  Kind = "network"
 	KindMixed    Kind = "mixed"
+	// KindConnection is the kind of a root cause's detail (never of a
+	// root cause) for connection waits: database time spent acquiring or
+	// opening a connection (a pool checkout, a connect), charged as
+	// database cost to the same root cause but not a call or a statement.
+	KindConnection Kind = "connection"
 )
 
 // Result is the attribution of one source: the ranked root causes with
@@ -40,6 +45,9 @@ type Result struct {
 	Domains     []DomainTotal `json:"domains,omitempty"`
 	DomainsFile string        `json:"domainsFile,omitempty"`
 	Warnings    []string      `json:"warnings"`
+	// Notes say what the input held beside warnings: inputs skipped,
+	// services found and analysed, spans ending after their parent.
+	Notes []string `json:"notes,omitempty"`
 	// DurationNanos is the wall-clock time the input covers, if known.
 	DurationNanos int64 `json:"durationNanos"`
 }
@@ -133,7 +141,8 @@ type Distribution struct {
 }
 
 // Detail is the cost a root cause spent on one boundary: a statement
-// fingerprint, an operation, or the library function called.
+// fingerprint, an operation, or the library function called; or, of
+// Kind KindConnection, its connection waits (Calls is then 0).
 type Detail struct {
 	Kind   Kind   `json:"kind"`
 	System string `json:"system,omitempty"`

@@ -60,13 +60,16 @@ func (c *Class) UnmarshalText(b []byte) error {
 // Regexp, File or Span is set.
 type Rule struct {
 	Class Class `json:"class"`
-	// Function matches function names that start with it.
+	// Function matches function names that start with it at an
+	// identifier boundary (see matchFunction): net/http.Head matches
+	// net/http.Head but not net/http.Header.Set.
 	Function string `json:"function,omitempty"`
 	// Contains matches function names that contain it.
 	Contains string `json:"contains,omitempty"`
 	// Regexp matches function names (RE2 syntax, unanchored).
 	Regexp string `json:"regexp,omitempty"`
-	// File matches source file paths that contain it ('/' separators).
+	// File matches source file paths that contain it ('/' separators;
+	// site-packages/ also matches Debian's dist-packages/).
 	File string `json:"file,omitempty"`
 	// Span matches span frames: "client:database", "client:rpc",
 	// "client:http", "client:messaging" (client or producer spans with
@@ -129,13 +132,13 @@ func (r *Rule) compile() error {
 func (r *Rule) Matches(f *traces.Frame) bool {
 	switch {
 	case r.Function != "":
-		return strings.HasPrefix(f.Function, r.Function)
+		return matchFunction(r.Function, f.Function)
 	case r.Contains != "":
 		return strings.Contains(f.Function, r.Contains)
 	case r.re != nil:
 		return r.re.MatchString(f.Function)
 	case r.File != "":
-		return f.File != "" && strings.Contains(slashPath(f.File), r.File)
+		return f.File != "" && strings.Contains(rulePath(slashPath(f.File)), r.File)
 	case r.Span != "":
 		if !f.Span {
 			return false

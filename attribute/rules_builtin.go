@@ -2,7 +2,10 @@ package attribute
 
 // builtinRules is the built-in classification table. Order matters: the
 // first matching rule wins, so specific drivers come before the generic
-// database/sql layer they sit under, and span rules come first.
+// database/sql layer they sit under, and span rules come first. Function
+// patterns match at identifier boundaries (matchFunction);
+// TestBuiltinRuleAudit gives every rule real names it must and must not
+// match.
 var builtinRules = []Rule{
 	{Family: "otel", Class: Database, Span: "client:database"},
 	{Family: "otel", Class: Network, Span: "client:rpc"},
@@ -10,7 +13,7 @@ var builtinRules = []Rule{
 	{Family: "otel", Class: Network, Span: "client:messaging"},
 	{Family: "otel", Class: Entry, Span: "server"},
 	{Family: "otel", Class: Entry, Span: "consumer"},
-	{Family: "go", Class: Database, Function: "github.com/jackc/pgx/", System: "postgresql"},
+	{Family: "go", Class: Database, Function: "github.com/jackc/pgx", System: "postgresql"},
 	{Family: "go", Class: Database, Function: "github.com/lib/pq.", System: "postgresql"},
 	{Family: "go", Class: Database, Function: "github.com/go-sql-driver/mysql.", System: "mysql"},
 	{Family: "go", Class: Database, Function: "modernc.org/sqlite.", System: "sqlite"},
@@ -33,6 +36,7 @@ var builtinRules = []Rule{
 	{Family: "go", Class: Network, Function: "net/http.(*Transport).", System: "http"},
 	{Family: "go", Class: Network, Function: "net/http.Get", System: "http"},
 	{Family: "go", Class: Network, Function: "net/http.Post", System: "http"},
+	{Family: "go", Class: Network, Function: "net/http.PostForm", System: "http"},
 	{Family: "go", Class: Network, Function: "net/http.Head", System: "http"},
 	{Family: "go", Class: Network, Function: "github.com/go-resty/resty/", System: "http"},
 	{Family: "go", Class: Network, Function: "github.com/hashicorp/go-retryablehttp.", System: "http"},
@@ -41,6 +45,7 @@ var builtinRules = []Rule{
 	{Family: "go", Class: Network, Function: "google.golang.org/grpc.(*ClientConn).NewStream", System: "grpc"},
 	{Family: "go", Class: Network, Function: "google.golang.org/grpc.NewClientStream", System: "grpc"},
 	{Family: "go", Class: Network, Function: "google.golang.org/grpc.newClientStream", System: "grpc"},
+	{Family: "go", Class: Network, Function: "google.golang.org/grpc.newClientStreamWithParams", System: "grpc"},
 	{Family: "go", Class: Network, Function: "google.golang.org/grpc.(*clientStream).", System: "grpc"},
 	{Family: "go", Class: Network, Function: "github.com/aws/aws-sdk-go-v2/", System: "aws"},
 	{Family: "go", Class: Network, Function: "github.com/aws/aws-sdk-go/", System: "aws"},

@@ -144,7 +144,7 @@ func (a *causeAcc) add(val, samples, calls int64, kind Kind, did int32, dk *deta
 			a.runReq = req
 		}
 		n := calls
-		if n == 0 {
+		if n == 0 && dk.kind != KindConnection {
 			n = samples
 		}
 		a.run.n += n

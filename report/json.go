@@ -38,6 +38,7 @@ type RankDocument struct {
 	Domains       []DomainDoc  `json:"domains,omitempty"`
 	DomainsFile   string       `json:"domainsFile,omitempty"`
 	Warnings      []string     `json:"warnings"`
+	Notes         []string     `json:"notes,omitempty"`
 	DurationNanos int64        `json:"durationNanos"`
 	Caveats       []string     `json:"caveats"`
 	Omitted       *OmittedDoc  `json:"omitted,omitempty"`
@@ -217,7 +218,7 @@ func NewRankDocument(r *attribute.Result, opts Options) *RankDocument {
 			Requests: reqs(t.Requests), Samples: t.Samples, BoundarySamples: t.BoundarySamples},
 		App:         AppDoc{Prefixes: nonNil(r.App.Prefixes), Detected: []DetectionDoc{}, RulesFiles: nonNil(r.App.RulesFiles)},
 		EntryPoints: []EntryDoc{}, RootCauses: []CauseDoc{}, Findings: []FindingDoc{},
-		DomainsFile: r.DomainsFile, Warnings: nonNil(r.Warnings), DurationNanos: r.DurationNanos, Caveats: nonNil(Caveats(r)),
+		DomainsFile: r.DomainsFile, Warnings: nonNil(r.Warnings), Notes: r.Notes, DurationNanos: r.DurationNanos, Caveats: nonNil(Caveats(r)),
 	}
 	for _, in := range r.Inputs {
 		doc.Inputs = append(doc.Inputs, InputDoc{in.Name, in.Format, in.Bytes, in.SHA256})

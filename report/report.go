@@ -97,7 +97,7 @@ func Percent(share float64) string {
 
 // Caveats returns the sentences a reader must see next to the numbers.
 func Caveats(r *attribute.Result) []string {
-	var out []string
+	out := append([]string(nil), r.Notes...)
 	if r.CPUOnly {
 		out = append(out, "This is a CPU profile: it counts time on CPU only. Time spent waiting for a database or a socket is not in it, so database and network shares understate their wall-clock cost; use goroutine profiles taken during the load test, or traces, for waiting time.")
 	}

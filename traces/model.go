@@ -119,6 +119,12 @@ type Frame struct {
 	System string
 	// Service is the resource's service.name.
 	Service string
+	// Scope is the name of the instrumentation scope that made the span
+	// (for instance "@opentelemetry/instrumentation-express"); "" if unknown.
+	Scope string
+	// Code marks a span frame named by code.* attributes (a code location
+	// recorded by whoever made the span) rather than by the span's name.
+	Code bool
 	// Span marks a frame made from a span (as opposed to a stack frame).
 	Span bool
 }
@@ -136,6 +142,11 @@ type Call struct {
 	Operation string // db.operation.name, rpc.method, HTTP method, ...
 	Peer      string // server.address[:port], service.peer.name, URL host
 	Batch     bool   // db.operation.batch.size > 1
+	// Connection marks a connection wait: a database span with no
+	// statement, operation or summary that acquires or opens a
+	// connection (a pool checkout, a connect). It is database time but
+	// not a call: its path's calls value is 0.
+	Connection bool
 }
 
 // RequestID indexes Source.Requests; 0 means the path's request is unknown.
@@ -228,6 +239,25 @@ type Input struct {
 	SHA256 string `json:"sha256"`
 }
 
+// ServiceInfo is what a span source holds of one service (resource
+// service.name).
+type ServiceInfo struct {
+	Name string `json:"name"`
+	// Spans is the number of the service's spans read.
+	Spans int64 `json:"spans"`
+	// Entries counts its spans with no parent in the input: requests it
+	// received from outside.
+	Entries int64 `json:"entries"`
+	// Called counts its spans whose parent is a span of another service
+	// in the input: calls it received from an analysed service.
+	Called int64 `json:"called"`
+	// Analysed says whether the source's paths cover the service: the
+	// service named by Options.Service, else every service with entries.
+	// A service that is only called is left out: its time is inside its
+	// callers' CLIENT spans.
+	Analysed bool `json:"analysed"`
+}
+
 // Source is the common in-memory model every reader produces: a set of
 // weighted call paths over interned frames.
 //
@@ -263,6 +293,16 @@ type Source struct {
 	// StatementsNormalized is true when Call.Statement holds the output of
 	// Options.Statement rather than the raw recorded text.
 	StatementsNormalized bool
+	// Services lists the services of a span source, by name, and which
+	// of them the paths cover (see ServiceInfo).
+	Services []ServiceInfo
+	// Notes say which inputs were skipped and why (not OTLP, another kind
+	// of input than --source): information, not repairs.
+	Notes []string
+	// LateChildren counts the spans that end after their parent (async
+	// work outliving the span that started it): normal, accepted as
+	// recorded, and counted for the input summary.
+	LateChildren int64
 
 	frameIndex   map[Frame]FrameID
 	callIndex    map[Call]CallID

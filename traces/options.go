@@ -13,8 +13,20 @@ type Options struct {
 	Strict bool
 	// Workers is the number of decoding goroutines; 0 means GOMAXPROCS.
 	Workers int
-	// Service keeps only spans of this service.name; "" keeps all.
+	// Service keeps only spans of this service.name; "" keeps the
+	// services that receive requests from outside the input: a span
+	// whose parent is a span of another service (a downstream service
+	// called by an analysed one) is left out with everything below it,
+	// since its time is inside the caller's CLIENT span.
 	Service string
+	// Source, when set, reads only inputs of that kind (Spans or Profile)
+	// and skips the others with a note; 0 reads either kind but refuses
+	// inputs of both.
+	Source Kind
+	// AllServices keeps every service's spans, each service's outermost
+	// spans as the roots of its paths (for callers that analyse each
+	// service on their own). It overrides the default of Service "".
+	AllServices bool
 	// Statement, when set, replaces every recorded database statement by
 	// its result as spans are decoded (in parallel), for example with a
 	// fingerprint that removes literals. It appends the result for raw to

@@ -24,6 +24,10 @@ const (
 	// WarnInvalidID is a span skipped because its trace, span or parent ID
 	// is missing, all zero, or neither 16/8 bytes of hex nor base64.
 	WarnInvalidID = "invalid-id"
+	// WarnUnknownSpanKind is a database span (it has db.system.name or
+	// db.system) whose kind is unspecified or unknown; it is taken as a
+	// CLIENT span, so that its call is not lost.
+	WarnUnknownSpanKind = "unknown-span-kind"
 	// WarnNoSpans is an input that decoded as JSON but held no spans.
 	WarnNoSpans = "no-spans"
 	// WarnInvalidUTF8 is a record holding invalid UTF-8, which is

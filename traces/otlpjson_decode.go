@@ -144,7 +144,7 @@ func (t *localTable[K]) restart() {
 
 func cloneFrame(f Frame) Frame {
 	f.Function, f.File = strings.Clone(f.Function), strings.Clone(f.File)
-	f.System, f.Service = strings.Clone(f.System), strings.Clone(f.Service)
+	f.System, f.Service, f.Scope = strings.Clone(f.System), strings.Clone(f.Service), strings.Clone(f.Scope)
 	return f
 }
 
@@ -297,8 +297,12 @@ func (d *decoder) requests(reqs []jsonRequest, line int64) error {
 			service := resourceService(rs.Resource.Attributes)
 			for _, scopes := range [2][]jsonScopeSpans{rs.ScopeSpans, rs.InstrumentationLibrarySpans} {
 				for k := range scopes {
+					scope := scopes[k].Scope.Name
+					if scope == "" {
+						scope = scopes[k].InstrumentationLibrary.Name
+					}
 					for m := range scopes[k].Spans {
-						if err := d.span(&scopes[k].Spans[m], service, line); err != nil {
+						if err := d.span(&scopes[k].Spans[m], service, scope, line); err != nil {
 							d.b.spans = d.b.spans[:mark]
 							d.b.warnings = d.b.warnings[:markWarn]
 							return err
@@ -433,7 +437,7 @@ func nanos(n json.Number) (int64, error) {
 // span converts one decoded span and adds it to the batch. It returns an
 // error when the span is malformed (the record is then dropped), and sets
 // d.b.err when Strict forbids skipping a span with invalid IDs.
-func (d *decoder) span(sp *jsonSpan, service string, line int64) error {
+func (d *decoder) span(sp *jsonSpan, service, scope string, line int64) error {
 	start, err := nanos(sp.Start)
 	if err != nil {
 		return err
@@ -469,7 +473,15 @@ func (d *decoder) span(sp *jsonSpan, service string, line int64) error {
 			d.attrs[k] = &sp.Attributes[i].Value
 		}
 	}
-	frame, call, route := spanDetails(SpanKind(sp.Kind), sp.Name, service, &d.attrs, &d.memo)
+	frame, call, route := spanDetails(SpanKind(sp.Kind), sp.Name, service, scope, &d.attrs, &d.memo)
+	if frame.SpanKind != SpanKind(sp.Kind) {
+		msg := fmt.Sprintf("database span %q has no known span kind; it is taken as a CLIENT span", truncate(sp.Name, 60))
+		if d.c.opts.Strict {
+			d.b.err = &ParseError{File: d.name, Line: clampLine(line), Err: fmt.Errorf("%w: %s: %s", ErrSpanRepair, WarnUnknownSpanKind, msg)}
+			return nil
+		}
+		d.b.warnings = append(d.b.warnings, Warning{Kind: WarnUnknownSpanKind, File: d.name, Line: clampLine(line), Message: msg})
+	}
 	if call.Statement != "" && d.c.opts.Statement != nil {
 		// Normalise here, in the parallel decoders, so that calls differing
 		// only in literals intern to one Call.

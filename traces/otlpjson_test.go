@@ -618,7 +618,7 @@ func recordWorkload(t *testing.T, requests int) ([]sdktrace.ReadOnlySpan, map[st
 func TestSDKSpans(t *testing.T) {
 	recorded, want := recordWorkload(t, 2)
 	data := otlpJSON(t, sdkToProto(recorded)) + "\n"
-	src := mustCollect(t, Options{}, input{"sdk.jsonl", data})
+	src := mustCollect(t, Options{AllServices: true}, input{"sdk.jsonl", data})
 
 	if got := src.Warnings.Strings(); len(got) > 0 {
 		t.Fatalf("unexpected warnings: %v", got)
@@ -832,9 +832,12 @@ func TestRepairs(t *testing.T) {
 	}{
 		{
 			name: "orphan",
-			data: lines(api(root, child(sB, sA, "b", t0+sec, t0+sec+10)), api(child(sC, sX, "c", t0+sec, t0+sec+20))),
+			// A SERVER span whose parent is outside the input (d: the
+			// caller sent its trace context) is an entry point, no orphan.
+			data: lines(api(root, child(sB, sA, "b", t0+sec, t0+sec+10)), api(child(sC, sX, "c", t0+sec, t0+sec+20)),
+				api(tspan{trace: tr1, id: sD, parent: "00000000000000e5", name: "d", kind: 2, start: t0 + sec, end: t0 + sec + 30})),
 			kind: WarnOrphanSpan, count: 1, line: 2,
-			wantPaths: [][]string{{"root"}, {"root", "b"}, {"c"}},
+			wantPaths: [][]string{{"root"}, {"root", "b"}, {"c"}, {"d"}},
 		},
 		{
 			name: "duplicate span ID",
@@ -882,18 +885,6 @@ func TestRepairs(t *testing.T) {
 				}
 				if src.DurationNanos != 2*sec+5_000_000 {
 					t.Errorf("DurationNanos %d", src.DurationNanos)
-				}
-			},
-		},
-		{
-			name: "clock skew longer than the parent",
-			data: lines(api(tspan{trace: tr1, id: sA, name: "root", kind: 2, start: t0, end: t0 + 100_000_000}),
-				api(child(sB, sA, "b", t0+50_000_000, t0+400_000_000))),
-			kind: WarnClockSkew, count: 1, line: 2,
-			wantPaths: [][]string{{"root"}, {"root", "b"}},
-			check: func(t *testing.T, src *Source) {
-				if got := src.Paths.At(1).Values[0]; got != 100_000_000 {
-					t.Errorf("cut duration %d, want the parent's 100 ms", got)
 				}
 			},
 		},
@@ -966,12 +957,52 @@ func TestRepairs(t *testing.T) {
 func TestAsyncChildren(t *testing.T) {
 	data := lines(line(tres{"api", []tspan{{trace: tr1, id: sA, name: "send", kind: 4, start: t0, end: t0 + 1_000_000}}},
 		tres{"worker", []tspan{{trace: tr1, id: sB, parent: sA, name: "process", kind: 5, start: t0 + 5*sec, end: t0 + 6*sec}}}))
-	src := mustCollect(t, Options{Strict: true}, input{"async.jsonl", data})
+	src := mustCollect(t, Options{Strict: true, AllServices: true}, input{"async.jsonl", data})
 	if got := pathFunctions(src); !reflect.DeepEqual(got, [][]string{{"send"}, {"process"}}) {
 		t.Fatalf("paths %v", got)
 	}
 	if src.DurationNanos != 6*sec {
 		t.Errorf("DurationNanos %d", src.DurationNanos)
+	}
+}
+
+// TestLateChildren checks that a child ending after its parent is async
+// work, not clock skew (a promise not awaited, a streamed response): it
+// is kept as recorded with no warning, passes Strict, and is counted.
+// Only a start before the parent by more than the tolerance is skew, in
+// one service or across two.
+func TestLateChildren(t *testing.T) {
+	api := func(s tspan) string { return line(tres{"api", []tspan{s}}) }
+	child := func(id, parent, name string, start, end int64) tspan {
+		return tspan{trace: tr1, id: id, parent: parent, name: name, kind: 1, start: start, end: end}
+	}
+	root := tspan{trace: tr1, id: sA, name: "root", kind: 2, start: t0, end: t0 + 100_000_000}
+	// b ends 300 ms after root; c starts 0.9 ms before root (within the
+	// 1 ms tolerance for start times truncated to the millisecond).
+	data := lines(api(root), api(child(sB, sA, "b", t0+50_000_000, t0+400_000_000)),
+		api(child(sC, sA, "c", t0-900_000, t0+1_000_000)))
+	src := mustCollect(t, Options{Strict: true}, input{"late.jsonl", data})
+	if got := src.Warnings.Strings(); len(got) > 0 {
+		t.Errorf("warnings %v, want none", got)
+	}
+	if got := pathFunctions(src); !reflect.DeepEqual(got, [][]string{{"root", "c"}, {"root"}, {"root", "b"}}) {
+		t.Fatalf("paths %v", got)
+	}
+	if got := src.Paths.At(2).Values[0]; got != 350_000_000 {
+		t.Errorf("late child's duration %d, want it kept (350 ms)", got)
+	}
+	if src.LateChildren != 1 {
+		t.Errorf("LateChildren %d, want 1", src.LateChildren)
+	}
+
+	// A downstream service's span starting 30 ms before the CLIENT span
+	// that called it (tolerance max(1 ms, 1% of 1 s)) is skew.
+	data = lines(line(tres{"api", []tspan{{trace: tr1, id: sA, name: "root", kind: 2, start: t0, end: t0 + sec},
+		{trace: tr1, id: sB, parent: sA, name: "call", kind: 3, start: t0 + 100_000_000, end: t0 + 900_000_000, attrs: []attr{str("url.full", "http://inv/")}}}}),
+		line(tres{"inventory", []tspan{{trace: tr1, id: sC, parent: sB, name: "GET /stock", kind: 2, start: t0 + 70_000_000, end: t0 + 800_000_000}}}))
+	src = mustCollect(t, Options{Service: "inventory"}, input{"skew.jsonl", data})
+	if n := warningCount(src, WarnClockSkew); n != 1 {
+		t.Errorf("%d clock-skew warnings, want 1: %v", n, src.Warnings.Strings())
 	}
 }
 
@@ -1271,7 +1302,7 @@ func TestAnyValueKinds(t *testing.T) {
 	}
 	f := src.Frames[src.Paths.At(0).Frames[0]]
 	want := Frame{Function: "greenhouse.Water", File: "plants.go", Line: 12, SpanKind: SpanKindClient, Protocol: ProtocolDatabase,
-		System: "redis", Service: "api", Span: true}
+		System: "redis", Service: "api", Scope: "test", Code: true, Span: true}
 	if f != want {
 		t.Errorf("frame %+v, want %+v", f, want)
 	}
@@ -1350,10 +1381,10 @@ func TestFrameNaming(t *testing.T) {
 		call  Call
 	}{
 		{"new code attributes", 1, "x", []attr{str("code.function.name", "github.com/culprithq/greenhouse/store.(*Store).Save"), str("code.file.path", "/s/store.go"), num("code.line.number", 9), str("code.namespace", "ignored")},
-			Frame{Function: "github.com/culprithq/greenhouse/store.(*Store).Save", File: "/s/store.go", Line: 9, SpanKind: SpanKindInternal}, Call{}},
+			Frame{Function: "github.com/culprithq/greenhouse/store.(*Store).Save", File: "/s/store.go", Line: 9, SpanKind: SpanKindInternal, Code: true}, Call{}},
 		{"old code attributes", 1, "x", []attr{str("code.namespace", "com.greenhouse.Store"), str("code.function", "save"), str("code.filepath", "Store.java"), num("code.lineno", 77)},
-			Frame{Function: "com.greenhouse.Store.save", File: "Store.java", Line: 77, SpanKind: SpanKindInternal}, Call{}},
-		{"function without namespace", 1, "x", []attr{str("code.function", "save")}, Frame{Function: "save", SpanKind: SpanKindInternal}, Call{}},
+			Frame{Function: "com.greenhouse.Store.save", File: "Store.java", Line: 77, SpanKind: SpanKindInternal, Code: true}, Call{}},
+		{"function without namespace", 1, "x", []attr{str("code.function", "save")}, Frame{Function: "save", SpanKind: SpanKindInternal, Code: true}, Call{}},
 		{"server route with old method", 2, "HTTP GET", []attr{str("http.method", "GET"), str("http.route", "/zones/{id}")},
 			Frame{Function: "GET /zones/{id}", SpanKind: SpanKindServer}, Call{}},
 		{"server route, other method", 2, "HTTP", []attr{str("http.request.method", "_OTHER"), str("http.request.method_original", "PURGE"), str("http.route", "/cache")},
@@ -1386,7 +1417,7 @@ func TestFrameNaming(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			data := lines(line(tres{"api", []tspan{{trace: tr1, id: sA, name: tc.span, kind: tc.kind, start: t0, end: t0 + 1, attrs: tc.attrs}}}))
 			src := mustCollect(t, Options{}, input{"f.jsonl", data})
-			tc.frame.Service, tc.frame.Span = "api", true
+			tc.frame.Service, tc.frame.Span, tc.frame.Scope = "api", true, "test"
 			if f := src.Frames[src.Paths.At(0).Frames[0]]; f != tc.frame {
 				t.Errorf("frame %+v, want %+v", f, tc.frame)
 			}
@@ -1405,7 +1436,9 @@ func TestServiceFilter(t *testing.T) {
 		service string
 		want    [][]string
 	}{
-		{"", [][]string{{"root"}, {"root", "call inventory"}, {"GET /stock"}, {"GET /stock", "load"}}},
+		// By default, only the service receiving requests from outside:
+		// inventory's time is inside the CLIENT span that called it.
+		{"", [][]string{{"root"}, {"root", "call inventory"}}},
 		{"inventory", [][]string{{"GET /stock"}, {"GET /stock", "load"}}},
 		{"greenhouse-api", [][]string{{"root"}, {"root", "call inventory"}}},
 		{"nursery", nil},

@@ -37,7 +37,15 @@ type jsonResource struct {
 
 // jsonScopeSpans is the spans of one instrumentation scope.
 type jsonScopeSpans struct {
-	Spans []jsonSpan `json:"spans"`
+	Scope jsonScope `json:"scope"`
+	// InstrumentationLibrary is the scope's name before OTLP 0.15.
+	InstrumentationLibrary jsonScope  `json:"instrumentationLibrary"`
+	Spans                  []jsonSpan `json:"spans"`
+}
+
+// jsonScope is an instrumentation scope: only its name is read.
+type jsonScope struct {
+	Name string `json:"name"`
 }
 
 // jsonSpan is a span: events, links, status and flags are not read.

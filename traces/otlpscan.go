@@ -56,12 +56,13 @@ type scanner struct {
 // fieldNames are the names of the fields of the objects that the scanner
 // reads, at the indexes by which it tells them.
 type fieldNames struct {
-	resourceSpans, span, keyValue, anyValue []string
+	resourceSpans, scopeSpans, span, keyValue, anyValue []string
 }
 
 func newFieldNames() *fieldNames {
 	return &fieldNames{
 		resourceSpans: []string{"resource", "scopeSpans", "instrumentationLibrarySpans"},
+		scopeSpans:    []string{"spans", "scope", "instrumentationLibrary"},
 		span: []string{"traceId", "spanId", "parentSpanId", "name", "kind",
 			"startTimeUnixNano", "endTimeUnixNano", "attributes"},
 		keyValue: []string{"key", "value"},
@@ -160,12 +161,33 @@ func isServiceName(key string) bool { return key == "service.name" }
 
 func isSpanAttribute(key string) bool { return attrIndex(key) >= 0 }
 
-// scope reads the spans of one instrumentation scope.
+// scope reads the spans of one instrumentation scope and its name.
 func (s *scanner) scope(sc *jsonScopeSpans) {
-	sc.Spans = sc.Spans[:0]
-	for o := s.object(); s.only(&o, "spans"); {
-		elements(s, &sc.Spans, (*scanner).span)
+	*sc = jsonScopeSpans{Spans: sc.Spans[:0]}
+	for o := s.object(); s.field(&o, s.names.scopeSpans); {
+		switch o.k {
+		case 0:
+			elements(s, &sc.Spans, (*scanner).span)
+		case 1:
+			sc.Scope.Name = s.scopeName()
+		case 2:
+			sc.InstrumentationLibrary.Name = s.scopeName()
+		default:
+			s.skip()
+		}
 	}
+}
+
+// scopeName reads an instrumentation scope, or null, and returns its name.
+func (s *scanner) scopeName() string {
+	if s.null() {
+		return ""
+	}
+	name := ""
+	for o := s.object(); s.only(&o, "name"); {
+		name = s.str(true)
+	}
+	return name
 }
 
 // elements reads an array, or null, appending an element to list for

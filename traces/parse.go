@@ -25,13 +25,14 @@ type Loader struct {
 	spans    *SpanCollector
 	inputs   []Input
 	warnings Warnings
-	kinds    map[Kind]string // first input name of each kind
+	byKind   map[Kind][]string // input names of each kind admitted (see admit)
+	notes    []string          // inputs skipped (see Source.Notes)
 }
 
 // NewLoader returns a Loader using opts.
 func NewLoader(opts Options) *Loader {
 	opts.Limits = opts.Limits.withDefaults()
-	return &Loader{opts: opts, kinds: map[Kind]string{}}
+	return &Loader{opts: opts}
 }
 
 var gzipMagic = []byte{0x1f, 0x8b}
@@ -103,8 +104,12 @@ func (l *Loader) add(name string, r io.Reader) error {
 	switch {
 	case LooksLikeOTLPJSON(prefix):
 		in.Format = "otlp-json"
-		if err := l.checkKind(Spans, name); err != nil {
-			return err
+		if key, ok := foreignJSON(prefix); ok {
+			l.notes = append(l.notes, fmt.Sprintf("%s skipped: JSON but not OTLP trace data (it starts with %q)", name, key))
+			return nil
+		}
+		if !l.admit(Spans, name) {
+			return nil
 		}
 		if l.spans == nil {
 			l.spans = NewSpanCollector(l.opts)
@@ -114,6 +119,9 @@ func (l *Loader) add(name string, r io.Reader) error {
 		}
 	default:
 		in.Format = "pprof"
+		if !l.admit(Profile, name) {
+			return nil
+		}
 		data, err := readAll(bb)
 		if err != nil {
 			return readError(name, err, counted.n)
@@ -130,9 +138,6 @@ func (l *Loader) add(name string, r io.Reader) error {
 		}
 		if len(p.sampleTypes) == 0 {
 			return &ParseError{File: name, Err: errors.New("malformed pprof profile: it has no sample types")}
-		}
-		if err := l.checkKind(Profile, name); err != nil {
-			return err
 		}
 		if l.profiles == nil {
 			l.profiles = newProfileAppender(l.opts.Limits)
@@ -153,22 +158,14 @@ func (l *Loader) add(name string, r io.Reader) error {
 	return nil
 }
 
-func (l *Loader) checkKind(k Kind, name string) error {
-	for other, first := range l.kinds {
-		if other != k {
-			return fmt.Errorf("%s is a %s input but %s is a %s input; culprit analyses profiles and traces in separate runs: %w",
-				name, k, first, other, ErrMismatch)
-		}
-	}
-	if _, ok := l.kinds[k]; !ok {
-		l.kinds[k] = name
-	}
-	return nil
-}
-
 // Source returns the merged source of everything added. It fails when
-// nothing readable was added.
+// nothing readable was added, when no input yielded a span or a sample,
+// and when the inputs hold both profiles and traces without
+// Options.Source to choose.
 func (l *Loader) Source() (*Source, error) {
+	if err := l.mixError(); err != nil {
+		return nil, err
+	}
 	var src *Source
 	switch {
 	case l.profiles != nil && l.profiles.src != nil:
@@ -183,10 +180,17 @@ func (l *Loader) Source() (*Source, error) {
 		if l.warnings.Len() > 0 {
 			return nil, fmt.Errorf("no readable input (%s)", strings.Join(l.warnings.Strings(), "; "))
 		}
-		return nil, errors.New("no input")
+		return nil, l.nothingRead(nil)
+	}
+	if src.Paths.Len() == 0 {
+		return nil, l.nothingRead(src)
 	}
 	src.Inputs = l.inputs
+	src.Notes = append(l.notes, src.Notes...)
 	src.Warnings.Merge(l.warnings)
+	if err := src.checkSums(); err != nil {
+		return nil, err
+	}
 	if err := src.Validate(); err != nil {
 		return nil, err
 	}

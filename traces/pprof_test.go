@@ -202,18 +202,6 @@ func TestBadInputs(t *testing.T) {
 	}
 }
 
-func TestMixedKindsRefused(t *testing.T) {
-	l := NewLoader(Options{})
-	if err := l.Add("cpu.pb.gz", bytes.NewReader(encode(t, testProfile("samples/count"), true))); err != nil {
-		t.Fatal(err)
-	}
-	l.kinds[Spans] = "traces.jsonl" // as if a trace file had been read first
-	err := l.Add("cpu2.pb.gz", bytes.NewReader(encode(t, testProfile("samples/count"), true)))
-	if !errors.Is(err, ErrMismatch) || !strings.Contains(err.Error(), "separate runs") {
-		t.Errorf("err = %v", err)
-	}
-}
-
 func itoa(n int64) string {
 	if n == 0 {
 		return "0"

@@ -171,8 +171,14 @@ func (a *attrSet) has(idx ...int) bool {
 
 // spanDetails derives a span's frame, its call details (zero unless it is
 // a client or producer span of a known protocol) and its http.route.
-func spanDetails(kind SpanKind, name, service string, a *attrSet, m *memo) (Frame, Call, string) {
-	f := Frame{SpanKind: kind, Service: service, Span: true}
+// scope is the instrumentation scope's name. A database span of
+// unspecified (or unknown) kind is taken as a CLIENT span: the frame's
+// SpanKind then differs from kind, which the caller reports.
+func spanDetails(kind SpanKind, name, service, scope string, a *attrSet, m *memo) (Frame, Call, string) {
+	if kind == SpanKindUnspecified && a.str(aDBSystemName, aDBSystem) != "" {
+		kind = SpanKindClient
+	}
+	f := Frame{SpanKind: kind, Service: service, Scope: scope, Span: true}
 	route := a.str(aHTTPRoute)
 
 	// The most code-like name available.
@@ -205,6 +211,7 @@ func spanDetails(kind SpanKind, name, service string, a *attrSet, m *memo) (Fram
 		f.Function = "(unnamed span)"
 	}
 	f.File = a.str(aCodeFilePath, aCodeFilepath)
+	f.Code = f.File != "" || a.str(aCodeFunctionName, aCodeFunction) != ""
 	if l, ok := a.int(aCodeLineNumber, aCodeLineno); ok && l > 0 {
 		f.Line = l
 	}
@@ -223,6 +230,8 @@ func spanDetails(kind SpanKind, name, service string, a *attrSet, m *memo) (Fram
 		if n, ok := a.int(aDBOperationBatchSize); ok && n > 1 {
 			call.Batch = true
 		}
+		call.Connection = call.Statement == "" && call.Summary == "" &&
+			(call.Operation == "" || isConnectionName(call.Operation)) && isConnectionName(name)
 	case a.str(aRPCSystemName, aRPCSystem) != "":
 		f.Protocol = ProtocolRPC
 		f.System = rpcSystemName(a.str(aRPCSystemName, aRPCSystem))
@@ -244,6 +253,36 @@ func spanDetails(kind SpanKind, name, service string, a *attrSet, m *memo) (Fram
 	call.System = f.System
 	call.Peer = peer(a, m)
 	return f, call, route
+}
+
+// isConnectionName reports whether a database span's name (or operation)
+// says that it acquires or opens a connection rather than running a
+// statement: one of its words, split at anything but letters and digits,
+// is connect, connection, acquire, checkout or getconnection, as in
+// node-postgres's "pg-pool.connect" and "pg.connect", or pgx tracers'
+// "pool.acquire" and "connect".
+func isConnectionName(name string) bool {
+	for len(name) > 0 {
+		i := 0
+		for i < len(name) && !isWordByte(name[i]) {
+			i++
+		}
+		j := i
+		for j < len(name) && isWordByte(name[j]) {
+			j++
+		}
+		switch w := name[i:j]; {
+		case strings.EqualFold(w, "connect"), strings.EqualFold(w, "connection"), strings.EqualFold(w, "acquire"),
+			strings.EqualFold(w, "checkout"), strings.EqualFold(w, "getconnection"):
+			return true
+		}
+		name = name[j:]
+	}
+	return false
+}
+
+func isWordByte(c byte) bool {
+	return 'a' <= c && c <= 'z' || 'A' <= c && c <= 'Z' || '0' <= c && c <= '9'
 }
 
 // httpMethod returns the request's HTTP method; for "_OTHER" the original

@@ -6,6 +6,7 @@ import (
 	"encoding/hex"
 	"errors"
 	"fmt"
+	"math"
 	"slices"
 )
 
@@ -13,7 +14,9 @@ import (
 // is an error wrapping ErrSpanRepair instead.
 const (
 	// WarnOrphanSpan is a span whose parent is in none of the inputs; it
-	// is treated as the root of a partial trace.
+	// is treated as the root of a partial trace. (A SERVER or CONSUMER
+	// span with a missing parent is not one: its caller is outside the
+	// input, and it is an entry point like a span with no parent.)
 	WarnOrphanSpan = "orphan-span"
 	// WarnDuplicateSpanID is a span whose trace and span IDs were already
 	// seen; the first one read is kept and the later ones skipped.
@@ -27,15 +30,30 @@ const (
 	// WarnMissingTimestamp is a span without a start or end time; it is
 	// given the one it has (or its parent's start), and duration 0.
 	WarnMissingTimestamp = "missing-timestamp"
-	// WarnClockSkew is a span that starts before its parent or ends after
-	// it by more than max(1 ms, 1% of the parent's duration); it is moved,
-	// with its descendants, into its parent (and cut to the parent's
-	// duration if it is longer).
+	// WarnMixedTimeUnits is a span with one time in the first 11 days of
+	// 1970 and the other later: a writer recorded one of them in another
+	// unit (milliseconds or microseconds since the epoch). The later time
+	// is kept and the duration taken as 0.
+	WarnMixedTimeUnits = "mixed-time-units"
+	// WarnClockSkew is a span that starts before its parent by more than
+	// max(1 ms, 1% of the parent's duration), in the same service or
+	// across services; it is moved, with its descendants, to start with
+	// its parent. A span that ends after its parent is not skew: async
+	// work (a promise not awaited, a streamed response, a fire-and-forget
+	// call) outlives the span that started it. Such spans are accepted as
+	// they are and counted in Source.LateChildren.
 	WarnClockSkew = "clock-skew"
 )
 
-// skewMinNanos is the smallest tolerance for clock skew: 1 ms (common
-// practice for clocks synchronised by NTP on one network).
+// plausibleNanos is 1e15 ns since the Unix epoch (1970-01-12T13:46:40Z):
+// no span recorded by a real clock starts before it, while times written
+// in milliseconds or microseconds since the epoch fall below it.
+const plausibleNanos = 1_000_000_000_000_000
+
+// skewMinNanos is the smallest tolerance for clock skew: 1 ms. It covers
+// SDKs that record times in whole milliseconds (a child's start truncated
+// to the millisecond may read up to 1 ms before its parent's precise one)
+// and is common practice for clocks synchronised by NTP on one network.
 const skewMinNanos = 1_000_000
 
 // spanRec is a decoded span as the collector keeps it until assembly
@@ -92,6 +110,7 @@ type assembler struct {
 
 	// Scratch space reused for every trace.
 	nodes                             []node
+	lastSvc                           *ServiceInfo // as.service's last answer (reset per partition)
 	walk, count, children, topo, emit []int32
 	keys                              []assemblyKey
 }
@@ -105,15 +124,18 @@ type partPaths struct {
 	paths    []partPath
 	frames   []FrameID // the paths' collector frame IDs
 	ws       Warnings
-	err      error // the partition's first error (Strict, limits): its paths are incomplete
-	minStart int64 // of the paths' spans that have times
+	services map[string]*ServiceInfo // spans seen per service
+	late     int64                   // kept spans that end after their parent
+	err      error                   // the partition's first error (Strict, limits): its paths are incomplete
+	minStart int64                   // of the paths' spans that have times
 	maxEnd   int64
 	timed    bool // whether minStart and maxEnd are set
 }
 
 // reset empties p for another partition, keeping its arrays.
 func (p *partPaths) reset() {
-	*p = partPaths{traces: p.traces[:0], paths: p.paths[:0], frames: p.frames[:0]}
+	*p = partPaths{traces: p.traces[:0], paths: p.paths[:0], frames: p.frames[:0], services: p.services}
+	clear(p.services)
 }
 
 // partTrace is a trace with paths: its interned ID and where its paths end.
@@ -145,6 +167,7 @@ type finisher struct {
 	minStart int64
 	maxEnd   int64
 	timed    bool
+	svc      map[string]*ServiceInfo
 
 	// frames and values are scratch space for one path's source frame IDs
 	// and values (a path's contents escape through Paths.Append).
@@ -165,7 +188,8 @@ func grow(s []int32, n int) []int32 {
 // Source assembles the spans of every input added so far into traces and
 // returns them as a Source of Kind Spans: one path per span, from the
 // outermost ancestor in the same service down to the span, with values
-// [duration in ns, 1 call]. Paths are ordered by trace ID, start time and
+// [duration in ns, 1 call] (0 calls for a connection wait, see
+// Call.Connection). Paths are ordered by trace ID, start time and
 // span ID, so the result does not depend on input order or Workers
 // (except which of several spans with the same ID is kept: the first read).
 //
@@ -247,6 +271,7 @@ func (c *SpanCollector) Source() (*Source, error) {
 		<-tokens
 	}
 	c.spans = spanStore{}
+	src.Services = fin.services(c.opts.Service, c.opts.AllServices)
 	if fin.timed {
 		src.DurationNanos = max(0, fin.maxEnd-fin.minStart)
 	}
@@ -257,6 +282,7 @@ func (c *SpanCollector) Source() (*Source, error) {
 func (as *assembler) partition(part sortedPart, out *partPaths) *partPaths {
 	c := as.c
 	as.out = out
+	as.lastSvc = nil
 	order := part.order
 	for i := 0; i < len(order); {
 		first := part.at(order[i])
@@ -292,6 +318,20 @@ func (as *assembler) partition(part sortedPart, out *partPaths) *partPaths {
 // warnings; it returns the partition's error, if any.
 func (f *finisher) add(out *partPaths) error {
 	f.src.Warnings.Merge(out.ws)
+	f.src.LateChildren += out.late
+	if f.svc == nil {
+		f.svc = map[string]*ServiceInfo{}
+	}
+	for name, o := range out.services {
+		si := f.svc[name]
+		if si == nil {
+			si = &ServiceInfo{Name: name}
+			f.svc[name] = si
+		}
+		si.Spans += o.Spans
+		si.Entries += o.Entries
+		si.Called += o.Called
+	}
 	if out.err != nil {
 		return out.err
 	}
@@ -337,6 +377,9 @@ func (f *finisher) path(out *partPaths, pp *partPath, req RequestID) {
 	f.values = [2]int64{pp.dur, 1}
 	p := Path{Frames: f.frames, Values: f.values[:], Request: req}
 	if cid := pp.call; cid != 0 {
+		if f.c.calls[cid].Connection {
+			f.values[1] = 0 // a connection wait is not a call
+		}
 		sc := f.callMap[cid]
 		if sc == 0 {
 			sc = f.src.InternCall(f.c.calls[cid])
@@ -351,6 +394,19 @@ func (f *finisher) path(out *partPaths, pp *partPath, req RequestID) {
 		p.Labels = f.labels[r]
 	}
 	f.src.Paths.Append(p)
+}
+
+// services lists the services seen, by name, marking those analysed: the
+// one named (Options.Service), else all (Options.AllServices), else those
+// that receive requests from outside the input.
+func (f *finisher) services(named string, all bool) []ServiceInfo {
+	out := make([]ServiceInfo, 0, len(f.svc))
+	for _, si := range f.svc {
+		si.Analysed = named == si.Name || named == "" && (all || si.Entries > 0)
+		out = append(out, *si)
+	}
+	slices.SortFunc(out, func(a, b ServiceInfo) int { return cmp.Compare(a.Name, b.Name) })
+	return out
 }
 
 // selected reports whether r's service is the one Options.Service keeps.
@@ -386,6 +442,12 @@ func (as *assembler) trace(nodes []node) error {
 		}
 		k := findSpan(nodes, p)
 		if k < 0 {
+			if kind := as.c.frames[nd.rec.frame].SpanKind; kind == SpanKindServer || kind == SpanKindConsumer {
+				// A request or message from outside the input that carried
+				// its caller's trace context (a load generator, a gateway):
+				// an entry point, not a lost span.
+				continue
+			}
 			if err := as.repair(nd.rec, WarnOrphanSpan, fmt.Sprintf("parent %s of span %s (trace %s) is missing; the span is taken as a root",
 				spanIDString(p), spanIDString(nd.rec.id), as.c.traceIDs[nd.rec.trace])); err != nil {
 				return err
@@ -558,6 +620,13 @@ func (as *assembler) place(nodes []node, k int32) error {
 			spanIDString(r.id), as.c.traceIDs[r.trace])); err != nil {
 			return err
 		}
+	case (start < plausibleNanos) != (end < plausibleNanos):
+		if err := as.repair(r, WarnMixedTimeUnits, fmt.Sprintf("span %s (trace %s) has times %d and %d ns since the epoch, one of them in another unit; its duration is taken as 0",
+			spanIDString(r.id), as.c.traceIDs[r.trace], start, end)); err != nil {
+			return err
+		}
+		start = max(start, end)
+		end = start
 	case end < start:
 		if err := as.repair(r, WarnNegativeDuration, fmt.Sprintf("span %s (trace %s) ends %d ns before it starts; its duration is taken as 0",
 			spanIDString(r.id), as.c.traceIDs[r.trace], start-end)); err != nil {
@@ -565,39 +634,40 @@ func (as *assembler) place(nodes []node, k int32) error {
 		}
 		end = start
 	}
-	start += nd.shift
-	end += nd.shift
+	start = satAdd(start, nd.shift)
+	end = satAdd(end, nd.shift)
+	service := as.c.frames[r.frame].Service
+	si := as.service(service)
+	si.Spans++
+	if par != nil {
+		// A span called from another service is that service's work,
+		// already inside the caller's CLIENT span: unless its service was
+		// named, it is not an entry point of the analysis (and neither is
+		// anything below it).
+		samesvc := as.c.frames[par.rec.frame].Service == service
+		nd.keep = nd.keep && (as.c.opts.Service != "" || as.c.opts.AllServices || samesvc && par.keep)
+		if !samesvc {
+			si.Called++
+		}
+	} else {
+		si.Entries++
+	}
 	if par != nil && (r.start != 0 || r.end != 0) {
 		ps, pe := par.start, par.end
 		tol := max(skewMinNanos, (pe-ps)/100)
-		// Work started by a PRODUCER span, and CONSUMER spans, may
-		// legitimately end after their parent.
-		async := as.c.frames[par.rec.frame].SpanKind == SpanKindProducer || as.c.frames[r.frame].SpanKind == SpanKindConsumer
 		// (Differences, not sums: times near the int64 limit must not wrap.)
-		early := start < ps && ps-start > tol
-		late := !async && end > pe && end-pe > tol
-		if early || late {
-			where, by := "before", ps-start
-			if !early {
-				where, by = "after", end-pe
-			}
-			if err := as.repair(r, WarnClockSkew, fmt.Sprintf("span %s (trace %s) lies %d ns %s its parent %s; it is moved into the parent",
-				spanIDString(r.id), as.c.traceIDs[r.trace], by, where, spanIDString(par.rec.id))); err != nil {
+		if start < ps && ps-start > tol {
+			if err := as.repair(r, WarnClockSkew, fmt.Sprintf("span %s (trace %s) starts %d ns before its parent %s; it is moved to start with the parent",
+				spanIDString(r.id), as.c.traceIDs[r.trace], ps-start, spanIDString(par.rec.id))); err != nil {
 				return err
 			}
-			var move int64
-			switch {
-			case !async && end-start > pe-ps:
-				end = start + (pe - ps) // longer than its parent: cut
-				move = ps - start
-			case early:
-				move = ps - start
-			default:
-				move = pe - end
-			}
+			move := ps - start
 			start += move
-			end += move
-			nd.shift += move
+			end = satAdd(end, move)
+			nd.shift = satAdd(nd.shift, move)
+		}
+		if end > pe && nd.keep {
+			as.out.late++
 		}
 	}
 	nd.start, nd.end = start, end
@@ -617,6 +687,35 @@ func (as *assembler) place(nodes []node, k int32) error {
 				spanIDString(r.id), as.c.traceIDs[r.trace], nd.framesLen, as.c.limits.MaxDepth)}
 	}
 	return nil
+}
+
+// service returns the tally of the named service in the partition.
+func (as *assembler) service(name string) *ServiceInfo {
+	if si := as.lastSvc; si != nil && si.Name == name {
+		return si // spans of one service mostly come together
+	}
+	if as.out.services == nil {
+		as.out.services = map[string]*ServiceInfo{}
+	}
+	si := as.out.services[name]
+	if si == nil {
+		si = &ServiceInfo{Name: name}
+		as.out.services[name] = si
+	}
+	as.lastSvc = si
+	return si
+}
+
+// satAdd returns a+b, saturating at the int64 limits.
+func satAdd(a, b int64) int64 {
+	s := a + b
+	switch {
+	case b > 0 && s < a:
+		return math.MaxInt64
+	case b < 0 && s > a:
+		return math.MinInt64
+	}
+	return s
 }
 
 func spanIDString(id uint64) string {

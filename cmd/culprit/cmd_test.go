@@ -139,10 +139,14 @@ func TestRankFilesDirsStdinAndOutput(t *testing.T) {
 		t.Error("stdin and file give different reports")
 	}
 
-	// A directory is walked; traces and profiles in one run are refused.
+	// A directory is walked; traces and profiles in one run are refused,
+	// naming the files of each kind and the flag that chooses.
 	code, _, errOut = runTest(t, "", "rank", dir)
-	if code != exitError || !strings.Contains(errOut, "separate runs") {
+	if code != exitError || !strings.Contains(errOut, "--source traces") || !strings.Contains(errOut, "greenhouse-v41.traces.jsonl.gz") {
 		t.Errorf("mixed directory: exit %d, %s", code, errOut)
+	}
+	if code, out, errOut := runTest(t, "", "rank", "--source", "traces", dir); code != exitOK || !strings.Contains(out, "greenhouse-v41.goroutine.1.pb.gz skipped") {
+		t.Errorf("--source traces: exit %d, %s", code, errOut)
 	}
 
 	out := filepath.Join(dir, "report.json")

@@ -115,9 +115,8 @@ func corpusCases() []corpusCase {
 			status: exitError, maxAlloc: 16 << 20, // 8 MiB unpacked; the race detector adds a little
 			want: []string{"{file}: decompressed size exceeds 2097152 bytes (raise it with --max-bytes): input limit exceeded"}},
 		{name: "not OTLP", file: "not-otlp.json", gen: notOTLP,
-			about: "a JSON object that is not an OTLP export request", status: exitOK,
-			report: []string{`"format": "otlp-json"`, `"rootCauses": []`},
-			want:   []string{"no-spans (e.g. {file}: no spans (is this OTLP/JSON trace data?"}},
+			about: "a JSON object that is not an OTLP export request: skipped, and then no input is left", status: exitError,
+			want: []string{`no input yielded any span or sample ({file} skipped: JSON but not OTLP trace data (it starts with "hello"))`}},
 		{name: "deep nesting", file: "deep-nesting.json", gen: deepNesting,
 			about: "JSON nested 10,000 levels deep", status: exitError,
 			want: []string{"{file}:1:529: input limit exceeded: JSON nested deeper than 512 levels"}},

@@ -30,6 +30,7 @@ type analysisFlags struct {
 	KeepGoing     bool
 	Strict        bool
 	Service       string
+	Source        string
 	Limits        traces.Limits
 	Findings      attribute.FindingOptions
 	DomainsFile   string
@@ -56,7 +57,8 @@ func (f *analysisFlags) register(cmd *cobra.Command) {
 	fl.BoolVar(&f.ShowLiterals, "show-literals", false, "show statements with their literal values (may expose personal data)")
 	fl.BoolVar(&f.KeepGoing, "keep-going", false, "skip unreadable files and lines, listing them as warnings")
 	fl.BoolVar(&f.Strict, "strict", false, "treat every repaired span problem (orphans, duplicates, cycles, skew) as an error")
-	fl.StringVar(&f.Service, "service", "", "keep only spans of this service.name")
+	fl.StringVar(&f.Service, "service", "", "analyse only spans of this service.name (default: the services that receive requests from outside)")
+	fl.StringVar(&f.Source, "source", "", "read only `KIND` of input, traces or profiles, from inputs that hold both, skipping the other")
 	fl.StringVar(&f.DomainsFile, "domains", "", "JSON `FILE` mapping business domains to function patterns; rolls root causes up by domain")
 	fl.Int64Var(&f.Limits.MaxBytes, "max-bytes", traces.DefaultLimits.MaxBytes, "largest decompressed input in bytes")
 	fl.Int64Var(&f.Limits.MaxRatio, "max-ratio", traces.DefaultLimits.MaxRatio, "largest decompression ratio of a gzip input")
@@ -135,6 +137,10 @@ func expandInputs(args []string) ([]string, error) {
 
 // load reads every input into one source.
 func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*traces.Source, error) {
+	kind, err := traces.ParseKind(f.Source)
+	if err != nil {
+		return nil, usagef("--source: %v", err)
+	}
 	names := args
 	if f.fsys == nil {
 		var err error
@@ -143,6 +149,7 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 		}
 	}
 	opts := traces.Options{
+		Source:     kind,
 		Limits:     f.Limits,
 		KeepGoing:  f.KeepGoing,
 		Strict:     f.Strict,
