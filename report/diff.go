@@ -322,7 +322,7 @@ func sideText(s attribute.SideSummary) string {
 		facts = append(facts, clean(s.SourceKind))
 	}
 	if s.Requests > 0 {
-		facts = append(facts, fmt.Sprintf("%d requests", s.Requests))
+		facts = append(facts, plural(s.Requests, "request", "requests"))
 	}
 	if s.DurationNanos > 0 {
 		facts = append(facts, formatDuration(float64(s.DurationNanos)))
@@ -403,6 +403,14 @@ func newDiffHeadline(c *attribute.Comparison) diffHeadline {
 		h.Counts = plural(len(c.Changes), "root cause", "root causes") + " compared: " + strings.Join(counts, ", ")
 	}
 	return h
+}
+
+// plural64 is plural for an int64 count.
+func plural64(n int64, one, many string) string {
+	if n == 1 {
+		return "1 " + one
+	}
+	return strconv.FormatInt(n, 10) + " " + many
 }
 
 func plural(n int, one, many string) string {

@@ -112,9 +112,9 @@ func (ExplainText) RenderExplain(w io.Writer, ex []attribute.Explanation, unit s
 			}
 			count := ""
 			if n.Calls > 0 {
-				count = fmt.Sprintf(", %d calls", n.Calls)
+				count = ", " + plural64(n.Calls, "call", "calls")
 			} else if n.Samples > 0 {
-				count = fmt.Sprintf(", %d samples", n.Samples)
+				count = ", " + plural64(n.Samples, "sample", "samples")
 			}
 			fmt.Fprintf(bw, "%s%s [%s]%s%s — %s%s\n", indent, oneLine(n.Function, 0), n.Class, site, skipped, FormatValue(n.Cost, unit), count)
 			for _, d := range n.Statements {
@@ -126,7 +126,7 @@ func (ExplainText) RenderExplain(w io.Writer, ex []attribute.Explanation, unit s
 					line += " [" + oneLine(d.System, 40) + "]"
 				}
 				if d.Calls > 0 {
-					line += fmt.Sprintf(" (%d calls)", d.Calls)
+					line += " (" + plural64(d.Calls, "call", "calls") + ")"
 				}
 				fmt.Fprintln(bw, line)
 			}

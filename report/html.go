@@ -242,9 +242,9 @@ func (HTML) Render(w io.Writer, r *attribute.Result, opts Options) error {
 			hd := htmlDetail{Cost: FormatValue(d.Cost, unit), Kind: clean(string(d.Kind)), System: clean(d.System),
 				Statement: clean(d.Statement), Peer: clean(d.Peer)}
 			if r.Sampled {
-				hd.Count = strconv.FormatInt(d.Samples, 10) + " samples"
+				hd.Count = plural64(d.Samples, "sample", "samples")
 			} else {
-				hd.Count = strconv.FormatInt(d.Calls, 10) + " calls"
+				hd.Count = plural64(d.Calls, "call", "calls")
 			}
 			st.Lines = append(st.Lines, hd)
 		}

@@ -71,7 +71,7 @@ func (Markdown) Render(w io.Writer, r *attribute.Result, opts Options) error {
 		}
 		if more := len(r.Causes) - len(causes); more > 0 {
 			fmt.Fprintln(bw)
-			fmt.Fprintf(bw, "%d more root causes are not shown (--limit 0 shows all).\n", more)
+			fmt.Fprintf(bw, "%s not shown (--limit 0 shows all).\n", plural(more, "more root cause is", "more root causes are"))
 		}
 
 		fmt.Fprint(bw, "\n## Top statements per root cause\n")
@@ -176,9 +176,9 @@ func mdDetail(r *attribute.Result, d attribute.Detail) string {
 	var b strings.Builder
 	b.WriteString(FormatValue(d.Cost, r.ValueType.Unit))
 	if r.Sampled {
-		fmt.Fprintf(&b, ", %d samples", d.Samples)
+		b.WriteString(", " + plural64(d.Samples, "sample", "samples"))
 	} else {
-		fmt.Fprintf(&b, ", %d calls", d.Calls)
+		b.WriteString(", " + plural64(d.Calls, "call", "calls"))
 	}
 	b.WriteString(", " + mdText(string(d.Kind)))
 	if d.System != "" {
@@ -299,7 +299,7 @@ func newHeadline(r *attribute.Result) headline {
 	h.Detail = fmt.Sprintf("%s of %s database+network; %s in all", FormatValue(c.Cost, unit),
 		FormatValue(t.Database+t.Network, unit), FormatValue(t.Cost, unit))
 	if r.Sampled {
-		h.Detail += fmt.Sprintf("; %d samples", c.Samples)
+		h.Detail += "; " + plural64(c.Samples, "sample", "samples")
 	}
 	return h
 }
@@ -318,10 +318,10 @@ func sourceSentence(r *attribute.Result) string {
 		s += "; no application frame " + FormatValue(t.Unattributed, unit)
 	}
 	if t.Requests > 0 {
-		s += fmt.Sprintf("; %d requests", t.Requests)
+		s += "; " + plural(t.Requests, "request", "requests")
 	}
 	if r.Sampled {
-		s += fmt.Sprintf("; %d samples", t.Samples)
+		s += "; " + plural64(t.Samples, "sample", "samples")
 	}
 	return s + "."
 }
