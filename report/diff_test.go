@@ -38,7 +38,7 @@ func nurseryDiff() *attribute.Comparison {
 			Requests: reqs, DurationNanos: 60e9, Exposure: float64(reqs)}
 	}
 	const app = "example.com/nursery/"
-	mwu, poisson := attribute.MethodBootstrap, attribute.MethodPoisson
+	boot, poisson := attribute.MethodBootstrap, attribute.MethodPoisson
 	return &attribute.Comparison{
 		Basis: attribute.BasisPerRequest, Unit: "nanoseconds per request", ValueType: dur,
 		Base: side("load-v41.jsonl", 1200), Candidate: side("load-v42.jsonl", 1180),
@@ -47,7 +47,7 @@ func nurseryDiff() *attribute.Comparison {
 			{Function: app + "catalog.(*Repo).VarietyByID", Identity: app + "catalog.(*Repo).VarietyByID", Kind: attribute.KindDatabase,
 				Base: 12.4e6, Candidate: 17.1e6, Change: 4.7e6, RelativeChange: fp(0.379), RelLo: fp(0.30), RelHi: fp(0.47),
 				PValue: fp(1e-9), QValue: fp(7e-9), MDE: fp(0.06), Verdict: attribute.OutcomeRegressed, Reasons: []string{"time", "calls"},
-				BaseSamples: 3100, CandSamples: 4200, BaseRequests: 1100, CandRequests: 1090, Method: mwu,
+				BaseSamples: 3100, CandSamples: 4200, BaseRequests: 1100, CandRequests: 1090, Method: boot,
 				Calls: &attribute.CallsChange{Base: 2.6, Candidate: 3.5, RelativeChange: fp(0.346), RelLo: fp(0.31), RelHi: fp(0.38),
 					PValue: fp(1e-12), QValue: fp(1e-11), MDE: fp(0.02), Verdict: attribute.OutcomeRegressed},
 				Statements: []attribute.StatementChange{
@@ -56,27 +56,27 @@ func nurseryDiff() *attribute.Comparison {
 				}},
 			{Function: app + "catalog.(*Repo).VarietyPhotos", Identity: app + "catalog.(*Repo).VarietyPhotos", Kind: attribute.KindNetwork,
 				Candidate: 2.3e6, Change: 2.3e6, PValue: fp(2e-6), QValue: fp(7e-6), Verdict: attribute.OutcomeNew,
-				CandSamples: 1180, CandRequests: 1180, Method: mwu},
+				CandSamples: 1180, CandRequests: 1180, Method: boot},
 			{Function: app + "orders.(*Service).Place.func2", Identity: app + "orders.(*Service).Place.func*",
 				Functions: []string{app + "orders.(*Service).Place.func1", app + "orders.(*Service).Place.func2"}, Kind: attribute.KindMixed,
 				Base: 8.2e6, Candidate: 8.9e6, Change: 0.7e6, RelativeChange: fp(0.085), RelLo: fp(0.012), RelHi: fp(0.16),
 				PValue: fp(0.011), QValue: fp(0.019), MDE: fp(0.07), Verdict: attribute.OutcomeInconclusive,
-				BaseSamples: 600, CandSamples: 610, BaseRequests: 300, CandRequests: 305, Method: mwu},
+				BaseSamples: 600, CandSamples: 610, BaseRequests: 300, CandRequests: 305, Method: boot},
 			{Function: app + "pricing.(*Client).Quote", Identity: app + "pricing.(*Client).Quote", Kind: attribute.KindNetwork,
 				Base: 6.0e6, Candidate: 4.1e6, Change: -1.9e6, RelativeChange: fp(-0.317), RelLo: fp(-0.38), RelHi: fp(-0.25),
 				PValue: fp(4e-6), QValue: fp(9e-6), MDE: fp(0.05), Verdict: attribute.OutcomeImproved,
-				BaseSamples: 2400, CandSamples: 2360, BaseRequests: 1200, CandRequests: 1180, Method: mwu},
+				BaseSamples: 2400, CandSamples: 2360, BaseRequests: 1200, CandRequests: 1180, Method: boot},
 			{Function: app + "catalog.(*Cache).Warm", Identity: app + "catalog.(*Cache).Warm", Kind: attribute.KindDatabase,
 				Base: 1.2e6, Change: -1.2e6, PValue: fp(0.003), QValue: fp(0.0045), Verdict: attribute.OutcomeGone,
-				BaseSamples: 40, BaseRequests: 40, Method: mwu},
+				BaseSamples: 40, BaseRequests: 40, Method: boot},
 			{Function: app + "inventory.(*Repo).Stock", Identity: app + "inventory.(*Repo).Stock", Kind: attribute.KindDatabase,
 				Base: 3.1e6, Candidate: 3.15e6, Change: 0.05e6, RelativeChange: fp(0.016), RelLo: fp(-0.04), RelHi: fp(0.07),
 				PValue: fp(0.58), QValue: fp(0.68), MDE: fp(0.09), Verdict: attribute.OutcomeUnchanged,
-				BaseSamples: 1200, CandSamples: 1180, BaseRequests: 1200, CandRequests: 1180, Method: mwu},
+				BaseSamples: 1200, CandSamples: 1180, BaseRequests: 1200, CandRequests: 1180, Method: boot},
 			{Function: app + "orders.(*Repo).Lines", Identity: app + "orders.(*Repo).Lines", Kind: attribute.KindDatabase,
 				Base: 5.0e6, Candidate: 5.9e6, Change: 0.9e6, RelativeChange: fp(0.18), RelLo: fp(-0.14), RelHi: fp(1.25),
 				PValue: fp(0.3), QValue: fp(0.4), MDE: fp(1.2), Verdict: attribute.OutcomeRegressed, Reasons: []string{"calls"},
-				BaseSamples: 8900, CandSamples: 17900, BaseRequests: 1000, CandRequests: 1000, Method: mwu,
+				BaseSamples: 8900, CandSamples: 17900, BaseRequests: 1000, CandRequests: 1000, Method: boot,
 				Calls: &attribute.CallsChange{Base: 8.9, Candidate: 17.9, RelativeChange: fp(1.01), RelLo: fp(0.95), RelHi: fp(1.07),
 					PValue: fp(1e-12), QValue: fp(1e-11), MDE: fp(0.03), Verdict: attribute.OutcomeRegressed},
 				Statements: []attribute.StatementChange{{Statement: "SELECT * FROM order_lines WHERE order_id = ?", System: "postgresql",
