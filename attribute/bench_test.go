@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/culprithq/culprit/callgraph"
 )
 
 // randomStacks makes n stacks of depth 10–30 over a code base of 300
@@ -33,6 +35,34 @@ func randomStacks(n int, seed uint64) []fakeStack {
 // random stacks (the tree and classification are built once).
 func BenchmarkAttribute(b *testing.B) {
 	tree, cls := loadTree(b, buildProfile(b, randomStacks(20_000, 1)), DefaultRules())
+	b.ReportAllocs()
+	for b.Loop() {
+		if res := Attribute(tree, cls, Options{}); len(res.Causes) == 0 {
+			b.Fatal("no root causes")
+		}
+	}
+}
+
+// BenchmarkAttributeHelpersOff is BenchmarkAttribute without detecting
+// shared helpers. On these random stacks nearly every application
+// function is called from several packages: the worst case of detection.
+func BenchmarkAttributeHelpersOff(b *testing.B) {
+	tree, cls := loadTree(b, buildProfile(b, randomStacks(20_000, 1)), DefaultRules())
+	b.ReportAllocs()
+	for b.Loop() {
+		if res := Attribute(tree, cls, Options{Helpers: HelpersOff}); len(res.Causes) == 0 {
+			b.Fatal("no root causes")
+		}
+	}
+}
+
+// BenchmarkAttributeSpans measures the attribution walk alone on a span
+// source of 3,000 traces (about 40,000 spans: enough to be charged on
+// every core), the tree and classification built once.
+func BenchmarkAttributeSpans(b *testing.B) {
+	src := spanSource("shop.jsonl", 60e9, shopTraces(1, 3000, func(r int) int { return 2 + r%9 }))
+	cls := NewClassifier(src, DefaultRules())
+	tree := callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep})
 	b.ReportAllocs()
 	for b.Loop() {
 		if res := Attribute(tree, cls, Options{}); len(res.Causes) == 0 {

@@ -227,7 +227,7 @@ func TestKeepMatchesCut(t *testing.T) {
 	cutOnly := func(cls *Classifier) func([]traces.FrameID) int {
 		return func(fs []traces.FrameID) int {
 			for i, f := range fs {
-				if cls.IsBoundary(f) {
+				if cls.Verdict(f).Class.IsBoundary() {
 					return i + 1
 				}
 			}

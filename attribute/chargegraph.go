@@ -26,13 +26,10 @@ var classStyle = map[Class][]encoding.Attribute{
 // with their edges. Every node carries "class" and "cost" attributes and
 // every edge "weight" and "label" attributes.
 func ChargeGraph(t *callgraph.Tree, c *Classifier, opts Options, minShare float64) *callgraph.Digraph {
-	src := t.Source()
-	vi, err := src.ValueIndex(opts.Value)
-	if err != nil {
-		vi = src.DefaultValue
-	}
-	spans := src.Kind == traces.Spans
-	w := newWalkState(t, c)
+	wk := newWalk(t, c, &opts, false)
+	src := wk.src
+	wr := wk.newWalker()
+	var r charge
 
 	type nodeInfo struct {
 		class Class
@@ -46,20 +43,16 @@ func ChargeGraph(t *callgraph.Tree, c *Classifier, opts Options, minShare float6
 	var denom int64
 	pathCache := map[callgraph.NodeID][]traces.FrameID{}
 	for pi := range src.Paths.Len() {
-		path := src.Paths.At(pi)
-		p := &path
-		leaf := t.Leaf(pi)
-		b := w.boundary[leaf]
-		if b == 0 || (spans && len(p.Frames) > t.Depth(b)) {
+		wr.next(pi, &r)
+		if r.state != chargeBoundary {
 			continue
 		}
-		val := p.Values[vi]
+		val, b := r.cost, r.boundary
 		denom += val
 		kept, ok := pathCache[b]
 		if !ok {
 			for _, f := range t.Path(b) {
-				v := c.Verdict(f)
-				if v.Class == Application || v.EntryPoint || v.Class.IsBoundary() {
+				if keptInExplanation(c.Verdict(f)) {
 					kept = append(kept, f)
 				}
 			}

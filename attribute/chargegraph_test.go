@@ -5,6 +5,8 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/culprithq/culprit/callgraph"
+
 	"gonum.org/v1/gonum/graph/formats/dot"
 	"gonum.org/v1/gonum/graph/formats/dot/ast"
 )
@@ -18,39 +20,7 @@ func TestChargeGraphDOT(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	file, err := dot.ParseString(string(out))
-	if err != nil {
-		t.Fatalf("DOT does not parse: %v\n%s", err, out)
-	}
-	if len(file.Graphs) != 1 || !file.Graphs[0].Directed {
-		t.Fatalf("want one directed graph")
-	}
-	unquote := func(s string) string {
-		if u, err := strconv.Unquote(s); err == nil {
-			return u
-		}
-		return s
-	}
-	nodes := map[string]map[string]string{}
-	edges := map[string]string{}
-	for _, st := range file.Graphs[0].Stmts {
-		switch st := st.(type) {
-		case *ast.NodeStmt:
-			attrs := map[string]string{}
-			for _, a := range st.Attrs {
-				attrs[a.Key] = unquote(a.Val)
-			}
-			nodes[unquote(st.Node.ID)] = attrs
-		case *ast.EdgeStmt:
-			from := unquote(st.From.(*ast.Node).ID)
-			to := unquote(st.To.Vertex.(*ast.Node).ID)
-			for _, a := range st.Attrs {
-				if a.Key == "weight" {
-					edges[from+" -> "+to] = a.Val
-				}
-			}
-		}
-	}
+	nodes, edges := parseDOT(t, out)
 	wantNodes := map[string]string{
 		"main.main":                         "application",
 		"example.com/shop/api.handler":      "application",
@@ -92,4 +62,82 @@ func TestChargeGraphDOT(t *testing.T) {
 		!strings.Contains(string(pruned), "loadOrders") {
 		t.Errorf("--min-share 0.25 kept the wrong nodes:\n%s", pruned)
 	}
+}
+
+// TestChargeGraphAgreesWithRank checks that the graph reads the ranking's
+// charges: on a span source every charged path ends at exactly one
+// boundary node, so the boundary nodes' costs add up to the ranking's
+// database + network total, and each root cause's node carries at least
+// its charged cost.
+func TestChargeGraphAgreesWithRank(t *testing.T) {
+	src := spanSource("shop.jsonl", 60e9, shopTraces(1, 60, func(r int) int { return 2 + r%9 }))
+	cls := NewClassifier(src, DefaultRules())
+	tree := callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep})
+	res := Attribute(tree, cls, Options{})
+	g := ChargeGraph(tree, cls, Options{}, 0)
+	var boundary int64
+	cost := map[string]int64{}
+	out, err := g.MarshalDOT()
+	if err != nil {
+		t.Fatal(err)
+	}
+	nodes, _ := parseDOT(t, out)
+	for name, attrs := range nodes {
+		c, err := strconv.ParseInt(attrs["cost"], 10, 64)
+		if err != nil {
+			t.Fatalf("node %s: cost %q", name, attrs["cost"])
+		}
+		cost[name] = c
+		if attrs["class"] == "database" || attrs["class"] == "network" {
+			boundary += c
+		}
+	}
+	if want := res.Totals.Database + res.Totals.Network; boundary != want || want == 0 {
+		t.Errorf("boundary nodes cost %d, ranking charged %d", boundary, want)
+	}
+	for _, c := range res.Causes {
+		if !c.NoAppFrame && cost[c.Function] < c.Cost {
+			t.Errorf("%s: node cost %d below its charged %d", c.Function, cost[c.Function], c.Cost)
+		}
+	}
+}
+
+// parseDOT reads DOT back with gonum's DOT parser: each node's attributes
+// by node name, and each edge's weight by "from -> to".
+func parseDOT(t *testing.T, out []byte) (map[string]map[string]string, map[string]string) {
+	t.Helper()
+	file, err := dot.ParseString(string(out))
+	if err != nil {
+		t.Fatalf("DOT does not parse: %v\n%s", err, out)
+	}
+	if len(file.Graphs) != 1 || !file.Graphs[0].Directed {
+		t.Fatalf("want one directed graph")
+	}
+	unquote := func(s string) string {
+		if u, err := strconv.Unquote(s); err == nil {
+			return u
+		}
+		return s
+	}
+	nodes := map[string]map[string]string{}
+	edges := map[string]string{}
+	for _, st := range file.Graphs[0].Stmts {
+		switch st := st.(type) {
+		case *ast.NodeStmt:
+			attrs := map[string]string{}
+			for _, a := range st.Attrs {
+				attrs[a.Key] = unquote(a.Val)
+			}
+			nodes[unquote(st.Node.ID)] = attrs
+		case *ast.EdgeStmt:
+			from := unquote(st.From.(*ast.Node).ID)
+			to := unquote(st.To.Vertex.(*ast.Node).ID)
+			for _, a := range st.Attrs {
+				if a.Key == "weight" {
+					edges[from+" -> "+to] = a.Val
+				}
+			}
+		}
+	}
+	return nodes, edges
 }

@@ -7,75 +7,49 @@ import (
 	"github.com/culprithq/culprit/traces"
 )
 
-// charger charges paths to root causes. Attribute runs one per shard of
-// the paths (a range of whole requests) and merges them in order: IDs are
-// given in order of first use, so the merged state is the one a single
-// charger over all the paths would have.
+// charger adds up the charge records of the ranking. Attribute runs one
+// per shard of the paths (a range of whole requests) and merges them in
+// order: IDs are given in order of first use, so the merged state is the
+// one a single charger over all the paths would have.
 type charger struct {
-	// Shared, read only.
-	t            *callgraph.Tree
-	c            *Classifier
-	src          *traces.Source
-	w            *walkState
-	opts         *Options
-	vi, sampleIx int
-	spans        bool
-	entryLabels  []string
+	wr  *walker
+	rec *recursionFinder // a copy per charger (it caches)
 
-	rec           *recursionFinder // a copy per charger (it caches)
-	totals        Totals
-	accs          map[string]*causeAcc
-	accOf         []*causeAcc              // root-cause frame → its accumulator
-	entryOf       map[entryKey]*entryState // cached entry point per leaf and labels
-	lastEK        entryKey                 // and the last one looked up
-	lastES        *entryState
-	entries       map[string]*entryState // by name
-	entryList     []*entryState          // by idx
-	detailOf      map[uint64]int32       // (boundary frame, call) → detail ID
-	detailIDs     map[detailKey]int32    // detail → ID
-	detailList    []detailKey            // ID → detail
-	requests      reqSet
-	inclusiveKeys map[callgraph.NodeID][]callgraph.NodeID
-	// reqs holds each path's request when profile labels name it
-	// (requestIDs): numbered before the paths are shared out, so that all
-	// chargers agree. Nil for span sources, whose paths carry theirs.
-	reqs []traces.RequestID
+	totals    Totals
+	accs      map[string]*causeAcc
+	accOf     []*causeAcc   // root-cause frame → its accumulator
+	entryList []*entryState // by the walker's entry index
+	requests  reqSet
+	viaCost   map[int32]int64 // cost charged through each shared helper (classifier function)
+	r         charge          // the record being charged, reused
 }
 
-// fork returns a charger with ch's shared fields and empty state.
-func (ch *charger) fork(rec *recursionFinder) *charger {
+// entryState is one entry point being totalled.
+type entryState struct {
+	name  string
+	idx   int // the walker's entry index
+	total *EntryTotal
+	reqs  reqSet
+}
+
+func newCharger(wk *walk, rec *recursionFinder) *charger {
 	return &charger{
-		t: ch.t, c: ch.c, src: ch.src, w: ch.w, opts: ch.opts, vi: ch.vi, sampleIx: ch.sampleIx, spans: ch.spans,
-		entryLabels:   ch.entryLabels,
-		rec:           rec.fork(),
-		accs:          map[string]*causeAcc{},
-		accOf:         make([]*causeAcc, len(ch.src.Frames)),
-		entryOf:       map[entryKey]*entryState{},
-		entries:       map[string]*entryState{},
-		detailOf:      map[uint64]int32{},
-		detailIDs:     map[detailKey]int32{},
-		inclusiveKeys: map[callgraph.NodeID][]callgraph.NodeID{},
-		reqs:          ch.reqs,
+		wr:      wk.newWalker(),
+		rec:     rec.fork(),
+		accs:    map[string]*causeAcc{},
+		viaCost: map[int32]int64{},
+		accOf:   make([]*causeAcc, len(wk.src.Frames)),
 	}
 }
 
-// newEntry adds the entry point named name.
-func (ch *charger) newEntry(name string) *entryState {
-	es := &entryState{name: name, idx: len(ch.entryList), total: &EntryTotal{Entry: name}}
-	ch.entries[name] = es
-	ch.entryList = append(ch.entryList, es)
-	return es
-}
-
-// detailID returns the ID of detail dk, adding it if it is new.
-func (ch *charger) detailID(dk detailKey) (int32, bool) {
-	did, ok := ch.detailIDs[dk]
-	if !ok {
-		did = int32(len(ch.detailList))
-		ch.detailIDs[dk] = did
-		ch.detailList = append(ch.detailList, dk)
+// entry returns the state of the walker's entry point id.
+func (ch *charger) entry(id int32) *entryState {
+	for int(id) >= len(ch.entryList) {
+		i := len(ch.entryList)
+		name := ch.wr.entryNames[i]
+		ch.entryList = append(ch.entryList, &entryState{name: name, idx: i, total: &EntryTotal{Entry: name}})
 	}
-	return did, ok
+	return ch.entryList[id]
 }
 
 // merge adds the state of o, which charged the paths after ch's, to ch.
@@ -90,16 +64,16 @@ func (ch *charger) merge(o *charger) {
 	t.Unattributed += o.totals.Unattributed
 	t.BoundarySamples += o.totals.BoundarySamples
 	ch.requests.union(&o.requests)
-	didMap := make([]int32, len(o.detailList))
-	for i, dk := range o.detailList {
-		didMap[i], _ = ch.detailID(dk)
+	for fn, v := range o.viaCost {
+		ch.viaCost[fn] += v
+	}
+	didMap := make([]int32, len(o.wr.details))
+	for i, dk := range o.wr.details {
+		didMap[i], _ = ch.wr.detailID(dk)
 	}
 	idxMap := make([]int, len(o.entryList))
 	for i, oe := range o.entryList {
-		es := ch.entries[oe.name]
-		if es == nil {
-			es = ch.newEntry(oe.name)
-		}
+		es := ch.entry(ch.wr.entryID(oe.name))
 		es.total.Cost += oe.total.Cost
 		es.total.Database += oe.total.Database
 		es.total.Network += oe.total.Network
@@ -121,7 +95,8 @@ func (ch *charger) merge(o *charger) {
 // run charges paths lo to hi-1.
 func (ch *charger) run(lo, hi int) {
 	for pi := lo; pi < hi; pi++ {
-		ch.charge(pi)
+		ch.wr.next(pi, &ch.r)
+		ch.charge(&ch.r)
 	}
 }
 
@@ -153,63 +128,27 @@ func chargeShards(src *traces.Source, spans bool, want int) []int {
 	return append(bounds, n)
 }
 
-// charge charges path pi.
-func (ch *charger) charge(pi int) {
-	src, t, w, c, opts, spans := ch.src, ch.t, ch.w, ch.c, ch.opts, ch.spans
-	vi, sampleIx, rec := ch.vi, ch.sampleIx, ch.rec
-	path := src.Paths.At(pi)
-	p := &path
-	leaf := t.Leaf(pi)
-	val := p.Values[vi]
-	samples := int64(1)
-	if sampleIx >= 0 {
-		samples = p.Values[sampleIx]
-	}
-	req := p.Request
-	if ch.reqs != nil {
-		req = ch.reqs[pi]
-	}
+// charge adds the record r to the totals, its entry point and its root
+// causes.
+func (ch *charger) charge(r *charge) {
+	val, samples, req := r.cost, r.samples, r.request
 	if req != 0 {
 		ch.requests.add(req)
 	}
-	at := leaf
-	if b := w.boundary[leaf]; b != 0 {
-		at = b
-	}
-	ek := entryKey{w.entry[at], w.entryApp[at], p.Frames[0], p.Labels}
-	es := ch.lastES
-	if ek != ch.lastEK || es == nil {
-		es = ch.entryOf[ek]
-	}
-	if es == nil {
-		name := entryName(src, t, w, p, leaf, ch.entryLabels)
-		if es = ch.entries[name]; es == nil {
-			es = ch.newEntry(name)
-		}
-		ch.entryOf[ek] = es
-	}
-	ch.lastEK, ch.lastES = ek, es
+	es := ch.entry(r.entry)
 	et := es.total
 	if req != 0 {
 		es.reqs.add(req)
 	}
-	rootPath := len(p.Frames) == 1
-	if !spans || rootPath {
+	if r.total {
 		ch.totals.Cost += val
 		ch.totals.Samples += samples
-		if !spans || rootPath {
-			et.Cost += val
-		}
+		et.Cost += val
 	}
-	b := w.boundary[leaf]
-	if b == 0 || (spans && len(p.Frames) > t.Depth(b)) {
-		// No boundary (other cost), or a span inside an outbound call.
+	if r.state != chargeBoundary {
 		return
 	}
-	kind := KindDatabase
-	if c.Verdict(t.Frame(b)).Class == Network {
-		kind = KindNetwork
-	}
+	kind := r.kind
 	if kind == KindDatabase {
 		ch.totals.Database += val
 		et.Database += val
@@ -218,51 +157,27 @@ func (ch *charger) charge(pi int) {
 		et.Network += val
 	}
 	ch.totals.BoundarySamples += samples
-	calls := int64(0)
-	if spans {
-		calls = 1
-		if len(p.Values) > 1 {
-			calls = p.Values[1]
-		}
+	if r.via != 0 {
+		ch.viaCost[ch.wr.c.fn[ch.wr.t.Frame(r.via)]] += val
 	}
-	sys := pathSystem(c, t, w, p, leaf, b)
-	dkey := uint64(uint32(t.Frame(b)))<<32 | uint64(uint32(p.Call))
-	did, ok := ch.detailOf[dkey]
-	if !ok || ch.detailList[did].system != sys {
-		if did, ok = ch.detailID(detail(src, t, p, b, sys, kind, opts.ShowLiterals)); !ok {
-			ch.detailOf[dkey] = did // the first system seen; others are looked up by value
-		}
-	}
-	dk := &ch.detailList[did]
-
-	var causes []callgraph.NodeID
-	if opts.Inclusive {
-		var ok bool
-		if causes, ok = ch.inclusiveKeys[b]; !ok {
-			causes = appAbove(t, c, b)
-			ch.inclusiveKeys[b] = causes
-		}
-	} else if ra := w.lastApp[b]; ra != 0 {
-		causes = []callgraph.NodeID{ra}
-	}
-	if len(causes) == 0 {
+	did := r.detail
+	dk := &ch.wr.details[did]
+	if len(r.causes) == 0 {
 		ch.totals.Unattributed += val
 		acc := accFor(ch.accs, NoAppFramePrefix+es.name, true)
-		acc.add(val, samples, calls, kind, did, dk, es, 0, req)
+		acc.add(val, samples, r.calls, kind, did, dk, es, 0, req)
 		return
 	}
-	recFn, depth := rec.at(b)
-	for _, ra := range causes {
-		acc := ch.accOf[t.Frame(ra)]
+	t, src := ch.wr.t, ch.wr.src
+	recFn, depth := ch.rec.at(r.boundary)
+	for _, ra := range r.causes {
+		f := t.Frame(ra)
+		acc := ch.accOf[f]
 		if acc == nil {
-			acc = accFor(ch.accs, src.Frames[t.Frame(ra)].Function, false)
-			ch.accOf[t.Frame(ra)] = acc
+			acc = accFor(ch.accs, src.Frames[f].Function, false)
+			ch.accOf[f] = acc
 		}
-		site := t.Frame(ra)
-		if fr := &src.Frames[site]; fr.File == "" && fr.Line == 0 {
-			site = 0 // no call site known (spans without code.* attributes)
-		}
-		acc.add(val, samples, calls, kind, did, dk, es, site, req)
+		acc.add(val, samples, r.calls, kind, did, dk, es, ch.wr.site(ra), req)
 		if recFn != "" && recFn == acc.cause.Function {
 			acc.recCost += val
 			if depth > acc.recursion {
@@ -270,7 +185,7 @@ func (ch *charger) charge(pi int) {
 			}
 		}
 	}
-	if recFn != "" && !containsFunc(src, t, causes, recFn) {
+	if recFn != "" && !containsFunc(src, t, r.causes, recFn) {
 		// The recursive function is above the root cause: credit it too.
 		acc := ch.accs[recFn]
 		if acc == nil {

@@ -141,12 +141,6 @@ func (c *Classifier) class(id traces.FrameID) (Class, bool) {
 	return Class(k &^ entryBit), k&entryBit != 0
 }
 
-// IsBoundary reports whether frame id is a database or network frame.
-func (c *Classifier) IsBoundary(id traces.FrameID) bool {
-	cl, _ := c.class(id)
-	return cl.IsBoundary()
-}
-
 // Keep returns how many leading frames of a path attribution needs; it
 // suits callgraph.TreeOptions.Keep. A path that reaches a database or
 // network frame is needed down to that frame: everything below belongs

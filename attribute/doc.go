@@ -7,23 +7,31 @@
 // user rules that come first) and from application ownership (--app
 // prefixes, else auto-detection; see Classifier).
 //
-// Attribution (Attribute) follows DESIGN.md: on each path the boundary is
-// the first database or network frame from the root; everything below it
-// belongs to the call. The root cause is the nearest application frame
-// above the boundary, reported with its call site; with none, the cost goes
-// to a "no application frame" bucket named after the entry point. Costs are
-// attributed per path and aggregated after, as a calling-context tree
-// keeps them (Ammons, Ball and Larus, PLDI 1997); the inclusive view
-// charges each distinct application function on a path once.
+// Attribution follows the product design ("What attribution means"), and
+// is applied in one place: the walk (walk.go) emits one charge record per
+// path — entry point, boundary (the first database or network frame from
+// the root; everything below it belongs to the call), kind, detail,
+// root cause (the nearest application frame above the boundary; with
+// none, a "no application frame" bucket named after the entry point),
+// call site, cost, calls and request. The ranking (Attribute), Explain and
+// ChargeGraph only add records up. Costs are attributed per path and
+// aggregated after, as a calling-context tree keeps them (Ammons, Ball and
+// Larus, PLDI 1997); the inclusive view charges each distinct application
+// function on a path once. Shared access helpers (the service's own SQL
+// wrapper, called from several packages) are seen through: their callers
+// are charged, and the detail names the helper (see SharedHelper).
 //
 // Findings are patterns confirmed on the data: the same statement
 // fingerprint repeated within one request, recursion reaching a boundary
-// (candidates from Tarjan's strongly connected components of the function
-// graph, confirmed on paths), and many network calls per request to one peer.
+// (candidates from the strongly connected components of the function
+// graph, callgraph.FuncGraph, confirmed on paths), and many network calls
+// per request to one peer.
 //
 // Statements are fingerprinted (Fingerprint) so that literals never leave
 // the tool unless asked. The statistics (stats.go, mwu.go) implement the
 // published tests used to compare two builds.
 //
-// The package does no I/O except parsing a rules file from an io.Reader.
+// The package opens no files: rules, domains and snapshot files are read
+// from an io.Reader, and snapshots written to an io.Writer, that cmd
+// provides.
 package attribute

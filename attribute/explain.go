@@ -48,45 +48,20 @@ type Explanation struct {
 // opts are the options the ranking used (only Value, ShowLiterals and
 // Inclusive matter).
 func Explain(t *callgraph.Tree, c *Classifier, opts Options, pattern *regexp.Regexp) []Explanation {
-	src := t.Source()
-	vi, err := src.ValueIndex(opts.Value)
-	if err != nil {
-		vi = src.DefaultValue
-	}
-	spans := src.Kind == traces.Spans
-	sampleIx := sampleIndex(src, vi)
-	w := newWalkState(t, c)
+	wk := newWalk(t, c, &opts, false)
+	src := wk.src
+	wr := wk.newWalker()
 	roots := map[string]*ExplainNode{}
 	var denom int64
+	var r charge
 	for pi := range src.Paths.Len() {
-		path := src.Paths.At(pi)
-		p := &path
-		leaf := t.Leaf(pi)
-		b := w.boundary[leaf]
-		if b == 0 || (spans && len(p.Frames) > t.Depth(b)) {
+		wr.next(pi, &r)
+		if r.state != chargeBoundary {
 			continue
 		}
-		val := p.Values[vi]
-		denom += val
-		var causes []callgraph.NodeID
-		if opts.Inclusive {
-			causes = appAbove(t, c, b)
-		} else if ra := w.lastApp[b]; ra != 0 {
-			causes = []callgraph.NodeID{ra}
-		}
-		samples, calls := int64(1), int64(0)
-		if sampleIx >= 0 {
-			samples = p.Values[sampleIx]
-		}
-		if spans {
-			calls = p.Values[1] // 0 for a connection wait
-		}
-		kind := KindDatabase
-		if c.Verdict(t.Frame(b)).Class == Network {
-			kind = KindNetwork
-		}
-		dk := detail(src, t, p, b, pathSystem(c, t, w, p, leaf, b), kind, opts.ShowLiterals)
-		for _, ra := range causes {
+		denom += r.cost
+		dk := wr.details[r.detail]
+		for _, ra := range r.causes {
 			name := src.Frames[t.Frame(ra)].Function
 			if !pattern.MatchString(name) {
 				continue
@@ -96,35 +71,30 @@ func Explain(t *callgraph.Tree, c *Classifier, opts Options, pattern *regexp.Reg
 				root = &ExplainNode{Function: name, byKey: map[explainKey]*ExplainNode{}}
 				roots[name] = root
 			}
-			root.Cost += val
-			root.Calls += calls
-			root.Samples += samples
+			root.add(&r)
 			node := root
 			skipped := 0
-			for _, n := range t.Path(b) {
+			for _, n := range t.Path(r.boundary) {
 				v := c.Verdict(n)
-				keep := v.Class == Application || v.EntryPoint || v.Class.IsBoundary()
-				if !keep {
+				if !keptInExplanation(v) {
 					skipped++
 					continue
 				}
 				node = node.child(src, n, v, skipped)
 				skipped = 0
-				node.Cost += val
-				node.Calls += calls
-				node.Samples += samples
+				node.add(&r)
 			}
 			if node.details == nil {
 				node.details = map[detailKey]*Detail{}
 			}
 			d := node.details[dk]
 			if d == nil {
-				d = &Detail{Kind: dk.kind, System: dk.system, Statement: dk.statement, Peer: dk.peer}
+				d = dk.newDetail()
 				node.details[dk] = d
 			}
-			d.Cost += val
-			d.Calls += calls
-			d.Samples += samples
+			d.Cost += r.cost
+			d.Calls += r.calls
+			d.Samples += r.samples
 		}
 	}
 	out := make([]Explanation, 0, len(roots))
@@ -143,6 +113,20 @@ func Explain(t *callgraph.Tree, c *Classifier, opts Options, pattern *regexp.Reg
 		return out[i].RootCause < out[j].RootCause
 	})
 	return out
+}
+
+// keptInExplanation reports whether a frame of verdict v is a step of an
+// explained path (and a node of the charge graph): application frames,
+// entry points and boundaries; library frames between them are elided.
+func keptInExplanation(v *Verdict) bool {
+	return v.Class == Application || v.EntryPoint || v.Class.IsBoundary()
+}
+
+// add counts the charge r at n.
+func (n *ExplainNode) add(r *charge) {
+	n.Cost += r.cost
+	n.Calls += r.calls
+	n.Samples += r.samples
 }
 
 func (n *ExplainNode) child(src *traces.Source, f traces.FrameID, v *Verdict, skipped int) *ExplainNode {

@@ -5,7 +5,6 @@ import (
 	"sort"
 
 	"github.com/culprithq/culprit/callgraph"
-	"gonum.org/v1/gonum/graph/topo"
 )
 
 // FindingOptions are the thresholds of the pattern findings. Zero fields
@@ -41,9 +40,9 @@ func (o FindingOptions) withDefaults() FindingOptions {
 }
 
 // recursionFinder confirms recursion reaching a boundary on real paths.
-// Candidates come from the strongly connected components (Tarjan's
-// algorithm, via gonum) of the graph of application functions calling
-// application functions above boundaries; a merged graph can show cycles
+// Candidates are the functions on a cycle (callgraph.FuncGraph.Recursive:
+// strongly connected components) of the graph of application functions
+// calling application functions above boundaries; a merged graph can show cycles
 // that no single path has, so each candidate is confirmed on the path.
 type recursionFinder struct {
 	t          *callgraph.Tree
@@ -80,10 +79,10 @@ func newRecursionFinder(t *callgraph.Tree, c *Classifier, w *walkState) *recursi
 		}
 		r.funcOf[i] = appID[fn] - 1
 	}
-	// Edges between consecutive application frames above a boundary.
-	var edges []uint64
+	// The function graph of application functions: an edge between
+	// consecutive application frames above a boundary.
+	var calls callgraph.Calls
 	seen := newEdgeSet(len(r.names))
-	selfLoop := make([]bool, len(r.names))
 	for i := 1; i < t.Len(); i++ {
 		n := callgraph.NodeID(i)
 		fn := r.funcOf[t.Frame(n)]
@@ -95,22 +94,14 @@ func newRecursionFinder(t *callgraph.Tree, c *Classifier, w *walkState) *recursi
 			continue
 		}
 		caller := r.funcOf[t.Frame(above)]
-		if caller == fn {
-			selfLoop[fn] = true
-		}
-		if e := callgraph.PackEdge(caller, fn); seen.add(caller, fn, e) {
-			edges = append(edges, e)
+		if seen.add(caller, fn, uint64(uint32(caller))<<32|uint64(uint32(fn))) {
+			calls.Add(callgraph.FuncID(caller), callgraph.FuncID(fn))
 		}
 	}
-	g := callgraph.NewAdjacency(len(r.names), edges)
-	r.candidate = make([]bool, len(r.names))
-	for _, scc := range topo.TarjanSCC(g) {
-		for _, gn := range scc {
-			fn := gn.ID()
-			if len(scc) > 1 || selfLoop[fn] {
-				r.candidate[fn] = true
-				r.candidates++
-			}
+	r.candidate = callgraph.NewFuncGraph(len(r.names), &calls).Recursive()
+	for _, c := range r.candidate {
+		if c {
+			r.candidates++
 		}
 	}
 	r.stamp = make([]int32, len(r.names))

@@ -150,11 +150,13 @@ type pathCause struct {
 
 // latencyRun holds one analysis's state.
 type latencyRun struct {
-	src         *traces.Source
-	t           *callgraph.Tree
-	c           *Classifier
-	w           *walkState
-	entryLabels []string
+	src *traces.Source
+	t   *callgraph.Tree
+	c   *Classifier
+	// wr emits the charge records of the attribution walk: every call's
+	// root cause, kind and detail come from there, as for rank.
+	wr  *walker
+	rec charge // scratch for wr.next
 
 	causes  []pathCause
 	causeIx map[pathCause]int32
@@ -162,7 +164,7 @@ type latencyRun struct {
 	// Caches of cause indices, +1 (0: not yet known): of a call's
 	// application root cause by its tree node, of an application span by
 	// its frame.
-	callCause map[callgraph.NodeID]int32
+	callCause map[callKey]int32
 	appCause  []int32
 	// unaccounted is the current request's unaccounted cause.
 	unaccounted int32
@@ -247,12 +249,8 @@ func Latency(t *callgraph.Tree, c *Classifier, opts LatencyOptions) (*LatencyRes
 	if tail <= 0 || tail >= 1 {
 		tail = DefaultTail
 	}
-	entryLabels := opts.EntryLabels
-	if entryLabels == nil {
-		entryLabels = DefaultEntryLabels
-	}
-	r := &latencyRun{src: src, t: t, c: c, w: newWalkState(t, c), entryLabels: entryLabels, causeIx: map[pathCause]int32{},
-		callCause: map[callgraph.NodeID]int32{}, appCause: make([]int32, len(src.Frames))}
+	r := &latencyRun{src: src, t: t, c: c, wr: newWalk(t, c, &opts.Options, false).newWalker(), causeIx: map[pathCause]int32{},
+		callCause: map[callKey]int32{}, appCause: make([]int32, len(src.Frames))}
 	res := &LatencyResult{
 		vectors:  opts.Vectors,
 		Inputs:   src.Inputs,
@@ -352,7 +350,8 @@ func (r *latencyRun) request(lo, hi int, entryIx map[string]int32, entries *[]*L
 		return reqRecord{}, false
 	}
 	rootPath := r.src.Paths.At(root)
-	name := entryName(r.src, r.t, r.w, &rootPath, r.t.Leaf(root), r.entryLabels)
+	r.wr.next(root, &r.rec)
+	name := r.wr.entryNames[r.rec.entry]
 	ei, ok := entryIx[name]
 	if !ok {
 		ei = int32(len(*entries))
@@ -445,7 +444,7 @@ func (r *latencyRun) assignRoles(lo int, cp *cpSpans, root int32, entry string) 
 		top := stack[len(stack)-1]
 		stack = stack[:len(stack)-1]
 		i, inherited := top[0], top[1]
-		role := r.role(lo+int(i), inherited, i == root, entry)
+		role := r.role(lo+int(i), inherited, i == root)
 		r.roles[i] = role
 		if role.call {
 			continue
@@ -459,37 +458,44 @@ func (r *latencyRun) assignRoles(lo int, cp *cpSpans, root int32, entry string) 
 // role charges span path pi: a boundary call to its root cause, an
 // application span to itself, an entry span to unaccounted, anything
 // else as its parent's own time (inherited).
-func (r *latencyRun) role(pi int, inherited int32, isRoot bool, entry string) spanRole {
-	src, t, w, c := r.src, r.t, r.w, r.c
-	p := src.Paths.At(pi)
-	leaf := t.Leaf(pi)
-	if b := w.boundary[leaf]; b != 0 {
-		if len(p.Frames) > t.Depth(b) {
-			return spanRole{cause: -1, call: true} // inside a call: never reached
-		}
-		kind := KindDatabase
-		if c.Verdict(t.Frame(b)).Class == Network {
-			kind = KindNetwork
-		}
-		if p.Call != 0 && src.Calls[p.Call].Connection {
+func (r *latencyRun) role(pi int, inherited int32, isRoot bool) spanRole {
+	src, t := r.src, r.t
+	ch := &r.rec
+	r.wr.next(pi, ch)
+	switch ch.state {
+	case chargeInside:
+		return spanRole{cause: -1, call: true} // inside a call: never reached
+	case chargeBoundary:
+		kind := ch.kind
+		if r.wr.details[ch.detail].kind == KindConnection {
 			// Waiting for a pool's connection: database cost, shown apart.
 			kind = KindConnection
 		}
-		if ra := w.lastApp[b]; ra != 0 {
-			if kind == KindConnection {
-				return spanRole{cause: r.cause(pathCause{function: src.Frames[t.Frame(ra)].Function, kind: kind}), call: true}
-			}
-			ci := r.callCause[b] - 1
-			if ci < 0 {
-				ci = r.cause(pathCause{function: src.Frames[t.Frame(ra)].Function, kind: kind})
-				r.callCause[b] = ci + 1
-			}
-			return spanRole{cause: ci, call: true}
+		k := callKey{kind: kind}
+		if len(ch.causes) > 0 {
+			k.node = ch.causes[len(ch.causes)-1] // the nearest, also in the inclusive view
+		} else {
+			k.entry = ch.entry
 		}
-		return spanRole{cause: r.cause(pathCause{function: NoAppFramePrefix + entry, kind: kind, noApp: true}), call: true}
+		ci, ok := r.callCause[k]
+		if !ok {
+			pc := pathCause{kind: kind}
+			if k.node != 0 {
+				pc.function = src.Frames[t.Frame(k.node)].Function
+			} else {
+				pc.function, pc.noApp = NoAppFramePrefix+r.wr.entryNames[ch.entry], true
+			}
+			ci = r.cause(pc)
+			r.callCause[k] = ci
+		}
+		return spanRole{cause: ci, call: true}
 	}
+	// Not a call: the span's own time is its function's if it is an
+	// application span, unaccounted for the request's entry span, else
+	// its parent's.
+	p := src.Paths.At(pi)
 	f := p.Frames[len(p.Frames)-1]
-	class, isEntry := c.class(f)
+	class, isEntry := r.c.class(f)
 	switch {
 	case isRoot || isEntry:
 		return spanRole{cause: r.unaccounted}
@@ -502,6 +508,14 @@ func (r *latencyRun) role(pi int, inherited int32, isRoot bool, entry string) sp
 		return spanRole{cause: ci}
 	}
 	return spanRole{cause: inherited}
+}
+
+// callKey identifies the cause of a call: its root-cause node, or with
+// none its entry point, and its kind.
+type callKey struct {
+	node  callgraph.NodeID
+	entry int32
+	kind  Kind
 }
 
 // summed adds each span's time below root to the current run: a call's

@@ -151,17 +151,16 @@ type LatencyKey struct {
 // RouteChange is one entry point's latency change. Relative changes and
 // their 95% intervals are nil where a side has no requests.
 type RouteChange struct {
-	Entry                  string         `json:"entry"`
-	BaseRequests           int            `json:"baseRequests"`
-	CandRequests           int            `json:"candRequests"`
-	P50                    QuantileChange `json:"p50"`
-	P95                    QuantileChange `json:"p95"`
-	Verdict                Outcome        `json:"verdict"`
-	VerdictQuantile        string         `json:"verdictQuantile"`
-	BootstrapResamples     int            `json:"bootstrapResamples"`
-	BootstrapConfidence    float64        `json:"bootstrapConfidence"`
-	BootstrapSeed          uint64         `json:"bootstrapSeed"`
-	baseVector, candVector []float64
+	Entry               string         `json:"entry"`
+	BaseRequests        int            `json:"baseRequests"`
+	CandRequests        int            `json:"candRequests"`
+	P50                 QuantileChange `json:"p50"`
+	P95                 QuantileChange `json:"p95"`
+	Verdict             Outcome        `json:"verdict"`
+	VerdictQuantile     string         `json:"verdictQuantile"`
+	BootstrapResamples  int            `json:"bootstrapResamples"`
+	BootstrapConfidence float64        `json:"bootstrapConfidence"`
+	BootstrapSeed       uint64         `json:"bootstrapSeed"`
 }
 
 // QuantileChange is the change of one latency quantile of an entry point.

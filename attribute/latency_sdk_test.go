@@ -30,7 +30,7 @@ func sdkExport(t *testing.T, spans []sdktrace.ReadOnlySpan) string {
 	kvs := func(as []otelattr.KeyValue) []*commonpb.KeyValue {
 		var out []*commonpb.KeyValue
 		for _, a := range as {
-			out = append(out, &commonpb.KeyValue{Key: string(a.Key), Value: &commonpb.AnyValue{Value: &commonpb.AnyValue_StringValue{StringValue: a.Value.Emit()}}})
+			out = append(out, &commonpb.KeyValue{Key: string(a.Key), Value: &commonpb.AnyValue{Value: &commonpb.AnyValue_StringValue{StringValue: a.Value.String()}}})
 		}
 		return out
 	}

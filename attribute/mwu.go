@@ -250,14 +250,6 @@ func Quantile(sorted []float64, q float64) float64 {
 	return x + f*(y-x)
 }
 
-// Median returns the median of x (any order, no NaN; x is not modified):
-// Quantile at 0.5 of a sorted copy. It returns NaN for an empty x.
-func Median(x []float64) float64 {
-	s := slices.Clone(x)
-	slices.Sort(s)
-	return Quantile(s, 0.5)
-}
-
 // resampleMean returns the mean of len(x) values drawn from x with replacement.
 func resampleMean(rng *rand.Rand, x []float64) float64 {
 	s := 0.0

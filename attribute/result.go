@@ -40,6 +40,9 @@ type Result struct {
 	Entries   []EntryTotal `json:"entryPoints"`
 	Causes    []*Cause     `json:"rootCauses"`
 	Findings  []Finding    `json:"findings"`
+	// Helpers lists the shared helpers seen through, by cost charged
+	// through them (descending), then name; empty when none was.
+	Helpers []SharedHelper `json:"sharedHelpers,omitempty"`
 	// Domains rolls root causes up into business domains (--domains);
 	// nil when no domains file was given.
 	Domains     []DomainTotal `json:"domains,omitempty"`
@@ -151,9 +154,12 @@ type Detail struct {
 	Statement   string `json:"statement"`
 	StatementID string `json:"statementId,omitempty"`
 	Peer        string `json:"peer,omitempty"`
-	Cost        int64  `json:"cost"`
-	Calls       int64  `json:"calls"`
-	Samples     int64  `json:"samples"`
+	// Via names the shared helper seen through on the way to the call
+	// (see SharedHelper); "" when the root cause called out itself.
+	Via     string `json:"via,omitempty"`
+	Cost    int64  `json:"cost"`
+	Calls   int64  `json:"calls"`
+	Samples int64  `json:"samples"`
 }
 
 // EntryShare is the cost a root cause incurred under one entry point.
@@ -210,7 +216,10 @@ func sortDetails(ds []Detail) {
 		if x.Kind != y.Kind {
 			return x.Kind < y.Kind
 		}
-		return x.System < y.System
+		if x.System != y.System {
+			return x.System < y.System
+		}
+		return x.Via < y.Via
 	})
 }
 

@@ -173,6 +173,9 @@ type Rules struct {
 	App []string `json:"app,omitempty"`
 	// Rules are tried in order.
 	Rules []Rule `json:"rules"`
+	// Helpers names shared access helpers to see through (function names,
+	// or prefixes ending at a '.' or '/'; see SharedHelper).
+	Helpers []string `json:"helpers,omitempty"`
 	// Files names the rules files that were merged in, for reports.
 	Files []string `json:"-"`
 }
@@ -204,8 +207,9 @@ func (e *RulesFileError) Unwrap() error { return e.Err }
 
 // rulesFile is the JSON schema of a user rules file.
 type rulesFile struct {
-	App   []string          `json:"app"`
-	Rules []json.RawMessage `json:"rules"`
+	App     []string          `json:"app"`
+	Rules   []json.RawMessage `json:"rules"`
+	Helpers []string          `json:"helpers"`
 }
 
 // ParseRulesFile reads a user rules file (JSON; schema in the README):
@@ -220,7 +224,7 @@ func ParseRulesFile(name string, r io.Reader) (*Rules, error) {
 	if err != nil {
 		return nil, err
 	}
-	out := &Rules{App: f.App, Files: []string{name}}
+	out := &Rules{App: f.App, Helpers: f.Helpers, Files: []string{name}}
 	// Locate each rule's start for error positions.
 	offsets := arrayOffsets(data, "rules", len(f.Rules))
 	for i, raw := range f.Rules {
@@ -327,6 +331,7 @@ func lineCol(data []byte, off int64) (line, col int) {
 func Merge(base, user *Rules) *Rules {
 	out := &Rules{}
 	out.App = append(append(out.App, user.App...), base.App...)
+	out.Helpers = append(append(out.Helpers, user.Helpers...), base.Helpers...)
 	out.Rules = append(append(out.Rules, user.Rules...), base.Rules...)
 	out.Files = append(append(out.Files, base.Files...), user.Files...)
 	return out

@@ -8,8 +8,8 @@ import (
 	"gonum.org/v1/gonum/mathext"
 )
 
-// rateConf is the confidence level of the intervals that PoissonRateTest and
-// Welch report.
+// rateConf is the confidence level of the intervals that PoissonRateTest
+// reports.
 const rateConf = 0.95
 
 // RateTest is the comparison of two event counts, each from a Poisson process
@@ -85,28 +85,6 @@ type NormalRateTest struct {
 	Valid bool
 }
 
-// PoissonRateNormal compares two Poisson counts as PoissonRateTest does, but by
-// the normal approximation to the conditional binomial (Rosner, Fundamentals of
-// Biostatistics, ch. 14). Counts are rounded; invalid input (as for
-// PoissonRateTest) or a zero total yields NaN fields and Valid false.
-func PoissonRateNormal(xb, xc float64, tb, tc float64) NormalRateTest {
-	xb, xc = math.Round(xb), math.Round(xc)
-	nan := math.NaN()
-	if !validCount(xb) || !validCount(xc) || !validExposure(tb) || !validExposure(tc) || xb+xc == 0 {
-		return NormalRateTest{nan, nan, nan, nan, nan, nan, false}
-	}
-	pi0 := tc / (tb + tc)
-	n := xb + xc
-	r := NormalRateTest{E: n * pi0, V: n * pi0 * (1 - pi0)}
-	r.Valid = r.V >= 5
-	d, sd := xc-r.E, math.Sqrt(r.V)
-	r.ZUncorrected = d / sd
-	r.Z = math.Copysign(math.Max(0, math.Abs(d)-0.5), d) / sd
-	r.PUncorrected = twoSidedNormal(r.ZUncorrected)
-	r.P = twoSidedNormal(r.Z)
-	return r
-}
-
 // ClopperPearson returns the exact (Clopper & Pearson, Biometrika 26, 1934)
 // two-sided confidence interval at level conf (e.g. 0.95) for a binomial
 // proportion with k successes in n trials. It returns (0, 1) when n is 0, and
@@ -124,24 +102,6 @@ func ClopperPearson(k, n int, conf float64) (lo, hi float64) {
 		hi = mathext.InvRegIncBeta(float64(k+1), float64(n-k), 1-a)
 	}
 	return lo, hi
-}
-
-// Wilson returns the score interval of Wilson (JASA 22, 1927) at level conf
-// for k successes in n trials; it behaves well for small k. It returns (0, 1)
-// when n is 0, and NaN bounds for k outside [0, n] or conf outside (0, 1).
-func Wilson(k, n int, conf float64) (lo, hi float64) {
-	if n < 0 || k < 0 || k > n || !(conf > 0 && conf < 1) {
-		return math.NaN(), math.NaN()
-	}
-	if n == 0 {
-		return 0, 1
-	}
-	z := normQuantile(1 - (1-conf)/2)
-	nf, p := float64(n), float64(k)/float64(n)
-	den := 1 + z*z/nf
-	mid := (p + z*z/(2*nf)) / den
-	half := z / den * math.Sqrt(p*(1-p)/nf+z*z/(4*nf*nf))
-	return math.Max(0, mid-half), math.Min(1, mid+half)
 }
 
 // BinomialSE returns the standard error √(p̂(1−p̂)/n) of the proportion
@@ -167,66 +127,6 @@ type WelchResult struct {
 	Lo, Hi float64
 }
 
-// Welch compares the mean of c (candidate) with the mean of b (base) by
-// Welch's t test (Welch, Biometrika 34, 1947) with the degrees of freedom of
-// Satterthwaite (Biometrics Bull. 2, 1946). Either side needs at least two
-// values, else every field is NaN. When both samples are constant, DF is NaN
-// and the test is decided by Diff alone: P is 1 if Diff is 0, else 0.
-func Welch(b, c []float64) WelchResult {
-	nan := math.NaN()
-	if len(b) < 2 || len(c) < 2 {
-		return WelchResult{nan, nan, nan, nan, nan, nan, nan}
-	}
-	mb, vb := meanVar(b)
-	mc, vc := meanVar(c)
-	vb, vc = vb/float64(len(b)), vc/float64(len(c))
-	r := WelchResult{Diff: mc - mb, SE: math.Sqrt(vb + vc)}
-	if r.SE == 0 {
-		r.T, r.DF, r.P, r.Lo, r.Hi = math.Copysign(math.Inf(1), r.Diff), nan, 0, r.Diff, r.Diff
-		if r.Diff == 0 {
-			r.T, r.P = 0, 1
-		}
-		return r
-	}
-	r.T = r.Diff / r.SE
-	r.DF = welchDF(vb, vc, len(b), len(c))
-	r.P = tTwoSided(r.T, r.DF)
-	w := tQuantile(1-(1-rateConf)/2, r.DF) * r.SE
-	r.Lo, r.Hi = r.Diff-w, r.Diff+w
-	return r
-}
-
-// FiellerRatio returns the ratio mean(c)/mean(b) and its confidence interval
-// at level conf by Fieller's theorem (Fieller, JRSS B 16, 1954) for two
-// independent samples, with the t quantile taken at Welch's degrees of
-// freedom. ok is false, and the bounds NaN, when the interval is unbounded
-// (t²·s_b²/n_b ≥ mean(b)², the base mean not clearly away from 0), when
-// either side has fewer than two values, or when conf is outside (0, 1).
-func FiellerRatio(b, c []float64, conf float64) (ratio, lo, hi float64, ok bool) {
-	nan := math.NaN()
-	if len(b) < 2 || len(c) < 2 || !(conf > 0 && conf < 1) {
-		return nan, nan, nan, false
-	}
-	mb, vb := meanVar(b)
-	mc, vc := meanVar(c)
-	vb, vc = vb/float64(len(b)), vc/float64(len(c))
-	ratio = mc / mb
-	if vb+vc == 0 {
-		if mb == 0 {
-			return ratio, nan, nan, false
-		}
-		return ratio, ratio, ratio, true
-	}
-	t := tQuantile(1-(1-conf)/2, welchDF(vb, vc, len(b), len(c)))
-	den := mb*mb - t*t*vb
-	if !(den > 0) {
-		return ratio, nan, nan, false
-	}
-	w := t * math.Sqrt(mc*mc*vb+mb*mb*vc-t*t*vc*vb)
-	lo, hi = (mc*mb-w)/den, (mc*mb+w)/den
-	return ratio, lo, hi, true
-}
-
 // BenjaminiHochberg returns the false-discovery-rate adjusted p-values
 // (q-values) of Benjamini & Hochberg (JRSS B 57, 1995), in the order of p:
 // q(i) = min over j ≥ i of min(1, m·p(j)/j) over the ascending order.
@@ -235,18 +135,6 @@ func FiellerRatio(b, c []float64, conf float64) (ratio, lo, hi float64, ok bool)
 // and do not count toward m. It returns nil for an empty p.
 func BenjaminiHochberg(p []float64) []float64 {
 	return stepUp(p, 1)
-}
-
-// BenjaminiYekutieli returns the adjusted p-values of Benjamini & Yekutieli
-// (Ann. Stat. 29, 2001), valid under any dependence: the Benjamini–Hochberg
-// values multiplied by Σ_{i≤m} 1/i and capped at 1. NaN entries are handled
-// as by BenjaminiHochberg.
-func BenjaminiYekutieli(p []float64) []float64 {
-	h := 0.0
-	for i := range countNotNaN(p) {
-		h += 1 / float64(i+1)
-	}
-	return stepUp(p, h)
 }
 
 // stepUp computes Benjamini–Hochberg adjusted values with every p-value
@@ -319,12 +207,6 @@ func meanVar(x []float64) (mean, variance float64) {
 	return mean, variance / float64(len(x)-1)
 }
 
-// welchDF returns the Welch–Satterthwaite degrees of freedom for squared
-// standard errors vb, vc of means of nb and nc values.
-func welchDF(vb, vc float64, nb, nc int) float64 {
-	return (vb + vc) * (vb + vc) / (vb*vb/float64(nb-1) + vc*vc/float64(nc-1))
-}
-
 // powerZ returns z_{1−α/2} + z_{power}, or NaN for arguments outside (0, 1).
 func powerZ(alpha, power float64) float64 {
 	if !(alpha > 0 && alpha < 1 && power > 0 && power < 1) {
@@ -335,16 +217,6 @@ func powerZ(alpha, power float64) float64 {
 
 func validCount(x float64) bool    { return x >= 0 && x <= 1<<53 }
 func validExposure(t float64) bool { return t > 0 && !math.IsInf(t, 1) }
-
-func countNotNaN(p []float64) int {
-	n := 0
-	for _, v := range p {
-		if !math.IsNaN(v) {
-			n++
-		}
-	}
-	return n
-}
 
 // normSF returns P[Z > z] for a standard normal Z, accurate in the far tail.
 func normSF(z float64) float64 { return 0.5 * math.Erfc(z/math.Sqrt2) }
@@ -358,39 +230,6 @@ func normQuantile(p float64) float64 {
 		return math.NaN()
 	}
 	return mathext.NormalQuantile(p)
-}
-
-// tTwoSided returns P[|T| ≥ |t|] for Student's t with df > 0 degrees of
-// freedom, via the regularized incomplete beta function I_{df/(df+t²)}(df/2, 1/2).
-func tTwoSided(t, df float64) float64 {
-	switch {
-	case math.IsNaN(t) || !(df > 0):
-		return math.NaN()
-	case math.IsInf(t, 0):
-		return 0
-	case math.IsInf(df, 1):
-		return twoSidedNormal(t)
-	}
-	return mathext.RegIncBeta(df/2, 0.5, df/(df+t*t))
-}
-
-// tQuantile returns the p quantile of Student's t with df > 0 degrees of
-// freedom, NaN for p outside (0, 1).
-func tQuantile(p, df float64) float64 {
-	switch {
-	case !(p > 0 && p < 1) || !(df > 0):
-		return math.NaN()
-	case math.IsInf(df, 1):
-		return normQuantile(p)
-	case p == 0.5:
-		return 0
-	}
-	x := mathext.InvRegIncBeta(df/2, 0.5, 2*math.Min(p, 1-p))
-	y := math.Sqrt(df * (1 - x) / x)
-	if p < 0.5 {
-		return -y
-	}
-	return y
 }
 
 // binomCDF returns P[X ≤ k] for X ~ Bin(n, p), p in [0, 1], as the

@@ -45,61 +45,6 @@ func checkNear(t *testing.T, what string, got, want, tol float64) {
 	}
 }
 
-func TestPoissonRateNormal(t *testing.T) {
-	tests := []struct {
-		name           string
-		xb, xc, tb, tc float64
-		e, v, z, p     string
-		zRaw, pRaw     string
-	}{
-		// Rosner, Fundamentals of Biostatistics, ch. 14, oral-contraceptive
-		// example [pub (unconfirmed), recomputed consistent]: 9 cases in 2,935
-		// person-years (candidate) vs 239 in 135,130 (base).
-		{name: "rosner ch14", xb: 239, xc: 9, tb: 135130, tc: 2935, e: "5.272", v: "5.160", z: "1.421", p: "0.155"},
-		// [comp] 120 vs 180 samples, equal exposure: z = 3.464 uncorrected.
-		{name: "120 vs 180", xb: 120, xc: 180, tb: 1, tc: 1, e: "150", zRaw: "3.464"},
-		// [comp] 100 vs 130 per 1,000 requests: uncorrected p = 0.0479,
-		// corrected 0.0559.
-		{name: "100 vs 130", xb: 100, xc: 130, tb: 1000, tc: 1000, p: "0.0559", pRaw: "0.0479"},
-	}
-	for _, tt := range tests {
-		t.Run(tt.name, func(t *testing.T) {
-			r := PoissonRateNormal(tt.xb, tt.xc, tt.tb, tt.tc)
-			if !r.Valid {
-				t.Errorf("Valid = false with V = %g", r.V)
-			}
-			for _, c := range []struct {
-				what string
-				got  float64
-				want string
-			}{
-				{"E", r.E, tt.e}, {"V", r.V, tt.v}, {"Z", r.Z, tt.z}, {"P", r.P, tt.p},
-				{"ZUncorrected", r.ZUncorrected, tt.zRaw}, {"PUncorrected", r.PUncorrected, tt.pRaw},
-			} {
-				if c.want != "" {
-					checkPub(t, c.what, c.got, c.want)
-				}
-			}
-		})
-	}
-	t.Run("invalid", func(t *testing.T) {
-		for _, r := range []NormalRateTest{
-			PoissonRateNormal(0, 0, 1, 1),
-			PoissonRateNormal(-1, 3, 1, 1),
-			PoissonRateNormal(1, 3, 0, 1),
-		} {
-			if r.Valid || !math.IsNaN(r.P) {
-				t.Errorf("got %+v, want NaN and not valid", r)
-			}
-		}
-	})
-	t.Run("small variance not valid", func(t *testing.T) {
-		if r := PoissonRateNormal(3, 4, 1, 1); r.Valid {
-			t.Errorf("V = %g: Valid = true, want false (V < 5)", r.V)
-		}
-	})
-}
-
 func TestPoissonRateTest(t *testing.T) {
 	tests := []struct {
 		name           string
@@ -217,10 +162,13 @@ func TestPoissonRateTest(t *testing.T) {
 	})
 
 	t.Run("large counts", func(t *testing.T) {
-		// 10⁸ vs 1.0001·10⁸: z = 10⁴/√(n/4) ≈ 0.707, p ≈ 0.4796 (normal
-		// approximation, computed by hand); the exact test must agree closely.
+		// 10⁸ vs 1.0001·10⁸: given n = 2.0001·10⁸, xc is binomial(n, ½)
+		// under the null, z = (xc − n/2)/(√n/2) ≈ 0.707, p = erfc(z/√2) ≈
+		// 0.4795 (normal approximation, computed by hand); the exact test
+		// must agree closely.
 		r := PoissonRateTest(1e8, 1.0001e8, 1, 1)
-		checkNear(t, "P", r.P, PoissonRateNormal(1e8, 1.0001e8, 1, 1).PUncorrected, 1e-4)
+		z := (1.0001e8 - 2.0001e8/2) / (math.Sqrt(2.0001e8) / 2)
+		checkNear(t, "P", r.P, math.Erfc(z/math.Sqrt2), 1e-4)
 		checkNear(t, "Lo", r.Lo, r.WaldLo, 1e-6)
 		checkNear(t, "Hi", r.Hi, r.WaldHi, 1e-6)
 	})
@@ -272,29 +220,10 @@ func TestClopperPearson(t *testing.T) {
 	})
 }
 
-func TestWilsonAndBinomialSE(t *testing.T) {
+func TestBinomialSE(t *testing.T) {
 	t.Run("profile share", func(t *testing.T) {
 		// [comp] methods §7: n = 3,000 samples, p̂ = 0.10 → SE 0.548 pp.
 		checkPub(t, "SE (pp)", 100*BinomialSE(300, 3000), "0.548")
-		// [comp] Wilson interval (Wilson, JASA 22, 1927): 3/3,000 → (0.034 %, 0.294 %).
-		lo, hi := Wilson(3, 3000, 0.95)
-		checkPub(t, "lo (%)", 100*lo, "0.034")
-		checkPub(t, "hi (%)", 100*hi, "0.294")
-	})
-	t.Run("symmetry and range", func(t *testing.T) {
-		lo, hi := Wilson(2, 20, 0.95)
-		lo2, hi2 := Wilson(18, 20, 0.95)
-		checkNear(t, "lo", lo, 1-hi2, 1e-12)
-		checkNear(t, "hi", hi, 1-lo2, 1e-12)
-		if lo, hi := Wilson(0, 7, 0.95); lo != 0 || !(hi > 0 && hi < 1) {
-			t.Errorf("Wilson(0, 7) = (%g, %g), want lo 0 and hi in (0, 1)", lo, hi)
-		}
-		if lo, hi := Wilson(0, 0, 0.95); lo != 0 || hi != 1 {
-			t.Errorf("Wilson(0, 0) = (%g, %g), want (0, 1)", lo, hi)
-		}
-		if lo, _ := Wilson(4, 3, 0.95); !math.IsNaN(lo) {
-			t.Errorf("Wilson(4, 3) lo = %g, want NaN", lo)
-		}
 	})
 	t.Run("SE invalid", func(t *testing.T) {
 		for _, kn := range [][2]int{{0, 0}, {-1, 4}, {5, 4}} {
@@ -305,78 +234,6 @@ func TestWilsonAndBinomialSE(t *testing.T) {
 		if se := BinomialSE(0, 10); se != 0 {
 			t.Errorf("BinomialSE(0, 10) = %g, want 0", se)
 		}
-	})
-}
-
-func TestWelchAndFieller(t *testing.T) {
-	// [comp] methods §4 and §6 (Welch, Biometrika 34, 1947; Fieller, JRSS B 16, 1954).
-	b := []float64{12.1, 11.8, 12.6, 13.0, 12.2}
-	c := []float64{13.4, 12.9, 14.8, 13.9, 15.1}
-	t.Run("welch", func(t *testing.T) {
-		r := Welch(b, c)
-		checkPub(t, "Diff", r.Diff, "1.68")
-		checkPub(t, "T", r.T, "3.6232")
-		checkPub(t, "DF", r.DF, "5.911")
-		checkPub(t, "P", r.P, "0.01134")
-		checkPub(t, "Lo", r.Lo, "0.541")
-		checkPub(t, "Hi", r.Hi, "2.819")
-	})
-	t.Run("fieller", func(t *testing.T) {
-		ratio, lo, hi, ok := FiellerRatio(b, c, 0.95)
-		if !ok {
-			t.Fatal("ok = false, want a bounded interval")
-		}
-		checkPub(t, "ratio", ratio, "1.1361")
-		checkPub(t, "lo", lo, "1.0430")
-		checkPub(t, "hi", hi, "1.2332")
-	})
-	t.Run("welch degenerate", func(t *testing.T) {
-		if r := Welch([]float64{1}, c); !math.IsNaN(r.P) || !math.IsNaN(r.Diff) {
-			t.Errorf("one value: %+v, want NaN", r)
-		}
-		r := Welch([]float64{2, 2, 2}, []float64{2, 2})
-		if r.P != 1 || r.T != 0 || r.Lo != 0 || r.Hi != 0 {
-			t.Errorf("equal constants: %+v, want T 0, P 1, CI (0, 0)", r)
-		}
-		r = Welch([]float64{2, 2, 2}, []float64{3, 3})
-		if r.P != 0 || !math.IsInf(r.T, 1) || r.Lo != 1 {
-			t.Errorf("different constants: %+v, want T +Inf, P 0", r)
-		}
-		// One constant side: DF = n−1 of the other (Satterthwaite's formula
-		// reduces to it; computed by hand).
-		r = Welch([]float64{5, 5, 5}, []float64{4, 6, 7, 3})
-		checkNear(t, "DF", r.DF, 3, 1e-12)
-	})
-	t.Run("fieller unbounded", func(t *testing.T) {
-		// Base mean near 0 relative to its error: the confidence set is not an
-		// interval.
-		if _, lo, hi, ok := FiellerRatio([]float64{-1, 1, 0.5, -0.3}, c, 0.95); ok || !math.IsNaN(lo) || !math.IsNaN(hi) {
-			t.Errorf("ok = %v (%g, %g), want false and NaN", ok, lo, hi)
-		}
-		if _, _, _, ok := FiellerRatio(b, c, 1.5); ok {
-			t.Error("conf 1.5 accepted")
-		}
-		ratio, lo, hi, ok := FiellerRatio([]float64{2, 2}, []float64{3, 3, 3}, 0.95)
-		if !ok || ratio != 1.5 || lo != 1.5 || hi != 1.5 {
-			t.Errorf("constants: (%g, %g, %g, %v), want 1.5 exactly", ratio, lo, hi, ok)
-		}
-	})
-	t.Run("fieller contains ratio and approaches delta", func(t *testing.T) {
-		// Large samples with small error: Fieller ≈ ratio ± z·SE (delta method).
-		rng := rand.New(rand.NewPCG(7, 7))
-		var bb, cc []float64
-		for range 4000 {
-			bb = append(bb, 100+10*rng.NormFloat64())
-			cc = append(cc, 120+10*rng.NormFloat64())
-		}
-		ratio, lo, hi, ok := FiellerRatio(bb, cc, 0.95)
-		if !ok || !(lo < ratio && ratio < hi) {
-			t.Fatalf("(%g, %g, %g, %v)", ratio, lo, hi, ok)
-		}
-		mb, vb := meanVar(bb)
-		mc, vc := meanVar(cc)
-		se := ratio * math.Sqrt(vb/4000/(mb*mb)+vc/4000/(mc*mc))
-		checkNear(t, "half width", (hi-lo)/2, 1.959964*se, 1e-3*se+1e-6)
 	})
 }
 
@@ -410,27 +267,6 @@ func TestFalseDiscoveryRate(t *testing.T) {
 		got := BenjaminiHochberg(shuffled)
 		for i, j := range perm {
 			checkNear(t, "q", got[i], want[j], 0)
-		}
-	})
-	t.Run("by", func(t *testing.T) {
-		// Benjamini & Yekutieli, Ann. Stat. 29, 2001: BH values times
-		// Σ_{i≤15} 1/i = 3.318229, capped at 1 (computed by hand from the
-		// definition): q(1) = 15·3.318229·0.0001/1 = 0.004977.
-		q := BenjaminiYekutieli(p)
-		checkPub(t, "q[0]", q[0], "0.004977")
-		checkPub(t, "q[2]", q[2], "0.03152")
-		bh := BenjaminiHochberg(p)
-		rejected := 0
-		for i := range q {
-			if q[i] < bh[i] || q[i] > 1 {
-				t.Errorf("q[%d] = %g outside [BH %g, 1]", i, q[i], bh[i])
-			}
-			if q[i] <= 0.05 {
-				rejected++
-			}
-		}
-		if rejected != 3 {
-			t.Errorf("BY rejected %d at 0.05, want 3", rejected)
 		}
 	})
 	t.Run("nan and empty", func(t *testing.T) {
@@ -527,28 +363,6 @@ func TestDistributionTails(t *testing.T) {
 		checkNear(t, "normSF(10)", normSF(10)/7.6198530241605e-24, 1, 1e-6)
 		if v := normQuantile(1.2); !math.IsNaN(v) {
 			t.Errorf("normQuantile(1.2) = %g, want NaN", v)
-		}
-	})
-	t.Run("student t", func(t *testing.T) {
-		for _, df := range []float64{1, 2.5, 5.911, 10, 30, 1000} {
-			d := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: df}
-			for _, x := range []float64{-12, -3, -1, -0.1, 0, 0.5, 2, 4, 40} {
-				checkNear(t, "tTwoSided", tTwoSided(x, df), 2*d.Survival(math.Abs(x)), 1e-12)
-			}
-			for _, p := range []float64{0.005, 0.025, 0.3, 0.5, 0.9, 0.975} {
-				checkNear(t, "tQuantile", tQuantile(p, df), d.Quantile(p), 1e-9)
-			}
-		}
-		// Student's t table (recalled from memory): t_{0.975, 5} = 2.570582,
-		// t_{0.975, 30} = 2.042272.
-		checkPub(t, "t_0.975,5", tQuantile(0.975, 5), "2.570582")
-		checkPub(t, "t_0.975,30", tQuantile(0.975, 30), "2.042272")
-		checkNear(t, "infinite df", tTwoSided(1.96, math.Inf(1)), twoSidedNormal(1.96), 0)
-		if v := tTwoSided(1, 0); !math.IsNaN(v) {
-			t.Errorf("df 0: %g, want NaN", v)
-		}
-		if v := tQuantile(0, 5); !math.IsNaN(v) {
-			t.Errorf("p 0: %g, want NaN", v)
 		}
 	})
 }

@@ -118,7 +118,7 @@ func (a *causeAcc) add(val, samples, calls int64, kind Kind, did int32, dk *deta
 	}
 	pd := slot(&a.details, int(did))
 	if *pd == nil {
-		*pd = &Detail{Kind: dk.kind, System: dk.system, Statement: dk.statement, Peer: dk.peer}
+		*pd = dk.newDetail()
 	}
 	d := *pd
 	d.Cost += val

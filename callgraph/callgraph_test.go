@@ -6,7 +6,6 @@ import (
 	"testing"
 
 	"github.com/culprithq/culprit/traces"
-	"gonum.org/v1/gonum/graph/topo"
 )
 
 // source builds a profile source from paths of function names, root first.
@@ -42,89 +41,60 @@ func TestTreeAndGraphMethodsExample(t *testing.T) {
 		t.Errorf("tree has %d nodes, want 12", tree.Len())
 	}
 	mainNode := tree.Parent(tree.Parent(tree.Parent(tree.Leaf(0))))
-	if got := tree.Total(mainNode, 0); got != 65 {
+	if got := total(tree, mainNode); got != 65 {
 		t.Errorf("total(main) = %d, want 65", got)
 	}
-	if got := tree.Self(tree.Leaf(2), 0); got != 20 {
+	if got := self(tree, tree.Leaf(2)); got != 20 {
 		t.Errorf("self(render) = %d, want 20", got)
 	}
 
-	g := NewGraph(tree, 0)
-	cum := map[string]int64{"main": 65, "handler": 60, "walk": 5, "sql.Query": 45, "loadOrders": 30}
-	for name, want := range cum {
-		id, ok := g.Lookup(name)
-		if !ok || g.Cum(id) != want {
-			t.Errorf("cum(%s) = %d, want %d", name, g.Cum(id), want)
-		}
-	}
-	walk, _ := g.Lookup("walk")
-	if w, ok := g.EdgeValue(walk, walk); !ok || w != 5 {
-		t.Errorf("walk→walk = %d, %v; want 5 (once per path)", w, ok)
-	}
-	sqlq, _ := g.Lookup("sql.Query")
-	if g.Flat(sqlq) != 45 {
-		t.Errorf("flat(sql.Query) = %d", g.Flat(sqlq))
-	}
-	// gonum's Tarjan SCC works over the graph, self-edge included.
-	var recursive []string
-	for _, scc := range topo.TarjanSCC(g) {
-		id := scc[0].ID()
-		if len(scc) > 1 || g.HasEdgeFromTo(id, id) {
-			recursive = append(recursive, g.Name(FuncID(id)))
-		}
-	}
-	if len(recursive) != 1 || recursive[0] != "walk" {
-		t.Errorf("recursive functions = %v, want [walk]", recursive)
-	}
 }
 
 // A merged graph can show a cycle that no path has (methods reference
 // §1: main>A>B>db plus main>B>A>render make A↔B a cycle).
-func TestGraphMergedCycle(t *testing.T) {
-	order := []string{"main>A>B>db", "main>B>A>render"}
-	src := source(map[string]int64{order[0]: 1, order[1]: 1}, order)
-	g := NewGraph(NewTree(src, TreeOptions{}), 0)
-	a, _ := g.Lookup("A")
-	b, _ := g.Lookup("B")
-	if !g.HasEdgeFromTo(int64(a), int64(b)) || !g.HasEdgeFromTo(int64(b), int64(a)) {
-		t.Fatal("expected the merged A↔B cycle")
-	}
-	sccs := topo.TarjanSCC(g)
-	found := false
-	for _, scc := range sccs {
-		if len(scc) == 2 {
-			found = true
+func TestFuncGraphMergedCycle(t *testing.T) {
+	// Functions: 0 main, 1 A, 2 B, 3 walk, 4 db. Calls from the paths
+	// main>A>B>db, main>B>A, main>walk>walk>db (a repeated call too).
+	g := NewFuncGraph(5, callsOf(0, 1, 1, 2, 2, 4, 0, 2, 2, 1, 0, 3, 3, 3, 3, 4, 0, 1))
+	got := g.Recursive()
+	want := []bool{false, true, true, true, false}
+	for i := range want {
+		if got[i] != want[i] {
+			t.Errorf("Recursive()[%d] = %v, want %v (A↔B merged cycle, walk self-call)", i, got[i], want[i])
 		}
-	}
-	if !found {
-		t.Error("Tarjan SCC should report the merged cycle as a candidate")
 	}
 }
 
-func TestTreeGonumInterface(t *testing.T) {
+// TestFuncGraphTarjanExample runs the 8-node example of Cormen,
+// Leiserson, Rivest and Stein, "Introduction to Algorithms", 3rd ed.,
+// Fig. 22.9 (edges recalled from memory): components {a,b,e}, {c,d},
+// {f,g} and {h}, where h calls itself.
+func TestFuncGraphTarjanExample(t *testing.T) {
+	const a, b, c, d, e, f, g, h = 0, 1, 2, 3, 4, 5, 6, 7
+	gr := NewFuncGraph(8, callsOf(a, b, b, c, b, e, b, f, c, d, c, g, d, c, d, h, e, a, e, f, f, g, g, f, g, h, h, h))
+	got := gr.Recursive()
+	for i, w := range []bool{true, true, true, true, true, true, true, true} {
+		if got[i] != w {
+			t.Errorf("node %d on a cycle = %v, want %v", i, got[i], w)
+		}
+	}
+	// Without h's self-call h is a component of one: not recursive.
+	gr = NewFuncGraph(8, callsOf(a, b, b, c, b, e, b, f, c, d, c, g, d, c, d, h, e, a, e, f, f, g, g, f, g, h))
+	if got := gr.Recursive(); got[h] || !got[a] || !got[c] || !got[f] {
+		t.Errorf("without the self-call: %v, want all but h", got)
+	}
+}
+
+func TestTreeSharedPrefix(t *testing.T) {
 	order := []string{"a>b", "a>c"}
 	src := source(map[string]int64{"a>b": 2, "a>c": 3}, order)
 	tree := NewTree(src, TreeOptions{})
 	a := tree.Parent(tree.Leaf(0))
-	if !tree.HasEdgeFromTo(int64(a), int64(tree.Leaf(1))) || tree.HasEdgeFromTo(int64(tree.Leaf(0)), int64(a)) {
-		t.Error("edge direction wrong")
+	if tree.Parent(tree.Leaf(1)) != a || total(tree, a) != 5 {
+		t.Error("b and c must share their parent a, of total 5")
 	}
-	if w, ok := tree.Weight(int64(a), int64(tree.Leaf(1))); !ok || w != 3 {
-		t.Errorf("weight = %v, %v", w, ok)
-	}
-	if n := tree.From(int64(a)).Len(); n != 2 {
-		t.Errorf("a has %d children", n)
-	}
-	var visited []string
-	tree.Walk(func(n NodeID) bool {
-		visited = append(visited, src.Frames[tree.Frame(n)].Function)
-		return true
-	})
-	if len(visited) != 3 || visited[0] != "a" || visited[1] != "b" {
-		t.Errorf("walk order = %v, want [a b c]", visited)
-	}
-	if _, err := topo.Sort(tree); err != nil {
-		t.Errorf("a calling-context tree is acyclic: %v", err)
+	if got := tree.Path(tree.Leaf(1)); len(got) != 2 || src.Frames[got[0]].Function != "a" || src.Frames[got[1]].Function != "c" {
+		t.Errorf("path of a>c = %v", got)
 	}
 }
 
@@ -136,10 +106,9 @@ func TestTreeDeepRecursionNoStackOverflow(t *testing.T) {
 		frames[i] = f
 	}
 	src.Paths.Append(traces.Path{Frames: frames, Values: []int64{1}})
-	g := NewGraph(NewTree(src, TreeOptions{}), 0)
-	id, _ := g.Lookup("rec")
-	if g.Cum(id) != 1 {
-		t.Errorf("cum = %d, want 1", g.Cum(id))
+	tree := NewTree(src, TreeOptions{})
+	if tree.Len() != 100_001 || tree.Depth(tree.Leaf(0)) != 100_000 || len(tree.Path(tree.Leaf(0))) != 100_000 {
+		t.Errorf("tree of %d nodes, leaf depth %d", tree.Len(), tree.Depth(tree.Leaf(0)))
 	}
 }
 
@@ -189,13 +158,56 @@ func TestTreeWideNodes(t *testing.T) {
 	if got, want := tree.Len(), 1+1+20+40; got != want {
 		t.Fatalf("tree has %d nodes, want %d", got, want)
 	}
-	main := tree.Children(Root)[0]
-	if n := len(tree.Children(main)); n != 20 {
-		t.Errorf("main has %d children, want 20", n)
-	}
-	for _, c := range tree.Children(main) {
-		if tree.Total(c, 0) != 3 {
-			t.Errorf("%s: total %d, want 3", tree.src.Frames[tree.Frame(c)].Function, tree.Total(c, 0))
+	main := tree.Parent(tree.Parent(tree.Leaf(0)))
+	var children []NodeID
+	for n := range tree.Len() {
+		if n > 0 && tree.Parent(NodeID(n)) == main {
+			children = append(children, NodeID(n))
 		}
 	}
+	if n := len(children); n != 20 {
+		t.Errorf("main has %d children, want 20", n)
+	}
+	for _, c := range children {
+		if total(tree, c) != 3 {
+			t.Errorf("%s: total %d, want 3", tree.src.Frames[tree.Frame(c)].Function, total(tree, c))
+		}
+	}
+}
+
+// self adds up the first value of the paths that end at n.
+func self(t *Tree, n NodeID) int64 {
+	var v int64
+	for pi := range t.src.Paths.Len() {
+		if t.Leaf(pi) == n {
+			v += t.src.Paths.Value(pi, 0)
+		}
+	}
+	return v
+}
+
+// total adds up the first value of the paths through n.
+func total(t *Tree, n NodeID) int64 {
+	var v int64
+	for pi := range t.src.Paths.Len() {
+		for m := t.Leaf(pi); ; m = t.Parent(m) {
+			if m == n {
+				v += t.src.Paths.Value(pi, 0)
+				break
+			}
+			if m == Root {
+				break
+			}
+		}
+	}
+	return v
+}
+
+// callsOf collects the calls caller0, callee0, caller1, callee1, ….
+func callsOf(ends ...FuncID) *Calls {
+	var c Calls
+	for i := 0; i+1 < len(ends); i += 2 {
+		c.Add(ends[i], ends[i+1])
+	}
+	return &c
 }

@@ -1,22 +1,26 @@
-// Package callgraph turns a traces.Source into two graphs.
+// Package callgraph holds culprit's two graphs of calls.
 //
 // The Tree is a calling-context tree (Ammons, Ball and Larus, "Exploiting
 // hardware performance counters with flow and context sensitive
-// profiling", PLDI 1997): one node per distinct call path prefix, so cost
-// stays with the path that incurred it. Paths that share a prefix share
-// nodes; recursion makes the tree deeper, never cyclic. Every path of the
-// source maps to the node of its leaf (Tree.Leaf).
+// profiling", PLDI 1997) built from a traces.Source: one node per
+// distinct call path prefix, so cost stays with the path that incurred
+// it. Paths that share a prefix share nodes; recursion makes the tree
+// deeper, never cyclic. Every path of the source maps to the node of its
+// leaf (Tree.Leaf), and every node's ID is greater than its parent's, so
+// one pass in ID order sees parents first.
 //
-// The Graph is the function-level call graph derived from the tree: one
-// node per distinct function name, one edge per caller→callee pair seen on
-// any path. Recursion shows up as self-edges and cycles. Edge and node
-// weights count each path at most once even when recursion repeats a
-// function or an edge on it, so inclusive values never exceed the total.
+// The FuncGraph is a function-level call graph: one node per function,
+// one edge per caller → callee pair, with the functions and edges chosen
+// by its builder (attribution builds the graph of application functions
+// above database and network calls). Merging paths makes recursion a
+// cycle, and can make cycles no path has: FuncGraph.Recursive finds the
+// functions on cycles (strongly connected components, with gonum's
+// topo.TarjanSCC) as candidates to confirm on the paths.
 //
-// Both types implement gonum's graph interfaces (graph.WeightedDirected)
-// with their own storage: gonum's simple graphs panic on self-edges and
-// replace weights on re-set, neither of which suits profiles.
+// The Digraph is a small named graph with DOT attributes for export.
 //
-// Neither type does I/O; both are immutable after construction and safe
-// for concurrent reads.
+// gonum's graph interfaces are implemented by unexported types: no gonum
+// type is part of FuncGraph's or Tree's API. The types do no I/O and are
+// immutable after construction and safe for concurrent reads (Digraph
+// while it is being built excepted).
 package callgraph

@@ -1,12 +1,7 @@
 package callgraph
 
 import (
-	"slices"
-	"sync"
-
 	"github.com/culprithq/culprit/traces"
-	"gonum.org/v1/gonum/graph"
-	"gonum.org/v1/gonum/graph/iterator"
 )
 
 // NodeID identifies a Tree node. The root is node 0, a virtual node above
@@ -30,20 +25,14 @@ type treeNode struct {
 // cheaper than hashing, and keeps the map small.
 const listedChildren = 8
 
-// Tree is a weighted calling-context tree. Build one with NewTree.
+// Tree is a calling-context tree. Build one with NewTree. The values stay
+// on the source's paths: each path maps to its leaf node (Leaf), and
+// whoever needs a node's value adds up the paths through it.
 type Tree struct {
 	src   *traces.Source
 	nodes []treeNode
-	nv    int
-	// self and total are made on first use (attribution needs neither):
-	// len(nodes)*nv values of the paths ending at each node, and of
-	// those through it.
-	sums        sync.Once
-	self, total []int64
-	leaf        []NodeID
+	leaf  []NodeID
 }
-
-var _ graph.WeightedDirected = (*Tree)(nil)
 
 // TreeOptions control NewTree. The zero value keeps every frame.
 type TreeOptions struct {
@@ -59,13 +48,11 @@ type TreeOptions struct {
 
 // NewTree merges the paths of src by common prefix.
 func NewTree(src *traces.Source, opts TreeOptions) *Tree {
-	nv := len(src.ValueTypes)
 	t := &Tree{
 		src: src,
 		// The bound counts whole paths; capacity beyond what is used is
 		// never touched, so it costs address space, not memory.
 		nodes: make([]treeNode, 1, newNodesBound(src)+1),
-		nv:    nv,
 		leaf:  make([]NodeID, src.Paths.Len()),
 	}
 	b := treeBuilder{t: t, index: map[uint64]NodeID{}, children: make([]uint8, 1, cap(t.nodes))}
@@ -201,47 +188,6 @@ func (t *Tree) Parent(n NodeID) NodeID { return t.nodes[n].parent }
 // Depth returns the number of frames on n's path (0 for the root).
 func (t *Tree) Depth(n NodeID) int { return int(t.nodes[n].depth) }
 
-// Children returns n's children, most recently created first.
-func (t *Tree) Children(n NodeID) []NodeID {
-	var out []NodeID
-	for c := t.nodes[n].firstChild; c != 0; c = t.nodes[c].nextSibling {
-		out = append(out, c)
-	}
-	return out
-}
-
-// Self returns value v summed over the paths that end at n.
-func (t *Tree) Self(n NodeID, v int) int64 {
-	t.sums.Do(t.sum)
-	return t.self[int(n)*t.nv+v]
-}
-
-// Total returns value v summed over the paths through n. For a Spans
-// source nested spans are counted at every level (see traces.Kind).
-func (t *Tree) Total(n NodeID, v int) int64 {
-	t.sums.Do(t.sum)
-	return t.total[int(n)*t.nv+v]
-}
-
-// sum adds the paths' values up into self and total.
-func (t *Tree) sum() {
-	nv, paths := t.nv, &t.src.Paths
-	t.self = make([]int64, len(t.nodes)*nv)
-	for pi := range paths.Len() {
-		base := int(t.leaf[pi]) * nv
-		for v := range nv {
-			t.self[base+v] += paths.Value(pi, v)
-		}
-	}
-	t.total = slices.Clone(t.self)
-	for n := len(t.nodes) - 1; n > 0; n-- {
-		pb := int(t.nodes[n].parent) * nv
-		for v := range nv {
-			t.total[pb+v] += t.total[n*nv+v]
-		}
-	}
-}
-
 // Path returns the frames from the root's first child down to n.
 func (t *Tree) Path(n NodeID) []traces.FrameID {
 	out := make([]traces.FrameID, t.nodes[n].depth)
@@ -251,121 +197,3 @@ func (t *Tree) Path(n NodeID) []traces.FrameID {
 	}
 	return out
 }
-
-// Walk calls visit for every node but the root in depth-first pre-order,
-// children in creation order. It uses no recursion, so arbitrarily deep
-// trees are safe. If visit returns false the node's subtree is skipped.
-func (t *Tree) Walk(visit func(n NodeID) bool) {
-	// Children are linked newest first, so pushing them in link order
-	// leaves the oldest on top of the stack.
-	stack := make([]NodeID, 0, 64)
-	pushChildren := func(n NodeID) {
-		for c := t.nodes[n].firstChild; c != 0; c = t.nodes[c].nextSibling {
-			stack = append(stack, c)
-		}
-	}
-	pushChildren(Root)
-	for len(stack) > 0 {
-		n := stack[len(stack)-1]
-		stack = stack[:len(stack)-1]
-		if visit(n) {
-			pushChildren(n)
-		}
-	}
-}
-
-// Node implements graph.Graph. IDs are NodeIDs.
-func (t *Tree) Node(id int64) graph.Node {
-	if id < 0 || id >= int64(len(t.nodes)) {
-		return nil
-	}
-	return TreeNode{tree: t, id: NodeID(id)}
-}
-
-// Nodes implements graph.Graph, in ID order.
-func (t *Tree) Nodes() graph.Nodes {
-	ns := make([]graph.Node, len(t.nodes))
-	for i := range ns {
-		ns[i] = TreeNode{tree: t, id: NodeID(i)}
-	}
-	return iterator.NewOrderedNodes(ns)
-}
-
-// From implements graph.Directed: the children of id.
-func (t *Tree) From(id int64) graph.Nodes {
-	if id < 0 || id >= int64(len(t.nodes)) {
-		return graph.Empty
-	}
-	var ns []graph.Node
-	for c := t.nodes[id].firstChild; c != 0; c = t.nodes[c].nextSibling {
-		ns = append(ns, TreeNode{tree: t, id: c})
-	}
-	return iterator.NewOrderedNodes(ns)
-}
-
-// To implements graph.Directed: the parent of id, if any.
-func (t *Tree) To(id int64) graph.Nodes {
-	if id <= 0 || id >= int64(len(t.nodes)) {
-		return graph.Empty
-	}
-	return iterator.NewOrderedNodes([]graph.Node{TreeNode{tree: t, id: t.nodes[id].parent}})
-}
-
-// HasEdgeFromTo implements graph.Directed.
-func (t *Tree) HasEdgeFromTo(uid, vid int64) bool {
-	return vid > 0 && vid < int64(len(t.nodes)) && uid >= 0 && int64(t.nodes[vid].parent) == uid
-}
-
-// HasEdgeBetween implements graph.Graph.
-func (t *Tree) HasEdgeBetween(xid, yid int64) bool {
-	return t.HasEdgeFromTo(xid, yid) || t.HasEdgeFromTo(yid, xid)
-}
-
-// Edge implements graph.Graph.
-func (t *Tree) Edge(uid, vid int64) graph.Edge { return t.WeightedEdge(uid, vid) }
-
-// WeightedEdge implements graph.Weighted. The weight is the child's total
-// of the source's default value.
-func (t *Tree) WeightedEdge(uid, vid int64) graph.WeightedEdge {
-	if !t.HasEdgeFromTo(uid, vid) {
-		return nil
-	}
-	return weightedEdge{
-		from: TreeNode{tree: t, id: NodeID(uid)},
-		to:   TreeNode{tree: t, id: NodeID(vid)},
-		w:    float64(t.Total(NodeID(vid), t.src.DefaultValue)),
-	}
-}
-
-// Weight implements graph.Weighted.
-func (t *Tree) Weight(xid, yid int64) (float64, bool) {
-	if xid == yid {
-		return 0, true
-	}
-	if e := t.WeightedEdge(xid, yid); e != nil {
-		return e.Weight(), true
-	}
-	return 0, false
-}
-
-// TreeNode is a graph.Node of a Tree.
-type TreeNode struct {
-	tree *Tree
-	id   NodeID
-}
-
-// ID implements graph.Node.
-func (n TreeNode) ID() int64 { return int64(n.id) }
-
-// Frame returns the node's frame; the zero frame for the root.
-func (n TreeNode) Frame() traces.Frame { return n.tree.src.Frames[n.tree.nodes[n.id].frame] }
-
-type weightedEdge struct {
-	from, to graph.Node
-	w        float64
-}
-
-func (e weightedEdge) From() graph.Node         { return e.from }
-func (e weightedEdge) To() graph.Node           { return e.to }
-func (e weightedEdge) ReversedEdge() graph.Edge { return weightedEdge{from: e.to, to: e.from, w: e.w} }
-func (e weightedEdge) Weight() float64          { return e.w }

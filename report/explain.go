@@ -70,7 +70,7 @@ func explainNodeDoc(n *attribute.ExplainNode) ExplainNodeDoc {
 	for _, d := range n.Statements {
 		calls := d.Calls
 		out.Statements = append(out.Statements, DetailDoc{Kind: string(d.Kind), System: d.System, Statement: d.Statement,
-			StatementID: d.StatementID, Peer: d.Peer, Cost: d.Cost, Calls: &calls, Samples: d.Samples})
+			StatementID: d.StatementID, Peer: d.Peer, Via: d.Via, Cost: d.Cost, Calls: &calls, Samples: d.Samples})
 	}
 	for _, c := range n.Children {
 		out.Children = append(out.Children, explainNodeDoc(c))

@@ -161,7 +161,7 @@ type htmlStatements struct {
 }
 
 type htmlDetail struct {
-	Cost, Count, Kind, System, Statement, Peer string
+	Cost, Count, Kind, System, Statement, Peer, Via string
 }
 
 type htmlFinding struct {
@@ -240,7 +240,7 @@ func (HTML) Render(w io.Writer, r *attribute.Result, opts Options) error {
 				break
 			}
 			hd := htmlDetail{Cost: FormatValue(d.Cost, unit), Kind: clean(string(d.Kind)), System: clean(d.System),
-				Statement: clean(d.Statement), Peer: clean(d.Peer)}
+				Statement: clean(d.Statement), Peer: clean(d.Peer), Via: clean(d.Via)}
 			if r.Sampled {
 				hd.Count = plural64(d.Samples, "sample", "samples")
 			} else {

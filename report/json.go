@@ -35,6 +35,7 @@ type RankDocument struct {
 	EntryPoints   []EntryDoc   `json:"entryPoints"`
 	RootCauses    []CauseDoc   `json:"rootCauses"`
 	Findings      []FindingDoc `json:"findings"`
+	SharedHelpers []HelperDoc  `json:"sharedHelpers,omitempty"`
 	Domains       []DomainDoc  `json:"domains,omitempty"`
 	DomainsFile   string       `json:"domainsFile,omitempty"`
 	Warnings      []string     `json:"warnings"`
@@ -129,6 +130,15 @@ type DistributionDoc struct {
 	Max    float64 `json:"max"`
 }
 
+// HelperDoc is a shared access helper seen through.
+type HelperDoc struct {
+	Function string `json:"function"`
+	Named    bool   `json:"named,omitempty"`
+	Callers  int    `json:"callers"`
+	Packages int    `json:"packages"`
+	Cost     int64  `json:"cost"`
+}
+
 // DetailDoc is the cost a root cause spent on one statement or call.
 type DetailDoc struct {
 	Kind        string `json:"kind"`
@@ -136,6 +146,7 @@ type DetailDoc struct {
 	Statement   string `json:"statement"`
 	StatementID string `json:"statementId,omitempty"`
 	Peer        string `json:"peer,omitempty"`
+	Via         string `json:"via,omitempty"`
 	Cost        int64  `json:"cost"`
 	Calls       *int64 `json:"calls"`
 	Samples     int64  `json:"samples"`
@@ -244,7 +255,7 @@ func NewRankDocument(r *attribute.Result, opts Options) *RankDocument {
 		}
 		for _, d := range c.Statements {
 			cd.Statements = append(cd.Statements, DetailDoc{Kind: string(d.Kind), System: d.System, Statement: d.Statement,
-				StatementID: d.StatementID, Peer: d.Peer, Cost: d.Cost, Calls: calls(d.Calls), Samples: d.Samples})
+				StatementID: d.StatementID, Peer: d.Peer, Via: d.Via, Cost: d.Cost, Calls: calls(d.Calls), Samples: d.Samples})
 		}
 		for _, e := range c.EntryPoints {
 			cd.Entries = append(cd.Entries, EntryShareDoc{e.Entry, e.Cost, calls(e.Calls)})
@@ -255,6 +266,9 @@ func NewRankDocument(r *attribute.Result, opts Options) *RankDocument {
 		doc.Findings = append(doc.Findings, FindingDoc{Kind: f.Kind, Function: f.Function, Share: f.Share, Cost: f.Cost,
 			Evidence: f.Evidence, Statement: f.Statement, Peer: f.Peer, PerRequest: distDoc(f.PerRequest),
 			Requests: f.Requests, RequestsSeen: f.RequestsSeen, Depth: f.Depth})
+	}
+	for _, h := range r.Helpers {
+		doc.SharedHelpers = append(doc.SharedHelpers, HelperDoc{h.Function, h.Named, h.Callers, h.Packages, h.Cost})
 	}
 	for _, d := range r.Domains {
 		doc.Domains = append(doc.Domains, DomainDoc{d.Domain, d.Cost, d.Database, d.Network, d.Share, d.Causes})

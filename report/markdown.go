@@ -188,6 +188,9 @@ func mdDetail(r *attribute.Result, d attribute.Detail) string {
 	if d.Peer != "" {
 		b.WriteString(" → " + mdCode(d.Peer))
 	}
+	if d.Via != "" {
+		b.WriteString(" via " + mdCode(d.Via))
+	}
 	return b.String()
 }
 

@@ -107,6 +107,9 @@ func Caveats(r *attribute.Result) []string {
 	if r.Inclusive {
 		out = append(out, "Inclusive view: every application function above a boundary is charged, so shares add up to more than 100%.")
 	}
+	if len(r.Helpers) > 0 {
+		out = append(out, HelpersSummary(r))
+	}
 	for _, c := range r.Causes {
 		if c.NoAppFrame {
 			out = append(out, "Some cost has no application frame above the database or network call; name your code with --app PREFIX (or a rules file) if detection missed it.")
@@ -114,6 +117,23 @@ func Caveats(r *attribute.Result) []string {
 		}
 	}
 	return out
+}
+
+// HelpersSummary names the shared helpers the attribution saw through.
+func HelpersSummary(r *attribute.Result) string {
+	parts := make([]string, 0, len(r.Helpers))
+	for i, h := range r.Helpers {
+		if i == 5 {
+			parts = append(parts, fmt.Sprintf("and %d more (the JSON format lists all)", len(r.Helpers)-5))
+			break
+		}
+		if h.Named {
+			parts = append(parts, h.Function+" (named)")
+		} else {
+			parts = append(parts, fmt.Sprintf("%s (%d callers in %d packages)", h.Function, h.Callers, h.Packages))
+		}
+	}
+	return "Shared helpers seen through (their callers are charged; --helpers=off charges the helpers): " + strings.Join(parts, ", ") + "."
 }
 
 // AppSummary describes what was taken as application code.

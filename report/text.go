@@ -81,6 +81,9 @@ func (Text) Render(w io.Writer, r *attribute.Result, opts Options) error {
 				if d.System != "" {
 					line += " [" + oneLine(d.System, 30) + "]"
 				}
+				if d.Via != "" {
+					line += " via " + oneLine(d.Via, 100)
+				}
 				writeWrapped(bw, line, width, "         ")
 			}
 		}

@@ -19,5 +19,10 @@
 // Limits bound decompressed size, gzip expansion, line length, nesting
 // depth and distinct frames.
 //
-// The package does no attribution; it knows nothing of databases.
+// The package does no attribution: it does not decide which frames are
+// the application's or where cost is charged. It does read what
+// OpenTelemetry's semantic conventions say about client spans (database,
+// HTTP, RPC and messaging calls: system, statement, operation, peer) into
+// the model, and hands statements to Options.Statement while reading, so
+// that a fingerprint, not the literal text, is what stays in memory.
 package traces

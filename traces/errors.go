@@ -19,32 +19,50 @@ var (
 )
 
 // ParseError reports a problem at a position in one input. Line is
-// 1-based and set for line-oriented text input; Offset is the byte offset
-// (for binary input, or within the line). A zero field is unknown.
+// 1-based and set for line-oriented text input, with Offset the 1-based
+// byte column; for binary input Binary is set and Offset is the 0-based
+// byte offset, of the decompressed data when Decompressed. A zero Line or
+// Offset is unknown, except that a binary offset is always shown.
 type ParseError struct {
-	File    string
-	Line    int
-	Offset  int64
-	Snippet string // a short, escaped excerpt of the offending input
-	Err     error
+	File         string
+	Line         int
+	Offset       int64
+	Binary       bool
+	Decompressed bool
+	Snippet      string // a short, escaped excerpt of the offending input
+	Err          error
 }
 
+// Error is "FILE:LINE:COLUMN: problem" for text, "FILE: byte N: problem"
+// for binary input.
 func (e *ParseError) Error() string {
 	var b strings.Builder
 	b.WriteString(e.File)
-	switch {
-	case e.Line > 0:
+	if e.Line > 0 {
 		b.WriteString(":")
 		b.WriteString(strconv.Itoa(e.Line))
 		if e.Offset > 0 {
 			b.WriteString(":")
 			b.WriteString(strconv.FormatInt(e.Offset, 10))
 		}
-	case e.Offset > 0:
-		b.WriteString(": byte ")
-		b.WriteString(strconv.FormatInt(e.Offset, 10))
 	}
 	b.WriteString(": ")
+	b.WriteString(e.Detail())
+	return b.String()
+}
+
+// Detail is the error without the file name, line and column: the binary
+// position, the problem and the excerpt.
+func (e *ParseError) Detail() string {
+	var b strings.Builder
+	if e.Line == 0 && (e.Binary || e.Offset > 0) {
+		b.WriteString("byte ")
+		b.WriteString(strconv.FormatInt(e.Offset, 10))
+		if e.Decompressed {
+			b.WriteString(" of the decompressed data")
+		}
+		b.WriteString(": ")
+	}
 	b.WriteString(e.Err.Error())
 	if e.Snippet != "" {
 		b.WriteString(" (near ")
@@ -71,6 +89,7 @@ type Warning struct {
 	Kind    string // a short stable identifier, e.g. "orphan-span"
 	File    string
 	Line    int
+	Column  int64 // 1-based byte column in Line; 0 if unknown
 	Message string
 }
 
@@ -78,6 +97,9 @@ func (w Warning) String() string {
 	loc := w.File
 	if w.Line > 0 {
 		loc += ":" + strconv.Itoa(w.Line)
+		if w.Column > 0 {
+			loc += ":" + strconv.FormatInt(w.Column, 10)
+		}
 	}
 	if loc == "" {
 		return w.Kind + ": " + w.Message

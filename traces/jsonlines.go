@@ -19,33 +19,21 @@ func countLines(p []byte) int { return bytes.Count(p, []byte{'\n'}) }
 
 func isSpace(b byte) bool { return b == ' ' || b == '\t' || b == '\r' || b == '\n' }
 
-// firstNonBlankLine returns the first line of data that holds anything but
-// whitespace, without its line end, or nil.
-func firstNonBlankLine(data []byte) []byte {
-	for len(data) > 0 {
-		i := bytes.IndexByte(data, '\n')
-		var l []byte
-		if i < 0 {
-			l, data = data, nil
-		} else {
-			l, data = data[:i], data[i+1:]
-		}
-		if l = bytes.TrimSpace(l); len(l) > 0 {
-			return l
-		}
-	}
-	return nil
-}
-
 // isCompleteJSON reports whether line is a complete JSON object or array.
 func isCompleteJSON(line []byte) bool {
 	return (line[0] == '{' || line[0] == '[') && json.Valid(line)
 }
 
+// firstBlock is the size of a blockReader's first block; each next one is
+// twice as large up to the block size, so that a small input costs a small
+// buffer.
+const firstBlock = 32 << 10
+
 // blockReader cuts a stream into blocks of complete lines.
 type blockReader struct {
 	r        io.Reader
-	size     int
+	size     int // block size; the first blocks are smaller (see firstBlock)
+	cur      int // size of the next block
 	maxLine  int
 	maxBytes int64
 	name     string
@@ -59,7 +47,11 @@ type blockReader struct {
 // its '\n') and the number of its first line; nil at the end of input.
 // Every block is a fresh slice that the caller may keep.
 func (b *blockReader) next() ([]byte, int64, error) {
-	size := max(b.size, 2*len(b.pending))
+	if b.cur == 0 {
+		b.cur = min(b.size, firstBlock)
+	}
+	size := max(b.cur, 2*len(b.pending))
+	b.cur = min(2*b.cur, b.size)
 	for {
 		if b.eof {
 			if len(b.pending) == 0 {
@@ -98,7 +90,7 @@ func (b *blockReader) next() ([]byte, int64, error) {
 			} else if errors.Is(err, errInputTooLarge) {
 				return nil, 0, &ParseError{File: b.name, Line: clampLine(b.line), Err: fmt.Errorf("%w: input is larger than %d bytes", ErrLimit, b.maxBytes)}
 			} else if err != nil {
-				return nil, 0, &ParseError{File: b.name, Err: err}
+				return nil, 0, &ParseError{File: b.name, Line: clampLine(b.line), Err: err}
 			}
 		}
 		buf = buf[:n]

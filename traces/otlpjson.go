@@ -72,6 +72,12 @@ type SpanCollector struct {
 	spans    spanStore
 	inputs   []Input
 	warnings Warnings
+	elided   FrameID // the frame of elided path middles (see Source)
+
+	// free and spare hold block and span buffers for reuse, across inputs:
+	// thousands of small inputs then cost no more allocation than one.
+	free  chan []byte
+	spare chan []spanRec
 }
 
 // NewSpanCollector returns an empty collector reading with opts. Zero
@@ -95,23 +101,6 @@ func NewSpanCollector(opts Options) *SpanCollector {
 		strs:         []string{""},
 		strIndex:     map[string]int32{},
 	}
-}
-
-// LooksLikeOTLPJSON reports whether the first bytes of an input look like
-// OTLP/JSON: a '{' after an optional UTF-8 byte order mark and whitespace.
-// It does not validate anything beyond that first byte.
-func LooksLikeOTLPJSON(prefix []byte) bool {
-	prefix = bytes.TrimPrefix(prefix, []byte(utf8BOM))
-	for _, b := range prefix {
-		switch b {
-		case ' ', '\t', '\r', '\n':
-			continue
-		case '{':
-			return true
-		}
-		return false
-	}
-	return false
 }
 
 // utf8BOM is the UTF-8 byte order mark.
@@ -232,8 +221,11 @@ func (c *SpanCollector) read(name string, input int32, r io.Reader, ws *Warnings
 	// 1 MiB more of blocks a worker.
 	ahead := jobsAhead * c.workers
 	order := make(chan *job, ahead)
-	free := make(chan []byte, ahead+2)     // block buffers to reuse
-	spare := make(chan []spanRec, ahead+2) // batch span buffers to reuse
+	if c.free == nil {
+		c.free = make(chan []byte, ahead+2)     // block buffers to reuse
+		c.spare = make(chan []spanRec, ahead+2) // batch span buffers to reuse
+	}
+	free, spare := c.free, c.spare
 	jobs := make(chan *job, c.workers)
 	done := make(chan struct{})
 	var wg sync.WaitGroup
@@ -317,9 +309,10 @@ func (c *SpanCollector) split(name string, r io.Reader, order, jobs chan<- *job,
 	}
 
 	br := &blockReader{r: r, size: c.blockSize, maxLine: c.limits.MaxLineBytes, maxBytes: c.limits.MaxBytes, name: name, line: 1, free: free}
-	// Read blocks until the first non-blank line is seen, to choose
-	// between JSON lines and a document.
+	// Read blocks until the first two non-blank lines are seen, to choose
+	// between JSON lines and a document (jsonLayout).
 	var head []*job
+	var seen []byte // the head's text while undecided
 	first := true
 	lines := false
 	for {
@@ -329,6 +322,7 @@ func (c *SpanCollector) split(name string, r io.Reader, order, jobs chan<- *job,
 			return
 		}
 		if data == nil {
+			lines, _ = jsonLayout(seen, true)
 			break
 		}
 		if first {
@@ -336,8 +330,13 @@ func (c *SpanCollector) split(name string, r io.Reader, order, jobs chan<- *job,
 			first = false
 		}
 		head = append(head, &job{data: data, line: line, col: 1, pooled: true, result: make(chan *batch, 1)})
-		if l := firstNonBlankLine(data); l != nil {
-			lines = isCompleteJSON(l)
+		if len(head) == 1 {
+			seen = data
+		} else {
+			seen = append(seen[:len(seen):len(seen)], data...)
+		}
+		var decided bool
+		if lines, decided = jsonLayout(seen, false); decided {
 			break
 		}
 	}

@@ -42,6 +42,10 @@ type decoder struct {
 	names   *fieldNames
 	// slow turns the fast path off (for tests that compare the paths).
 	slow bool
+	// scanFailAt is where the scanner gave up on the record, or -1.
+	scanFailAt int
+	// doc finds the lines of the spans of a multi-line document.
+	doc docLines
 	// stmts caches Options.Statement results by system and raw text:
 	// instrumentation mostly records parameterised statements, which
 	// repeat exactly. Bounded; keys are copies, never job data. When
@@ -214,6 +218,11 @@ func (d *decoder) record(rec []byte, line, col int64, doc bool) {
 	if start == len(rec) {
 		return // blank line
 	}
+	d.doc = docLines{}
+	if doc {
+		d.doc = docLines{rec: rec, line: line}
+	}
+	d.scanFailAt = -1
 	if !d.slow && d.scan(rec, start, line) {
 		return
 	}
@@ -259,7 +268,7 @@ func (d *decoder) record(rec []byte, line, col int64, doc bool) {
 		// The decoder may have left data beyond the lengths that reset
 		// clears: start afresh.
 		d.req = jsonRequest{}
-		pe := decodeFailure(d.name, rec, line, col, err)
+		pe := decodeFailure(d.name, rec, line, col, err, d.scanFailAt)
 		if !d.c.opts.KeepGoing {
 			d.b.err = pe
 			return
@@ -268,21 +277,16 @@ func (d *decoder) record(rec []byte, line, col int64, doc bool) {
 		if doc {
 			kind = WarnMalformedDocument
 		}
-		d.b.warnings = append(d.b.warnings, Warning{Kind: kind, File: d.name, Line: pe.Line,
+		d.b.warnings = append(d.b.warnings, Warning{Kind: kind, File: d.name, Line: pe.Line, Column: pe.Offset,
 			Message: pe.Err.Error() + " (skipped)"})
 	}
 }
 
-// unmarshal decodes rec into v; decoded strings refer to rec. A panic of
-// the JSON decoder (a bug in it, which no input may turn into a crash) is
-// returned as an error.
-func unmarshal(rec []byte, v any) (err error) {
-	defer func() {
-		if p := recover(); p != nil {
-			err = fmt.Errorf("JSON decoder failure: %v", p)
-		}
-	}()
-	return json.UnmarshalNoEscape(rec, v, json.DecodeNoCopyString())
+// unmarshal decodes rec into v with the JSON decoder, the scanner's
+// fallback; decoded strings refer to rec. FuzzOTLPJSON and
+// FuzzOTLPJSONFastPath hold that no input makes it panic.
+func unmarshal(rec []byte, v any) error {
+	return json.UnmarshalWithOption(rec, v, json.DecodeNoCopyString())
 }
 
 // requests converts the spans of decoded requests and adds them to the
@@ -320,7 +324,9 @@ func (d *decoder) requests(reqs []jsonRequest, line int64) error {
 
 // decodeFailure turns a decoding error into a ParseError with the line,
 // column and an excerpt of where it happened.
-func decodeFailure(name string, rec []byte, line, col int64, err error) *ParseError {
+// scanFailAt, where the scanner failed (or -1), places a type error that
+// the JSON decoder does not place.
+func decodeFailure(name string, rec []byte, line, col int64, err error, scanFailAt int) *ParseError {
 	at := -1
 	msg := "malformed JSON: " + err.Error()
 	var se *json.SyntaxError
@@ -348,6 +354,9 @@ func decodeFailure(name string, rec []byte, line, col int64, err error) *ParseEr
 		case te.Field != "":
 			// Or at the first use of the field's key.
 			at = bytes.Index(rec, []byte(`"`+te.Field[strings.LastIndexByte(te.Field, '.')+1:]+`"`))
+		case scanFailAt >= 0 && scanFailAt < len(rec):
+			// Or where the scanner met the same wrong type.
+			at = scanFailAt
 		}
 	case errors.As(err, &ve):
 		at = bytes.Index(rec, ve.raw)
@@ -438,6 +447,9 @@ func nanos(n json.Number) (int64, error) {
 // error when the span is malformed (the record is then dropped), and sets
 // d.b.err when Strict forbids skipping a span with invalid IDs.
 func (d *decoder) span(sp *jsonSpan, service, scope string, line int64) error {
+	if d.doc.rec != nil && sp.at > 0 {
+		line = d.doc.lineAt(sp.at - 1)
+	}
 	start, err := nanos(sp.Start)
 	if err != nil {
 		return err
@@ -571,4 +583,24 @@ func (v *jsonAnyValue) integer() (int64, bool) {
 		return n, err == nil
 	}
 	return 0, false
+}
+
+// docLines gives the line of a byte of a multi-line record (a document)
+// that starts at line; offsets asked for in increasing order cost one pass
+// over the record in all.
+type docLines struct {
+	rec  []byte
+	line int64 // line of rec[0]
+	at   int   // offset counted up to
+	nl   int64 // newlines in rec[:at]
+}
+
+func (d *docLines) lineAt(at int) int64 {
+	at = max(0, min(at, len(d.rec)))
+	if at < d.at {
+		d.at, d.nl = 0, 0
+	}
+	d.nl += int64(countLines(d.rec[d.at:at]))
+	d.at = at
+	return d.line + d.nl
 }

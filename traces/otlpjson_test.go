@@ -1140,8 +1140,29 @@ func TestLimits(t *testing.T) {
 		{"deep document", Options{Limits: Limits{MaxDepth: 40}}, 0, "\n\n" + strings.Replace(deep(30), `"resource":`, "\n\"resource\":", 1), 4, "nested deeper than 40"},
 		{"too many frames", Options{Limits: Limits{MaxFrames: 1}}, 0, lines(good, line(tres{"api", []tspan{{trace: tr1, id: sB, parent: sA, name: "other", start: t0, end: t0 + 1}}})), 2, "more than 1 distinct frames"},
 		{"input too large", Options{Limits: Limits{MaxBytes: 100}}, 0, lines(good, good), 1, "larger than 100 bytes"},
-		{"path too deep", Options{Limits: Limits{MaxDepth: 12}}, 0, lines(line(tres{"api", chain(13)})), 1, "nested 13 spans deep"},
 	}
+	// A path deeper than MaxDepth is no error: its middle is elided.
+	t.Run("path too deep", func(t *testing.T) {
+		data := lines(line(tres{"api", chain(15)}))
+		src := mustCollect(t, Options{Limits: Limits{MaxDepth: 12}}, input{"deep.jsonl", data})
+		fns := pathFunctions(src)
+		last := fns[len(fns)-1]
+		if len(fns) != 15 || len(last) != 12 || last[0] != "s0" || last[5] != ElidedFrames || last[11] != "s14" || last[6] != "s9" {
+			t.Errorf("deepest path %v", last)
+		}
+		sum := src.Warnings.Summary()
+		if len(sum) != 1 || sum[0].Kind != WarnDeepStack || sum[0].Count != 1 || sum[0].Examples[0].Line != 1 {
+			t.Errorf("warnings %+v, want one deep-stack at line 1", sum)
+		}
+		// A repair: --strict refuses it.
+		c := NewSpanCollector(Options{Strict: true, Limits: Limits{MaxDepth: 12}})
+		if err := c.Add("deep.jsonl", strings.NewReader(data)); err != nil {
+			t.Fatal(err)
+		}
+		if _, err := c.Source(); !errors.Is(err, ErrSpanRepair) {
+			t.Errorf("strict: %v, want a repair error", err)
+		}
+	})
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			for _, keepGoing := range []bool{false, true} {
@@ -1186,7 +1207,8 @@ func TestAddFailureKeepsNothing(t *testing.T) {
 	if got := pathFunctions(src); !reflect.DeepEqual(got, [][]string{{"root"}}) || len(src.Inputs) != 1 || src.Inputs[0].Name != "good.jsonl" {
 		t.Fatalf("paths %v inputs %+v", got, src.Inputs)
 	}
-	if len(c.frames) != 2 || len(c.frameIndex) != 1 {
+	// root, and the elision marker that Source interns.
+	if len(c.frames) != 3 || len(c.frameIndex) != 2 {
 		t.Errorf("the failed input's frames are still interned: %v", c.frames)
 	}
 }
@@ -1453,24 +1475,31 @@ func TestServiceFilter(t *testing.T) {
 	}
 }
 
-func TestLooksLikeOTLPJSON(t *testing.T) {
+func TestSniff(t *testing.T) {
 	for _, tc := range []struct {
 		in   string
-		want bool
+		want string
 	}{
-		{`{"resourceSpans":[]}`, true},
-		{" \r\n\t{", true},
-		{"\uFEFF{", true},
-		{"\uFEFF \n{", true},
-		{"", false},
-		{"   ", false},
-		{"[{}]", false},
-		{"\x1f\x8b\x08", false},
-		{"\x0a\x05hello", false},
+		{`{"resourceSpans":[]}`, FormatOTLPJSON},
+		{" \r\n\t{", FormatOTLPJSON},
+		{"\uFEFF{", FormatOTLPJSON},
+		{"\uFEFF \n{", FormatOTLPJSON},
+		{"", ""},
+		{"   ", FormatPprof},
+		{"[{}]", FormatOTLPJSON},
+		// JSON lines whose first line is broken are still JSON.
+		{"oops\n{\"resourceSpans\":[]}\n", FormatOTLPJSON},
+		// Binary with a '{' after a newline is not.
+		{"\x0a\x05hel\x00lo\n{", FormatPprof},
+		{"\x1f\x8b\x08", FormatGzip},
+		{"\x0a\x05hello", FormatPprof},
+		{"\xff\xfe{\x00", FormatUTF16},
+		// A legacy text profile (read by the pprof library).
+		{"--- contention:\ncycles/second=3000000000\n", FormatPprof},
 	} {
 		t.Run(strconv.Quote(tc.in), func(t *testing.T) {
-			if got := LooksLikeOTLPJSON([]byte(tc.in)); got != tc.want {
-				t.Errorf("LooksLikeOTLPJSON(%q) = %v, want %v", tc.in, got, tc.want)
+			if got := Sniff([]byte(tc.in)); got != tc.want {
+				t.Errorf("Sniff(%q) = %q, want %q", tc.in, got, tc.want)
 			}
 		})
 	}

@@ -58,6 +58,9 @@ type jsonSpan struct {
 	Start        json.Number    `json:"startTimeUnixNano"`
 	End          json.Number    `json:"endTimeUnixNano"`
 	Attributes   []jsonKeyValue `json:"attributes"`
+	// at is the byte offset + 1 of the span in its record, 0 if unknown:
+	// the scanner sets it, the JSON decoder leaves it.
+	at int
 }
 
 // jsonKeyValue is one attribute.

@@ -48,6 +48,7 @@ type scanner struct {
 	maxDepth int
 	plain    bool // b is plain (see isPlain)
 	failed   bool
+	failAt   int      // i when it failed
 	text     *[]byte  // the decoder's arena of unescaped strings
 	bools    *[2]bool // the decoder's false and true, for boolValue
 	names    *fieldNames
@@ -104,6 +105,10 @@ func (d *decoder) read(rec []byte, start int) ([]jsonRequest, bool) {
 	d.scanned = reqs
 	s.space()
 	ok := !s.failed && s.i == len(rec)
+	d.scanFailAt = -1
+	if s.failed {
+		d.scanFailAt = s.failAt
+	}
 	s.b = nil
 	return reqs, ok
 }
@@ -206,7 +211,9 @@ func elements[T any](s *scanner, list *[]T, read func(*scanner, *T)) {
 // span reads one span.
 func (s *scanner) span(sp *jsonSpan) {
 	*sp = jsonSpan{Attributes: sp.Attributes[:0]}
-	for o := s.object(); s.field(&o, s.names.span); {
+	o := s.object()
+	sp.at = s.i // just past the span's '{'
+	for s.field(&o, s.names.span) {
 		switch o.k {
 		case 0:
 			sp.TraceID = s.str(true)
@@ -535,6 +542,9 @@ func (s *scanner) colon() {
 
 // fail gives up on the record.
 func (s *scanner) fail() {
+	if !s.failed {
+		s.failAt = s.i
+	}
 	s.failed = true
 	s.i = len(s.b)
 }

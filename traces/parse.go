@@ -2,7 +2,6 @@ package traces
 
 import (
 	"bufio"
-	"bytes"
 	"compress/gzip"
 	"context"
 	"crypto/sha256"
@@ -10,6 +9,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"strconv"
 	"strings"
 
 	"github.com/google/pprof/profile"
@@ -27,6 +27,9 @@ type Loader struct {
 	warnings Warnings
 	byKind   map[Kind][]string // input names of each kind admitted (see admit)
 	notes    []string          // inputs skipped (see Source.Notes)
+	// in and plain buffer an input and its plain (not gzipped) body; they
+	// are reused from input to input.
+	in, plain *bufio.Reader
 }
 
 // NewLoader returns a Loader using opts.
@@ -35,7 +38,9 @@ func NewLoader(opts Options) *Loader {
 	return &Loader{opts: opts}
 }
 
-var gzipMagic = []byte{0x1f, 0x8b}
+// WarnSkippedInput is an input that could not be read and was skipped
+// because Options.KeepGoing is set.
+const WarnSkippedInput = "skipped-input"
 
 // Add reads one input. name labels it in errors and in the report. With
 // Options.KeepGoing, an unreadable input is recorded as a warning and Add
@@ -44,14 +49,15 @@ func (l *Loader) Add(name string, r io.Reader) error {
 	err := l.add(name, r)
 	if err != nil && l.opts.KeepGoing && !errors.Is(err, ErrMismatch) &&
 		!errors.Is(err, context.Canceled) && !errors.Is(err, context.DeadlineExceeded) {
-		msg := err.Error()
+		w := Warning{Kind: WarnSkippedInput, File: name, Message: strings.TrimPrefix(err.Error(), name+": ")}
 		var pe *ParseError
 		if errors.As(err, &pe) && pe.File == name {
-			msg = strings.TrimPrefix(strings.TrimPrefix(msg, name), ": ")
-		} else {
-			msg = strings.TrimPrefix(msg, name+": ")
+			w.Line, w.Message = pe.Line, pe.Detail()
+			if pe.Line > 0 {
+				w.Column = pe.Offset
+			}
 		}
-		l.warnings.Add(Warning{Kind: "skipped-input", File: name, Message: msg})
+		l.warnings.Add(w)
 		return nil
 	}
 	return err
@@ -63,47 +69,45 @@ func (l *Loader) add(name string, r io.Reader) error {
 		r = io.TeeReader(r, hash)
 	}
 	counted := &countingReader{r: r}
-	br := bufio.NewReaderSize(counted, 64<<10)
+	br := reuseReader(&l.in, counted)
 	// Unwrap gzip layers (a gzipped .pb.gz is not rare), each inside the
 	// ratio and size limits, so that no decoder downstream ever sees gzip:
 	// the pprof library would decompress it again without a limit.
 	var body io.Reader = br
 	bb := br
 	for layer := 0; ; layer++ {
-		head, err := bb.Peek(2)
-		if err != nil && !errors.Is(err, io.EOF) {
+		head, err := bb.Peek(sniffPrefix)
+		if err != nil && !errors.Is(err, io.EOF) && !errors.Is(err, bufio.ErrBufferFull) {
 			return readError(name, err, counted.n)
 		}
-		if !bytes.Equal(head, gzipMagic) {
+		if Sniff(head) != FormatGzip {
 			break
 		}
 		if layer == 3 {
-			return &ParseError{File: name, Err: fmt.Errorf("%w: more than 3 nested gzip layers", ErrFormat)}
+			return &ParseError{File: name, Binary: true, Decompressed: true, Err: fmt.Errorf("%w: more than 3 nested gzip layers", ErrFormat)}
 		}
 		zr, err := gzip.NewReader(bb)
 		if err != nil {
 			return readError(name, fmt.Errorf("decompressing: %w", err), counted.n)
 		}
 		body = &sizeLimitReader{r: &ratioLimitReader{r: zr, compressed: counted, limits: l.opts.Limits, name: name},
-			max: l.opts.Limits.MaxBytes, name: name}
+			max: l.opts.Limits.MaxBytes, name: name, decompressed: true}
 		bb = bufio.NewReaderSize(body, 64<<10)
 	}
-	if body == io.Reader(br) {
+	gz := body != io.Reader(br) // offsets in body are of decompressed data
+	if !gz {
 		body = &sizeLimitReader{r: br, max: l.opts.Limits.MaxBytes, name: name}
-		bb = bufio.NewReaderSize(body, 64<<10)
+		bb = reuseReader(&l.plain, body)
 	}
-	prefix, err := bb.Peek(512)
+	prefix, err := bb.Peek(sniffPrefix)
 	if err != nil && !errors.Is(err, io.EOF) && !errors.Is(err, bufio.ErrBufferFull) {
 		return readError(name, err, counted.n)
 	}
-	if len(prefix) == 0 {
-		return &ParseError{File: name, Err: fmt.Errorf("%w: the input is empty", ErrFormat)}
-	}
-
-	in := Input{Name: name}
-	switch {
-	case LooksLikeOTLPJSON(prefix):
-		in.Format = "otlp-json"
+	in := Input{Name: name, Format: Sniff(prefix)}
+	switch in.Format {
+	case "":
+		return &ParseError{File: name, Binary: true, Err: fmt.Errorf("%w: the input is empty", ErrFormat)}
+	case FormatOTLPJSON:
 		if key, ok := foreignJSON(prefix); ok {
 			l.notes = append(l.notes, fmt.Sprintf("%s skipped: JSON but not OTLP trace data (it starts with %q)", name, key))
 			return nil
@@ -117,8 +121,7 @@ func (l *Loader) add(name string, r io.Reader) error {
 		if err := l.spans.Add(name, bb); err != nil {
 			return readError(name, err, counted.n)
 		}
-	default:
-		in.Format = "pprof"
+	case FormatPprof:
 		if !l.admit(Profile, name) {
 			return nil
 		}
@@ -132,12 +135,15 @@ func (l *Loader) add(name string, r io.Reader) error {
 			// input, whose error the library words.
 			lp, err := profile.ParseData(data)
 			if err != nil {
-				return pprofError(name, data, err)
+				return pprofError(name, data, err, gz)
 			}
 			p = lowerProfile(lp)
 		}
 		if len(p.sampleTypes) == 0 {
-			return &ParseError{File: name, Err: errors.New("malformed pprof profile: it has no sample types")}
+			// Nowhere: the position is where the sample types should have
+			// been, the start of the profile.
+			return &ParseError{File: name, Binary: true, Decompressed: gz,
+				Err: errors.New("malformed pprof profile: it has no sample types (field 1 of the Profile message)")}
 		}
 		if l.profiles == nil {
 			l.profiles = newProfileAppender(l.opts.Limits)
@@ -145,6 +151,11 @@ func (l *Loader) add(name string, r io.Reader) error {
 		if err := l.profiles.add(name, p); err != nil {
 			return err
 		}
+	case FormatUTF16:
+		return &ParseError{File: name, Binary: true, Err: fmt.Errorf("%w: UTF-16 text; culprit reads JSON in UTF-8 (convert it first)", ErrFormat)}
+	default:
+		// A format in the sniffing table without a reader here.
+		return &ParseError{File: name, Binary: true, Err: fmt.Errorf("%w: no reader for %s input", ErrFormat, in.Format)}
 	}
 	// Drain what the decoder did not read so that the digest covers the file.
 	if _, err := io.Copy(io.Discard, counted); err != nil {
@@ -156,6 +167,16 @@ func (l *Loader) add(name string, r io.Reader) error {
 	}
 	l.inputs = append(l.inputs, in)
 	return nil
+}
+
+// reuseReader returns *b reset to read r, made on first use.
+func reuseReader(b **bufio.Reader, r io.Reader) *bufio.Reader {
+	if *b == nil {
+		*b = bufio.NewReaderSize(r, 64<<10)
+	} else {
+		(*b).Reset(r)
+	}
+	return *b
 }
 
 // Source returns the merged source of everything added. It fails when
@@ -230,22 +251,25 @@ func (s *Source) Validate() error {
 	return nil
 }
 
-// readChunk is the size of the pieces a profile is read in: most
-// profiles fit in one. A large allocation fresh from the system is zero
-// already, so the part of it a smaller profile leaves unused costs
-// address space, not memory; it is also small enough that a gzip bomb,
-// stopped by the ratio limit, cannot make culprit allocate much.
-const readChunk = 8 << 20
+// firstChunk and readChunk bound the pieces a profile is read in: the
+// first is small, so that thousands of small profiles do not each clear
+// megabytes; each next one is twice as large up to readChunk, small
+// enough that a gzip bomb, stopped by the ratio limit, cannot make
+// culprit allocate much.
+const (
+	firstChunk = 256 << 10
+	readChunk  = 8 << 20
+)
 
-// readAll reads r to the end: in readChunk pieces, joined into one buffer
-// of the exact size when there are several. io.ReadAll grows from 512
-// bytes, copying and clearing the data a dozen times over (25 ms of
-// clearing alone for a 5 MiB profile).
+// readAll reads r to the end: in growing pieces, joined into one buffer of
+// the exact size when there are several. io.ReadAll grows from 512 bytes,
+// copying and clearing the data a dozen times over (25 ms of clearing
+// alone for a 5 MiB profile).
 func readAll(r io.Reader) ([]byte, error) {
 	var chunks [][]byte
 	total := 0
-	for done := false; !done; {
-		c := make([]byte, readChunk)
+	for size, done := firstChunk, false; !done; size = min(2*size, readChunk) {
+		c := make([]byte, size)
 		n := 0
 		for n < len(c) {
 			m, err := r.Read(c[n:])
@@ -278,11 +302,15 @@ func readError(name string, err error, offset int64) error {
 	if errors.As(err, &pe) {
 		return err
 	}
+	var le *limitError
+	if errors.As(err, &le) {
+		return &ParseError{File: name, Binary: true, Offset: le.at, Decompressed: le.decompressed, Err: err}
+	}
 	if errors.Is(err, ErrLimit) {
 		return fmt.Errorf("%s: %w", name, err)
 	}
 	if errors.Is(err, io.ErrUnexpectedEOF) || errors.Is(err, gzip.ErrChecksum) || errors.Is(err, gzip.ErrHeader) {
-		return &ParseError{File: name, Offset: offset, Err: fmt.Errorf("truncated or corrupt gzip stream: %w", err)}
+		return &ParseError{File: name, Offset: offset, Binary: true, Err: fmt.Errorf("truncated or corrupt gzip stream: %w", err)}
 	}
 	return &ParseError{File: name, Err: err}
 }
@@ -290,20 +318,152 @@ func readError(name string, err error, offset int64) error {
 // pprofError explains why data is not a profile. profile.ParseData falls
 // back to legacy text formats and then reports only "unrecognized profile
 // format"; the protobuf decoder's own error says more.
-func pprofError(name string, data []byte, err error) error {
+// gz says data was gzipped: offsets are then of the decompressed data.
+func pprofError(name string, data []byte, err error, gz bool) error {
 	msg := strings.TrimPrefix(err.Error(), "parsing profile: ")
 	if strings.HasPrefix(msg, "malformed profile: ") {
-		return &ParseError{File: name, Err: fmt.Errorf("malformed pprof profile: %s", strings.TrimPrefix(msg, "malformed profile: "))}
+		msg = strings.TrimPrefix(msg, "malformed profile: ")
+		pe := &ParseError{File: name, Decompressed: gz, Err: fmt.Errorf("malformed pprof profile: %s", msg)}
+		pe.Offset, pe.Binary = locateProblem(data, msg)
+		return pe
 	}
-	var offset int64
+	pe := &ParseError{File: name, Decompressed: gz}
 	if _, perr := profile.ParseUncompressed(data); perr != nil && msg == "unrecognized profile format" {
 		msg = "protobuf: " + strings.TrimPrefix(perr.Error(), "parsing profile: ")
 		if off, why := badField(data); off >= 0 {
-			offset = off
+			pe.Offset, pe.Binary = off, true
 			msg += "; " + why
 		}
 	}
-	return &ParseError{File: name, Offset: offset, Err: fmt.Errorf("%w: neither OTLP/JSON nor a pprof profile (%s)", ErrFormat, msg)}
+	pe.Err = fmt.Errorf("%w: neither OTLP/JSON nor a pprof profile (%s)", ErrFormat, msg)
+	return pe
+}
+
+// Field numbers of profile.proto's Profile message.
+const (
+	pbSampleType = 1
+	pbSample     = 2
+	pbMapping    = 3
+	pbLocation   = 4
+	pbFunction   = 5
+)
+
+// locateProblem finds the byte offset of the message that the pprof
+// library's validity check complains about in msg (profile.go's
+// CheckValid): the first sample whose values do not match the sample
+// types, or the mapping, location or function whose ID is reserved or
+// repeated. ok is false for other complaints.
+func locateProblem(data []byte, msg string) (offset int64, ok bool) {
+	var field int
+	var id uint64
+	repeated := false
+	kinds := map[string]int{"mapping": pbMapping, "mappings": pbMapping, "location": pbLocation,
+		"locations": pbLocation, "function": pbFunction, "functions": pbFunction}
+	switch {
+	case strings.HasPrefix(msg, "mismatch: sample has "):
+		field = pbSample
+	case strings.HasPrefix(msg, "found "):
+		// "found function with reserved ID=0"
+		kind, _, _ := strings.Cut(strings.TrimPrefix(msg, "found "), " ")
+		field = kinds[kind]
+	case strings.HasPrefix(msg, "multiple "):
+		// "multiple functions with same id: 7"
+		kind, rest, _ := strings.Cut(strings.TrimPrefix(msg, "multiple "), " ")
+		_, n, _ := strings.Cut(rest, ": ")
+		v, err := strconv.ParseUint(n, 10, 64)
+		if err != nil {
+			return 0, false
+		}
+		field, id, repeated = kinds[kind], v, true
+	}
+	if field == 0 {
+		return 0, false
+	}
+	types, seen := 0, 0
+	for off := 0; off < len(data); {
+		num, typ, n := protowire.ConsumeTag(data[off:])
+		if n < 0 {
+			return 0, false
+		}
+		m := protowire.ConsumeFieldValue(num, typ, data[off+n:])
+		if m < 0 {
+			return 0, false
+		}
+		body := data[off+n : off+n+m]
+		if typ == protowire.BytesType {
+			body, _ = protowire.ConsumeBytes(body)
+		}
+		switch {
+		case num == pbSampleType:
+			types++
+		case int(num) != field || typ != protowire.BytesType:
+		case field == pbSample:
+			// sample_type precedes samples in every encoder; a profile
+			// listing them after would be reported at its first sample.
+			if countValues(body, 2) != types {
+				return int64(off), true
+			}
+		case messageID(body) == id:
+			if seen++; !repeated || seen == 2 {
+				return int64(off), true
+			}
+		}
+		off += n + m
+	}
+	return 0, false
+}
+
+// countValues counts the values of repeated varint field num in msg,
+// packed or not.
+func countValues(msg []byte, num protowire.Number) int {
+	count := 0
+	for len(msg) > 0 {
+		f, typ, n := protowire.ConsumeTag(msg)
+		if n < 0 {
+			return count
+		}
+		m := protowire.ConsumeFieldValue(f, typ, msg[n:])
+		if m < 0 {
+			return count
+		}
+		if f == num {
+			if typ == protowire.BytesType {
+				packed, _ := protowire.ConsumeBytes(msg[n:])
+				for len(packed) > 0 {
+					_, k := protowire.ConsumeVarint(packed)
+					if k < 0 {
+						break
+					}
+					packed = packed[k:]
+					count++
+				}
+			} else {
+				count++
+			}
+		}
+		msg = msg[n+m:]
+	}
+	return count
+}
+
+// messageID returns field 1 (the id) of a Mapping, Location or Function.
+func messageID(msg []byte) uint64 {
+	for len(msg) > 0 {
+		f, typ, n := protowire.ConsumeTag(msg)
+		if n < 0 {
+			return 0
+		}
+		if f == 1 && typ == protowire.VarintType {
+			v, _ := protowire.ConsumeVarint(msg[n:])
+			return v
+		}
+		m := protowire.ConsumeFieldValue(f, typ, msg[n:])
+		if m < 0 {
+			return 0
+		}
+		msg = msg[n+m:]
+	}
+	return 0
 }
 
 // badField walks the top-level protobuf fields of data and returns the
@@ -346,19 +506,36 @@ func wireProblem(code int) string {
 	return "malformed field"
 }
 
+// limitError is a limit exceeded at a byte of an input (of its
+// decompressed data when decompressed). It wraps ErrLimit.
+type limitError struct {
+	msg          string
+	at           int64
+	decompressed bool
+}
+
+func (e *limitError) Error() string { return e.msg + ": " + ErrLimit.Error() }
+func (e *limitError) Unwrap() error { return ErrLimit }
+
 // sizeLimitReader fails once more than max bytes have been read.
 type sizeLimitReader struct {
-	r    io.Reader
-	n    int64
-	max  int64
-	name string
+	r            io.Reader
+	n            int64
+	max          int64
+	name         string
+	decompressed bool // r gives decompressed data
 }
 
 func (s *sizeLimitReader) Read(p []byte) (int, error) {
 	n, err := s.r.Read(p)
 	s.n += int64(n)
 	if s.n > s.max {
-		return n, fmt.Errorf("decompressed size exceeds %d bytes (raise it with --max-bytes): %w", s.max, ErrLimit)
+		what := "size"
+		if s.decompressed {
+			what = "decompressed size"
+		}
+		return n, &limitError{msg: fmt.Sprintf("%s exceeds %d bytes (raise it with --max-bytes)", what, s.max),
+			at: s.max, decompressed: s.decompressed}
 	}
 	return n, err
 }
@@ -378,8 +555,8 @@ func (z *ratioLimitReader) Read(p []byte) (int, error) {
 	n, err := z.r.Read(p)
 	z.out += int64(n)
 	if z.out > 1<<20 && z.out > z.limits.MaxRatio*z.compressed.n {
-		return n, fmt.Errorf("decompresses to more than %d times its compressed size (a gzip bomb? raise it with --max-ratio): %w",
-			z.limits.MaxRatio, ErrLimit)
+		return n, &limitError{msg: fmt.Sprintf("decompresses to more than %d times its compressed size (a gzip bomb? raise it with --max-ratio)",
+			z.limits.MaxRatio), at: z.out - int64(n), decompressed: true}
 	}
 	return n, err
 }

@@ -97,8 +97,12 @@ func (a *profileAppender) add(name string, p *rawProfile) error {
 			frames = append(frames, pf.other(Frame{Function: noStack}))
 		}
 		if len(frames) > a.limits.MaxDepth {
-			return fmt.Errorf("%s: a sample has %d frames, more than the limit of %d (raise it with --max-depth): %w",
-				name, len(frames), a.limits.MaxDepth, ErrLimit)
+			n := len(frames)
+			var cut int
+			frames, cut = elideMiddle(frames, a.limits.MaxDepth, pf.other(Frame{Function: ElidedFrames}))
+			src.Warnings.Add(Warning{Kind: WarnDeepStack, File: name,
+				Message: fmt.Sprintf("sample %d has %d frames, more than --max-depth %d: the middle %d are elided, the root-most and leaf-most kept",
+					si+1, n, a.limits.MaxDepth, cut)})
 		}
 		zero := true
 		for i, v := range p.values[si*nv : (si+1)*nv] {

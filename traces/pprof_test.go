@@ -188,7 +188,7 @@ func TestBadInputs(t *testing.T) {
 		input []byte
 		want  string
 	}{
-		{"empty", nil, "p0.pb.gz: unrecognised input format: the input is empty"},
+		{"empty", nil, "p0.pb.gz: byte 0: unrecognised input format: the input is empty"},
 		{"junk", []byte("hello, this is not a profile"), "p0.pb.gz: byte 2: unrecognised input format: neither OTLP/JSON nor a pprof profile"},
 		{"truncated gzip", good[:len(good)/2], "p0.pb.gz"},
 	}

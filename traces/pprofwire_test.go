@@ -78,11 +78,13 @@ func realProfiles(t *testing.T) map[string][]byte {
 		t.Skipf("CPU profiling unavailable: %v", err)
 	}
 	ctx := pprof.WithLabels(context.Background(), pprof.Labels("http.route", "/plants/{id}", "tier", "gold"))
+	sink := 0
 	pprof.Do(ctx, pprof.Labels(), func(context.Context) {
 		for end := time.Now().Add(300 * time.Millisecond); time.Now().Before(end); {
-			burn(2000)
+			sink += burn(2000)
 		}
 	})
+	t.Logf("work checksum %d", sink)
 	pprof.StopCPUProfile()
 	out["cpu"] = cpu.Bytes()
 	for _, name := range []string{"goroutine", "heap", "mutex", "allocs"} {

@@ -196,7 +196,8 @@ func grow(s []int32, n int) []int32 {
 // Broken trace structure is repaired and recorded in the Source's
 // warnings, or with Options.Strict returned as a *ParseError (wrapping
 // ErrSpanRepair) naming the input and line of the span concerned. A path
-// deeper than Limits.MaxDepth is an error wrapping ErrLimit. Source uses
+// deeper than Limits.MaxDepth keeps its root-most and leaf-most spans (a
+// deep-stack repair). Source uses
 // up the collected spans, so that their memory goes to the paths: call it
 // once, after the last Add.
 func (c *SpanCollector) Source() (*Source, error) {
@@ -210,6 +211,9 @@ func (c *SpanCollector) Source() (*Source, error) {
 	src.Inputs = append([]Input(nil), c.inputs...)
 	src.Warnings.Merge(c.warnings)
 	src.Paths.Grow(c.spans.len())
+	// The frame that stands for the middle of a path cut to MaxDepth:
+	// interned before the workers start, which only read the table.
+	c.elided = FrameID(intern(c.frameIndex, &c.frames, Frame{Function: ElidedFrames}))
 	if c.opts.Timing {
 		src.Timing = &Timing{Start: make([]int64, 0, c.spans.len()), Parent: make([]int32, 0, c.spans.len())}
 	}
@@ -681,10 +685,19 @@ func (as *assembler) place(nodes []node, k int32) error {
 	}
 	as.arena = append(as.arena, FrameID(r.frame))
 	nd.framesLen = int32(len(as.arena)) - nd.framesAt
-	if int(nd.framesLen) > as.c.limits.MaxDepth {
-		return &ParseError{File: as.c.inputs[r.input].Name, Line: int(r.line),
-			Err: fmt.Errorf("%w: span %s (trace %s) is nested %d spans deep, more than %d", ErrLimit,
-				spanIDString(r.id), as.c.traceIDs[r.trace], nd.framesLen, as.c.limits.MaxDepth)}
+	if limit := as.c.limits.MaxDepth; int(nd.framesLen) > limit {
+		// Keep the root-most and leaf-most spans, as for a deep sample.
+		// Only the first span past the limit is a repair: its
+		// descendants inherit the elided path.
+		path := as.arena[nd.framesAt:]
+		first := limit < 3 || path[(limit-1)/2] != as.c.elided
+		path, cut := elideMiddle(path, limit, as.c.elided)
+		as.arena = as.arena[:int(nd.framesAt)+len(path)]
+		nd.framesLen = int32(len(path))
+		if first {
+			return as.repair(r, WarnDeepStack, fmt.Sprintf("span %s (trace %s) is nested more than --max-depth %d spans deep: the middle %d of its path are elided, the root-most and leaf-most kept",
+				spanIDString(r.id), as.c.traceIDs[r.trace], limit, cut))
+		}
 	}
 	return nil
 }

@@ -75,16 +75,6 @@ func (n *node) boundary() *node {
 	return c
 }
 
-// duration returns the node's total duration: its own time plus that of all
-// its children (they run one after another).
-func (n *node) duration() time.Duration {
-	d := n.self
-	for _, c := range n.children {
-		d += c.duration()
-	}
-	return d
-}
-
 // layout assigns start and end times: the node starts at start, and its own
 // time is spread evenly before, between and after its children.
 func (n *node) layout(start int64) int64 {

@@ -7,6 +7,7 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"time"
 )
 
 func TestRun(t *testing.T) {
@@ -133,4 +134,14 @@ func TestLayout(t *testing.T) {
 	if root.activeAt(1250) != root || root.activeAt(1600) != nil {
 		t.Error("activeAt outside children")
 	}
+}
+
+// duration returns the node's total duration: its own time plus that of all
+// its children (they run one after another).
+func (n *node) duration() time.Duration {
+	d := n.self
+	for _, c := range n.children {
+		d += c.duration()
+	}
+	return d
 }

@@ -19,7 +19,6 @@ type profileBuilder struct {
 	fnBase   map[*fnDef]uint64 // code address of each function
 	fnNext   map[*fnDef]uint64 // next free address inside it
 	nextFunc uint64
-	scratch  []*profile.Location
 }
 
 // newProfileBuilder starts a profile of an executable; buildID tells builds
@@ -67,9 +66,8 @@ func (b *profileBuilder) location(frames []frame) *profile.Location {
 		return l
 	}
 	outer := frames[len(frames)-1].fn
-	base, ok := b.fnBase[outer]
-	if !ok {
-		base = b.nextFunc
+	if _, ok := b.fnBase[outer]; !ok {
+		base := b.nextFunc
 		b.nextFunc += 0x800
 		b.fnBase[outer] = base
 		b.fnNext[outer] = base + 0x13

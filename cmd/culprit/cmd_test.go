@@ -260,7 +260,7 @@ func TestInterruptLeavesNoFiles(t *testing.T) {
 	for _, target := range []string{out, existing} {
 		s, _, errb := testStreams("")
 		s.In = &slowReader{}
-		// Cancelling the context is what Ctrl-C does (signal.NotifyContext in run).
+		// Cancelling the context is what Ctrl-C does (run cancels it with the signal as its cause).
 		ctx, cancel := context.WithCancel(context.Background())
 		timer := time.AfterFunc(200*time.Millisecond, cancel)
 		code := runContext(ctx, []string{"rank", "-", "--format", "html", "-o", target}, s)

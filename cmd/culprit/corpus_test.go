@@ -66,17 +66,17 @@ func corpusCases() []corpusCase {
 	return []corpusCase{
 		{name: "empty", file: "empty.bin", gen: func() []byte { return nil },
 			about: "an empty file", status: exitError,
-			want: []string{"{file}: unrecognised input format: the input is empty"}},
+			want: []string{"{file}: byte 0: unrecognised input format: the input is empty"}},
 		// The protobuf decoder's own error is reported (the pprof library
 		// hides it behind its legacy-format fallback), with the first field
 		// that does not decode; here it is the very first (byte 0, which
 		// ParseError leaves unprinted).
 		{name: "random bytes", file: "random.bin", gen: randomBytes,
 			about: "4 KiB of seeded pseudo-random bytes", status: exitError,
-			want: []string{"{file}: unrecognised input format: neither OTLP/JSON nor a pprof profile (protobuf: unknown wire type: 6; field 8: reserved wire type)"}},
+			want: []string{"{file}: byte 0: unrecognised input format: neither OTLP/JSON nor a pprof profile (protobuf: unknown wire type: 6; field 8: reserved wire type)"}},
 		{name: "random bytes keep going", file: "random.bin", gen: randomBytes,
 			flags: []string{"--keep-going"}, status: exitError,
-			want: []string{"no readable input", "skipped-input (e.g. {file}: unrecognised input format"}},
+			want: []string{"no readable input", "skipped-input (e.g. {file}: byte 0: unrecognised input format"}},
 		{name: "png header", file: "png-header.png", gen: pngHeader,
 			about: "a PNG signature and header chunk followed by junk", status: exitError,
 			want: []string{"{file}: byte 10: unrecognised input format: neither OTLP/JSON nor a pprof profile (protobuf: type mismatch; bad field tag: invalid field number)"}},
@@ -90,36 +90,36 @@ func corpusCases() []corpusCase {
 			want: []string{"{file}: byte 858: unrecognised input format: neither OTLP/JSON nor a pprof profile (protobuf: too much data; field 4: runs past the end of the input (truncated?))"}},
 		{name: "sample value count", file: "sample-value-count.pb", gen: sampleValueCount,
 			about: "a pprof profile with two sample types whose sample has one value", status: exitError,
-			want: []string{"{file}: malformed pprof profile: mismatch: sample has 1 values vs. 2 types"}},
+			want: []string{"{file}: byte 12: malformed pprof profile: mismatch: sample has 1 values vs. 2 types"}},
 		{name: "no sample types", file: "no-sample-types.pb", gen: noSampleTypes,
 			about: "a valid pprof profile without sample types or samples", status: exitError,
-			want: []string{"{file}: malformed pprof profile: it has no sample types"}},
+			want: []string{"{file}: byte 0: malformed pprof profile: it has no sample types"}},
 		{name: "gzip bomb", file: "bomb.pb.gz", gen: gzipBomb, temp: true,
 			about: "2 GiB of zeros in 2048 gzip members (about 2 MiB)", status: exitError,
-			want:     []string{"{file}: decompresses to more than 200 times its compressed size (a gzip bomb? raise it with --max-ratio): input limit exceeded"},
+			want:     []string{"{file}: byte 13107200 of the decompressed data: decompresses to more than 200 times its compressed size (a gzip bomb? raise it with --max-ratio): input limit exceeded"},
 			maxAlloc: 128 << 20},
 		{name: "gzip bomb max bytes", file: "bomb.pb.gz", gen: gzipBomb, temp: true,
 			flags:  []string{"--max-ratio", "1000000", "--max-bytes", "16777216"},
 			status: exitError, maxAlloc: 128 << 20,
-			want: []string{"{file}: decompressed size exceeds 16777216 bytes (raise it with --max-bytes): input limit exceeded"}},
+			want: []string{"{file}: byte 16777216 of the decompressed data: decompressed size exceeds 16777216 bytes (raise it with --max-bytes): input limit exceeded"}},
 		// Every gzip layer is unwrapped inside the same limits, so the
 		// pprof library never decompresses anything without one.
 		{name: "double gzip", file: "double.pb.gz", gen: doubleGzip, temp: true,
 			about:  "8 MiB of zeros gzipped twice",
 			flags:  []string{"--max-bytes", "2097152"},
 			status: exitError, maxAlloc: 16 << 20, // 8 MiB unpacked; the race detector adds a little
-			want: []string{"{file}: decompresses to more than 200 times its compressed size (a gzip bomb? raise it with --max-ratio): input limit exceeded"}},
+			want: []string{"{file}: byte 1048576 of the decompressed data: decompresses to more than 200 times its compressed size (a gzip bomb? raise it with --max-ratio): input limit exceeded"}},
 		{name: "double gzip max bytes", file: "double.pb.gz", gen: doubleGzip, temp: true,
 			about:  "8 MiB of zeros gzipped twice",
 			flags:  []string{"--max-bytes", "2097152", "--max-ratio", "1000000"},
 			status: exitError, maxAlloc: 16 << 20, // 8 MiB unpacked; the race detector adds a little
-			want: []string{"{file}: decompressed size exceeds 2097152 bytes (raise it with --max-bytes): input limit exceeded"}},
+			want: []string{"{file}: byte 2097152 of the decompressed data: decompressed size exceeds 2097152 bytes (raise it with --max-bytes): input limit exceeded"}},
 		{name: "not OTLP", file: "not-otlp.json", gen: notOTLP,
 			about: "a JSON object that is not an OTLP export request: skipped, and then no input is left", status: exitError,
 			want: []string{`no input yielded any span or sample ({file} skipped: JSON but not OTLP trace data (it starts with "hello"))`}},
 		{name: "deep nesting", file: "deep-nesting.json", gen: deepNesting,
 			about: "JSON nested 10,000 levels deep", status: exitError,
-			want: []string{"{file}:1:529: input limit exceeded: JSON nested deeper than 512 levels"}},
+			want: []string{"{file}:1:4113: input limit exceeded: JSON nested deeper than 4096 levels"}},
 		{name: "huge line", file: "huge-line.jsonl", gen: hugeLine,
 			about: "JSON lines whose second line is longer than the lowered --max-line-bytes",
 			flags: []string{"--max-line-bytes", "4096"}, status: exitError,
@@ -134,7 +134,7 @@ func corpusCases() []corpusCase {
 		// an integer, found an object".
 		{name: "time is an object", file: "wrong-type-time.json", gen: wrongTypeTime,
 			about: `a pretty-printed document with "startTimeUnixNano": {}`, status: exitError,
-			want: []string{"{file}:1: not OTLP/JSON: invalid integer object"}},
+			want: []string{"{file}:12:36: not OTLP/JSON: invalid integer object"}},
 		// Invalid UTF-8 is replaced by U+FFFD (as encoding/json does), so
 		// no invalid byte reaches a report.
 		// A repair, so it is counted in the warnings (and refused by --strict).
@@ -165,6 +165,24 @@ func corpusCases() []corpusCase {
 		{name: "duplicate IDs", file: "duplicate-ids.jsonl", gen: duplicateIDs,
 			about: "a span read twice with the same trace and span ID", status: exitOK,
 			want: []string{"duplicate-span-id (e.g. {file}:2: span eee19b7ec3c1b173", "also read at {file}:1"}},
+		{name: "UTF-16", file: "utf16.json", gen: func() []byte { return []byte("\xff\xfe{\x00}\x00") },
+			about: "JSON in UTF-16", status: exitError,
+			want: []string{"{file}: byte 0: unrecognised input format: UTF-16 text"}},
+		// JSON lines whose first line is broken stay JSON lines: the good
+		// lines are kept with --keep-going.
+		{name: "bad first line", file: "bad-first-line.jsonl", gen: badFirstLine,
+			about: "JSON lines whose first line is not JSON", status: exitError,
+			want: []string{"{file}:1:1: malformed JSON: invalid character 'g' looking for beginning of value"}},
+		{name: "bad first line keep going", file: "bad-first-line.jsonl", gen: badFirstLine,
+			flags: []string{"--keep-going"}, status: exitOK,
+			report: []string{"select * from plants where id = ?"},
+			want:   []string{"malformed-line (e.g. {file}:1:1: malformed JSON"}},
+		// Recursive code gives stacks thousands of frames deep: the middle
+		// is elided, and counted.
+		{name: "deep stack", file: "deep-stack.pb", gen: deepStack, temp: true,
+			about: "a pprof sample 20,000 frames deep", status: exitOK,
+			report: []string{"example.com/greenhouse/catalog.(*Store).List"},
+			want:   []string{"deep-stack (e.g. {file}: sample 41 has 20000 frames, more than --max-depth 4096: the middle 15905 are elided"}},
 		{name: "duplicate IDs strict", file: "duplicate-ids.jsonl", gen: duplicateIDs,
 			flags: []string{"--strict"}, status: exitError,
 			want: []string{"{file}:2: span data needs repair (strict mode): duplicate-span-id: span eee19b7ec3c1b173"}},
@@ -438,6 +456,28 @@ func greenhouseProfile() *profile.Profile {
 		})
 	}
 	return p
+}
+
+func badFirstLine() []byte {
+	return []byte("garbage\n" + otlpLine(rootSpan(), querySpan()))
+}
+
+// deepStack is the greenhouse profile with one more sample, 20,000 frames
+// deep: main.main, a recursive catalog walk, then the store's query.
+func deepStack() []byte {
+	p := greenhouseProfile()
+	walk := &profile.Function{ID: 5, Name: "example.com/greenhouse/catalog.walk", SystemName: "example.com/greenhouse/catalog.walk",
+		Filename: "/src/greenhouse/catalog/walk.go"}
+	p.Function = append(p.Function, walk)
+	stack := []*profile.Location{p.Location[2], p.Location[1]} // leaf first
+	for i := range 20_000 - 3 {
+		l := &profile.Location{ID: uint64(len(p.Location) + 1), Line: []profile.Line{{Function: walk, Line: int64(10 + i)}}}
+		p.Location = append(p.Location, l)
+		stack = append(stack, l)
+	}
+	stack = append(stack, p.Location[0])
+	p.Sample = append(p.Sample, &profile.Sample{Location: stack, Value: []int64{1, 10_000_000}})
+	return rawProfile(p)
 }
 
 func rawProfile(p *profile.Profile) []byte {

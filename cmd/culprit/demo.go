@@ -63,7 +63,7 @@ walk that queries at every level, and pure CPU work that must not be charged.
 
 func runDemo(ctx context.Context, opts *demoOptions) error {
 	if opts.write != "" {
-		return writeDemo(opts.rank.streams, opts.write)
+		return writeDemo(ctx, opts.rank.streams, opts.write)
 	}
 	files := func(build string) ([]string, error) {
 		pattern := "demo/greenhouse-" + build + ".goroutine.*.pb.gz"
@@ -98,7 +98,7 @@ func runDemo(ctx context.Context, opts *demoOptions) error {
 	return runRank(ctx, &opts.rank)
 }
 
-func writeDemo(s *streams, dir string) error {
+func writeDemo(ctx context.Context, s *streams, dir string) error {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return err
 	}
@@ -115,7 +115,11 @@ func writeDemo(s *streams, dir string) error {
 			return err
 		}
 		dst := filepath.Join(dir, e.Name())
-		if err := writeAtomic(dst, nil, func(w io.Writer) error { _, err := w.Write(data); return err }); err != nil {
+		p, err := prepareOutput(ctx, s, dst, nil, func(w io.Writer) error { _, err := w.Write(data); return err })
+		if err != nil {
+			return err
+		}
+		if err := p.commit(ctx, s); err != nil {
 			return err
 		}
 		fmt.Fprintln(s.Err, "wrote "+dst)

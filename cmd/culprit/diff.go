@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"slices"
 	"strconv"
 	"strings"
 	"time"
@@ -123,13 +124,26 @@ func runDiff(ctx context.Context, opts *diffOptions) error {
 	if err != nil {
 		return err
 	}
-	base, err := opts.side(ctx, "base", opts.base, rules)
+	base, baseHelpers, err := opts.side(ctx, "base", opts.base, rules)
 	if err != nil {
 		return err
 	}
-	cand, err := opts.side(ctx, "candidate", opts.candidate, rules)
+	cand, candHelpers, err := opts.side(ctx, "candidate", opts.candidate, rules)
 	if err != nil {
 		return err
+	}
+	if union, redo := helperUnion(baseHelpers, candHelpers); redo && !slices.Contains(opts.base, "-") && !slices.Contains(opts.candidate, "-") {
+		// A helper seen through on one side only would turn its callers
+		// into root causes there and itself into one on the other side:
+		// compare both builds with the same helpers (inputs are read again).
+		named := *rules
+		named.Helpers = append(slices.Clone(rules.Helpers), union...)
+		if base, _, err = opts.side(ctx, "base", opts.base, &named); err != nil {
+			return err
+		}
+		if cand, _, err = opts.side(ctx, "candidate", opts.candidate, &named); err != nil {
+			return err
+		}
 	}
 	if err := attribute.CheckComparable(base, cand); err != nil {
 		return err
@@ -137,7 +151,7 @@ func runDiff(ctx context.Context, opts *diffOptions) error {
 	cmp := attribute.Compare(base, cand, attribute.CompareOptions{Alpha: opts.alpha, Budget: budget, Seed: opts.seed})
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
 	inputs := append(append([]string(nil), opts.base...), opts.candidate...)
-	if err := opts.output.write(opts.streams, inputs, func(w io.Writer) error {
+	if err := opts.output.write(ctx, opts.streams, inputs, func(w io.Writer) error {
 		return renderer.RenderDiff(w, cmp, ropts)
 	}); err != nil {
 		return err
@@ -188,7 +202,7 @@ func runDiffLatency(ctx context.Context, opts *diffOptions, budget attribute.Bud
 	c := attribute.CompareLatency(base, cand, attribute.CompareOptions{Alpha: opts.alpha, Budget: budget, Seed: opts.seed})
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
 	inputs := append(append([]string(nil), opts.base...), opts.candidate...)
-	if err := opts.output.write(opts.streams, inputs, func(w io.Writer) error {
+	if err := opts.output.write(ctx, opts.streams, inputs, func(w io.Writer) error {
 		return renderer.RenderLatencyDiff(w, c, ropts)
 	}); err != nil {
 		return err
@@ -222,19 +236,39 @@ func (opts *diffOptions) latencySide(ctx context.Context, label string, inputs [
 
 // side loads one side of the comparison: a snapshot file, or inputs that
 // are ranked with the command's analysis flags and turned into a snapshot.
-func (opts *diffOptions) side(ctx context.Context, label string, inputs []string, rules *attribute.Rules) (*attribute.Snapshot, error) {
+// For inputs it also returns the shared helpers seen through (non-nil,
+// sorted); nil for a snapshot file.
+func (opts *diffOptions) side(ctx context.Context, label string, inputs []string, rules *attribute.Rules) (*attribute.Snapshot, []string, error) {
 	if len(inputs) == 1 && isSnapshotFile(inputs[0]) {
-		return readSnapshotFile(inputs[0])
+		s, err := await(ctx, func() (*attribute.Snapshot, error) { return readSnapshotFile(inputs[0]) })
+		return s, nil, err
 	}
 	src, err := opts.analysis.load(ctx, opts.streams, inputs)
 	if err != nil {
-		return nil, fmt.Errorf("%s: %w", label, err)
+		return nil, nil, fmt.Errorf("%s: %w", label, err)
 	}
-	res, err := opts.analysis.analyse(src, rules)
+	res, err := opts.analysis.analyse(ctx, opts.streams, src, rules)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
-	return attribute.NewSnapshot(res), nil
+	helpers := []string{}
+	for _, h := range res.Helpers {
+		helpers = append(helpers, h.Function)
+	}
+	slices.Sort(helpers)
+	return attribute.NewSnapshot(res), helpers, nil
+}
+
+// helperUnion returns the union of the helpers seen through on two sides
+// ranked from inputs, and whether the sides differ (then both must be
+// ranked again with the union named).
+func helperUnion(a, b []string) ([]string, bool) {
+	if a == nil || b == nil || slices.Equal(a, b) {
+		return nil, false
+	}
+	u := slices.Concat(a, b)
+	slices.Sort(u)
+	return slices.Compact(u), true
 }
 
 // isSnapshotFile reports whether name is a culprit snapshot: a JSON file
@@ -244,6 +278,10 @@ func isSnapshotFile(name string) bool { return hasSchema(name, "culprit.snapshot
 // hasSchema reports whether name is a JSON file whose first 4 KiB name
 // the schema prefix.
 func hasSchema(name, schema string) bool {
+	// A FIFO or device would block the open, and lose what is peeked.
+	if st, err := os.Stat(name); err != nil || !st.Mode().IsRegular() {
+		return false
+	}
 	fh, err := os.Open(name)
 	if err != nil {
 		return false

@@ -34,7 +34,11 @@ func exitCode(err error, w io.Writer) int {
 		return exitOK
 	}
 	var ue *usageError
+	var se *signalError
 	switch {
+	case errors.As(err, &se):
+		fmt.Fprintln(w, "culprit: "+se.Error())
+		return se.code()
 	case errors.Is(err, errGate):
 		fmt.Fprintln(w, "culprit: "+err.Error())
 		return exitGate

@@ -88,16 +88,17 @@ func runExplain(ctx context.Context, opts *explainOptions) error {
 	if err != nil {
 		return err
 	}
-	tree, cls, vi, err := opts.analysis.build(src, rules)
+	b, err := opts.analysis.buildCtx(ctx, opts.streams, src, rules)
 	if err != nil {
 		return err
 	}
+	tree, cls, vi := b.tree, b.cls, b.value
 	ex := attribute.Explain(tree, cls, opts.analysis.attributeOptions(), re)
 	if opts.output.Limit > 0 && len(ex) > opts.output.Limit {
 		ex = ex[:opts.output.Limit]
 	}
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
-	return opts.output.write(opts.streams, opts.inputs, func(w io.Writer) error {
+	return opts.output.write(ctx, opts.streams, opts.inputs, func(w io.Writer) error {
 		return renderer.RenderExplain(w, ex, src.ValueTypes[vi].Unit, ropts)
 	})
 }
@@ -130,7 +131,7 @@ func runExplainLatency(ctx context.Context, opts *explainOptions, re *regexp.Reg
 		}
 		return fmt.Errorf("no entry point matches %q; entry points: %s", opts.pattern, strings.Join(names, ", "))
 	}
-	return opts.output.write(opts.streams, opts.inputs, func(w io.Writer) error {
+	return opts.output.write(ctx, opts.streams, opts.inputs, func(w io.Writer) error {
 		return report.RenderLatencyPaths(w, format, matched)
 	})
 }

@@ -57,17 +57,18 @@ func runGraph(ctx context.Context, opts *graphOptions) error {
 	if err != nil {
 		return err
 	}
-	tree, cls, _, err := opts.analysis.build(src, rules)
+	b, err := opts.analysis.buildCtx(ctx, opts.streams, src, rules)
 	if err != nil {
 		return err
 	}
+	tree, cls := b.tree, b.cls
 	g := attribute.ChargeGraph(tree, cls, opts.analysis.attributeOptions(), opts.minShare)
 	data, err := g.MarshalDOT()
 	if err != nil {
 		return err
 	}
 	out := outputFlags{Output: opts.output}
-	return out.write(opts.streams, opts.inputs, func(w io.Writer) error {
+	return out.write(ctx, opts.streams, opts.inputs, func(w io.Writer) error {
 		_, err := w.Write(append(data, '\n'))
 		return err
 	})

@@ -34,6 +34,8 @@ type analysisFlags struct {
 	Limits        traces.Limits
 	Findings      attribute.FindingOptions
 	DomainsFile   string
+	Helpers       string   // --helpers: auto or off
+	HelperNames   []string // --helper
 
 	// fsys, when set, is where inputs are opened (the embedded demo data);
 	// names are then taken as given, without directory expansion.
@@ -54,6 +56,8 @@ func (f *analysisFlags) register(cmd *cobra.Command) {
 	fl.StringArrayVar(&f.EntryLabels, "entry-label", nil, "profile label `KEY` naming the entry point (default: route, http.route, endpoint)")
 	fl.StringArrayVar(&f.RequestLabels, "request-label", nil, "profile label `KEY` naming the request (default: request_id, request, trace_id)")
 	fl.BoolVar(&f.Inclusive, "inclusive", false, "charge every application function above the call, not only the nearest")
+	fl.StringVar(&f.Helpers, "helpers", "auto", "shared access helpers (your own SQL wrapper called from many packages): auto sees through them to their callers, off charges them")
+	fl.StringArrayVar(&f.HelperNames, "helper", nil, "function `NAME` (or package/type prefix ending in . or /) of a shared helper to see through (repeatable)")
 	fl.BoolVar(&f.ShowLiterals, "show-literals", false, "show statements with their literal values (may expose personal data)")
 	fl.BoolVar(&f.KeepGoing, "keep-going", false, "skip unreadable files and lines, listing them as warnings")
 	fl.BoolVar(&f.Strict, "strict", false, "treat every repaired span problem (orphans, duplicates, cycles, skew) as an error")
@@ -86,12 +90,26 @@ func (f *analysisFlags) rules() (*attribute.Rules, error) {
 		rules = attribute.Merge(rules, user)
 	}
 	rules.App = append(rules.App, f.App...)
+	rules.Helpers = append(rules.Helpers, f.HelperNames...)
 	return rules, nil
 }
 
+// allInputs is args and every other file the analysis reads: rules and
+// domains files, which no output may replace either.
+func (f *analysisFlags) allInputs(args []string) []string {
+	all := append(append([]string(nil), args...), f.RulesFiles...)
+	if f.DomainsFile != "" {
+		all = append(all, f.DomainsFile)
+	}
+	return all
+}
+
 // expandInputs turns the command's arguments into named readers: files,
-// every regular file below a directory (sorted, hidden names skipped),
-// or "-" for standard input.
+// every regular file below a directory (sorted, hidden names skipped), or
+// "-" for standard input. Symbolic links are followed, a directory argument
+// given as a link too; below a directory each directory and each file is
+// read once, however many links lead to it, so that a link to an ancestor
+// (a loop) adds nothing.
 func expandInputs(args []string) ([]string, error) {
 	var out []string
 	for _, a := range args {
@@ -107,35 +125,90 @@ func expandInputs(args []string) ([]string, error) {
 			out = append(out, a)
 			continue
 		}
-		var found []string
-		err = filepath.WalkDir(a, func(p string, d fs.DirEntry, err error) error {
-			if err != nil {
-				return err
-			}
-			if strings.HasPrefix(d.Name(), ".") && p != a {
-				if d.IsDir() {
-					return filepath.SkipDir
-				}
-				return nil
-			}
-			if d.Type().IsRegular() {
-				found = append(found, p)
-			}
-			return nil
-		})
-		if err != nil {
+		w := dirWalker{seen: map[fileID]bool{}}
+		if err := w.walk(a, st); err != nil {
 			return nil, err
 		}
-		if len(found) == 0 {
+		if len(w.found) == 0 {
 			return nil, fmt.Errorf("%s: directory has no input files", a)
 		}
-		sort.Strings(found)
-		out = append(out, found...)
+		sort.Strings(w.found)
+		out = append(out, w.found...)
 	}
 	return out, nil
 }
 
-// load reads every input into one source.
+// dirWalker lists the regular files below a directory, following symbolic
+// links, each directory and file once.
+type dirWalker struct {
+	found   []string
+	seen    map[fileID]bool
+	seenDir []os.FileInfo // directories, where no fileID is available
+}
+
+// visit reports whether st is seen for the first time, and records it.
+func (w *dirWalker) visit(st os.FileInfo) bool {
+	if id, ok := idOf(st); ok {
+		if w.seen[id] {
+			return false
+		}
+		w.seen[id] = true
+		return true
+	}
+	if !st.IsDir() {
+		return true
+	}
+	for _, d := range w.seenDir {
+		if os.SameFile(d, st) {
+			return false
+		}
+	}
+	w.seenDir = append(w.seenDir, st)
+	return true
+}
+
+func (w *dirWalker) walk(dir string, st os.FileInfo) error {
+	if !w.visit(st) {
+		return nil
+	}
+	entries, err := os.ReadDir(dir)
+	if err != nil {
+		return err
+	}
+	for _, e := range entries {
+		if strings.HasPrefix(e.Name(), ".") {
+			continue
+		}
+		p := filepath.Join(dir, e.Name())
+		if e.Type().IsRegular() {
+			if info, err := e.Info(); err != nil || w.visit(info) {
+				w.found = append(w.found, p)
+			}
+			continue
+		}
+		if e.Type()&fs.ModeSymlink == 0 && !e.IsDir() {
+			continue // devices, sockets and pipes are read only when named
+		}
+		info, err := os.Stat(p) // follows a link
+		switch {
+		case err != nil:
+			if e.Type()&fs.ModeSymlink != 0 {
+				return fmt.Errorf("%s: broken symbolic link: %w", p, err)
+			}
+			return err
+		case info.IsDir():
+			if err := w.walk(p, info); err != nil {
+				return err
+			}
+		case info.Mode().IsRegular() && w.visit(info):
+			w.found = append(w.found, p)
+		}
+	}
+	return nil
+}
+
+// load reads every input into one source. It returns as soon as ctx is
+// done, even while a read is blocked (see await).
 func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*traces.Source, error) {
 	kind, err := traces.ParseKind(f.Source)
 	if err != nil {
@@ -148,6 +221,22 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 			return nil, err
 		}
 	}
+	var total int64
+	if s.ErrIsTerminal {
+		for _, name := range names {
+			if st, err := os.Stat(name); err == nil && f.fsys == nil && name != "-" {
+				total += st.Size()
+			}
+		}
+	}
+	// Finished here, not in read: an interrupted run clears the progress
+	// line before it says why it stopped.
+	prog := startProgress(s.Err, s.ErrIsTerminal, total)
+	defer prog.Finish()
+	return await(ctx, func() (*traces.Source, error) { return f.read(ctx, s, names, kind, prog) })
+}
+
+func (f *analysisFlags) read(ctx context.Context, s *streams, names []string, kind traces.Kind, prog *progress) (*traces.Source, error) {
 	opts := traces.Options{
 		Source:     kind,
 		Limits:     f.Limits,
@@ -163,42 +252,37 @@ func (f *analysisFlags) load(ctx context.Context, s *streams, args []string) (*t
 		opts.Statement = attribute.AppendFingerprint
 	}
 	loader := traces.NewLoader(opts)
-	var total int64
-	for _, name := range names {
-		if st, err := os.Stat(name); err == nil && f.fsys == nil && name != "-" {
-			total += st.Size()
-		}
-	}
-	prog := startProgress(s.Err, s.ErrIsTerminal, total)
-	defer prog.Finish()
+	testPause(ctx, s, "reading")
 	stdinUsed := false
 	for _, name := range names {
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
-		var r io.Reader
 		if name == "-" {
 			if stdinUsed {
 				return nil, usagef("- (standard input) given more than once")
 			}
 			stdinUsed = true
-			r = s.In
-			name = "<stdin>"
-		} else {
-			fh, err := f.open(name)
-			if err != nil {
-				if f.KeepGoing {
-					if err := loader.Add(name, errReader{err}); err != nil {
-						return nil, err
-					}
-					continue
-				}
+			if err := loader.Add("<stdin>", ctxReader{ctx, prog.reader(s.In)}); err != nil {
 				return nil, err
 			}
-			r = fh
-			defer fh.Close()
+			continue
 		}
-		if err := loader.Add(name, ctxReader{ctx, prog.reader(r)}); err != nil {
+		// Each input is closed as soon as it is read: a directory of
+		// thousands of files stays within the descriptor limit.
+		fh, err := f.open(name)
+		if err != nil {
+			if f.KeepGoing {
+				if err := loader.Add(name, errReader{err}); err != nil {
+					return nil, err
+				}
+				continue
+			}
+			return nil, err
+		}
+		err = loader.Add(name, ctxReader{ctx, prog.reader(fh)})
+		fh.Close()
+		if err != nil {
 			return nil, err
 		}
 	}
@@ -232,8 +316,16 @@ type errReader struct{ err error }
 
 func (e errReader) Read([]byte) (int, error) { return 0, e.err }
 
-// analyse builds the tree, classifies and attributes src.
-func (f *analysisFlags) analyse(src *traces.Source, rules *attribute.Rules) (*attribute.Result, error) {
+// analyse builds the tree, classifies and attributes src. It returns as
+// soon as ctx is done (see await).
+func (f *analysisFlags) analyse(ctx context.Context, s *streams, src *traces.Source, rules *attribute.Rules) (*attribute.Result, error) {
+	return await(ctx, func() (*attribute.Result, error) {
+		testPause(ctx, s, "analysis")
+		return f.attribute(src, rules)
+	})
+}
+
+func (f *analysisFlags) attribute(src *traces.Source, rules *attribute.Rules) (*attribute.Result, error) {
 	tree, cls, _, err := f.build(src, rules)
 	if err != nil {
 		return nil, err
@@ -254,6 +346,22 @@ func (f *analysisFlags) analyse(src *traces.Source, rules *attribute.Rules) (*at
 	return res, nil
 }
 
+// built is what build makes.
+type built struct {
+	tree  *callgraph.Tree
+	cls   *attribute.Classifier
+	value int
+}
+
+// buildCtx is build, returning as soon as ctx is done (see await).
+func (f *analysisFlags) buildCtx(ctx context.Context, s *streams, src *traces.Source, rules *attribute.Rules) (built, error) {
+	return await(ctx, func() (built, error) {
+		testPause(ctx, s, "analysis")
+		tree, cls, vi, err := f.build(src, rules)
+		return built{tree, cls, vi}, err
+	})
+}
+
 // build checks --value against src, classifies src's frames and builds its
 // calling-context tree, cut at database and network boundaries (nothing
 // below them is needed). It returns the index of the value charged.
@@ -261,6 +369,9 @@ func (f *analysisFlags) build(src *traces.Source, rules *attribute.Rules) (*call
 	vi, err := src.ValueIndex(f.Value)
 	if err != nil {
 		return nil, nil, 0, usagef("--value: %v", err)
+	}
+	if _, err := attribute.ParseHelperMode(f.Helpers); err != nil && f.Helpers != "" {
+		return nil, nil, 0, usagef("--helpers must be one of: %s", strings.Join(attribute.HelperModes, ", "))
 	}
 	cls := attribute.NewClassifier(src, rules)
 	return callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep}), cls, vi, nil
@@ -270,10 +381,18 @@ func (f *analysisFlags) attributeOptions() attribute.Options {
 	return attribute.Options{
 		Value:              f.Value,
 		Inclusive:          f.Inclusive,
+		Helpers:            f.helperMode(),
 		EntryLabels:        f.EntryLabels,
 		RequestLabels:      f.RequestLabels,
 		ShowLiterals:       f.ShowLiterals,
 		Findings:           f.Findings,
 		DropRequestVectors: f.dropVectors,
 	}
+}
+
+// helperMode returns --helpers as a mode (build has checked it; unset
+// means auto).
+func (f *analysisFlags) helperMode() attribute.HelperMode {
+	m, _ := attribute.ParseHelperMode(f.Helpers)
+	return m
 }

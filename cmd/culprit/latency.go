@@ -90,21 +90,23 @@ func runLatency(ctx context.Context, opts *latencyOptions) error {
 		return err
 	}
 	opts.analysis.skipDigest = (format == "text" || format == "csv") && opts.save == ""
+	if err := checkTargets(opts.output.Output, opts.save, opts.analysis.allInputs(opts.inputs)); err != nil {
+		return err
+	}
 	res, err := opts.analysis.latency(ctx, s, opts.inputs, attribute.LatencyOptions{Tail: opts.tail, Vectors: opts.save != ""})
 	if err != nil {
 		return err
 	}
+	var snapshot func(io.Writer) error
 	if opts.save != "" {
 		snap, err := attribute.NewLatencySnapshot(res)
 		if err != nil {
 			return err
 		}
-		if err := writeAtomic(opts.save, opts.inputs, snap.Write); err != nil {
-			return fmt.Errorf("writing snapshot: %w", err)
-		}
+		snapshot = snap.Write
 	}
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
-	if err := opts.output.write(s, opts.inputs, func(w io.Writer) error {
+	if err := opts.output.writeWithSnapshot(ctx, s, opts.inputs, opts.save, snapshot, func(w io.Writer) error {
 		return renderer.RenderLatency(w, res, ropts)
 	}); err != nil {
 		return err
@@ -132,10 +134,13 @@ func (f *analysisFlags) latency(ctx context.Context, s *streams, inputs []string
 	if src.Kind != traces.Spans {
 		return nil, errors.New(attribute.ErrNoTiming.Error())
 	}
-	tree, cls, _, err := f.build(src, rules)
-	if err != nil {
-		return nil, err
-	}
 	lopts.Options = f.attributeOptions()
-	return attribute.Latency(tree, cls, lopts)
+	return await(ctx, func() (*attribute.LatencyResult, error) {
+		testPause(ctx, s, "analysis")
+		tree, cls, _, err := f.build(src, rules)
+		if err != nil {
+			return nil, err
+		}
+		return attribute.Latency(tree, cls, lopts)
+	})
 }

@@ -43,7 +43,7 @@ func runMerge(ctx context.Context, opts *mergeOptions) error {
 		if err := ctx.Err(); err != nil {
 			return err
 		}
-		snap, err := readSnapshotFile(name)
+		snap, err := await(ctx, func() (*attribute.Snapshot, error) { return readSnapshotFile(name) })
 		if err != nil {
 			return err
 		}
@@ -54,7 +54,7 @@ func runMerge(ctx context.Context, opts *mergeOptions) error {
 		return err
 	}
 	out := outputFlags{Output: opts.output}
-	return out.write(opts.streams, opts.inputs, merged.Write)
+	return out.write(ctx, opts.streams, opts.inputs, merged.Write)
 }
 
 func readSnapshotFile(name string) (*attribute.Snapshot, error) {

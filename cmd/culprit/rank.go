@@ -4,6 +4,8 @@ import (
 	"context"
 	"fmt"
 	"io"
+	"os"
+	"path/filepath"
 	"strings"
 
 	"github.com/culprithq/culprit/attribute"
@@ -85,22 +87,23 @@ func runRank(ctx context.Context, opts *rankOptions) error {
 	if err != nil {
 		return err
 	}
+	if err := checkTargets(opts.output.Output, opts.save, opts.analysis.allInputs(opts.inputs)); err != nil {
+		return err
+	}
 	src, err := opts.analysis.load(ctx, s, opts.inputs)
 	if err != nil {
 		return err
 	}
-	res, err := opts.analysis.analyse(src, rules)
+	res, err := opts.analysis.analyse(ctx, s, src, rules)
 	if err != nil {
 		return err
 	}
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
+	var snapshot func(io.Writer) error
 	if opts.save != "" {
-		snap := attribute.NewSnapshot(res)
-		if err := writeAtomic(opts.save, opts.inputs, snap.Write); err != nil {
-			return fmt.Errorf("writing snapshot: %w", err)
-		}
+		snapshot = attribute.NewSnapshot(res).Write
 	}
-	if err := opts.output.write(s, opts.inputs, func(w io.Writer) error {
+	if err := opts.output.writeWithSnapshot(ctx, s, opts.inputs, opts.save, snapshot, func(w io.Writer) error {
 		return renderer.Render(w, res, ropts)
 	}); err != nil {
 		return err
@@ -111,6 +114,30 @@ func runRank(ctx context.Context, opts *rankOptions) error {
 	if format != "text" || (opts.output.Output != "" && opts.output.Output != "-") {
 		for _, w := range res.Warnings {
 			fmt.Fprintln(s.Err, "culprit: warning: "+w)
+		}
+	}
+	return nil
+}
+
+// checkTargets refuses, before anything is read, a report (out) and a
+// snapshot (save) written to one file, or either written over an input.
+func checkTargets(out, save string, inputs []string) error {
+	if out == "-" {
+		out = ""
+	}
+	if out != "" && save != "" {
+		a, _ := filepath.Abs(out)
+		b, _ := filepath.Abs(save)
+		// Two reports may go to one device (/dev/null), not to one file.
+		if st, err := os.Stat(out); a == b && (err != nil || st.Mode().IsRegular()) {
+			return usagef("-o and --save name the same file %s", out)
+		}
+	}
+	for _, target := range []string{out, save} {
+		if target != "" {
+			if err := checkNotInput(target, inputs); err != nil {
+				return err
+			}
 		}
 	}
 	return nil

@@ -16,7 +16,8 @@ test, walks every call path from its entry point to the database and network
 calls, and charges each call's cost to the first application-owned function
 that caused it. It ranks those root causes with their share of the cost.
 
-Exit status: 0 success, 1 error, 2 usage error, 3 regression gate tripped.`,
+Exit status: 0 success, 1 error, 2 usage error, 3 regression gate tripped,
+130 or 143 stopped by SIGINT or SIGTERM.`,
 		SilenceUsage:  true,
 		SilenceErrors: true,
 	}

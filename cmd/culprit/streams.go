@@ -1,7 +1,6 @@
 package main
 
 import (
-	"bytes"
 	"io"
 	"os"
 
@@ -30,15 +29,4 @@ func systemStreams() *streams {
 	}
 	s.ErrIsTerminal = term.IsTerminal(int(os.Stderr.Fd()))
 	return s
-}
-
-// testStreams returns streams backed by buffers, for tests.
-func testStreams(in string) (*streams, *bytes.Buffer, *bytes.Buffer) {
-	var out, errb bytes.Buffer
-	return &streams{
-		In:     bytes.NewBufferString(in),
-		Out:    &out,
-		Err:    &errb,
-		Getenv: func(string) string { return "" },
-	}, &out, &errb
 }

@@ -1,0 +1,294 @@
+package attribute
+
+import (
+	"fmt"
+	"slices"
+	"strings"
+
+	"github.com/culprithq/culprit/callgraph"
+	"github.com/culprithq/culprit/traces"
+)
+
+// HelperMode says whether shared access helpers are detected. Helpers
+// named in the rules (Rules.Helpers) are seen through in every mode.
+type HelperMode uint8
+
+// Helper modes.
+const (
+	// HelpersAuto detects shared helpers (see SharedHelper) and sees
+	// through them and the named ones. The default.
+	HelpersAuto HelperMode = iota
+	// HelpersOff sees through the named helpers only.
+	HelpersOff
+)
+
+// HelperModes are the names of the helper modes, for flags.
+var HelperModes = []string{"auto", "off"}
+
+// ParseHelperMode parses "auto" or "off".
+func ParseHelperMode(s string) (HelperMode, error) {
+	for i, n := range HelperModes {
+		if s == n {
+			return HelperMode(i), nil
+		}
+	}
+	return 0, fmt.Errorf("unknown helper mode %q; valid: %s", s, strings.Join(HelperModes, ", "))
+}
+
+// Detection thresholds of shared helpers (common practice, chosen for
+// this tool: a function that one package's code calls is that package's
+// design; one that several packages go through is plumbing).
+const (
+	helperMinCallers  = 3
+	helperMinPackages = 2
+)
+
+// SharedHelper is an application function that the attribution saw
+// through: the service's own access layer (an instrumented SQL wrapper, a
+// repository base type) right above database or network calls. Its
+// callers are charged instead, and the call's detail names it ("via").
+//
+// A function is detected as a shared helper when it is the nearest
+// application frame above a boundary on some path and is called, on the
+// paths that reach a boundary through it, by at least 3 distinct
+// application functions (not entry points such as routes or main) of at
+// least 2 packages other than its own, and it is right above the
+// boundary at least as often (in the calling-context tree) as it calls
+// other application functions: a helper calls out itself. A
+// function called from one package's code stays a root cause.
+type SharedHelper struct {
+	Function string `json:"function"`
+	// Named is set when the rules (or --helper) named it; it was not
+	// necessarily detected.
+	Named bool `json:"named,omitempty"`
+	// Callers and Packages count the application functions of other
+	// packages that call it on paths reaching a boundary, and their
+	// packages.
+	Callers  int `json:"callers"`
+	Packages int `json:"packages"`
+	// Cost is the cost charged through it to its callers.
+	Cost int64 `json:"cost"`
+}
+
+// helperInfo is what the walk knows of one helper function.
+type helperInfo struct {
+	named             bool
+	callers, packages int
+}
+
+// isNamedHelper reports whether function fn is named by one of the
+// helper names: the whole function name, or a prefix of it that ends at
+// an identifier boundary ('.' or '/' follows or ends the name).
+func isNamedHelper(fn string, names []string) bool {
+	for _, h := range names {
+		if !strings.HasPrefix(fn, h) || h == "" {
+			continue
+		}
+		if len(fn) == len(h) || strings.HasSuffix(h, ".") || strings.HasSuffix(h, "/") || fn[len(h)] == '.' {
+			return true
+		}
+	}
+	return false
+}
+
+// packageOf returns the package (Go import path, JVM/Python package,
+// module) of frame f's function: what tells callers of different parts
+// of a code base apart.
+func packageOf(f *traces.Frame) string {
+	fn := f.Function
+	if strings.IndexByte(fn, '.') < 0 {
+		return "" // a bare name (a JavaScript function, a span name)
+	}
+	if lang(f) == langGo || strings.IndexByte(fn, '/') >= 0 {
+		return goPackage(fn)
+	}
+	// Dotted names: drop the function, then a class or receiver type.
+	i := strings.LastIndexByte(fn, '.')
+	if i < 0 {
+		return ""
+	}
+	pkg := fn[:i]
+	if j := strings.LastIndexByte(pkg, '.'); j >= 0 && j+1 < len(pkg) {
+		if c := pkg[j+1]; c == '(' || (c >= 'A' && c <= 'Z') {
+			pkg = pkg[:j]
+		}
+	}
+	return pkg
+}
+
+// findHelpers returns the shared helpers of the tree by classifier
+// function index (nil when there are none). w must have its first pass
+// done: lastApp is still the nearest application node.
+func findHelpers(t *callgraph.Tree, c *Classifier, w *walkState, mode HelperMode) map[int32]*helperInfo {
+	src := t.Source()
+	out := map[int32]*helperInfo{}
+	if names := c.rules.Helpers; len(names) > 0 {
+		for fn, name := range c.fnNames {
+			if isNamedHelper(name, names) {
+				out[int32(fn)] = &helperInfo{named: true}
+			}
+		}
+	}
+	if mode == HelpersAuto {
+		// The caller of each application node right above a boundary:
+		// the nearest application node above it of another function,
+		// as helper<<32 | caller (classifier function indices).
+		var pairs []uint64
+		done := make([]uint64, (t.Len()+63)/64) // bit set of helper nodes seen
+		pkgs := make([]string, len(c.fnNames))  // by function; "\x00" not yet known
+		for i := range pkgs {
+			pkgs[i] = "\x00"
+		}
+		pkgOf := func(n callgraph.NodeID) string {
+			fn := c.fn[t.Frame(n)]
+			if pkgs[fn] == "\x00" {
+				pkgs[fn] = packageOf(&src.Frames[t.Frame(n)])
+			}
+			return pkgs[fn]
+		}
+		// In the same pass, how often each function calls another
+		// application function above a boundary (once per calling node and
+		// callee node), against how often it is right above one: an access
+		// helper calls out itself, it does not merely end some paths of
+		// code that calls further.
+		near := make([]int32, len(c.fnNames))
+		calling := make([]int32, len(c.fnNames))
+		for i := 1; i < t.Len(); i++ {
+			n := callgraph.NodeID(i)
+			switch w.boundary[n] {
+			case 0: // above every boundary
+				if w.lastApp[n] == n {
+					if p := w.lastApp[t.Parent(n)]; p != 0 {
+						if pf := c.fn[t.Frame(p)]; pf != c.fn[t.Frame(n)] {
+							calling[pf]++
+						}
+					}
+				}
+				continue
+			case n: // a boundary
+			default: // below one
+				continue
+			}
+			h := w.lastApp[n]
+			if h == 0 || done[h/64]&(1<<(h%64)) != 0 {
+				continue
+			}
+			done[h/64] |= 1 << (h % 64)
+			hf := c.fn[t.Frame(h)]
+			near[hf]++
+			p := w.lastApp[t.Parent(h)]
+			for p != 0 && c.fn[t.Frame(p)] == hf {
+				p = w.lastApp[t.Parent(p)]
+			}
+			if p != 0 && !isEntry(c, t, p) && pkgOf(p) != pkgOf(h) {
+				pairs = append(pairs, uint64(uint32(hf))<<32|uint64(uint32(c.fn[t.Frame(p)])))
+			}
+		}
+		slices.Sort(pairs)
+		pairs = slices.Compact(pairs)
+		// Per helper (a run of pairs): its callers and their packages.
+		var callerPkgs []string
+		for i := 0; i < len(pairs); {
+			hf := int32(pairs[i] >> 32)
+			j := i
+			callerPkgs = callerPkgs[:0]
+			for ; j < len(pairs) && int32(pairs[j]>>32) == hf; j++ {
+				callerPkgs = append(callerPkgs, pkgs[int32(uint32(pairs[j]))])
+			}
+			callers := j - i
+			i = j
+			if callers < helperMinCallers || calling[hf] > near[hf] {
+				continue
+			}
+			slices.Sort(callerPkgs)
+			if np := len(slices.Compact(callerPkgs)); np >= helperMinPackages {
+				hi := out[hf]
+				if hi == nil {
+					hi = &helperInfo{}
+					out[hf] = hi
+				}
+				hi.callers, hi.packages = callers, np
+			}
+		}
+	}
+	if len(out) == 0 {
+		return nil
+	}
+	return out
+}
+
+// seeThroughHelpers moves each boundary's root cause from a chain of
+// helpers right above it to the nearest application node above them
+// that is not a helper, and records the nearest helper in w.via. A
+// boundary with no such node above the helpers, or only an entry point
+// (a route), keeps its nearest helper as the root cause. Nodes below a
+// boundary take their boundary's.
+func (w *walkState) seeThroughHelpers(c *Classifier, helpers map[int32]*helperInfo) {
+	t := w.t
+	w.helpers = helpers
+	isHelper := make([]bool, len(c.fnNames))
+	for fn := range helpers {
+		isHelper[fn] = true
+	}
+	helper := func(n callgraph.NodeID) bool { return isHelper[c.fn[t.Frame(n)]] }
+	// top is, per node above a boundary, the nearest application node at
+	// or above it that is not a helper: where a chain of helpers right
+	// above a boundary ends. One pass in ID order (parents first).
+	top := make([]callgraph.NodeID, t.Len())
+	for i := 1; i < t.Len(); i++ {
+		id := callgraph.NodeID(i)
+		b := w.boundary[id]
+		if b == 0 {
+			top[id] = top[t.Parent(id)]
+			if class, _ := c.class(t.Frame(id)); class == Application && !isHelper[c.fn[t.Frame(id)]] {
+				top[id] = id
+			}
+			continue
+		}
+		if b != id {
+			if w.via != nil {
+				w.lastApp[id], w.via[id] = w.lastApp[b], w.via[b]
+			}
+			continue
+		}
+		h := w.lastApp[b]
+		if h == 0 || !helper(h) {
+			continue
+		}
+		if n := top[t.Parent(b)]; n != 0 && !isEntry(c, t, n) {
+			if w.via == nil {
+				// The first helper seen through: nodes before b hold none.
+				w.via = make([]callgraph.NodeID, t.Len())
+			}
+			w.lastApp[b], w.via[b] = n, h
+		}
+	}
+}
+
+// isEntry reports whether node n is an entry point (a route span, main):
+// never a caller a helper is seen through to.
+func isEntry(c *Classifier, t *callgraph.Tree, n callgraph.NodeID) bool {
+	_, entry := c.class(t.Frame(n))
+	return entry
+}
+
+// sharedHelpers lists the helpers seen through, with the cost charged
+// through each (cost by classifier function index), by cost descending,
+// then name.
+func sharedHelpers(c *Classifier, helpers map[int32]*helperInfo, cost map[int32]int64) []SharedHelper {
+	var out []SharedHelper
+	for fn, v := range cost {
+		hi := helpers[fn]
+		out = append(out, SharedHelper{Function: c.fnNames[fn], Named: hi.named, Callers: hi.callers, Packages: hi.packages, Cost: v})
+	}
+	slices.SortFunc(out, func(a, b SharedHelper) int {
+		if a.Cost != b.Cost {
+			if a.Cost > b.Cost {
+				return -1
+			}
+			return 1
+		}
+		return strings.Compare(a.Function, b.Function)
+	})
+	return out
+}
