@@ -65,7 +65,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		Inputs:        src.Inputs,
 		Source:        src.Kind.String(),
 		ValueType:     src.ValueTypes[vi],
-		Sampled:       !spans,
+		Sampled:       src.Kind == traces.Profile,
 		CPUOnly:       isCPUOnly(src, vi),
 		Inclusive:     opts.Inclusive,
 		DurationNanos: src.DurationNanos,
@@ -107,7 +107,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		if acc.cause.Cost == 0 && acc.recCost == 0 {
 			continue
 		}
-		cs := acc.finish(src, denom, res.Totals.BoundarySamples, !spans, spans, !opts.DropRequestVectors, &scratch)
+		cs := acc.finish(src, denom, res.Totals.BoundarySamples, res.Sampled, spans || wk.callsIx >= 0, !opts.DropRequestVectors, &scratch)
 		if cs.Cost > 0 {
 			res.Causes = append(res.Causes, cs)
 		}
@@ -159,6 +159,20 @@ func sampleIndex(src *traces.Source, vi int) int {
 	}
 	for i, vt := range src.ValueTypes {
 		if vt.Unit == "count" && (vt.Type == "samples" || vt.Type == "goroutine" || vt.Type == "contentions") {
+			return i
+		}
+	}
+	return -1
+}
+
+// callsIndex returns the value index counting calls of a source that is
+// not made of spans (an execution trace's calls/count), -1 when none.
+func callsIndex(src *traces.Source) int {
+	if src.Kind != traces.ExecTrace {
+		return -1
+	}
+	for i, vt := range src.ValueTypes {
+		if vt.Type == "calls" && vt.Unit == "count" {
 			return i
 		}
 	}

@@ -488,9 +488,9 @@ func (s *Snapshot) Validate() error {
 		return fmt.Errorf("%w %q; want %q", ErrSnapshotSchema, s.Schema, SnapshotSchema)
 	}
 	switch s.SourceKind {
-	case traces.Profile.String(), traces.Spans.String():
+	case traces.Profile.String(), traces.Spans.String(), traces.ExecTrace.String():
 	default:
-		return bad("sourceKind %q is neither %q nor %q", s.SourceKind, traces.Profile, traces.Spans)
+		return bad("sourceKind %q is none of %q, %q, %q", s.SourceKind, traces.Profile, traces.Spans, traces.ExecTrace)
 	}
 	if s.ValueType.Type == "" {
 		return bad("valueType has no type")

@@ -174,6 +174,7 @@ type walk struct {
 	src          *traces.Source
 	w            *walkState
 	vi, sampleIx int
+	callsIx      int // calls/count of an execution trace, else -1
 	spans        bool
 	inclusive    bool
 	literals     bool
@@ -195,7 +196,7 @@ func newWalk(t *callgraph.Tree, c *Classifier, opts *Options, withRequests bool)
 	}
 	wk := &walk{
 		t: t, c: c, src: src, w: newWalkState(t, c, opts.Helpers), vi: vi, sampleIx: sampleIndex(src, vi),
-		spans: src.Kind == traces.Spans, inclusive: opts.Inclusive, literals: opts.ShowLiterals,
+		callsIx: callsIndex(src), spans: src.Kind == traces.Spans, inclusive: opts.Inclusive, literals: opts.ShowLiterals,
 		entryLabels: opts.EntryLabels,
 	}
 	if wk.entryLabels == nil {
@@ -292,7 +293,9 @@ func (wr *walker) next(pi int, r *charge) {
 	p := &path
 	leaf := t.Leaf(pi)
 	*r = charge{path: pi, request: p.Request, cost: p.Values[wr.vi], samples: 1, app: w.lastApp[leaf]}
-	if wr.sampleIx >= 0 {
+	if wr.callsIx >= 0 {
+		r.samples = 0 // measured waits, not samples: requests count calls
+	} else if wr.sampleIx >= 0 {
 		r.samples = p.Values[wr.sampleIx]
 	}
 	if wr.reqs != nil {
@@ -332,6 +335,8 @@ func (wr *walker) next(pi int, r *charge) {
 		if len(p.Values) > 1 {
 			r.calls = p.Values[1]
 		}
+	} else if wr.callsIx >= 0 {
+		r.calls = p.Values[wr.callsIx]
 	}
 	sys := pathSystem(wr.c, t, w, p, leaf, b)
 	via := ""

@@ -26,6 +26,10 @@ const (
 	// Spans sources hold one path per span: a path's values include the
 	// time of every path below it (a span's duration contains its children).
 	Spans
+	// ExecTrace sources hold the waits of requests read from a Go
+	// execution trace: like a profile's, a path's values belong to its
+	// leaf and add up, but they are measured, not sampled, and count calls.
+	ExecTrace
 )
 
 func (k Kind) String() string {
@@ -34,6 +38,8 @@ func (k Kind) String() string {
 		return "profile"
 	case Spans:
 		return "spans"
+	case ExecTrace:
+		return "exectrace"
 	}
 	return "unknown"
 }

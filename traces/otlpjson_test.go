@@ -1494,6 +1494,8 @@ func TestSniff(t *testing.T) {
 		{"\x1f\x8b\x08", FormatGzip},
 		{"\x0a\x05hello", FormatPprof},
 		{"\xff\xfe{\x00", FormatUTF16},
+		{"go 1.26 trace\x00\x00\x00", FormatExecTrace},
+		{"go 1.26 tracer", FormatPprof},
 		// A legacy text profile (read by the pprof library).
 		{"--- contention:\ncycles/second=3000000000\n", FormatPprof},
 	} {

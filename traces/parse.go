@@ -23,6 +23,7 @@ type Loader struct {
 	opts     Options
 	profiles *profileAppender
 	spans    *SpanCollector
+	exec     *ExecCollector
 	inputs   []Input
 	warnings Warnings
 	byKind   map[Kind][]string // input names of each kind admitted (see admit)
@@ -121,6 +122,16 @@ func (l *Loader) add(name string, r io.Reader) error {
 		if err := l.spans.Add(name, bb); err != nil {
 			return readError(name, err, counted.n)
 		}
+	case FormatExecTrace:
+		if !l.admit(ExecTrace, name) {
+			return nil
+		}
+		if l.exec == nil {
+			l.exec = NewExecCollector(l.opts.Limits)
+		}
+		if err := l.exec.Add(name, bb); err != nil {
+			return readError(name, err, counted.n)
+		}
 	case FormatPprof:
 		if !l.admit(Profile, name) {
 			return nil
@@ -197,6 +208,8 @@ func (l *Loader) Source() (*Source, error) {
 			return nil, err
 		}
 		src = s
+	case l.exec != nil:
+		src = l.exec.Source()
 	default:
 		if l.warnings.Len() > 0 {
 			return nil, fmt.Errorf("no readable input (%s)", strings.Join(l.warnings.Strings(), "; "))

@@ -36,6 +36,7 @@ type format struct {
 var formats = []format{
 	{FormatGzip, looksLikeGzip},
 	{FormatUTF16, looksLikeUTF16},
+	{FormatExecTrace, LooksLikeExecTrace},
 	{FormatOTLPJSON, looksLikeJSON},
 	// The pprof library reads protobuf and legacy text profiles, and
 	// words the error for anything else: it takes the rest.

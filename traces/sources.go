@@ -10,7 +10,8 @@ import (
 )
 
 // ParseKind reads the name of a kind of input as --source takes it:
-// "traces" (or "spans") or "profiles" (or "profile"); "" is 0, any kind.
+// "traces" (or "spans"), "profiles" (or "profile") or "exectraces" (Go
+// execution traces); "" is 0, any kind.
 func ParseKind(s string) (Kind, error) {
 	switch s {
 	case "":
@@ -19,14 +20,19 @@ func ParseKind(s string) (Kind, error) {
 		return Spans, nil
 	case "profiles", "profile":
 		return Profile, nil
+	case "exectraces", "exectrace":
+		return ExecTrace, nil
 	}
-	return 0, fmt.Errorf("unknown source %q: want traces or profiles", s)
+	return 0, fmt.Errorf("unknown source %q: want traces, profiles or exectraces", s)
 }
 
 // plural names a kind of input for users.
 func (k Kind) plural() string {
-	if k == Spans {
+	switch k {
+	case Spans:
 		return "traces"
+	case ExecTrace:
+		return "exectraces"
 	}
 	return "profiles"
 }
@@ -58,8 +64,15 @@ func (l *Loader) mixError() error {
 		}
 		return strings.Join(names, ", ")
 	}
-	return fmt.Errorf("the inputs hold profiles (%s) and traces (%s); culprit analyses one kind per run: choose one with --source profiles or --source traces: %w",
-		list(l.byKind[Profile]), list(l.byKind[Spans]), ErrMismatch)
+	var held, choose []string
+	for _, k := range []Kind{Profile, Spans, ExecTrace} {
+		if names := l.byKind[k]; len(names) > 0 {
+			held = append(held, fmt.Sprintf("%s (%s)", k.plural(), list(names)))
+			choose = append(choose, "--source "+k.plural())
+		}
+	}
+	return fmt.Errorf("the inputs hold %s; culprit analyses one kind per run: choose one with %s: %w",
+		strings.Join(held, " and "), strings.Join(choose, " or "), ErrMismatch)
 }
 
 // nothingRead returns the error for a run in which no input yielded a

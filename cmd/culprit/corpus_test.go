@@ -10,6 +10,7 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"runtime/trace"
 	"slices"
 	"strings"
 	"testing"
@@ -186,7 +187,57 @@ func corpusCases() []corpusCase {
 		{name: "duplicate IDs strict", file: "duplicate-ids.jsonl", gen: duplicateIDs,
 			flags: []string{"--strict"}, status: exitError,
 			want: []string{"{file}:2: span data needs repair (strict mode): duplicate-span-id: span eee19b7ec3c1b173"}},
+		{name: "exectrace future version", file: "exectrace-go1.99.trace", gen: func() []byte { return execHeader("1.99", 32) },
+			about: "a Go execution trace header of a Go version not released", status: exitError,
+			want: []string{"{file}: a Go execution trace from go 1.99, which this build cannot read"}},
+		{name: "exectrace old version", file: "exectrace-go1.21.trace", gen: func() []byte { return execHeader("1.21", 32) },
+			about: "a Go execution trace header of Go 1.21 (the format before 1.22)", status: exitError,
+			want: []string{"{file}: a Go execution trace from go 1.21; culprit reads traces of Go 1.22 and later"}},
+		{name: "exectrace corrupt", file: "exectrace-corrupt.trace", gen: execCorrupt,
+			about: "a Go 1.26 execution trace header followed by seeded pseudo-random bytes", status: exitError,
+			want: []string{"{file}: byte 17: malformed Go execution trace"}},
+		{name: "exectrace truncated", file: "exectrace-cut.trace", gen: execTruncated, temp: true, status: exitError,
+			about: "a Go execution trace recorded by runtime/trace, its last third cut off",
+			want:  []string{"{file}: byte ", "malformed Go execution trace"}},
+		{name: "exectrace truncated gzip", file: "exectrace-cut.trace.gz", gen: func() []byte { return gzipped(execTruncated()) }, temp: true,
+			about: "the same, gzipped", status: exitError, want: []string{"{file}: byte ", "malformed Go execution trace"}},
 	}
+}
+
+// execHeader is the header Go's runtime/trace writes ("go 1.N trace"
+// and three NUL bytes) for version v, and n zero bytes.
+func execHeader(v string, n int) []byte {
+	return append([]byte("go "+v+" trace\x00\x00\x00"), make([]byte, n)...)
+}
+
+func execCorrupt() []byte {
+	return append(execHeader("1.26", 0), randomBytes()[:512]...)
+}
+
+// execTruncated records a short execution trace with Go's runtime/trace
+// and cuts off its last third.
+func execTruncated() []byte {
+	var buf bytes.Buffer
+	if err := trace.Start(&buf); err != nil {
+		panic(err)
+	}
+	ch := make(chan int)
+	for i := range 50 {
+		go func() { time.Sleep(time.Duration(i) * time.Microsecond); ch <- i }()
+	}
+	for range 50 {
+		<-ch
+	}
+	trace.Stop()
+	return buf.Bytes()[:buf.Len()*2/3]
+}
+
+func gzipped(b []byte) []byte {
+	var buf bytes.Buffer
+	zw := gzip.NewWriter(&buf)
+	zw.Write(b)
+	zw.Close()
+	return buf.Bytes()
 }
 
 func TestInvalidCorpus(t *testing.T) {

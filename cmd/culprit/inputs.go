@@ -62,7 +62,7 @@ func (f *analysisFlags) register(cmd *cobra.Command) {
 	fl.BoolVar(&f.KeepGoing, "keep-going", false, "skip unreadable files and lines, listing them as warnings")
 	fl.BoolVar(&f.Strict, "strict", false, "treat every repaired span problem (orphans, duplicates, cycles, skew) as an error")
 	fl.StringVar(&f.Service, "service", "", "analyse only spans of this service.name (default: the services that receive requests from outside)")
-	fl.StringVar(&f.Source, "source", "", "read only `KIND` of input, traces or profiles, from inputs that hold both, skipping the other")
+	fl.StringVar(&f.Source, "source", "", "read only `KIND` of input, traces, profiles or exectraces (Go execution traces), from inputs that hold several, skipping the others")
 	fl.StringVar(&f.DomainsFile, "domains", "", "JSON `FILE` mapping business domains to function patterns; rolls root causes up by domain")
 	fl.Int64Var(&f.Limits.MaxBytes, "max-bytes", traces.DefaultLimits.MaxBytes, "largest decompressed input in bytes")
 	fl.Int64Var(&f.Limits.MaxRatio, "max-ratio", traces.DefaultLimits.MaxRatio, "largest decompression ratio of a gzip input")

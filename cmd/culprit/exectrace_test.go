@@ -1,0 +1,144 @@
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"io"
+	"net"
+	"net/http"
+	"os"
+	"path/filepath"
+	"runtime/trace"
+	"strings"
+	"testing"
+	"time"
+)
+
+// seedPrices is the application's outbound call: its own counter is
+// the truth the trace's call count is checked against.
+type seedShop struct {
+	prices string
+	client *http.Client
+	calls  int
+}
+
+//go:noinline
+func (s *seedShop) fetchSeedPrices() error {
+	s.calls++
+	resp, err := s.client.Get(s.prices)
+	if err != nil {
+		return err
+	}
+	io.Copy(io.Discard, resp.Body)
+	return resp.Body.Close()
+}
+
+func (s *seedShop) seeds(w http.ResponseWriter, r *http.Request) {
+	if err := s.fetchSeedPrices(); err != nil {
+		http.Error(w, err.Error(), 500)
+		return
+	}
+	io.WriteString(w, "seeds\n")
+}
+
+// recordSeedShop records, with Go's runtime/trace, n requests to a
+// loopback service whose handler calls another loopback service once.
+func recordSeedShop(t *testing.T, n int) (string, *seedShop) {
+	t.Helper()
+	listen := func(h http.HandlerFunc) string {
+		ln, err := net.Listen("tcp", "127.0.0.1:0")
+		if err != nil {
+			t.Fatal(err)
+		}
+		srv := &http.Server{Handler: h}
+		go srv.Serve(ln)
+		t.Cleanup(func() { srv.Close() })
+		return "http://" + ln.Addr().String()
+	}
+	prices := listen(func(w http.ResponseWriter, r *http.Request) {
+		time.Sleep(100 * time.Microsecond)
+		io.WriteString(w, "12 cents")
+	})
+	shop := &seedShop{prices: prices + "/prices", client: &http.Client{Transport: &http.Transport{}}}
+	base := listen(shop.seeds)
+	var buf bytes.Buffer
+	if err := trace.Start(&buf); err != nil {
+		t.Skipf("execution tracer unavailable: %v", err)
+	}
+	c := &http.Client{Transport: &http.Transport{}}
+	for range n {
+		resp, err := c.Get(base + "/seeds")
+		if err != nil {
+			trace.Stop()
+			t.Fatal(err)
+		}
+		io.Copy(io.Discard, resp.Body)
+		resp.Body.Close()
+	}
+	trace.Stop()
+	path := filepath.Join(t.TempDir(), "trace.out")
+	if err := os.WriteFile(path, buf.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return path, shop
+}
+
+// TestExecTraceCommands runs every command on a real execution trace.
+func TestExecTraceCommands(t *testing.T) {
+	if testing.Short() {
+		t.Skip("records an execution trace of a loopback service")
+	}
+	const n = 12
+	path, shop := recordSeedShop(t, n)
+	code, out, errs := runTest(t, "", "rank", "--format", "json", path)
+	if code != exitOK {
+		t.Fatalf("rank: exit %d: %s", code, errs)
+	}
+	var doc struct {
+		Totals struct {
+			Requests int   `json:"requests"`
+			Network  int64 `json:"network"`
+		} `json:"totals"`
+		RootCauses []struct {
+			Function string `json:"function"`
+			Calls    int64  `json:"calls"`
+		} `json:"rootCauses"`
+	}
+	if err := json.Unmarshal([]byte(out), &doc); err != nil {
+		t.Fatal(err)
+	}
+	// Requests: the shop's n and the price service's n (it runs in the
+	// traced process too).
+	if doc.Totals.Requests != 2*n || doc.Totals.Network == 0 {
+		t.Errorf("totals %+v, want %d requests and network cost", doc.Totals, 2*n)
+	}
+	if len(doc.RootCauses) != 1 || !strings.HasSuffix(doc.RootCauses[0].Function, ".fetchSeedPrices") ||
+		doc.RootCauses[0].Calls != int64(shop.calls) {
+		t.Errorf("root causes %+v, want fetchSeedPrices with the %d calls it counted", doc.RootCauses, shop.calls)
+	}
+	for _, f := range []string{"text", "markdown", "html", "csv"} {
+		if code, out, errs := runTest(t, "", "rank", "--format", f, path); code != exitOK || !strings.Contains(out, "fetchSeedPrices") {
+			t.Errorf("rank --format %s: exit %d: %s", f, code, errs)
+		}
+	}
+	if code, out, errs := runTest(t, "", "explain", "fetchSeedPrices", path); code != exitOK || !strings.Contains(out, "calls") {
+		t.Errorf("explain: exit %d: %s%s", code, out, errs)
+	}
+	if code, out, errs := runTest(t, "", "graph", path); code != exitOK || !strings.Contains(out, "fetchSeedPrices") {
+		t.Errorf("graph: exit %d: %s", code, errs)
+	}
+	dir := t.TempDir()
+	a, b, m := filepath.Join(dir, "a.json"), filepath.Join(dir, "b.json"), filepath.Join(dir, "m.json")
+	for _, s := range []string{a, b} {
+		if code, _, errs := runTest(t, "", "rank", "--save", s, path); code != exitOK {
+			t.Fatalf("rank --save: exit %d: %s", code, errs)
+		}
+	}
+	if code, _, errs := runTest(t, "", "merge", a, b, "-o", m); code != exitOK {
+		t.Errorf("merge: exit %d: %s", code, errs)
+	}
+	code, out, errs = runTest(t, "", "diff", a, m)
+	if code != exitOK || !strings.Contains(out, "per-request") {
+		t.Errorf("diff: exit %d: %s%s", code, out, errs)
+	}
+}

@@ -1,0 +1,195 @@
+package traces_test
+
+import (
+	"bytes"
+	"errors"
+	"io"
+	"net"
+	"net/http"
+	"runtime/pprof"
+	"runtime/trace"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/culprithq/culprit/traces"
+)
+
+// recordSmallTrace records, with Go's own runtime/trace, a few requests
+// to a loopback HTTP server whose handler waits on a timer.
+func recordSmallTrace(t testing.TB) []byte {
+	return recordSmallTraceProtocols(t, nil)
+}
+
+// recordSmallTraceProtocols does it over the protocols p (nil: HTTP/1).
+func recordSmallTraceProtocols(t testing.TB, p *http.Protocols) []byte {
+	t.Helper()
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	srv := &http.Server{Protocols: p, Handler: http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		time.Sleep(100 * time.Microsecond) // a wait inside the handler: see the README's pitfalls
+		io.WriteString(w, "seedlings")
+	})}
+	go srv.Serve(ln)
+	defer srv.Close()
+	var buf bytes.Buffer
+	if err := trace.Start(&buf); err != nil {
+		t.Skipf("execution tracer unavailable: %v", err)
+	}
+	c := &http.Client{Transport: &http.Transport{Protocols: p}}
+	for range 3 {
+		resp, err := c.Get("http://" + ln.Addr().String() + "/")
+		if err != nil {
+			trace.Stop()
+			t.Fatal(err)
+		}
+		if p != nil && resp.ProtoMajor != 2 {
+			t.Fatalf("protocol %s, want HTTP/2", resp.Proto)
+		}
+		io.Copy(io.Discard, resp.Body)
+		resp.Body.Close()
+	}
+	trace.Stop()
+	return buf.Bytes()
+}
+
+func TestLooksLikeExecTrace(t *testing.T) {
+	// The header Go's runtime/trace writes (internal/trace/version,
+	// "go 1.%d trace\x00\x00\x00").
+	for in, want := range map[string]bool{
+		"go 1.26 trace\x00\x00\x00": true,
+		"go 1.5 trace\x00\x00\x00":  true,
+		"go 1.26 trace":             false,
+		"go 1. trace\x00\x00\x00":   false,
+		"{\"resourceSpans\":[]}":    false,
+		"":                          false,
+	} {
+		if got := traces.LooksLikeExecTrace([]byte(in)); got != want {
+			t.Errorf("LooksLikeExecTrace(%q) = %v, want %v", in, got, want)
+		}
+	}
+}
+
+func TestExecTraceUnsupportedVersion(t *testing.T) {
+	l := traces.NewLoader(traces.Options{})
+	err := l.Add("future.trace", strings.NewReader("go 1.99 trace\x00\x00\x00rest"))
+	if err == nil || !strings.Contains(err.Error(), "go 1.99") || !strings.Contains(err.Error(), "future.trace") {
+		t.Fatalf("error %v, want one naming the file and go 1.99", err)
+	}
+}
+
+// TestExecTraceDamaged cuts and corrupts a real trace: every version is
+// an error naming the file or reads whole, never a panic, and with
+// KeepGoing a damaged input adds nothing.
+func TestExecTraceDamaged(t *testing.T) {
+	data := recordSmallTrace(t)
+	src := loadExec(t, data)
+	if src.RequestCount() != 3 {
+		t.Errorf("%d requests, want 3", src.RequestCount())
+	}
+	for _, n := range []int{20, len(data) / 3, len(data) / 2, len(data) - 7} {
+		l := traces.NewLoader(traces.Options{KeepGoing: true})
+		if err := l.Add("cut.trace", bytes.NewReader(data[:n])); err != nil {
+			t.Fatalf("KeepGoing: %v", err)
+		}
+		_, err := l.Source()
+		if err == nil {
+			// A cut at a generation boundary can read whole.
+			continue
+		}
+		if !strings.Contains(err.Error(), "cut.trace") {
+			t.Errorf("cut at %d: %v does not name the file", n, err)
+		}
+	}
+	for _, at := range []int{16, 40, len(data) / 2} {
+		bad := bytes.Clone(data)
+		for i := at; i < at+8 && i < len(bad); i++ {
+			bad[i] ^= 0xa5
+		}
+		l := traces.NewLoader(traces.Options{})
+		if err := l.Add("bad.trace", bytes.NewReader(bad)); err != nil && !strings.Contains(err.Error(), "bad.trace") {
+			t.Errorf("corrupt at %d: %v does not name the file", at, err)
+		}
+	}
+}
+
+func loadExec(t testing.TB, data []byte) *traces.Source {
+	l := traces.NewLoader(traces.Options{})
+	if err := l.Add("small.trace", bytes.NewReader(data)); err != nil {
+		t.Fatal(err)
+	}
+	src, err := l.Source()
+	if err != nil {
+		t.Fatal(err)
+	}
+	return src
+}
+
+// FuzzExecTrace: the reader returns an error or a valid source, never
+// panics.
+func FuzzExecTrace(f *testing.F) {
+	data := recordSmallTrace(f)
+	f.Add(data)
+	f.Add(data[:len(data)/2])
+	f.Add([]byte("go 1.26 trace\x00\x00\x00"))
+	f.Add([]byte("go 1.21 trace\x00\x00\x00\x01\x02"))
+	f.Fuzz(func(t *testing.T, in []byte) {
+		c := traces.NewExecCollector(traces.Limits{MaxBytes: 1 << 20})
+		if err := c.Add("fuzz.trace", bytes.NewReader(in)); err != nil {
+			return
+		}
+		if err := c.Source().Validate(); err != nil {
+			t.Fatalf("invalid source: %v", err)
+		}
+	})
+}
+
+// TestExecTraceInputs: two traces (two instances of a service) add up,
+// and a trace does not mix with a profile.
+func TestExecTraceInputs(t *testing.T) {
+	data := recordSmallTrace(t)
+	l := traces.NewLoader(traces.Options{})
+	for _, name := range []string{"a.trace", "b.trace"} {
+		if err := l.Add(name, bytes.NewReader(data)); err != nil {
+			t.Fatal(err)
+		}
+	}
+	src, err := l.Source()
+	if err != nil {
+		t.Fatal(err)
+	}
+	one := loadExec(t, data)
+	if src.RequestCount() != 2*one.RequestCount() || src.Paths.Len() != 2*one.Paths.Len() {
+		t.Errorf("two inputs: %d requests, %d paths; one: %d, %d", src.RequestCount(), src.Paths.Len(), one.RequestCount(), one.Paths.Len())
+	}
+	if src.DurationNanos != 2*one.DurationNanos {
+		t.Errorf("duration %d, want twice %d", src.DurationNanos, one.DurationNanos)
+	}
+	var prof bytes.Buffer
+	if err := pprof.Lookup("goroutine").WriteTo(&prof, 0); err != nil {
+		t.Fatal(err)
+	}
+	l = traces.NewLoader(traces.Options{})
+	if err := l.Add("a.trace", bytes.NewReader(data)); err != nil {
+		t.Fatal(err)
+	}
+	if err := l.Add("goroutine.pb.gz", &prof); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := l.Source(); !errors.Is(err, traces.ErrMismatch) || !strings.Contains(err.Error(), "--source exectraces") {
+		t.Errorf("a profile and a trace: %v, want ErrMismatch naming --source exectraces", err)
+	}
+}
+
+// TestExecTraceHTTP2 reads requests served over HTTP/2 (unencrypted, by
+// net/http's own server and client): each runs in a goroutine of its own.
+func TestExecTraceHTTP2(t *testing.T) {
+	var p http.Protocols
+	p.SetUnencryptedHTTP2(true)
+	src := loadExec(t, recordSmallTraceProtocols(t, &p))
+	if src.RequestCount() != 3 {
+		t.Errorf("%d requests, want 3", src.RequestCount())
+	}
+}
