@@ -5,6 +5,7 @@ go 1.26.0
 require (
 	github.com/goccy/go-json v0.12.0
 	github.com/google/pprof v0.0.0-20261105003125-4bf881d7fb0b
+	github.com/santhosh-tekuri/jsonschema/v6 v6.0.3
 	github.com/spf13/cobra v1.10.2
 	github.com/spf13/pflag v1.0.9
 	go.opentelemetry.io/otel v1.47.0
