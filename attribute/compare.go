@@ -21,7 +21,8 @@ const (
 	DefaultRelativeBudget = 0.05
 	// ComparePower is the power at which Change.MDE is computed.
 	ComparePower = 0.8
-	// CompareConfidence is the level of every interval of a Comparison.
+	// CompareConfidence is the nominal level of the intervals; Compare
+	// widens it for the number of tests (see Comparison.Confidence).
 	CompareConfidence = 0.95
 )
 
@@ -86,9 +87,10 @@ const (
 	// the exact conditional test and the Clopper–Pearson interval mapped
 	// to the rate ratio (PoissonRateTest).
 	MethodPoisson = "poisson-exact"
-	// MethodMWUBootstrap compares per-request costs: Mann–Whitney for the
-	// p-value, percentile bootstrap of the ratio of means for the interval.
-	MethodMWUBootstrap = "mann-whitney+bootstrap"
+	// MethodBootstrap compares per-request costs (and calls) by the
+	// percentile bootstrap of the ratio of means: one set of resamples
+	// gives the p-value, the interval and the MDE.
+	MethodBootstrap = "bootstrap"
 )
 
 // Budget is how large a change must be to count as a regression (or an
@@ -132,8 +134,11 @@ type Comparison struct {
 	ValueType traces.ValueType `json:"valueType"`
 	Base      SideSummary      `json:"base"`
 	Candidate SideSummary      `json:"candidate"`
-	// Alpha is the significance threshold on q-values; Power and
-	// Confidence are those of MDE and of the intervals.
+	// Alpha is the significance threshold on q-values; Power is that of
+	// MDE; Confidence is the level of every interval and MDE: 1 −
+	// max(R, 1)·Alpha/m for R significant tests of m (Benjamini &
+	// Yekutieli, JASA 100, 2005), so that an interval excludes zero exactly
+	// when its q-value is at most Alpha.
 	Alpha      float64 `json:"alpha"`
 	Power      float64 `json:"power"`
 	Confidence float64 `json:"confidence"`
@@ -199,8 +204,66 @@ type Change struct {
 	CandSamples  int64 `json:"candSamples"`
 	BaseRequests int   `json:"baseRequests"`
 	CandRequests int   `json:"candRequests"`
-	// Method is MethodPoisson or MethodMWUBootstrap.
+	// Method is MethodPoisson or MethodBootstrap.
 	Method string `json:"method"`
+	// Reasons name the tests that give a verdict other than unchanged:
+	// ReasonTime (the cost), ReasonCalls (calls per request), or both.
+	// Empty for unchanged, new and gone causes.
+	Reasons []string `json:"reasons"`
+	// BelowDetection marks a cause with too little evidence (samples, or
+	// requests in which it appears) for any outcome to be significant.
+	BelowDetection bool `json:"belowDetection"`
+	// Calls compares the calls per request (span sources with per-request
+	// calls on both sides); nil otherwise.
+	Calls *CallsChange `json:"calls"`
+	// Statements compares each statement's calls per request (span
+	// sources); New marks statements found only in the candidate.
+	Statements []StatementChange `json:"statements"`
+}
+
+// Reasons of Change.Reasons.
+const (
+	ReasonTime  = "time"
+	ReasonCalls = "calls"
+)
+
+// CallsChange is the comparison of a cause's calls per request: mean calls
+// per request of the entry points that reach it, tested like the cost
+// (MethodBootstrap) in the same Benjamini–Hochberg family.
+type CallsChange struct {
+	Base           float64  `json:"base"`
+	Candidate      float64  `json:"candidate"`
+	RelativeChange *float64 `json:"relativeChange"`
+	RelLo          *float64 `json:"relLo"`
+	RelHi          *float64 `json:"relHi"`
+	PValue         *float64 `json:"pValue"`
+	QValue         *float64 `json:"qValue"`
+	MDE            *float64 `json:"mde"`
+	// Verdict is the verdict on calls alone.
+	Verdict Outcome `json:"verdict"`
+}
+
+// StatementChange is one statement of a cause with its calls per request
+// on each side (descriptive; the cause's tests decide the verdict).
+type StatementChange struct {
+	Statement string  `json:"statement"`
+	System    string  `json:"system,omitempty"`
+	Peer      string  `json:"peer,omitempty"`
+	Kind      Kind    `json:"kind"`
+	Base      float64 `json:"base"`
+	Candidate float64 `json:"candidate"`
+	// New: only in the candidate; Gone: only in the base.
+	New  bool `json:"new"`
+	Gone bool `json:"gone"`
+	// PValue tests the statement's calls per request with the exact
+	// conditional Poisson test (requests as exposure); QValue is its
+	// Benjamini–Hochberg adjustment over every statement of the
+	// comparison (a family of its own: statements detail a cause's change
+	// and do not decide its verdict). Nil when not tested.
+	PValue *float64 `json:"pValue"`
+	QValue *float64 `json:"qValue"`
+
+	baseCalls, candCalls int64
 }
 
 // CheckComparable reports why the costs of cand cannot be compared with
@@ -238,20 +301,21 @@ func CheckComparable(base, cand *Snapshot) error {
 // unknown), so that a shift in the traffic mix between endpoints does not
 // read as a change of the cause. Base and Candidate are then per request
 // of those entry points, and requests where the cause is absent count as
-// zeros (each side has as many values as such requests):
-// per-request costs are skewed and often mostly zero, so the p-value
-// comes from the Mann–Whitney rank test (exact for small tie-free samples,
-// else the tie-corrected normal approximation with continuity correction),
-// which needs no distributional assumption and detects a shift of the
-// distribution, and the interval of
-// the relative change from the percentile bootstrap of the ratio of mean
-// per-request cost (CompareOptions.Seed, DefaultBootstrapResamples
-// rounds), since the mean is what capacity and total time follow
-// (methods reference §4). A rank test does not see a change confined to a
-// few expensive requests; such a change shows in the interval but is not
-// significant. Both methods take requests (or samples) as independent;
+// zeros (each side has as many values as such requests). The p-value, the
+// interval of the relative change and the MDE all come from one
+// percentile bootstrap of the ratio of mean per-request cost
+// (CompareOptions.Seed, DefaultBootstrapResamples rounds; Efron &
+// Tibshirani, An Introduction to the Bootstrap, 1993), since the mean is
+// what capacity and total time follow (methods reference §4): the p-value
+// inverts the percentile interval (BootstrapRatioP), so the two cannot
+// disagree. Where both sides counted calls per request (spans), the same
+// procedure compares the mean calls per request, in the same
+// Benjamini–Hochberg family; a significant change in calls is a verdict in
+// its own right (Change.Reasons), since an N+1 regression changes calls
+// first and time follows noisily. Requests are taken as independent;
 // warm-up and queueing make them autocorrelated, which makes p-values too
-// small, so compare steady-state runs. Span sources without per-request costs fall back to the
+// small, so compare steady-state runs. Span sources without per-request
+// costs fall back to the
 // Poisson comparison of span counts (calls). MDE: for counts
 // MinDetectableRatio − 1, for per-request costs MinDetectableDiff divided
 // by the base mean. Per-request vectors beyond MaxVectorValues requests
@@ -261,13 +325,18 @@ func CheckComparable(base, cand *Snapshot) error {
 // and fall together (their sorted per-request vectors are added
 // element-wise): the mean is exact, the spread an approximation.
 //
-// p-values of all changes (new and gone causes included) are adjusted
-// together by Benjamini–Hochberg (§5). Verdicts (§6): a cause absent on
-// one side is new or gone; otherwise q > Alpha is unchanged; a lower
+// Causes with too little evidence for any outcome to be significant (see
+// detectable) are marked BelowDetection and not tested. The p-values of
+// all other tests (new and gone causes included) are adjusted together by
+// Benjamini–Hochberg (§5), and every interval is taken at the level that
+// agrees with that step (Comparison.Confidence, see the body). Verdicts
+// (§6): a cause absent on one side is new or gone; otherwise q > Alpha is
+// unchanged; a lower
 // interval bound above the relative budget (and, with an absolute budget,
 // a lower bound of the absolute change above it) is regressed; the mirror
 // image is improved; an interval wholly within ± the budget is unchanged;
-// anything else significant is inconclusive. Intervals are 95 %; the
+// anything else significant is inconclusive; with calls tested too, the
+// more severe of the two verdicts. The
 // relative change of a sampled source is that of the sample rate, equal to
 // that of the cost when every sample carries the same value.
 func Compare(base, cand *Snapshot, opts CompareOptions) *Comparison {
@@ -337,26 +406,74 @@ func Compare(base, cand *Snapshot, opts CompareOptions) *Comparison {
 		sem <- struct{}{}
 		go func() {
 			defer func() { <-sem; wg.Done() }()
-			stats[i] = compareCause(id, bg[id], cg[id], bs, cs, perRequest, alpha, opts.Seed)
+			stats[i] = compareCause(id, bg[id], cg[id], bs, cs, perRequest, opts.Seed)
 		}()
 	}
 	wg.Wait()
 
-	ps := make([]float64, len(stats))
+	// One Benjamini–Hochberg step over every test (costs and calls). The
+	// intervals are then taken at the level that makes them agree with it:
+	// with R of m tests significant, 1 − max(R, 1)·α/m, the false coverage
+	// rate adjusted intervals of Benjamini & Yekutieli ("False discovery
+	// rate–adjusted multiple confidence intervals for selected parameters",
+	// JASA 100, 2005). Each test's p-value and interval come from one
+	// procedure (the exact conditional test and its Clopper–Pearson
+	// interval; the bootstrap's p-value and percentile interval), so an
+	// interval excludes "no change" exactly when q ≤ α.
+	var ps []float64
+	var tests []*test
 	for i := range stats {
-		ps[i] = stats[i].p
+		if stats[i].below {
+			// Filtered out before testing (independent of the outcome, so
+			// the procedure stays valid: Bourgon, Gentleman & Huber,
+			// PNAS 107, 2010).
+			stats[i].time.ok, stats[i].time.p = false, math.NaN()
+			stats[i].calls.ok, stats[i].calls.p = false, math.NaN()
+			continue
+		}
+		tests = append(tests, &stats[i].time)
+		if stats[i].hasCalls {
+			tests = append(tests, &stats[i].calls)
+		}
+	}
+	for _, t := range tests {
+		ps = append(ps, t.p)
 	}
 	qs := BenjaminiHochberg(ps)
+	m, rejected := 0, 0
+	for i, t := range tests {
+		t.q = qs[i]
+		if !math.IsNaN(t.p) {
+			m++
+		}
+		if t.q <= alpha {
+			rejected++
+		}
+	}
+	gamma := alpha
+	if m > 0 {
+		gamma = float64(max(rejected, 1)) * alpha / float64(m)
+	}
+	cmpn.Confidence = 1 - gamma
+	for _, t := range tests {
+		t.level(gamma)
+	}
+	statementQValues(stats)
 	for i := range stats {
 		st := &stats[i]
-		st.q = qs[i]
-		st.verdict = verdictOf(st, alpha, budget)
+		st.decide(alpha, budget)
 		if st.note != "" {
 			cmpn.Warnings = append(cmpn.Warnings, st.note)
 		}
 		cmpn.Changes = append(cmpn.Changes, st.change())
 	}
 	slices.SortStableFunc(cmpn.Changes, func(a, b Change) int {
+		if a.BelowDetection != b.BelowDetection {
+			if a.BelowDetection {
+				return 1
+			}
+			return -1
+		}
 		if c := cmp.Compare(a.Verdict.severity(), b.Verdict.severity()); c != 0 {
 			return c
 		}
@@ -472,16 +589,42 @@ func (g *group) hasVectors() bool {
 	return true
 }
 
-// vector returns the group's per-request costs over n requests as an
-// ascending vector of min(n, MaxVectorValues) values (see requestVector),
-// members added element-wise.
-func (g *group) vector(n int) []float64 {
+// costsOf and callsOf select a member's per-request costs or calls.
+func costsOf(m *SnapshotCause) *CappedValues { return m.RequestCosts }
+func callsOf(m *SnapshotCause) *CappedValues { return m.RequestCalls }
+
+// hasCalls reports whether every member carries per-request calls.
+func (g *group) hasCalls() bool {
+	for _, m := range g.members {
+		if m.RequestCalls == nil {
+			return false
+		}
+	}
+	return true
+}
+
+// calls returns the group's outbound calls (0 for a nil group).
+func (g *group) calls() int64 {
+	if g == nil {
+		return 0
+	}
+	var n int64
+	for _, m := range g.members {
+		n += m.Calls
+	}
+	return n
+}
+
+// vector returns the group's per-request values (costs or calls, as of
+// selects) over n requests as an ascending vector of min(n,
+// MaxVectorValues) values (see requestVector), members added element-wise.
+func (g *group) vector(n int, of func(*SnapshotCause) *CappedValues) []float64 {
 	var out []float64
 	if g == nil {
 		return requestVector(nil, n)
 	}
 	for _, m := range g.members {
-		v := requestVector(m.RequestCosts, n)
+		v := requestVector(of(m), n)
 		if out == nil {
 			out = v
 			continue
@@ -525,25 +668,50 @@ func requestVector(v *CappedValues, n int) []float64 {
 	return out
 }
 
+// test is one comparison of a Change (its cost, or its calls per
+// request) being computed, with non-finite values allowed. Its p-value and
+// its interval come from one procedure, so that after the
+// Benjamini–Hochberg step the interval at the adjusted level excludes "no
+// change" exactly when the test is significant (see Compare).
+type test struct {
+	ok          bool    // the test ran
+	base, cand  float64 // normalised values
+	rel, lo, hi float64
+	p, q, mde   float64
+	// Poisson: k of n events on the candidate side, odds = tb/tc.
+	k, n int
+	odds float64
+	// Bootstrap: the sorted resampled ratios of means.
+	ratios  []float64
+	verdict Outcome
+}
+
+func newTest() test {
+	nan := math.NaN()
+	return test{rel: nan, lo: nan, hi: nan, p: nan, q: nan, mde: nan}
+}
+
 // changeStat is a Change being computed, with non-finite values allowed.
 type changeStat struct {
 	id               string
 	functions        []string
 	kind             Kind
-	base, cand       float64
-	rel, lo, hi      float64
-	p, q, mde        float64
+	time, calls      test
+	hasCalls         bool
 	inBase, inCand   bool
 	baseN, candN     int64
 	baseReq, candReq int
+	nb, nc           int // requests of the entry points reaching the cause
+	below            bool
+	statements       []StatementChange
 	method           string
 	verdict          Outcome
+	reasons          []string
 	note             string
 }
 
-func compareCause(id string, bg, cg *group, bs, cs *side, perRequest bool, alpha float64, seed uint64) changeStat {
-	nan := math.NaN()
-	st := changeStat{id: id, rel: nan, lo: nan, hi: nan, p: nan, q: nan, mde: nan, inBase: bg != nil, inCand: cg != nil}
+func compareCause(id string, bg, cg *group, bs, cs *side, perRequest bool, seed uint64) changeStat {
+	st := changeStat{id: id, time: newTest(), calls: newTest(), inBase: bg != nil, inCand: cg != nil}
 	seen := map[string]bool{}
 	for _, g := range []*group{cg, bg} {
 		if g == nil {
@@ -566,34 +734,29 @@ func compareCause(id string, bg, cg *group, bs, cs *side, perRequest bool, alpha
 		st.kind = kindOf(cg.db, cg.net)
 	}
 	st.baseReq, st.candReq = bg.requests(), cg.requests()
-	st.base, st.cand = normalise(bCost, bs.norm), normalise(cCost, cs.norm)
+	st.time.base, st.time.cand = normalise(bCost, bs.norm), normalise(cCost, cs.norm)
 
 	if perRequest && (bg == nil || bg.hasVectors()) && (cg == nil || cg.hasVectors()) {
-		st.method = MethodMWUBootstrap
+		st.method = MethodBootstrap
 		// Per request of the entry points that reach the cause (on either
 		// side), so that a shift in the traffic mix between endpoints does
 		// not read as a change of the cause, and requests that cannot reach
 		// it do not dilute the test with zeros.
 		entries := entryNames(bg, cg)
-		nb, nc := entryRequests(bs.snap, entries), entryRequests(cs.snap, entries)
-		st.base, st.cand = normalise(bCost, float64(nb)), normalise(cCost, float64(nc))
-		vb, vc := bg.vector(nb), cg.vector(nc)
-		mw := MannWhitney(vc, vb)
-		st.p = mw.PCorrected
-		if mw.Exact {
-			st.p = mw.PExact
+		st.nb, st.nc = entryRequests(bs.snap, entries), entryRequests(cs.snap, entries)
+		st.time.base, st.time.cand = normalise(bCost, float64(st.nb)), normalise(cCost, float64(st.nc))
+		st.time.bootstrap(bg.vector(st.nb, costsOf), cg.vector(st.nc, costsOf), mixSeed(seed, id))
+		// Calls per request, where both sides counted them: an N+1
+		// regression changes them first, and they are far less noisy than
+		// time.
+		if (bg == nil || bg.hasCalls()) && (cg == nil || cg.hasCalls()) {
+			st.hasCalls = true
+			st.calls.base, st.calls.cand = normalise(bg.calls(), float64(st.nb)), normalise(cg.calls(), float64(st.nc))
+			st.calls.bootstrap(bg.vector(st.nb, callsOf), cg.vector(st.nc, callsOf), mixSeed(seed^0xca11, id))
 		}
-		if st.base > 0 {
-			st.rel = st.cand/st.base - 1
-			lo, hi := BootstrapRatioCI(vb, vc, DefaultBootstrapResamples, CompareConfidence, mixSeed(seed, id))
-			st.lo, st.hi = lo-1, hi-1
-			if len(vb) >= 2 && len(vc) >= 2 {
-				_, varB := meanVar(vb)
-				_, varC := meanVar(vc)
-				d := MinDetectableDiff(math.Sqrt(varB), float64(len(vb)), math.Sqrt(varC), float64(len(vc)), alpha, ComparePower)
-				st.mde = d / st.base
-			}
-		}
+		// The evidence is the requests in which the cause appears.
+		st.below = !detectable(st.baseReq+st.candReq, float64(st.nb), float64(st.nc))
+		st.statements = statementChanges(bg, cg, float64(st.nb), float64(st.nc))
 		return st
 	}
 	st.method = MethodPoisson
@@ -605,12 +768,71 @@ func compareCause(id string, bg, cg *group, bs, cs *side, perRequest bool, alpha
 		st.note = fmt.Sprintf("%s: no valid exposure (requests, seconds or boundary samples) on one side; not tested", st.functions[0])
 		return st
 	}
-	st.p = rt.P
+	st.time.ok = true
+	st.time.p = rt.P
+	st.time.k, st.time.n, st.time.odds = int(rt.Candidate), int(rt.Base+rt.Candidate), bs.exposure/cs.exposure
 	if st.baseN > 0 {
-		st.rel, st.lo, st.hi = rt.RR-1, rt.Lo-1, rt.Hi-1
+		st.time.rel = rt.RR - 1
 	}
-	st.mde = MinDetectableRatio(float64(st.baseN), float64(st.candN), alpha, ComparePower) - 1
+	st.below = !detectable(int(st.baseN+st.candN), bs.exposure, cs.exposure)
+	if bs.snap.SourceKind == cs.snap.SourceKind && !bs.snap.Sampled {
+		st.statements = statementChanges(bg, cg, bs.norm, cs.norm)
+	}
 	return st
+}
+
+// bootstrap runs the percentile bootstrap of the ratio of mean per-request
+// values (Efron & Tibshirani, An Introduction to the Bootstrap, 1993,
+// ch. 13 and §16.4): the same resampled ratios give the p-value, the
+// interval and the detectable change, so that the three agree.
+func (t *test) bootstrap(vb, vc []float64, seed uint64) {
+	if t.base > 0 {
+		t.rel = t.cand/t.base - 1
+	}
+	t.ratios = BootstrapRatios(vb, vc, DefaultBootstrapResamples, seed)
+	if len(t.ratios) == 0 {
+		return
+	}
+	t.ok = true
+	t.p = BootstrapRatioP(t.ratios)
+}
+
+// level sets the interval and the MDE of t at confidence 1 − gamma.
+func (t *test) level(gamma float64) {
+	if !t.ok {
+		return
+	}
+	switch {
+	case t.ratios != nil:
+		if t.base > 0 {
+			lo, hi := BootstrapRatioBounds(t.ratios, gamma)
+			t.lo, t.hi = lo-1, hi-1
+			t.mde = BootstrapMDE(t.ratios, gamma, ComparePower)
+		}
+	default:
+		if t.n-t.k > 0 {
+			lo, hi := ClopperPearson(t.k, t.n, 1-gamma)
+			t.lo, t.hi = lo/(1-lo)*t.odds-1, hi/(1-hi)*t.odds-1
+			if hi == 1 {
+				t.hi = math.Inf(1)
+			}
+			t.mde = MinDetectableRatio(float64(t.n-t.k), float64(t.k), gamma, ComparePower) - 1
+		}
+	}
+}
+
+// detectable reports whether n events split between two sides with
+// exposures tb and tc could give a significant exact conditional test at
+// all: the smallest p-value, all n on the side less expected, must be at
+// most DefaultAlpha. With less evidence no outcome could be told from
+// chance (e.g. 5 events over equal exposures: p ≥ 0.0625).
+func detectable(n int, tb, tc float64) bool {
+	if n <= 0 || !(tb > 0) || !(tc > 0) {
+		return false
+	}
+	pi0 := tc / (tb + tc)
+	pmin := 2 * math.Min(math.Pow(pi0, float64(n)), math.Pow(1-pi0, float64(n)))
+	return pmin <= DefaultAlpha
 }
 
 // entryNames lists the entry points under which the groups' members were
@@ -664,21 +886,22 @@ func mixSeed(seed uint64, id string) uint64 {
 	return z ^ z>>31
 }
 
-// verdictOf applies the verdict rules of Compare.
-func verdictOf(st *changeStat, alpha float64, b Budget) Outcome {
+// verdictOf applies the verdict rules of Compare to one test of a cause
+// present on both sides; abs says whether the absolute budget applies (it
+// is in the unit of costs, not of calls).
+func verdictOf(t *test, alpha float64, b Budget, abs bool) Outcome {
 	switch {
-	case !st.inBase:
-		return OutcomeNew
-	case !st.inCand:
-		return OutcomeGone
-	case math.IsNaN(st.q):
+	case math.IsNaN(t.q):
 		return OutcomeInconclusive
-	case st.q > alpha:
+	case t.q > alpha:
 		return OutcomeUnchanged
-	case math.IsNaN(st.lo) || math.IsNaN(st.hi):
+	case math.IsNaN(t.lo) || math.IsNaN(t.hi):
 		return OutcomeInconclusive
 	}
-	return budgetVerdict(st.lo, st.hi, st.base, b)
+	if !abs {
+		b.Absolute = 0
+	}
+	return budgetVerdict(t.lo, t.hi, t.base, b)
 }
 
 // budgetVerdict judges a significant change by its relative interval
@@ -699,30 +922,167 @@ func budgetVerdict(lo, hi, base float64, b Budget) Outcome {
 	return OutcomeInconclusive
 }
 
+// decide sets the verdict of a cause and its reasons: new or gone when
+// absent from one side; otherwise the more severe of the verdicts on its
+// cost ("time") and on its calls per request ("calls"), so that a
+// significant change in calls per request is a regression in its own
+// right. Reasons name the tests that give the verdict.
+func (st *changeStat) decide(alpha float64, b Budget) {
+	switch {
+	case !st.inBase:
+		st.verdict = OutcomeNew
+		return
+	case !st.inCand:
+		st.verdict = OutcomeGone
+		return
+	case st.below:
+		st.verdict, st.time.verdict, st.calls.verdict = OutcomeUnchanged, OutcomeUnchanged, OutcomeUnchanged
+		return
+	}
+	st.time.verdict = verdictOf(&st.time, alpha, b, true)
+	st.verdict = st.time.verdict
+	if st.hasCalls {
+		st.calls.verdict = verdictOf(&st.calls, alpha, b, false)
+		if st.calls.verdict.rank() < st.verdict.rank() {
+			st.verdict = st.calls.verdict
+		}
+	}
+	if st.verdict == OutcomeUnchanged {
+		return
+	}
+	if st.time.verdict == st.verdict {
+		st.reasons = append(st.reasons, ReasonTime)
+	}
+	if st.hasCalls && st.calls.verdict == st.verdict {
+		st.reasons = append(st.reasons, ReasonCalls)
+	}
+}
+
+// rank orders the verdicts of a cause present on both sides when its two
+// tests disagree: regressed, inconclusive, improved, unchanged.
+func (o Outcome) rank() int {
+	switch o {
+	case OutcomeRegressed:
+		return 0
+	case OutcomeInconclusive:
+		return 1
+	case OutcomeImproved:
+		return 2
+	}
+	return 3
+}
+
 // change converts st to a Change, replacing non-finite values by nil.
 func (st *changeStat) change() Change {
 	c := Change{
-		Function:     st.functions[0],
-		Identity:     st.id,
-		Kind:         st.kind,
-		Base:         st.base,
-		Candidate:    st.cand,
-		Change:       st.cand - st.base,
-		Verdict:      st.verdict,
-		BaseSamples:  st.baseN,
-		CandSamples:  st.candN,
-		BaseRequests: st.baseReq,
-		CandRequests: st.candReq,
-		Method:       st.method,
+		Function:       st.functions[0],
+		Identity:       st.id,
+		Kind:           st.kind,
+		Base:           st.time.base,
+		Candidate:      st.time.cand,
+		Change:         st.time.cand - st.time.base,
+		Verdict:        st.verdict,
+		Reasons:        st.reasons,
+		BelowDetection: st.below,
+		BaseSamples:    st.baseN,
+		CandSamples:    st.candN,
+		BaseRequests:   st.baseReq,
+		CandRequests:   st.candReq,
+		Method:         st.method,
+		Statements:     st.statements,
+	}
+	if c.Reasons == nil {
+		c.Reasons = []string{}
+	}
+	if c.Statements == nil {
+		c.Statements = []StatementChange{}
 	}
 	if len(st.functions) > 1 {
 		c.Functions = slices.Sorted(slices.Values(st.functions))
 	}
-	if st.inBase && st.inCand {
-		c.RelativeChange, c.RelLo, c.RelHi = finite(st.rel), finite(st.lo), finite(st.hi)
+	both := st.inBase && st.inCand
+	c.RelativeChange, c.RelLo, c.RelHi, c.PValue, c.QValue, c.MDE = st.time.pointers(both)
+	if st.hasCalls {
+		cc := &CallsChange{Base: st.calls.base, Candidate: st.calls.cand, Verdict: st.calls.verdict}
+		cc.RelativeChange, cc.RelLo, cc.RelHi, cc.PValue, cc.QValue, cc.MDE = st.calls.pointers(both)
+		if !both {
+			cc.Verdict = st.verdict
+		}
+		c.Calls = cc
 	}
-	c.PValue, c.QValue, c.MDE = finite(st.p), finite(st.q), finite(st.mde)
 	return c
+}
+
+// pointers returns t's relative change, interval, p, q and MDE as nil
+// for non-finite values; the relative change, interval and MDE are nil
+// unless the cause is on both sides.
+func (t *test) pointers(both bool) (rel, lo, hi, p, q, mde *float64) {
+	if both {
+		rel, lo, hi, mde = finite(t.rel), finite(t.lo), finite(t.hi), finite(t.mde)
+	}
+	return rel, lo, hi, finite(t.p), finite(t.q), mde
+}
+
+// statementQValues adjusts the p-values of every statement of the
+// comparison together by Benjamini–Hochberg.
+func statementQValues(stats []changeStat) {
+	var ps []float64
+	var at []*StatementChange
+	for i := range stats {
+		for j := range stats[i].statements {
+			if sc := &stats[i].statements[j]; sc.PValue != nil {
+				ps = append(ps, *sc.PValue)
+				at = append(at, sc)
+			}
+		}
+	}
+	for i, q := range BenjaminiHochberg(ps) {
+		at[i].QValue = finite(q)
+	}
+}
+
+// statementChanges compares the calls per request of each statement of a
+// cause (statements are matched by system, statement and peer); nb and nc
+// are the sides' divisors. Statements are in the candidate's order, then
+// those found only in the base.
+func statementChanges(bg, cg *group, nb, nc float64) []StatementChange {
+	type key struct{ system, statement, peer string }
+	var out []StatementChange
+	idx := map[key]int{}
+	add := func(g *group, cand bool) {
+		if g == nil {
+			return
+		}
+		for _, m := range g.members {
+			for _, d := range m.Statements {
+				k := key{d.System, d.Statement, d.Peer}
+				i, ok := idx[k]
+				if !ok {
+					i = len(out)
+					idx[k] = i
+					out = append(out, StatementChange{Statement: d.Statement, System: d.System, Peer: d.Peer, Kind: d.Kind})
+				}
+				sc := &out[i]
+				if cand {
+					sc.candCalls += d.Calls
+				} else {
+					sc.baseCalls += d.Calls
+				}
+			}
+		}
+	}
+	add(cg, true)
+	add(bg, false)
+	for i := range out {
+		sc := &out[i]
+		sc.Base, sc.Candidate = normalise(sc.baseCalls, nb), normalise(sc.candCalls, nc)
+		sc.New = bg != nil && sc.baseCalls == 0 && sc.candCalls > 0
+		sc.Gone = cg != nil && sc.candCalls == 0 && sc.baseCalls > 0
+		if bg != nil && cg != nil && sc.baseCalls+sc.candCalls > 0 {
+			sc.PValue = finite(PoissonRateTest(float64(sc.baseCalls), float64(sc.candCalls), nb, nc).P)
+		}
+	}
+	return out
 }
 
 // finite returns a pointer to x, or nil when x is NaN or infinite.

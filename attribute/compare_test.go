@@ -44,6 +44,9 @@ type costCause struct {
 	fn    string
 	kind  Kind
 	costs []int64
+	// calls in each request where the cause appears (same order as
+	// costs); nil when the source did not count them.
+	calls []int64
 }
 
 // costSnapshot returns a span snapshot of n requests whose causes have the
@@ -63,6 +66,17 @@ func costSnapshot(n int, causes ...costCause) *Snapshot {
 		slices.Sort(vals)
 		sc.RequestCosts = newCappedValues(vals)
 		sc.Samples, sc.Calls = int64(len(c.costs)), int64(len(c.costs))
+		if c.calls != nil {
+			calls := make([]float64, len(c.calls))
+			sc.Calls = 0
+			for i, k := range c.calls {
+				calls[i] = float64(k)
+				sc.Calls += k
+			}
+			slices.Sort(calls)
+			sc.RequestCalls = newCappedValues(calls)
+			sc.Samples = sc.Calls
+		}
 		if c.kind == KindNetwork {
 			sc.Network = sc.Cost
 			s.Totals.Network += sc.Cost
@@ -175,67 +189,37 @@ func TestCompareWorkedExamples(t *testing.T) {
 	}
 }
 
-// TestCompareRankTests checks the per-request method against the examples
-// of the methods reference §4: Shier's (Mathematics Learning Support
-// Centre, 2004) tie-free samples {19,22,16,29,24} vs {20,11,17,12} have the
-// exact two-sided p = 0.1111 [pub]; the tied samples {12,15,15,18,20,22}
-// vs {10,12,12,14,15,16} have p = 0.0881 with continuity correction
-// [comp]. Every request carries the cause here, so no zeros are added.
-func TestCompareRankTests(t *testing.T) {
+// TestCompareBootstrap checks the per-request comparison: the relative
+// change is the ratio of mean per-request cost (requests without the cause
+// count as zeros), and the p-value, interval and verdict come from one
+// bootstrap, so that they agree. The tie-free samples {19,22,16,29,24} vs
+// {20,11,17,12} (Shier, "Statistics: 2.3 The Mann–Whitney U test",
+// Mathematics Learning Support Centre, 2004) are not significantly
+// different by the rank test (exact p = 0.1111); the bootstrap of the
+// ratio of means must not call them different either.
+func TestCompareBootstrap(t *testing.T) {
 	const fn = "shop.loadOrders"
-	tests := []struct {
-		name       string
-		base, cand []int64
-		p          float64
-	}{
-		{"exact, no ties", []int64{20, 11, 17, 12}, []int64{19, 22, 16, 29, 24}, 0.1111},
-		{"normal with ties", []int64{10, 12, 12, 14, 15, 16}, []int64{12, 15, 15, 18, 20, 22}, 0.0881},
+	b := costSnapshot(4, costCause{fn: fn, kind: KindDatabase, costs: []int64{20, 11, 17, 12}})
+	c := costSnapshot(5, costCause{fn: fn, kind: KindDatabase, costs: []int64{19, 22, 16, 29, 24}})
+	cmp := Compare(b, c, CompareOptions{Seed: 1})
+	ch := changeOf(t, cmp, fn)
+	if ch.Method != MethodBootstrap || cmp.Basis != BasisPerRequest {
+		t.Fatalf("method %s basis %s", ch.Method, cmp.Basis)
 	}
-	for _, tt := range tests {
-		t.Run(tt.name, func(t *testing.T) {
-			b := costSnapshot(len(tt.base), costCause{fn, KindDatabase, tt.base})
-			c := costSnapshot(len(tt.cand), costCause{fn, KindDatabase, tt.cand})
-			cmp := Compare(b, c, CompareOptions{Seed: 1})
-			ch := changeOf(t, cmp, fn)
-			if ch.Method != MethodMWUBootstrap || cmp.Basis != BasisPerRequest {
-				t.Fatalf("method %s basis %s", ch.Method, cmp.Basis)
-			}
-			if !near(ch.PValue, tt.p, 1e-4) {
-				t.Errorf("p = %s, want %.4f", fmtp(ch.PValue), tt.p)
-			}
-			mean := func(x []int64) float64 {
-				s := 0.0
-				for _, v := range x {
-					s += float64(v)
-				}
-				return s / float64(len(x))
-			}
-			if want := mean(tt.cand)/mean(tt.base) - 1; !near(ch.RelativeChange, want, 1e-12) {
-				t.Errorf("relative change %s, want %.4f", fmtp(ch.RelativeChange), want)
-			}
-			if ch.RelLo == nil || ch.RelHi == nil || !(*ch.RelLo <= *ch.RelativeChange && *ch.RelativeChange <= *ch.RelHi) {
-				t.Errorf("bootstrap interval (%s, %s) does not hold the estimate %s", fmtp(ch.RelLo), fmtp(ch.RelHi), fmtp(ch.RelativeChange))
-			}
-			if ch.Verdict != OutcomeUnchanged {
-				t.Errorf("verdict %s, want unchanged (p > 0.05)", ch.Verdict)
-			}
-		})
+	if want := (110.0/5)/(60.0/4) - 1; !near(ch.RelativeChange, want, 1e-12) {
+		t.Errorf("relative change %s, want %.4f", fmtp(ch.RelativeChange), want)
+	}
+	if ch.RelLo == nil || ch.RelHi == nil || !(*ch.RelLo <= *ch.RelativeChange && *ch.RelativeChange <= *ch.RelHi) {
+		t.Errorf("bootstrap interval (%s, %s) does not hold the estimate %s", fmtp(ch.RelLo), fmtp(ch.RelHi), fmtp(ch.RelativeChange))
 	}
 	t.Run("zeros are the requests without the cause", func(t *testing.T) {
-		// The cause appears in 4 of 10 base requests and 5 of 10 candidate
-		// requests: the test sees 6 and 5 zeros, as MannWhitney on the
-		// padded vectors does.
-		b := costSnapshot(10, costCause{fn, KindDatabase, []int64{20, 11, 17, 12}})
-		c := costSnapshot(10, costCause{fn, KindDatabase, []int64{19, 22, 16, 29, 24}})
+		b := costSnapshot(10, costCause{fn: fn, kind: KindDatabase, costs: []int64{20, 11, 17, 12, 15, 14}})
+		c := costSnapshot(10, costCause{fn: fn, kind: KindDatabase, costs: []int64{19, 22, 16, 29, 24}})
 		ch := changeOf(t, Compare(b, c, CompareOptions{}), fn)
-		want := MannWhitney([]float64{0, 0, 0, 0, 0, 19, 22, 16, 29, 24}, []float64{0, 0, 0, 0, 0, 0, 20, 11, 17, 12}).PCorrected
-		if !near(ch.PValue, want, 1e-12) {
-			t.Errorf("p = %s, want %.6f", fmtp(ch.PValue), want)
+		if ch.BaseRequests != 6 || ch.CandRequests != 5 {
+			t.Errorf("requests %d/%d, want 6/5", ch.BaseRequests, ch.CandRequests)
 		}
-		if ch.BaseRequests != 4 || ch.CandRequests != 5 {
-			t.Errorf("requests %d/%d, want 4/5", ch.BaseRequests, ch.CandRequests)
-		}
-		if want := (110.0/10)/(60.0/10) - 1; !near(ch.RelativeChange, want, 1e-12) {
+		if want := (110.0/10)/(89.0/10) - 1; !near(ch.RelativeChange, want, 1e-12) {
 			t.Errorf("relative change %s, want %.4f", fmtp(ch.RelativeChange), want)
 		}
 	})
@@ -397,15 +381,15 @@ func TestCompareStructure(t *testing.T) {
 	})
 	t.Run("mismatched sides warn", func(t *testing.T) {
 		b := countSnapshot(60e9, 0, countCause{"p.f", 3})
-		c := costSnapshot(5, costCause{"p.f", KindDatabase, []int64{1, 2}})
+		c := costSnapshot(5, costCause{fn: "p.f", kind: KindDatabase, costs: []int64{1, 2}})
 		cmp := Compare(b, c, CompareOptions{})
 		if len(cmp.Warnings) == 0 || !strings.Contains(cmp.Warnings[0], "profile source, the candidate a spans source") {
 			t.Errorf("warnings = %q", cmp.Warnings)
 		}
 	})
 	t.Run("deterministic", func(t *testing.T) {
-		b := costSnapshot(40, costCause{"p.f", KindDatabase, []int64{5, 9, 3, 7, 11, 2, 8}}, costCause{"p.g", KindNetwork, []int64{50, 70}})
-		c := costSnapshot(45, costCause{"p.f", KindDatabase, []int64{6, 9, 4, 7, 12, 2, 8, 9}}, costCause{"p.g", KindNetwork, []int64{55}})
+		b := costSnapshot(40, costCause{fn: "p.f", kind: KindDatabase, costs: []int64{5, 9, 3, 7, 11, 2, 8}}, costCause{fn: "p.g", kind: KindNetwork, costs: []int64{50, 70}})
+		c := costSnapshot(45, costCause{fn: "p.f", kind: KindDatabase, costs: []int64{6, 9, 4, 7, 12, 2, 8, 9}}, costCause{fn: "p.g", kind: KindNetwork, costs: []int64{55}})
 		x, _ := json.Marshal(Compare(b, c, CompareOptions{Seed: 42}))
 		y, _ := json.Marshal(Compare(b, c, CompareOptions{Seed: 42}))
 		if string(x) != string(y) {
@@ -463,6 +447,7 @@ func simulateSpans(rng *rand.Rand, n, planted int, factor float64) *Snapshot {
 			}
 			if k > 0 {
 				cc.costs = append(cc.costs, int64(math.Round(cost)))
+				cc.calls = append(cc.calls, int64(k))
 			}
 		}
 		if len(cc.costs) > 0 {
@@ -492,6 +477,10 @@ func simulateProfile(rng *rand.Rand, seconds float64, planted int, factor float6
 // simulation is the outcome of many seeded comparisons.
 type simulation struct {
 	pairs, gateTrips int
+	significant      int // pairs with any test at q ≤ α (costs or calls)
+	alarms           int // pairs with any verdict regressed or improved
+	inconclusive     int // pairs with any verdict inconclusive
+	incoherent       []string
 	planted          int // pairs where the planted cause was regressed
 	others, unch     int // (cause, pair) cases of other causes; those unchanged
 }
@@ -515,6 +504,49 @@ func simulate(pairs int, budget Budget, planted int, draw func(rng *rand.Rand, c
 				sim.pairs++
 				if len(c.Gate()) > 0 {
 					sim.gateTrips++
+				}
+				alarm, sigPair, inconcl := false, false, false
+				for _, ch := range c.Changes {
+					switch ch.Verdict {
+					case OutcomeRegressed, OutcomeImproved:
+						alarm = true
+					case OutcomeInconclusive:
+						inconcl = true
+					}
+					tests := []struct {
+						what      string
+						q, lo, hi *float64
+					}{{"time", ch.QValue, ch.RelLo, ch.RelHi}}
+					if ch.Calls != nil {
+						tests = append(tests, struct {
+							what      string
+							q, lo, hi *float64
+						}{"calls", ch.Calls.QValue, ch.Calls.RelLo, ch.Calls.RelHi})
+					}
+					for _, tt := range tests {
+						if tt.q == nil {
+							continue
+						}
+						sig := *tt.q <= c.Alpha
+						sigPair = sigPair || sig
+						if ch.RelativeChange == nil {
+							continue
+						}
+						excludes := tt.lo != nil && *tt.lo > 0 || tt.hi != nil && *tt.hi < 0
+						if sig != excludes {
+							sim.incoherent = append(sim.incoherent, fmt.Sprintf("pair %d %s %s: q %s interval (%s, %s)",
+								i, ch.Function, tt.what, fmtp(tt.q), fmtp(tt.lo), fmtp(tt.hi)))
+						}
+					}
+				}
+				if alarm {
+					sim.alarms++
+				}
+				if sigPair {
+					sim.significant++
+				}
+				if inconcl {
+					sim.inconclusive++
 				}
 				for _, ch := range c.Changes {
 					if planted >= 0 && ch.Function == shopCauses[planted].fn {
@@ -581,6 +613,22 @@ func TestCompareCalibration(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			t.Parallel()
+			// The whole procedure at the default budget (every cost and
+			// calls test, BH over all of them): the share of A/A pairs where
+			// some cause reads regressed or improved, the verdicts that
+			// claim a change beyond the budget. BH holds the chance of any
+			// q ≤ α under the complete null to α (its FDR is then the
+			// familywise error rate; Benjamini & Hochberg 1995), so the
+			// share of pairs with some significant test (regressed,
+			// improved or inconclusive) is near 5% by design and is
+			// reported, not asserted.
+			def := simulate(pairs, Budget{}, -1, tt.draw(1))
+			alarms := float64(def.alarms) / float64(def.pairs)
+			t.Logf("A/A, default budget: some cause regressed or improved in %d of %d pairs (%.1f%%); inconclusive in %d; some test at q ≤ 0.05 in %d (%.1f%%)",
+				def.alarms, def.pairs, 100*alarms, def.inconclusive, def.significant, 100*float64(def.significant)/float64(def.pairs))
+			if alarms > 0.05 {
+				t.Errorf("A/A false alarm rate %.3f > 0.05", alarms)
+			}
 			aa := simulate(pairs, Budget{Relative: 0.10, Set: true}, -1, tt.draw(1))
 			rate := float64(aa.gateTrips) / float64(aa.pairs)
 			t.Logf("A/A: gate (budget 10%%) tripped in %d of %d pairs (%.1f%%); %d of %d cause comparisons unchanged (%.1f%%)",
@@ -593,12 +641,121 @@ func TestCompareCalibration(t *testing.T) {
 			spec := float64(pw.unch) / float64(pw.others)
 			t.Logf("power: +30%% regressed (budget 5%%) in %d of %d pairs (%.1f%%); other causes unchanged in %d of %d cases (%.1f%%)",
 				pw.planted, pw.pairs, 100*power, pw.unch, pw.others, 100*spec)
-			if power < 0.95 {
-				t.Errorf("power %.3f < 0.95", power)
+			// 50 pairs (-short) measure a power of 95% as low as 92% in
+			// one run of ten (binomial noise); the full run checks 95%.
+			minPower := 0.95
+			if testing.Short() {
+				minPower = 0.9
+			}
+			if power < minPower {
+				t.Errorf("power %.3f < %.2f", power, minPower)
+			}
+			for _, sim := range []simulation{def, aa, pw} {
+				for _, s := range sim.incoherent {
+					t.Errorf("significance and interval disagree: %s", s)
+				}
 			}
 			if spec < 0.95 {
 				t.Errorf("other causes unchanged in %.3f < 0.95 of cases", spec)
 			}
 		})
+	}
+}
+
+// TestCompareCallsRegression plants the N+1 regression of a real
+// workload: calls per request double (8 → 16 per request) while the time
+// per request is so noisy (log-normal calls, σ = 2, 40 requests a side)
+// that the cost alone is not significant. The verdict must be regressed
+// for the reason "calls", with the cost's own verdict shown beside it.
+func TestCompareCallsRegression(t *testing.T) {
+	const fn = "example.com/lab/results.(*Store).ByID"
+	rng := rand.New(rand.NewPCG(7, 14))
+	draw := func(calls int, slow float64) costCause {
+		cc := costCause{fn: fn, kind: KindDatabase}
+		for range 40 {
+			var cost float64
+			for range calls {
+				cost += 1e6 * slow * math.Exp(2*rng.NormFloat64())
+			}
+			cc.costs = append(cc.costs, int64(cost))
+			cc.calls = append(cc.calls, int64(calls))
+		}
+		return cc
+	}
+	// The candidate's calls are half as slow each: time per request moves
+	// little, calls per request double.
+	base, cand := costSnapshot(40, draw(8, 1)), costSnapshot(40, draw(16, 0.5))
+	c := Compare(base, cand, CompareOptions{Seed: 3})
+	ch := changeOf(t, c, fn)
+	if ch.Calls == nil || !near(&ch.Calls.Base, 8, 1e-12) || !near(&ch.Calls.Candidate, 16, 1e-12) {
+		t.Fatalf("calls = %+v, want 8 → 16 per request", ch.Calls)
+	}
+	if ch.QValue == nil || *ch.QValue <= c.Alpha {
+		t.Fatalf("time q = %s: the test data must make time alone not significant", fmtp(ch.QValue))
+	}
+	if ch.Verdict != OutcomeRegressed || !slices.Equal(ch.Reasons, []string{ReasonCalls}) {
+		t.Errorf("verdict %s reasons %q, want regressed because of calls", ch.Verdict, ch.Reasons)
+	}
+	if ch.Calls.Verdict != OutcomeRegressed || ch.Calls.RelLo == nil || *ch.Calls.RelLo <= 0.05 {
+		t.Errorf("calls verdict %s interval lower bound %s, want regressed above the budget", ch.Calls.Verdict, fmtp(ch.Calls.RelLo))
+	}
+	if g := c.Gate(); len(g) != 1 {
+		t.Errorf("gate = %d changes, want 1", len(g))
+	}
+}
+
+// TestCompareNewStatement checks that a statement found only in the
+// candidate is listed under its root cause, with calls per request.
+func TestCompareNewStatement(t *testing.T) {
+	const fn = "example.com/lab/results.(*Store).ByID"
+	mk := func(stmts ...Detail) *Snapshot {
+		s := costSnapshot(10, costCause{fn: fn, kind: KindDatabase, costs: []int64{5, 6, 7, 8, 9, 5, 6, 7, 8, 9},
+			calls: []int64{2, 2, 2, 2, 2, 2, 2, 2, 2, 2}})
+		s.Causes[0].Statements = stmts
+		return s
+	}
+	old := Detail{Kind: KindDatabase, System: "postgresql", Statement: "select * from samples where id = ?", Calls: 20}
+	added := Detail{Kind: KindDatabase, System: "postgresql", Statement: "select * from lab_results where sample_id = ?", Calls: 10}
+	old2 := old
+	old2.Calls = 10
+	ch := changeOf(t, Compare(mk(old), mk(old2, added), CompareOptions{}), fn)
+	if len(ch.Statements) != 2 {
+		t.Fatalf("statements = %+v", ch.Statements)
+	}
+	for _, s := range ch.Statements {
+		switch s.Statement {
+		case added.Statement:
+			if !s.New || s.Base != 0 || s.Candidate != 1 {
+				t.Errorf("added statement = %+v, want new at 1 call per request", s)
+			}
+		case old.Statement:
+			// 20 vs 10 calls over 10 requests each: the exact conditional
+			// test gives P[X ≤ 10 | n = 30, π = ½] doubled = 0.0987
+			// (binomial tail, computed by hand from the definition).
+			if s.New || s.Base != 2 || s.Candidate != 1 || !near(s.PValue, 0.0987, 5e-4) || s.QValue == nil {
+				t.Errorf("old statement = %+v (p %s), want 2 → 1 calls per request, p 0.0987", s, fmtp(s.PValue))
+			}
+		}
+	}
+}
+
+// TestCompareBelowDetection: a cause seen in too few samples for any
+// split to be significant is marked below detection, not tested, and
+// sorted after the tested causes.
+func TestCompareBelowDetection(t *testing.T) {
+	d := int64(60e9)
+	base := countSnapshot(d, 0, countCause{"p.big", 400}, countCause{"p.rare", 1})
+	cand := countSnapshot(d, 0, countCause{"p.big", 410}, countCause{"p.rare", 3}, countCause{"p.once", 1})
+	c := Compare(base, cand, CompareOptions{})
+	var got []string
+	for _, ch := range c.Changes {
+		got = append(got, fmt.Sprintf("%s %s %v", ch.Function, ch.Verdict, ch.BelowDetection))
+		if ch.BelowDetection && ch.PValue != nil {
+			t.Errorf("%s: below detection but tested (p %s)", ch.Function, fmtp(ch.PValue))
+		}
+	}
+	want := []string{"p.big unchanged false", "p.once new true", "p.rare unchanged true"}
+	if !slices.Equal(got, want) {
+		t.Errorf("changes %q, want %q", got, want)
 	}
 }

@@ -28,7 +28,7 @@
 // per request to one peer.
 //
 // Statements are fingerprinted (Fingerprint) so that literals never leave
-// the tool unless asked. The statistics (stats.go, mwu.go) implement the
+// the tool unless asked. The statistics (stats.go, bootstrap.go) implement the
 // published tests used to compare two builds.
 //
 // The package opens no files: rules, domains and snapshot files are read

@@ -14,6 +14,11 @@ import (
 // they cannot say what a request waited on.
 var ErrNoTiming = errors.New("latency needs traces: a profile has no requests and no timing order, so it cannot tell what made requests slow; record OpenTelemetry traces of the load test and pass those")
 
+// ErrExecTraceLatency is returned by Latency for a Go execution trace:
+// its waits are not spans with a parent and a start, so the critical path
+// is not computed for them yet.
+var ErrExecTraceLatency = errors.New("latency reads OpenTelemetry traces; for a Go execution trace, culprit rank --value wall shows each root cause's share of the requests' wall-clock time (concurrent waits counted once)")
+
 // Kinds of critical-path time beside database and network calls.
 const (
 	// KindApplication is an application span's own time on the path.
@@ -242,7 +247,10 @@ type cpTally struct {
 // the server or consumer span that lasts longest).
 func Latency(t *callgraph.Tree, c *Classifier, opts LatencyOptions) (*LatencyResult, error) {
 	src := t.Source()
-	if src.Kind != traces.Spans || src.Timing == nil {
+	switch {
+	case src.Kind == traces.ExecTrace:
+		return nil, ErrExecTraceLatency
+	case src.Kind != traces.Spans || src.Timing == nil:
 		return nil, ErrNoTiming
 	}
 	tail := opts.Tail

@@ -10,6 +10,7 @@ import (
 
 	"github.com/culprithq/culprit/callgraph"
 	"github.com/culprithq/culprit/traces"
+	"github.com/culprithq/culprit/traces/statement"
 	otelattr "go.opentelemetry.io/otel/attribute"
 	sdkresource "go.opentelemetry.io/otel/sdk/resource"
 	sdktrace "go.opentelemetry.io/otel/sdk/trace"
@@ -157,7 +158,7 @@ func TestLatencyNodeJSParallel(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer fh.Close()
-	l := traces.NewLoader(traces.Options{Timing: true, Statement: AppendFingerprint})
+	l := traces.NewLoader(traces.Options{Timing: true, Statement: statement.AppendText})
 	if err := l.Add("seedbank.traces.jsonl.gz", fh); err != nil {
 		t.Fatal(err)
 	}

@@ -8,6 +8,7 @@ import (
 
 	"github.com/culprithq/culprit/callgraph"
 	"github.com/culprithq/culprit/traces"
+	"github.com/culprithq/culprit/traces/statement"
 )
 
 // tspan is a span of a hand-written OTLP/JSON test trace; times in ms.
@@ -77,7 +78,7 @@ func sortedKeys(m map[string]string) []string {
 
 func loadSpans(t testing.TB, jsonl string, timing bool) (*callgraph.Tree, *Classifier) {
 	t.Helper()
-	l := traces.NewLoader(traces.Options{Timing: timing, Statement: AppendFingerprint})
+	l := traces.NewLoader(traces.Options{Timing: timing, Statement: statement.AppendText})
 	if err := l.Add("test.jsonl", strings.NewReader(jsonl)); err != nil {
 		t.Fatal(err)
 	}

@@ -42,6 +42,10 @@ var (
 	// ErrSnapshotMismatch means snapshots cannot be merged or compared:
 	// they differ in what they measure or in how code was classified.
 	ErrSnapshotMismatch = errors.New("snapshots do not match")
+	// ErrSameData means snapshots to be merged hold some of the same
+	// data: an input with the same digest, or the same segment of one
+	// listener's capture. Adding them up would count it twice.
+	ErrSameData = errors.New("snapshots hold the same data")
 )
 
 // SnapshotError reports a problem in a snapshot document. Line and Column
@@ -637,22 +641,17 @@ func MergeSnapshots(snaps ...*Snapshot) (*Snapshot, error) {
 	}
 	var notes []string
 	spans := first.SourceKind == traces.Spans.String()
-	seenInput := map[string]int{}
-	for i, s := range snaps {
+	if err := distinctData(snaps); err != nil {
+		return nil, err
+	}
+	for _, s := range snaps {
 		if spans {
 			out.DurationNanos = max(out.DurationNanos, s.DurationNanos)
 		} else {
 			out.DurationNanos += s.DurationNanos
 		}
 		addTotals(&out.Totals, s.Totals)
-		for _, in := range s.Inputs {
-			if j, ok := seenInput[in.SHA256]; ok && in.SHA256 != "" && j != i {
-				notes = append(notes, fmt.Sprintf("input %s appears in %s and %s: its data is counted twice",
-					in.Name, snapLabel(snaps[j], j), snapLabel(s, i)))
-			}
-			seenInput[in.SHA256] = i
-			out.Inputs = append(out.Inputs, in)
-		}
+		out.Inputs = append(out.Inputs, s.Inputs...)
 		out.Warnings = append(out.Warnings, s.Warnings...)
 	}
 	if spans && len(snaps) > 1 {
@@ -672,6 +671,33 @@ func MergeSnapshots(snaps ...*Snapshot) (*Snapshot, error) {
 	}
 	out.Warnings = append(out.Warnings, notes...)
 	return out, nil
+}
+
+// distinctData fails with ErrSameData when two snapshots share an input:
+// the same digest, or the same segment of one listener's capture (its
+// instance ID and sequence number), which identify the data whatever the
+// file is called.
+func distinctData(snaps []*Snapshot) error {
+	seen := map[string]int{}
+	for i, s := range snaps {
+		for _, in := range s.Inputs {
+			keys := []string{}
+			if in.SHA256 != "" {
+				keys = append(keys, "sha256 "+in.SHA256)
+			}
+			if in.Segment != nil {
+				keys = append(keys, fmt.Sprintf("segment %d of listener run %s", in.Segment.Sequence, in.Segment.Instance))
+			}
+			for _, k := range keys {
+				if j, ok := seen[k]; ok && j != i {
+					return fmt.Errorf("%w: input %s of %s is also in %s (%s); merging would count its data twice",
+						ErrSameData, in.Name, snapLabel(s, i), snapLabel(snaps[j], j), k)
+				}
+				seen[k] = i
+			}
+		}
+	}
+	return nil
 }
 
 // snapLabel names snapshot i (0-based) in messages: its file when read

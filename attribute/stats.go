@@ -178,22 +178,6 @@ func MinDetectableRatio(cb, cc float64, alpha, power float64) float64 {
 	return math.Exp(z * math.Sqrt(1/cb+1/cc))
 }
 
-// MinDetectableDiff returns the smallest difference of means detectable by a
-// two-sided test at level alpha with the given power, for standard deviations
-// sb, sc and sample sizes nb, nc: (z_{1−α/2} + z_{power})·√(sb²/nb + sc²/nc),
-// in the unit of the data. It is +Inf when a sample size is not positive, NaN
-// for alpha or power outside (0, 1).
-func MinDetectableDiff(sb, nb, sc, nc float64, alpha, power float64) float64 {
-	z := powerZ(alpha, power)
-	if math.IsNaN(z) || math.IsNaN(nb) || math.IsNaN(nc) {
-		return math.NaN()
-	}
-	if nb <= 0 || nc <= 0 {
-		return math.Inf(1)
-	}
-	return z * math.Sqrt(sb*sb/nb+sc*sc/nc)
-}
-
 // meanVar returns the mean and the unbiased sample variance of x (len ≥ 2),
 // computed in two passes.
 func meanVar(x []float64) (mean, variance float64) {
@@ -217,12 +201,6 @@ func powerZ(alpha, power float64) float64 {
 
 func validCount(x float64) bool    { return x >= 0 && x <= 1<<53 }
 func validExposure(t float64) bool { return t > 0 && !math.IsInf(t, 1) }
-
-// normSF returns P[Z > z] for a standard normal Z, accurate in the far tail.
-func normSF(z float64) float64 { return 0.5 * math.Erfc(z/math.Sqrt2) }
-
-// twoSidedNormal returns P[|Z| ≥ |z|] for a standard normal Z.
-func twoSidedNormal(z float64) float64 { return math.Min(1, 2*normSF(math.Abs(z))) }
 
 // normQuantile returns the p quantile of the standard normal, NaN outside [0, 1].
 func normQuantile(p float64) float64 {

@@ -304,10 +304,6 @@ func TestMinDetectable(t *testing.T) {
 			checkPub(t, "ratio", MinDetectableRatio(tt.c, tt.c, 0.05, 0.8), tt.want)
 		})
 	}
-	t.Run("diff", func(t *testing.T) {
-		// [comp] s = 20 ms, n = 500 per side → 3.54 ms.
-		checkPub(t, "diff", MinDetectableDiff(20, 500, 20, 500, 0.05, 0.8), "3.54")
-	})
 	t.Run("multiplier", func(t *testing.T) {
 		// [comp] z_{0.975} + z_{0.8} = 2.8016.
 		checkPub(t, "z sum", powerZ(0.05, 0.8), "2.8016")
@@ -316,13 +312,10 @@ func TestMinDetectable(t *testing.T) {
 		if v := MinDetectableRatio(0, 10, 0.05, 0.8); !math.IsInf(v, 1) {
 			t.Errorf("zero count: %g, want +Inf", v)
 		}
-		if v := MinDetectableDiff(1, 0, 1, 10, 0.05, 0.8); !math.IsInf(v, 1) {
-			t.Errorf("zero n: %g, want +Inf", v)
-		}
 		if v := MinDetectableRatio(10, 10, 0, 0.8); !math.IsNaN(v) {
 			t.Errorf("alpha 0: %g, want NaN", v)
 		}
-		if v := MinDetectableDiff(1, 5, 1, 5, 0.05, 1); !math.IsNaN(v) {
+		if v := MinDetectableRatio(10, 10, 0.05, 1); !math.IsNaN(v) {
 			t.Errorf("power 1: %g, want NaN", v)
 		}
 	})
@@ -350,17 +343,11 @@ func TestDistributionTails(t *testing.T) {
 		}
 	})
 	t.Run("normal", func(t *testing.T) {
-		for z := -8.0; z <= 8; z += 0.25 {
-			checkNear(t, "normSF", normSF(z), distuv.UnitNormal.Survival(z), 1e-15)
-		}
 		for _, p := range []float64{1e-10, 0.001, 0.025, 0.2, 0.5, 0.8, 0.975, 0.999} {
 			checkNear(t, "normQuantile", normQuantile(p), distuv.UnitNormal.Quantile(p), 1e-12)
 		}
 		// Standard normal table (recalled from memory): z_{0.975} = 1.959964.
 		checkPub(t, "z_0.975", normQuantile(0.975), "1.959964")
-		// Far tail: P[Z > 10] = 7.6199e-24 (recalled from memory); erfc keeps
-		// relative precision where 1 − Φ would give 0.
-		checkNear(t, "normSF(10)", normSF(10)/7.6198530241605e-24, 1, 1e-6)
 		if v := normQuantile(1.2); !math.IsNaN(v) {
 			t.Errorf("normQuantile(1.2) = %g, want NaN", v)
 		}

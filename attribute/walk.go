@@ -3,6 +3,7 @@ package attribute
 import (
 	"github.com/culprithq/culprit/callgraph"
 	"github.com/culprithq/culprit/traces"
+	"github.com/culprithq/culprit/traces/statement"
 )
 
 // This file is the attribution walk: the one place where the contract
@@ -424,7 +425,7 @@ func detail(src *traces.Source, t *callgraph.Tree, p *traces.Path, b callgraph.N
 	case call.Statement != "" && (literals || src.StatementsNormalized):
 		dk.statement = call.Statement
 	case call.Statement != "":
-		dk.statement = Fingerprint(call.System, call.Statement).Text
+		dk.statement = statement.Of(call.System, call.Statement).Text
 	case call.Summary != "":
 		dk.statement = call.Summary
 	case call.Operation != "":

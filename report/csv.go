@@ -10,8 +10,10 @@ import (
 // CSV renders one row per root cause × boundary detail (statement
 // fingerprint, operation or library function), for notebooks, spreadsheets
 // and dashboards. A root cause with no detail still gets one row, with the
-// detail columns empty. Rows follow the rank order (root causes, up to
-// Options.Limit) and, within a root cause, the order of its statements
+// detail columns empty. Rows follow the rank order (every root cause
+// unless Options.Limit cuts them; then a last row reads "(omitted N)" in
+// the rank column, with the omitted causes' summed cost and share) and,
+// within a root cause, the order of its statements
 // (cost descending). Options.Color and Options.Width are ignored.
 //
 // The header row is stable; columns may be added at the end but are never
@@ -106,6 +108,16 @@ func (CSV) Render(w io.Writer, r *attribute.Result, opts Options) error {
 			if err := cw.Write(row); err != nil {
 				return err
 			}
+		}
+	}
+	if shown := shown(r, opts); len(shown) < len(r.Causes) {
+		o := omittedCauses(r.Causes[len(shown):])
+		row := make([]string, len(csvHeader))
+		row[0] = "(omitted " + strconv.Itoa(o.Count) + ")"
+		row[6], row[7] = strconv.FormatInt(*o.Cost, 10), csvFloat(*o.Share)
+		row[len(row)-3], row[len(row)-2] = r.ValueType.Type, r.ValueType.Unit
+		if err := cw.Write(row); err != nil {
+			return err
 		}
 	}
 	cw.Flush()

@@ -20,32 +20,129 @@ type DiffRenderer interface {
 	RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) error
 }
 
-// DiffFormats lists the format names ForDiffFormat accepts.
-var DiffFormats = []string{"text", "markdown", "json", "csv", "html"}
-
-// ForDiffFormat returns the comparison renderer of a format name.
-func ForDiffFormat(name string) (DiffRenderer, error) {
-	switch name {
-	case "text":
-		return DiffText{}, nil
-	case "markdown":
-		return DiffMarkdown{}, nil
-	case "json":
-		return DiffJSON{}, nil
-	case "csv":
-		return DiffCSV{}, nil
-	case "html":
-		return DiffHTML{}, nil
+// shownChanges returns the tested changes to show under opts.Limit; the
+// changes below detection (sorted last) are left for belowChanges.
+func shownChanges(c *attribute.Comparison, opts Options) []attribute.Change {
+	tested := c.Changes
+	for i, ch := range c.Changes {
+		if ch.BelowDetection {
+			tested = c.Changes[:i]
+			break
+		}
 	}
-	return nil, fmt.Errorf("unknown format %q; --format must be one of: %s", name, strings.Join(DiffFormats, ", "))
+	if opts.Limit > 0 && len(tested) > opts.Limit {
+		return tested[:opts.Limit]
+	}
+	return tested
 }
 
-// shownChanges returns the changes to show under opts.Limit.
-func shownChanges(c *attribute.Comparison, opts Options) []attribute.Change {
+// belowChanges returns the changes with too little evidence to test.
+func belowChanges(c *attribute.Comparison) []attribute.Change {
+	for i, ch := range c.Changes {
+		if ch.BelowDetection {
+			return c.Changes[i:]
+		}
+	}
+	return nil
+}
+
+// hiddenChanges counts the tested changes that opts.Limit cuts.
+func hiddenChanges(c *attribute.Comparison, opts Options) int {
+	return len(c.Changes) - len(belowChanges(c)) - len(shownChanges(c, opts))
+}
+
+// belowText is the line that stands for the changes below detection:
+// "3 root causes below detection (too few samples or requests for any
+// change to be significant): a, b, c".
+func belowText(c *attribute.Comparison, names int) string {
+	below := belowChanges(c)
+	if len(below) == 0 {
+		return ""
+	}
+	var fns []string
+	for i, ch := range below {
+		if i == names {
+			fns = append(fns, fmt.Sprintf("and %d more", len(below)-names))
+			break
+		}
+		fns = append(fns, shortName(ch.Function))
+	}
+	return plural(len(below), "root cause", "root causes") + " below detection (too few samples or requests for any change to be significant): " +
+		strings.Join(fns, ", ")
+}
+
+// verdictText is the verdict with its reasons when calls were compared:
+// "regressed (calls)", "regressed (time, calls)".
+func verdictText(ch attribute.Change) string {
+	if ch.Calls == nil || len(ch.Reasons) == 0 {
+		return string(ch.Verdict)
+	}
+	return string(ch.Verdict) + " (" + strings.Join(ch.Reasons, ", ") + ")"
+}
+
+// callsText renders the mean calls per request on both sides, "8.9 →
+// 17.9"; "-" when calls were not compared.
+func callsText(ch attribute.Change) string {
+	if ch.Calls == nil {
+		return "-"
+	}
+	return numText(ch.Calls.Base) + " → " + numText(ch.Calls.Candidate)
+}
+
+// callsRelText renders the relative change of calls per request with its
+// interval, like relText; "-" when calls were not compared.
+func callsRelText(ch attribute.Change) string {
+	if ch.Calls == nil {
+		return "-"
+	}
+	cc := ch.Calls
+	return relText(attribute.Change{Verdict: ch.Verdict, RelativeChange: cc.RelativeChange, RelLo: cc.RelLo, RelHi: cc.RelHi})
+}
+
+// anyCalls reports whether any change compared calls per request.
+func anyCalls(changes []attribute.Change) bool {
+	for _, ch := range changes {
+		if ch.Calls != nil {
+			return true
+		}
+	}
+	return false
+}
+
+// limitedChanges returns every change, tested or not, cut to opts.Limit:
+// what the machine formats carry.
+func limitedChanges(c *attribute.Comparison, opts Options) []attribute.Change {
 	if opts.Limit > 0 && len(c.Changes) > opts.Limit {
 		return c.Changes[:opts.Limit]
 	}
 	return c.Changes
+}
+
+// stmtNote is a statement of a change worth a line of its own: Label
+// says what changed ("new statement", "calls per request 8 → 16"), Detail
+// the number behind it.
+type stmtNote struct{ Label, Statement, Detail string }
+
+// statementNotes lists the statements of a change that are new in the
+// candidate, and those whose calls per request changed significantly
+// (statement q ≤ Alpha).
+func statementNotes(c *attribute.Comparison, ch attribute.Change) []stmtNote {
+	var out []stmtNote
+	for _, s := range ch.Statements {
+		switch {
+		case s.New:
+			out = append(out, stmtNote{"new statement", s.Statement, numText(s.Candidate) + " calls per request"})
+		case !s.Gone && s.QValue != nil && *s.QValue <= c.Alpha:
+			out = append(out, stmtNote{"calls per request " + numText(s.Base) + " → " + numText(s.Candidate), s.Statement, "q " + qText(s.QValue)})
+		}
+	}
+	return out
+}
+
+// confText renders a confidence level without rounding it up to 100%:
+// 0.95 → "95%", 0.9975 → "99.75%".
+func confText(f float64) string {
+	return strconv.FormatFloat(math.Floor(f*1e4+1e-6)/100, 'f', -1, 64) + "%"
 }
 
 // rateText renders a normalised cost in the comparison's unit: a share as
@@ -80,8 +177,10 @@ func signedRateText(v float64, c *attribute.Comparison) string {
 		s = strconv.FormatFloat(v*100, 'f', 1, 64) + " pp"
 	}
 	switch {
+	case !nonZero(s) && c.Basis == attribute.BasisShare:
+		return "0 pp"
 	case !nonZero(s):
-		return strings.TrimPrefix(s, "-")
+		return "0"
 	case v > 0:
 		return "+" + s
 	}
@@ -114,8 +213,8 @@ func pctText(f float64) string {
 		return strconv.FormatFloat(p, 'f', 0, 64) + "%"
 	}
 	s := strconv.FormatFloat(p, 'f', 1, 64)
-	if s == "-0.0" {
-		s = "0.0"
+	if !nonZero(s) {
+		s = "0"
 	}
 	return s + "%"
 }
@@ -223,7 +322,7 @@ func sideText(s attribute.SideSummary) string {
 		facts = append(facts, clean(s.SourceKind))
 	}
 	if s.Requests > 0 {
-		facts = append(facts, fmt.Sprintf("%d requests", s.Requests))
+		facts = append(facts, plural(s.Requests, "request", "requests"))
 	}
 	if s.DurationNanos > 0 {
 		facts = append(facts, formatDuration(float64(s.DurationNanos)))
@@ -275,9 +374,12 @@ func newDiffHeadline(c *attribute.Comparison) diffHeadline {
 		}
 		h.Lead = strings.Join(parts, " and ")
 		h.Function = gate[0].Function
-		if gate[0].RelativeChange != nil {
+		switch {
+		case gate[0].RelativeChange != nil && len(gate[0].Reasons) == 1 && gate[0].Reasons[0] == attribute.ReasonCalls:
+			h.Change = "calls per request " + callsText(gate[0]) + " " + callsRelText(gate[0])
+		case gate[0].RelativeChange != nil:
 			h.Change = relText(gate[0])
-		} else {
+		default:
 			h.Change = relText(gate[0]) + " at " + rateText(gate[0].Candidate, c)
 		}
 	}
@@ -287,7 +389,7 @@ func newDiffHeadline(c *attribute.Comparison) diffHeadline {
 			attribute.OutcomeImproved, attribute.OutcomeGone, attribute.OutcomeUnchanged} {
 			n := 0
 			for _, ch := range c.Changes {
-				if ch.Verdict == v {
+				if ch.Verdict == v && !ch.BelowDetection {
 					n++
 				}
 			}
@@ -295,9 +397,20 @@ func newDiffHeadline(c *attribute.Comparison) diffHeadline {
 				counts = append(counts, fmt.Sprintf("%d %s", n, v))
 			}
 		}
+		if n := len(belowChanges(c)); n > 0 {
+			counts = append(counts, fmt.Sprintf("%d below detection", n))
+		}
 		h.Counts = plural(len(c.Changes), "root cause", "root causes") + " compared: " + strings.Join(counts, ", ")
 	}
 	return h
+}
+
+// plural64 is plural for an int64 count.
+func plural64(n int64, one, many string) string {
+	if n == 1 {
+		return "1 " + one
+	}
+	return strconv.FormatInt(n, 10) + " " + many
 }
 
 func plural(n int, one, many string) string {
@@ -309,22 +422,27 @@ func plural(n int, one, many string) string {
 
 // methodNotes explains the methods the comparison used, in sentences.
 func methodNotes(c *attribute.Comparison) []string {
-	var poisson, mwu bool
+	var poisson, boot, calls bool
 	for _, ch := range c.Changes {
 		poisson = poisson || ch.Method == attribute.MethodPoisson
-		mwu = mwu || ch.Method == attribute.MethodMWUBootstrap
+		boot = boot || ch.Method == attribute.MethodBootstrap
+		calls = calls || ch.Calls != nil
 	}
-	conf := strconv.FormatFloat(c.Confidence*100, 'g', -1, 64) + "%"
+	conf := confText(c.Confidence)
 	out := []string{fmt.Sprintf("Costs are normalised %s; every value is in %s.", normalisedHow(c.Basis), c.Unit)}
 	if poisson {
 		out = append(out, "Sampled profiles (and spans without per-request costs): sample counts are compared as Poisson rates with the exact conditional test; the "+conf+" interval is the Clopper–Pearson interval of the rate ratio, so the relative change is that of the sample rate.")
 	}
-	if mwu {
-		out = append(out, fmt.Sprintf("Per-request costs: the p-value comes from the Mann–Whitney rank test and the %s interval of the relative change from a percentile bootstrap of the ratio of mean per-request cost (%d resamples, seed %d).",
-			conf, c.Resamples, c.Seed))
+	if boot {
+		out = append(out, fmt.Sprintf("Per-request costs: one percentile bootstrap of the ratio of mean per-request cost (%d resamples, seed %d; Efron & Tibshirani, An Introduction to the Bootstrap, 1993) gives the p-value, the interval and the MDE, so they agree.",
+			c.Resamples, c.Seed))
+	}
+	if calls {
+		out = append(out, "Calls per request are compared the same way, beside time; a significant change in calls is a verdict in its own right (the reason is shown: time, calls or both).")
 	}
 	out = append(out,
-		"p-values are adjusted for the number of root causes compared by the Benjamini–Hochberg procedure (q-values); a change is significant when q ≤ "+strconv.FormatFloat(c.Alpha, 'g', -1, 64)+".",
+		"p-values are adjusted for the number of tests by the Benjamini–Hochberg procedure (q-values); a change is significant when q ≤ "+strconv.FormatFloat(c.Alpha, 'g', -1, 64)+
+			". Intervals are at the "+conf+" level that agrees with that step (false coverage rate adjusted intervals, Benjamini & Yekutieli, JASA 2005): an interval excludes zero exactly when q ≤ "+strconv.FormatFloat(c.Alpha, 'g', -1, 64)+".",
 		"Regressed: significant and the interval's lower bound is above the budget ("+budgetText(c)+"); improved: the mirror image; inconclusive: significant but the interval straddles the budget, or the test could not run.",
 		unchangedNote(c))
 	return out

@@ -3,6 +3,7 @@ package report
 import (
 	"io"
 	"strconv"
+	"strings"
 
 	"github.com/culprithq/culprit/attribute"
 )
@@ -26,9 +27,20 @@ import (
 //	p_value          two-sided p-value of method; empty when the test could not run
 //	q_value          Benjamini–Hochberg adjusted p-value; empty likewise
 //	mde              smallest relative change detectable at 80% power; empty when unbounded
-//	method           poisson-exact or mann-whitney+bootstrap
+//	method           poisson-exact or bootstrap
 //	basis            per-request, per-second or share
 //	unit             unit of base, candidate and change, e.g. "nanoseconds per request"
+//	reasons          what gives the verdict: time, calls or "time calls"; empty when unchanged
+//	below_detection  true when the cause had too little evidence to be tested
+//	calls_base, calls_candidate            mean calls per request; empty when not compared
+//	calls_relative_change, calls_rel_lo, calls_rel_hi, calls_p_value, calls_q_value, calls_mde
+//	                 the calls test, as the columns above; empty when not compared
+//	calls_verdict    the verdict on calls alone
+//	confidence       level of every interval (adjusted for the number of tests)
+//
+// Every change is a row, those below detection included, unless
+// Options.Limit cuts them; then a last row reads "(omitted N)" in the
+// verdict column, with the omitted changes' base and candidate summed.
 //
 // Numbers are unformatted, in the shortest representation that
 // round-trips (strconv 'g', -1). Strings are written as they are, quoted by
@@ -39,6 +51,8 @@ type DiffCSV struct{}
 var diffCSVHeader = []string{
 	"verdict", "function", "identity", "kind", "base", "candidate", "change",
 	"relative_change", "rel_lo", "rel_hi", "p_value", "q_value", "mde", "method", "basis", "unit",
+	"reasons", "below_detection", "calls_base", "calls_candidate", "calls_relative_change", "calls_rel_lo", "calls_rel_hi",
+	"calls_p_value", "calls_q_value", "calls_mde", "calls_verdict", "confidence",
 }
 
 // RenderDiff implements DiffRenderer.
@@ -47,12 +61,34 @@ func (DiffCSV) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) er
 	if err := cw.Write(diffCSVHeader); err != nil {
 		return err
 	}
-	for _, ch := range shownChanges(c, opts) {
+	shown := limitedChanges(c, opts)
+	for _, ch := range shown {
 		row := []string{string(ch.Verdict), ch.Function, ch.Identity, string(ch.Kind),
 			csvFloat(ch.Base), csvFloat(ch.Candidate), csvFloat(ch.Change),
 			csvOptional(ch.RelativeChange), csvOptional(ch.RelLo), csvOptional(ch.RelHi),
 			csvOptional(ch.PValue), csvOptional(ch.QValue), csvOptional(ch.MDE),
-			ch.Method, string(c.Basis), c.Unit}
+			ch.Method, string(c.Basis), c.Unit, strings.Join(ch.Reasons, " "), strconv.FormatBool(ch.BelowDetection)}
+		if cc := ch.Calls; cc != nil {
+			row = append(row, csvFloat(cc.Base), csvFloat(cc.Candidate), csvOptional(cc.RelativeChange), csvOptional(cc.RelLo),
+				csvOptional(cc.RelHi), csvOptional(cc.PValue), csvOptional(cc.QValue), csvOptional(cc.MDE), string(cc.Verdict))
+		} else {
+			row = append(row, "", "", "", "", "", "", "", "", "")
+		}
+		row = append(row, csvFloat(c.Confidence))
+		if err := cw.Write(row); err != nil {
+			return err
+		}
+	}
+	if omitted := c.Changes[len(shown):]; len(omitted) > 0 {
+		var b, cand float64
+		for _, ch := range omitted {
+			b += ch.Base
+			cand += ch.Candidate
+		}
+		row := make([]string, len(diffCSVHeader))
+		row[0] = "(omitted " + strconv.Itoa(len(omitted)) + ")"
+		row[4], row[5], row[6] = csvFloat(b), csvFloat(cand), csvFloat(cand-b)
+		row[14], row[15] = string(c.Basis), c.Unit
 		if err := cw.Write(row); err != nil {
 			return err
 		}

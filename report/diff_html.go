@@ -36,7 +36,7 @@ type DiffHTML struct{}
 var diffSource string
 
 // diffTemplate is compiled once; a broken template fails every test.
-var diffTemplate = template.Must(template.New("diff.tmpl").Funcs(htmlFuncs).Parse(diffSource))
+var diffTemplate = template.Must(template.Must(template.New("diff.tmpl").Funcs(htmlFuncs).Parse(diffSource)).Parse(layoutSource))
 
 // Change chart geometry in SVG user units (px at 100%).
 const (
@@ -47,6 +47,7 @@ const (
 	diffTop      = 22.0  // room for the budget labels
 	diffName     = 34    // runes of a shortened name label
 	diffMaxScale = 2.0   // the axis never reaches beyond ±200%
+	diffChartMax = 20    // bars drawn; the table lists every change
 )
 
 type diffPage struct {
@@ -60,9 +61,16 @@ type diffPage struct {
 	Rows       []diffRow
 	More       int
 	Chart      *diffChart
-	Notes      []string
-	Warnings   []string
-	Produced   diffProduced
+	ChartMore  bool
+	Clipped    bool
+	Calls      bool
+	Below      string
+	// NewStatements lists statements found only in the candidate and
+	// those whose calls per request changed significantly.
+	NewStatements []newStatement
+	Notes         []string
+	Warnings      []string
+	Produced      diffProduced
 }
 
 type diffRow struct {
@@ -71,7 +79,11 @@ type diffRow struct {
 	Base, Candidate, Change, Rel, Q, MDE string
 	BaseV, CandV, ChangeV, RelV, QV      string
 	MDEV                                 string
+	Calls, CallsRel                      string
+	FnParts                              []string
 }
+
+type newStatement struct{ Function, Label, Statement, Detail string }
 
 type diffChart struct {
 	Width, Height, Zero, AxisY, TickY, BudgetY string
@@ -87,6 +99,10 @@ type diffBar struct {
 	NameX, LabelX, TextY, X, Y, W, H string
 	Whisker, CapLo, CapHi            bool
 	WX1, WX2, WY, WTop, WBot         string
+	// ClipLo and ClipHi mark interval ends beyond the axis with an
+	// arrowhead (paths ClipLoPath, ClipHiPath).
+	ClipLo, ClipHi         bool
+	ClipLoPath, ClipHiPath string
 }
 
 // verdicts lists the outcomes in the order of Comparison.Changes.
@@ -105,15 +121,18 @@ func (DiffHTML) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) e
 		Base:       sideText(c.Base),
 		Candidate:  sideText(c.Candidate),
 		Values:     clean(basisText(c) + "; " + thresholdText(c)),
-		Confidence: pctText(c.Confidence),
-		More:       len(c.Changes) - len(changes),
+		Confidence: confText(c.Confidence),
+		More:       hiddenChanges(c, opts),
+		Calls:      anyCalls(changes),
+		Below:      clean(belowText(c, 10)),
 		Produced:   newDiffProduced(c, opts.Provenance),
 	}
 	h := &p.Headline
 	h.Lead, h.Function, h.Change, h.Counts = clean(h.Lead), clean(h.Function), clean(h.Change), clean(h.Counts)
 	for i, ch := range changes {
-		row := diffRow{Rank: i + 1, Verdict: clean(string(ch.Verdict)), Class: verdictClass(ch.Verdict),
-			Function: clean(ch.Function), Identity: clean(ch.Identity),
+		row := diffRow{Rank: i + 1, Verdict: clean(verdictText(ch)), Class: verdictClass(ch.Verdict),
+			Function: clean(ch.Function), Identity: clean(ch.Identity), FnParts: nameParts(Shorten(clean(ch.Function), htmlNameRunes)),
+			Calls: callsText(ch), CallsRel: callsRelText(ch),
 			Base: rateText(ch.Base, c), Candidate: rateText(ch.Candidate, c), Change: signedRateText(ch.Change, c),
 			Rel: relText(ch), Q: qText(ch.QValue), MDE: mdeText(ch),
 			BaseV: csvFloat(ch.Base), CandV: csvFloat(ch.Candidate), ChangeV: csvFloat(ch.Change),
@@ -125,8 +144,21 @@ func (DiffHTML) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) e
 		}
 		p.Rows = append(p.Rows, row)
 	}
+	for _, ch := range changes {
+		for _, n := range statementNotes(c, ch) {
+			p.NewStatements = append(p.NewStatements, newStatement{Function: clean(ch.Function), Label: clean(n.Label),
+				Statement: clean(n.Statement), Detail: clean(n.Detail)})
+		}
+	}
 	if len(changes) > 0 {
-		p.Chart = newDiffChart(c, changes)
+		charted := changes
+		if len(charted) > diffChartMax {
+			charted, p.ChartMore = charted[:diffChartMax], true
+		}
+		p.Chart = newDiffChart(c, charted)
+		for _, b := range p.Chart.Bars {
+			p.Clipped = p.Clipped || b.ClipLo || b.ClipHi
+		}
 	}
 	for _, n := range methodNotes(c) {
 		p.Notes = append(p.Notes, clean(n))
@@ -163,12 +195,12 @@ func verdictClass(v attribute.Outcome) string {
 // and the budget (with room beyond it), rounded up to a multiple of a
 // 1-2-5 step and capped at diffMaxScale.
 func newDiffChart(c *attribute.Comparison, changes []attribute.Change) *diffChart {
-	top := math.Max(0.1, c.Budget.Relative*1.5)
+	// The region that matters: the budget and the changes themselves;
+	// intervals reaching beyond it are clipped and marked.
+	top := math.Max(0.1, c.Budget.Relative*3)
 	for _, ch := range changes {
-		for _, v := range []*float64{ch.RelativeChange, ch.RelLo, ch.RelHi} {
-			if v != nil {
-				top = math.Max(top, math.Abs(*v))
-			}
+		if v := ch.RelativeChange; v != nil {
+			top = math.Max(top, math.Abs(*v)*1.15)
 		}
 	}
 	topPct := math.Min(top, diffMaxScale) * 100
@@ -239,6 +271,15 @@ func newDiffChart(c *attribute.Comparison, changes []attribute.Change) *diffChar
 			b.Whisker, b.WX1, b.WX2 = true, px(scale(lo)), px(scale(hi))
 			b.CapLo, b.CapHi = math.Abs(lo) <= domain, math.Abs(hi) <= domain
 			b.WY, b.WTop, b.WBot = px(y+chartRow/2), px(y+chartRow/2-5), px(y+chartRow/2+5)
+			wy := y + chartRow/2
+			if !b.CapLo {
+				x := scale(lo)
+				b.ClipLo, b.ClipLoPath = true, "M"+px(x)+" "+px(wy)+"L"+px(x+6)+" "+px(wy-4)+"L"+px(x+6)+" "+px(wy+4)+"Z"
+			}
+			if !b.CapHi {
+				x := scale(hi)
+				b.ClipHi, b.ClipHiPath = true, "M"+px(x)+" "+px(wy)+"L"+px(x-6)+" "+px(wy-4)+"L"+px(x-6)+" "+px(wy+4)+"Z"
+			}
 		}
 		ch.Bars = append(ch.Bars, b)
 	}

@@ -46,21 +46,50 @@ func (DiffMarkdown) RenderDiff(w io.Writer, c *attribute.Comparison, opts Option
 	if len(changes) == 0 {
 		fmt.Fprintln(bw, "Nothing to compare.")
 	} else {
-		mdRow(bw, []string{"Verdict", "Root cause", "Base", "Candidate", "Change",
-			"Relative change \\[" + pctText(c.Confidence) + " interval\\]", "q", "MDE"})
-		mdRow(bw, []string{"---", "---", "---:", "---:", "---:", "---:", "---:", "---:"})
+		calls := anyCalls(changes)
+		hdr := []string{"Verdict", "Root cause", "Base", "Candidate", "Change",
+			"Relative change \\[" + confText(c.Confidence) + " interval\\]", "q", "MDE"}
+		align := []string{"---", "---", "---:", "---:", "---:", "---:", "---:", "---:"}
+		if calls {
+			hdr = append(hdr, "Calls/request", "Calls change \\["+confText(c.Confidence)+" interval\\]", "Calls q")
+			align = append(align, "---:", "---:", "---:")
+		}
+		mdRow(bw, hdr)
+		mdRow(bw, align)
 		for _, ch := range changes {
-			verdict := mdText(string(ch.Verdict))
+			verdict := mdText(verdictText(ch))
 			if ch.Verdict == attribute.OutcomeRegressed {
 				verdict = "**" + verdict + "**"
 			}
-			mdRow(bw, []string{verdict, mdText(ch.Function), mdText(rateText(ch.Base, c)), mdText(rateText(ch.Candidate, c)),
-				mdText(signedRateText(ch.Change, c)), mdText(relText(ch)), mdText(qText(ch.QValue)), mdText(mdeText(ch))})
+			row := []string{verdict, mdText(ch.Function), mdText(rateText(ch.Base, c)), mdText(rateText(ch.Candidate, c)),
+				mdText(signedRateText(ch.Change, c)), mdText(relText(ch)), mdText(qText(ch.QValue)), mdText(mdeText(ch))}
+			if calls {
+				q := "-"
+				if ch.Calls != nil {
+					q = qText(ch.Calls.QValue)
+				}
+				row = append(row, mdText(callsText(ch)), mdText(callsRelText(ch)), mdText(q))
+			}
+			mdRow(bw, row)
 		}
-		if more := len(c.Changes) - len(changes); more > 0 {
+		if more := hiddenChanges(c, opts); more > 0 {
 			fmt.Fprintln(bw)
-			fmt.Fprintf(bw, "%d more changes are not shown (--limit 0 shows all).\n", more)
+			fmt.Fprintf(bw, "%s not shown (--limit 0 shows all).\n", plural(more, "more change is", "more changes are"))
 		}
+		var news []string
+		for _, ch := range changes {
+			for _, n := range statementNotes(c, ch) {
+				news = append(news, fmt.Sprintf("- %s: %s: %s (%s)", mdText(ch.Function), mdText(n.Label), mdCode(n.Statement), mdText(n.Detail)))
+			}
+		}
+		if len(news) > 0 {
+			fmt.Fprint(bw, "\n### Statements that changed\n\n")
+			fmt.Fprintln(bw, strings.Join(news, "\n"))
+		}
+	}
+	if b := belowText(c, 10); b != "" {
+		fmt.Fprintln(bw)
+		fmt.Fprintf(bw, "%s.\n", mdText(b))
 	}
 
 	fmt.Fprint(bw, "\n## Method\n\n")

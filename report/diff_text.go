@@ -42,72 +42,110 @@ func verdictANSI(v attribute.Outcome) string {
 // RenderDiff implements DiffRenderer.
 func (DiffText) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) error {
 	bw := bufio.NewWriter(w)
-	width := opts.Width
-	if width <= 0 {
-		width = 100
-	}
-	fmt.Fprintf(bw, "culprit diff: %s, %s\n", oneLine(c.ValueType.String(), 80), oneLine(basisText(c), 120))
-	fmt.Fprintf(bw, "base:      %s\n", oneLine(sideText(c.Base), width*3))
-	fmt.Fprintf(bw, "candidate: %s\n", oneLine(sideText(c.Candidate), width*3))
-	fmt.Fprintf(bw, "significance: q ≤ %s (Benjamini–Hochberg); %s intervals; MDE at %s power; budget %s\n",
-		strconv.FormatFloat(c.Alpha, 'g', -1, 64), pctText(c.Confidence), pctText(c.Power), oneLine(budgetText(c), 200))
-	fmt.Fprintln(bw)
-
+	width := textWidth(opts)
+	const indent = "           "
 	h := newDiffHeadline(c)
-	line := oneLine(h.Lead, 0)
+	line := h.Lead
 	if h.Function != "" {
-		fn := Shorten(h.Function, max(40, width-utf8.RuneCountInString(line+h.Change)-10))
-		if opts.Color {
-			fn = ansiBold + fn + ansiReset
-		}
+		fn := Shorten(h.Function, width-20)
 		line += "; worst: " + fn + " " + h.Change
 	}
-	fmt.Fprintln(bw, line)
+	writeWrapped(bw, line+".", width, "  ")
 	if h.Counts != "" {
-		fmt.Fprintln(bw, h.Counts)
+		writeWrapped(bw, h.Counts+".", width, "  ")
 	}
+	fmt.Fprintln(bw)
+	writeWrapped(bw, "values:    "+c.ValueType.String()+", "+basisText(c), width, indent)
+	writeWrapped(bw, "base:      "+sideText(c.Base), width, indent)
+	writeWrapped(bw, "candidate: "+sideText(c.Candidate), width, indent)
+	writeWrapped(bw, fmt.Sprintf("tests:     q ≤ %s (Benjamini–Hochberg); %s intervals; MDE at %s power; budget %s",
+		strconv.FormatFloat(c.Alpha, 'g', -1, 64), confText(c.Confidence), pctText(c.Power), budgetText(c)), width, indent)
 
 	changes := shownChanges(c, opts)
 	if len(changes) > 0 {
 		fmt.Fprintln(bw)
-		// The numbers go through tabwriter; the verdict (coloured, which
-		// tabwriter would count as width) is padded here, and the
-		// function comes last, shortened to the width that is left.
-		vw := len("VERDICT")
-		for _, ch := range changes {
-			vw = max(vw, utf8.RuneCountInString(oneLine(string(ch.Verdict), 0)))
-		}
-		var tb bytes.Buffer
-		tw := tabwriter.NewWriter(&tb, 0, 0, 2, ' ', 0)
-		fmt.Fprintf(tw, "BASE\tCANDIDATE\tCHANGE\tRELATIVE [%s CI]\tQ\tMDE\t\n", pctText(c.Confidence))
-		for _, ch := range changes {
-			fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\t\n", rateText(ch.Base, c), rateText(ch.Candidate, c),
-				signedRateText(ch.Change, c), relText(ch), qText(ch.QValue), mdeText(ch))
-		}
-		if err := tw.Flush(); err != nil {
+		if err := diffTable(bw, c, changes, width, opts.Color); err != nil {
 			return err
 		}
-		lines := strings.Split(strings.TrimSuffix(tb.String(), "\n"), "\n")
-		nameWidth := max(32, width-vw-2-utf8.RuneCountInString(lines[0]))
-		for i, line := range lines {
-			verdict, name := "VERDICT", "ROOT CAUSE"
-			if i > 0 {
-				verdict, name = oneLine(string(changes[i-1].Verdict), 0), Shorten(changes[i-1].Function, nameWidth)
-			}
-			pad := strings.Repeat(" ", vw-utf8.RuneCountInString(verdict)+2)
-			if opts.Color && i > 0 {
-				verdict = verdictANSI(changes[i-1].Verdict) + verdict + ansiReset
-			}
-			fmt.Fprintln(bw, verdict+pad+line+name)
+		if more := hiddenChanges(c, opts); more > 0 {
+			fmt.Fprintf(bw, "(%s not shown; --limit 0 shows all)\n", plural(more, "more change", "more changes"))
 		}
-		if more := len(c.Changes) - len(changes); more > 0 {
-			fmt.Fprintf(bw, "(%d more changes not shown; --limit 0 shows all)\n", more)
+		for _, ch := range changes {
+			for _, n := range statementNotes(c, ch) {
+				writeWrapped(bw, fmt.Sprintf("%s: %s: %s (%s)", Shorten(ch.Function, width/2), n.Label,
+					oneLine(n.Statement, width), n.Detail), width, "    ")
+			}
 		}
+	}
+	if b := belowText(c, 5); b != "" {
+		fmt.Fprintln(bw)
+		writeWrapped(bw, b, width, "  ")
 	}
 	fmt.Fprintln(bw)
 	for _, wn := range c.Warnings {
-		fmt.Fprintln(bw, "warning: "+oneLine(wn, 400))
+		writeWrapped(bw, "warning: "+oneLine(wn, 400), width, "  ")
 	}
-	fmt.Fprintln(bw, "note: "+unchangedNote(c))
+	writeWrapped(bw, "note: "+unchangedNote(c), width, "  ")
 	return bw.Flush()
+}
+
+// diffTable writes the changes within width: one line per change when
+// the names fit (or get at least 40 columns), else the verdict and name on
+// one line and the numbers indented below.
+func diffTable(bw io.Writer, c *attribute.Comparison, changes []attribute.Change, width int, color bool) error {
+	calls := false
+	vw := len("VERDICT")
+	for _, ch := range changes {
+		calls = calls || ch.Calls != nil
+		vw = max(vw, utf8.RuneCountInString(verdictText(ch)))
+	}
+	var tb bytes.Buffer
+	tw := tabwriter.NewWriter(&tb, 0, 0, 2, ' ', 0)
+	hdr := fmt.Sprintf("BASE\tCAND\tCHANGE\tRELATIVE [%s CI]\tQ\tMDE\t", confText(c.Confidence))
+	if calls {
+		hdr += "CALLS/REQ\t"
+	}
+	fmt.Fprintln(tw, hdr)
+	for _, ch := range changes {
+		row := fmt.Sprintf("%s\t%s\t%s\t%s\t%s\t%s\t", rateText(ch.Base, c), rateText(ch.Candidate, c),
+			signedRateText(ch.Change, c), relText(ch), qText(ch.QValue), mdeText(ch))
+		if calls {
+			row += callsText(ch) + "\t"
+		}
+		fmt.Fprintln(tw, row)
+	}
+	if err := tw.Flush(); err != nil {
+		return err
+	}
+	lines := strings.Split(strings.TrimSuffix(tb.String(), "\n"), "\n")
+	numW := utf8.RuneCountInString(lines[0])
+	longest := 0
+	for _, ch := range changes {
+		longest = max(longest, utf8.RuneCountInString(oneLine(ch.Function, 0)))
+	}
+	oneLineRows := width-vw-2-numW >= min(longest, 40)
+	nameWidth := width - vw - 2 - numW
+	if !oneLineRows {
+		nameWidth = width - vw - 2
+	}
+	for i, line := range lines {
+		verdict, name := "VERDICT", "ROOT CAUSE"
+		if i > 0 {
+			verdict, name = verdictText(changes[i-1]), Shorten(changes[i-1].Function, nameWidth)
+		}
+		pad := strings.Repeat(" ", vw-utf8.RuneCountInString(verdict)+2)
+		if color && i > 0 {
+			verdict = verdictANSI(changes[i-1].Verdict) + verdict + ansiReset
+		}
+		var err error
+		if oneLineRows {
+			_, err = fmt.Fprintln(bw, strings.TrimRight(verdict+pad+line+name, " "))
+		} else {
+			_, err = fmt.Fprintf(bw, "%s\n  %s\n", strings.TrimRight(verdict+pad+name, " "), strings.TrimRight(oneLine(line, width-2), " "))
+		}
+		if err != nil {
+			return err
+		}
+	}
+	return nil
 }

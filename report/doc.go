@@ -6,8 +6,11 @@
 // versioned culprit.rank/v1 document), csv (one row per root cause and
 // boundary detail, for notebooks) and html (one self-contained page with
 // inline SVG charts). DiffRenderer renders a build comparison in the same
-// five formats (JSON: culprit.diff/v1), and RenderExplanations the paths
-// behind a root cause.
+// five formats (JSON: culprit.diff/v1), and ExplainRenderer the paths
+// behind a root cause (text and JSON). One table (registry.go) maps each
+// format name to its renderers. The JSON documents are types of this
+// package (RankDocument, DiffDocument, ExplainDocument), with JSON Schemas
+// in testdata/schema/.
 // Renderers never see raw statements unless the attribution was run with
 // literals shown; they escape every input string for their format.
 package report

@@ -82,9 +82,10 @@ func renderAll(t *testing.T) map[string]string {
 	}
 	ex := []attribute.Explanation{{RootCause: bidiName, Cost: 1, Share: 1, Paths: []*attribute.ExplainNode{
 		{Function: invisName, Class: "application", Cost: 1, Statements: []attribute.Detail{{Statement: bidiName, Peer: linkName}}}}}}
-	for _, f := range []string{"text", "json"} {
+	for _, f := range ExplainFormats {
+		rd, _ := ForExplainFormat(f)
 		var b bytes.Buffer
-		if err := RenderExplanations(&b, f, ex, "nanoseconds", Options{}); err != nil {
+		if err := rd.RenderExplain(&b, ex, "nanoseconds", Options{}); err != nil {
 			t.Fatal(err)
 		}
 		out["explain "+f] = b.String()

@@ -4,6 +4,7 @@ import (
 	"crypto/sha256"
 	_ "embed"
 	"encoding/base64"
+	"fmt"
 	"html/template"
 	"io"
 	"math"
@@ -31,7 +32,12 @@ type HTML struct{}
 var htmlSource string
 
 // htmlTemplate is compiled once; a broken template fails every test.
-var htmlTemplate = template.Must(template.New("html.tmpl").Funcs(htmlFuncs).Parse(htmlSource))
+var htmlTemplate = template.Must(template.Must(template.New("html.tmpl").Funcs(htmlFuncs).Parse(htmlSource)).Parse(layoutSource))
+
+// layoutSource defines the CSS that the rank and diff pages share.
+//
+//go:embed layout.tmpl
+var layoutSource string
 
 // sortScript sorts a table.sortable by the clicked header: numerically on
 // the cells' data-v attribute for th[data-type=num], else by text; rank
@@ -90,13 +96,16 @@ const (
 	chartTop     = 8.0
 	chartName    = 44 // runes of a shortened name label
 	chartEntries = 20 // entry points drawn
+	chartCauses  = 20 // bars of the root-cause chart, the last one "others" when there are more
 )
 
 // htmlDomain is one row of the business-domain table.
 type htmlDomain struct {
 	Domain, Share, Cost string
+	Database, Network   string
 	ShareV              float64
 	CostV               int64
+	DatabaseV, NetworkV int64
 	Causes              int
 }
 
@@ -108,6 +117,7 @@ type htmlPage struct {
 	Sampled     bool
 	CountHeader string
 	PerRequest  bool
+	Requests    bool
 	Rows        []htmlRow
 	More        int
 	Chart       *causeChart
@@ -127,13 +137,16 @@ type htmlPage struct {
 type htmlRow struct {
 	Rank                            int
 	Share, ShareV, Cost, PerRequest string
+	PerRequestP95                   string
 	CostV, Count                    int64
 	PerRequestV, Kind, Class        string
 	Function, Site, File            string
+	FnParts                         []string
 }
 
 type htmlEntry struct {
 	Entry                           string
+	EntryParts                      []string
 	Database, Network, Other, Total string
 	DatabaseV, NetworkV, OtherV     int64
 	TotalV                          int64
@@ -205,6 +218,7 @@ func (HTML) Render(w io.Writer, r *attribute.Result, opts Options) error {
 		Sampled:     r.Sampled,
 		CountHeader: countHeader(r),
 		PerRequest:  anyPerRequest(causes),
+		Requests:    r.Totals.Requests > 0,
 		More:        len(r.Causes) - len(causes),
 		Unit:        unit,
 		App:         clean(AppSummary(r)),
@@ -213,8 +227,8 @@ func (HTML) Render(w io.Writer, r *attribute.Result, opts Options) error {
 	p.Headline.Function, p.Headline.Detail = clean(p.Headline.Function), clean(p.Headline.Detail)
 	for i, c := range causes {
 		row := htmlRow{Rank: i + 1, Share: shareText(r, c), ShareV: strconv.FormatFloat(c.Share, 'g', -1, 64),
-			Cost: FormatValue(c.Cost, unit), CostV: c.Cost, Count: countOf(r, c), PerRequest: perRequestText(c),
-			Kind: clean(string(c.Kind)), Class: kindClass(c), Function: clean(c.Function), Site: clean(site(c)), File: clean(c.File)}
+			Cost: FormatValue(c.Cost, unit), CostV: c.Cost, Count: countOf(r, c), PerRequest: perRequestText(c)[0], PerRequestP95: perRequestText(c)[1],
+			Kind: clean(string(c.Kind)), Class: kindClass(c), Function: clean(c.Function), Site: clean(site(c)), File: clean(c.File), FnParts: nameParts(Shorten(clean(c.Function), htmlNameRunes))}
 		if c.CallsPerRequest != nil {
 			row.PerRequestV = strconv.FormatFloat(c.CallsPerRequest.Median, 'g', -1, 64)
 		}
@@ -228,9 +242,9 @@ func (HTML) Render(w io.Writer, r *attribute.Result, opts Options) error {
 			hd := htmlDetail{Cost: FormatValue(d.Cost, unit), Kind: clean(string(d.Kind)), System: clean(d.System),
 				Statement: clean(d.Statement), Peer: clean(d.Peer), Via: clean(d.Via)}
 			if r.Sampled {
-				hd.Count = strconv.FormatInt(d.Samples, 10) + " samples"
+				hd.Count = plural64(d.Samples, "sample", "samples")
 			} else {
-				hd.Count = strconv.FormatInt(d.Calls, 10) + " calls"
+				hd.Count = plural64(d.Calls, "call", "calls")
 			}
 			st.Lines = append(st.Lines, hd)
 		}
@@ -250,10 +264,11 @@ func (HTML) Render(w io.Writer, r *attribute.Result, opts Options) error {
 	}
 	for _, d := range r.Domains {
 		p.Domains = append(p.Domains, htmlDomain{Domain: clean(d.Domain), Share: Percent(d.Share), ShareV: d.Share,
-			Cost: FormatValue(d.Cost, unit), CostV: d.Cost, Causes: d.Causes})
+			Cost: FormatValue(d.Cost, unit), CostV: d.Cost, Causes: d.Causes,
+			Database: FormatValue(d.Database, unit), DatabaseV: d.Database, Network: FormatValue(d.Network, unit), NetworkV: d.Network})
 	}
 	for _, e := range r.Entries {
-		p.Entries = append(p.Entries, htmlEntry{Entry: entryName(e.Entry),
+		p.Entries = append(p.Entries, htmlEntry{Entry: entryName(e.Entry), EntryParts: nameParts(Shorten(entryName(e.Entry), htmlNameRunes)),
 			Database: FormatValue(e.Database, unit), Network: FormatValue(e.Network, unit),
 			Other: FormatValue(entryOther(e), unit), Total: FormatValue(e.Cost, unit),
 			DatabaseV: e.Database, NetworkV: e.Network, OtherV: entryOther(e), TotalV: e.Cost, Requests: e.Requests})
@@ -276,6 +291,23 @@ func (HTML) Render(w io.Writer, r *attribute.Result, opts Options) error {
 		in.Name, in.Format, in.SHA256 = clean(in.Name), clean(in.Format), clean(in.SHA256)
 	}
 	return htmlTemplate.Execute(w, p)
+}
+
+// nameParts splits a cleaned name after each "/" and "." so that the page
+// can offer a line break there (<wbr>) instead of breaking inside a word.
+func nameParts(name string) []string {
+	var out []string
+	start := 0
+	for i := 0; i < len(name); i++ {
+		if name[i] == '/' || name[i] == '.' {
+			out = append(out, name[start:i+1])
+			start = i + 1
+		}
+	}
+	if start < len(name) {
+		out = append(out, name[start:])
+	}
+	return out
 }
 
 func cleanAll(in []string) []string {
@@ -303,7 +335,19 @@ func px(f float64) string { return strconv.FormatFloat(f, 'f', 1, 64) }
 
 // newCauseChart lays out one bar per cause on a percent axis whose end is
 // a multiple of a 1-2-5 step, so that the ticks are round numbers.
+//
+// At most chartCauses causes get a bar; the rest are summed into one
+// "others" bar, so that the chart stays readable on a phone and in print.
 func newCauseChart(r *attribute.Result, causes []*attribute.Cause) *causeChart {
+	others := len(causes) > chartCauses
+	if others {
+		others := &attribute.Cause{Function: fmt.Sprintf("%d others", len(causes)-chartCauses+1), Kind: attribute.KindMixed}
+		for _, c := range causes[chartCauses-1:] {
+			others.Share += c.Share
+			others.Cost += c.Cost
+		}
+		causes = append(causes[:chartCauses-1:chartCauses-1], others)
+	}
 	top := 0.0
 	for _, c := range causes {
 		top = math.Max(top, c.Share+c.ShareMargin)
@@ -327,7 +371,11 @@ func newCauseChart(r *attribute.Result, causes []*attribute.Cause) *causeChart {
 	for i, c := range causes {
 		y := chartTop + float64(i)*chartRow
 		end := scale(c.Share)
-		b := causeBar{Class: kindClass(c), Name: Shorten(clean(c.Function), chartName),
+		class := kindClass(c)
+		if others && i == len(causes)-1 {
+			class = "k-other"
+		}
+		b := causeBar{Class: class, Name: Shorten(clean(c.Function), chartName),
 			Title: clean(c.Function) + ": " + shareText(r, c) + " (" + string(c.Kind) + ")", Label: shareText(r, c),
 			NameX: px(chartNameEnd), TextY: px(y + chartRow/2 + 4), X: px(chartX0), Y: px(y + (chartRow-chartBar)/2),
 			W: px(math.Max(end-chartX0, 0.5)), H: px(chartBar)}

@@ -19,21 +19,11 @@ type LatencyRenderer interface {
 	RenderLatency(w io.Writer, r *attribute.LatencyResult, opts Options) error
 }
 
-// ForLatencyFormat returns the latency renderer of a format name (one of Formats).
+// ForLatencyFormat returns the latency renderer of a format name (see
+// registry).
 func ForLatencyFormat(name string) (LatencyRenderer, error) {
-	switch name {
-	case "text":
-		return latencyText{}, nil
-	case "markdown":
-		return latencyMarkdown{}, nil
-	case "json":
-		return latencyJSON{}, nil
-	case "csv":
-		return latencyCSV{}, nil
-	case "html":
-		return latencyHTML{}, nil
-	}
-	return nil, fmt.Errorf("unknown format %q; --format must be one of: %s", name, strings.Join(Formats, ", "))
+	f, err := lookup(name, LatencyFormats, func(f Format) bool { return f.Latency != nil })
+	return f.Latency, err
 }
 
 // latencyHeadline is the one sentence that opens every human format: for

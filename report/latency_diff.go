@@ -21,19 +21,11 @@ type LatencyDiffRenderer interface {
 	RenderLatencyDiff(w io.Writer, c *attribute.LatencyComparison, opts Options) error
 }
 
-// ForLatencyDiffFormat returns the latency-diff renderer of a format name.
+// ForLatencyDiffFormat returns the latency-diff renderer of a format name
+// (see registry).
 func ForLatencyDiffFormat(name string) (LatencyDiffRenderer, error) {
-	switch name {
-	case "text", "markdown":
-		return latencyDiffDoc{name}, nil
-	case "json":
-		return latencyDiffJSON{}, nil
-	case "csv":
-		return latencyDiffCSV{}, nil
-	case "html":
-		return latencyDiffHTML{}, nil
-	}
-	return nil, fmt.Errorf("unknown format %q; --format must be one of: %s", name, strings.Join(DiffFormats, ", "))
+	f, err := lookup(name, LatencyDiffFormats, func(f Format) bool { return f.LatencyDiff != nil })
+	return f.LatencyDiff, err
 }
 
 // routeQText renders one quantile's change: "120ms → 180ms, +50% [+41%, +58%]".
@@ -74,7 +66,7 @@ func (d latencyDiffDoc) RenderLatencyDiff(w io.Writer, c *attribute.LatencyCompa
 	changes := shownChanges(cs, opts)
 	if md {
 		fmt.Fprintf(bw, "\n# Time on the critical path per root cause\n\n%s\n\n", mdText(newDiffHeadline(cs).Lead))
-		mdRow(bw, []string{"Verdict", "Entry point", "Root cause", "Kind", "Base", "Candidate", "Relative [95% CI]", "q", "MDE"})
+		mdRow(bw, []string{"Verdict", "Entry point", "Root cause", "Kind", "Base", "Candidate", "Relative [" + confText(cs.Confidence) + " CI]", "q", "MDE"})
 		mdRow(bw, []string{"---", "---", "---", "---", "---:", "---:", "---:", "---:", "---:"})
 		for _, ch := range changes {
 			k := c.Of[ch.Identity]
@@ -87,7 +79,7 @@ func (d latencyDiffDoc) RenderLatencyDiff(w io.Writer, c *attribute.LatencyCompa
 			width = 100
 		}
 		fmt.Fprintf(bw, "\nTime on the critical path per request of its entry point, per root cause: %s\n", oneLine(newDiffHeadline(cs).Lead, 0))
-		fmt.Fprintf(bw, "%-12s %8s   %8s  %-22s %-8s %s\n", "VERDICT", "BASE", "CAND", "RELATIVE [95% CI]", "Q", "KIND")
+		fmt.Fprintf(bw, "%-12s %8s   %8s  %-22s %-8s %s\n", "VERDICT", "BASE", "CAND", "RELATIVE ["+confText(cs.Confidence)+" CI]", "Q", "KIND")
 		fmt.Fprintf(bw, "    ENTRY POINT: ROOT CAUSE\n")
 		for _, ch := range changes {
 			k := c.Of[ch.Identity]
@@ -96,16 +88,19 @@ func (d latencyDiffDoc) RenderLatencyDiff(w io.Writer, c *attribute.LatencyCompa
 			fmt.Fprintf(bw, "    %s: %s\n", oneLine(k.Entry, 40), Shorten(k.Function, max(20, width-6-min(40, len(k.Entry)))))
 		}
 	}
-	if more := len(cs.Changes) - len(changes); more > 0 {
+	if more := hiddenChanges(cs, opts); more > 0 {
 		fmt.Fprintf(bw, "\n(%d more not shown; --limit 0 shows all)\n", more)
+	}
+	if b := belowText(cs, 5); b != "" {
+		fmt.Fprintln(bw, "\n"+oneLine(b, 0))
 	}
 	fmt.Fprintln(bw)
 	for _, wn := range cs.Warnings {
 		fmt.Fprintln(bw, "warning: "+oneLine(wn, 400))
 	}
 	fmt.Fprintln(bw, "note: "+unchangedNote(cs))
-	fmt.Fprintf(bw, "Significance: q ≤ %s (Benjamini–Hochberg across causes), Mann–Whitney per request with bootstrap intervals; budget %s.\n",
-		strconv.FormatFloat(cs.Alpha, 'g', -1, 64), budgetText(cs))
+	fmt.Fprintf(bw, "Significance: q ≤ %s (Benjamini–Hochberg across causes), one bootstrap per request giving p-value and %s interval; budget %s.\n",
+		strconv.FormatFloat(cs.Alpha, 'g', -1, 64), confText(cs.Confidence), budgetText(cs))
 	return bw.Flush()
 }
 

@@ -54,8 +54,8 @@ func (Markdown) Render(w io.Writer, r *attribute.Result, opts Options) error {
 		hdr := []string{"Rank", "Share", "Cost", countHeader(r)}
 		align := []string{"---:", "---:", "---:", "---:"}
 		if perReq {
-			hdr = append(hdr, "Calls/request (median/p95)")
-			align = append(align, "---:")
+			hdr = append(hdr, "Calls/request median", "Calls/request p95")
+			align = append(align, "---:", "---:")
 		}
 		hdr = append(hdr, "Kind", "Root cause", "Call site")
 		align = append(align, "---", "---", "---")
@@ -64,14 +64,14 @@ func (Markdown) Render(w io.Writer, r *attribute.Result, opts Options) error {
 		for i, c := range causes {
 			row := []string{strconv.Itoa(i + 1), shareText(r, c), FormatValue(c.Cost, unit), strconv.FormatInt(countOf(r, c), 10)}
 			if perReq {
-				row = append(row, perRequestText(c))
+				row = append(row, perRequestText(c)...)
 			}
 			row = append(row, mdText(string(c.Kind)), mdText(c.Function), mdText(site(c)))
 			mdRow(bw, row)
 		}
 		if more := len(r.Causes) - len(causes); more > 0 {
 			fmt.Fprintln(bw)
-			fmt.Fprintf(bw, "%d more root causes are not shown (--limit 0 shows all).\n", more)
+			fmt.Fprintf(bw, "%s not shown (--limit 0 shows all).\n", plural(more, "more root cause is", "more root causes are"))
 		}
 
 		fmt.Fprint(bw, "\n## Top statements per root cause\n")
@@ -116,11 +116,21 @@ func (Markdown) Render(w io.Writer, r *attribute.Result, opts Options) error {
 
 	if len(r.Entries) > 0 {
 		fmt.Fprint(bw, "\n## By entry point\n\n")
-		mdRow(bw, []string{"Entry point", "Database", "Network", "Other", "Total", "Requests"})
-		mdRow(bw, []string{"---", "---:", "---:", "---:", "---:", "---:"})
+		// Requests only when the source knows them (not "0" for profiles).
+		reqs := r.Totals.Requests > 0
+		hdr, align := []string{"Entry point", "Database", "Network", "Other", "Total"}, []string{"---", "---:", "---:", "---:", "---:"}
+		if reqs {
+			hdr, align = append(hdr, "Requests"), append(align, "---:")
+		}
+		mdRow(bw, hdr)
+		mdRow(bw, align)
 		for _, e := range r.Entries {
-			mdRow(bw, []string{mdText(entryName(e.Entry)), FormatValue(e.Database, unit), FormatValue(e.Network, unit),
-				FormatValue(entryOther(e), unit), FormatValue(e.Cost, unit), strconv.Itoa(e.Requests)})
+			row := []string{mdText(entryName(e.Entry)), FormatValue(e.Database, unit), FormatValue(e.Network, unit),
+				FormatValue(entryOther(e), unit), FormatValue(e.Cost, unit)}
+			if reqs {
+				row = append(row, strconv.Itoa(e.Requests))
+			}
+			mdRow(bw, row)
 		}
 	}
 
@@ -166,9 +176,9 @@ func mdDetail(r *attribute.Result, d attribute.Detail) string {
 	var b strings.Builder
 	b.WriteString(FormatValue(d.Cost, r.ValueType.Unit))
 	if r.Sampled {
-		fmt.Fprintf(&b, ", %d samples", d.Samples)
+		b.WriteString(", " + plural64(d.Samples, "sample", "samples"))
 	} else {
-		fmt.Fprintf(&b, ", %d calls", d.Calls)
+		b.WriteString(", " + plural64(d.Calls, "call", "calls"))
 	}
 	b.WriteString(", " + mdText(string(d.Kind)))
 	if d.System != "" {
@@ -292,7 +302,7 @@ func newHeadline(r *attribute.Result) headline {
 	h.Detail = fmt.Sprintf("%s of %s database+network; %s in all", FormatValue(c.Cost, unit),
 		FormatValue(t.Database+t.Network, unit), FormatValue(t.Cost, unit))
 	if r.Sampled {
-		h.Detail += fmt.Sprintf("; %d samples", c.Samples)
+		h.Detail += "; " + plural64(c.Samples, "sample", "samples")
 	}
 	return h
 }
@@ -311,10 +321,10 @@ func sourceSentence(r *attribute.Result) string {
 		s += "; no application frame " + FormatValue(t.Unattributed, unit)
 	}
 	if t.Requests > 0 {
-		s += fmt.Sprintf("; %d requests", t.Requests)
+		s += "; " + plural(t.Requests, "request", "requests")
 	}
 	if r.Sampled {
-		s += fmt.Sprintf("; %d samples", t.Samples)
+		s += "; " + plural64(t.Samples, "sample", "samples")
 	}
 	return s + "."
 }
@@ -352,11 +362,13 @@ func anyPerRequest(causes []*attribute.Cause) bool {
 	return false
 }
 
-func perRequestText(c *attribute.Cause) string {
+// perRequestText renders the median and p95 of calls per request (over
+// the requests in which the cause appears), "–" when unknown.
+func perRequestText(c *attribute.Cause) []string {
 	if c.CallsPerRequest == nil {
-		return "–"
+		return []string{"–", "–"}
 	}
-	return num(c.CallsPerRequest.Median) + "/" + num(c.CallsPerRequest.P95)
+	return []string{numText(c.CallsPerRequest.Median), numText(c.CallsPerRequest.P95)}
 }
 
 // entryName is an entry point's name, cleaned (see clean), or a
@@ -390,7 +402,7 @@ func findingEvidence(f attribute.Finding) []evidence {
 		out = append(out, evidence{"peer", f.Peer, true})
 	}
 	if d := f.PerRequest; d != nil {
-		out = append(out, evidence{Label: "per request", Value: fmt.Sprintf("median %s, p95 %s, max %s", num(d.Median), num(d.P95), num(d.Max))})
+		out = append(out, evidence{Label: "per request", Value: fmt.Sprintf("median %s, p95 %s, max %s", numText(d.Median), numText(d.P95), numText(d.Max))})
 	}
 	if f.RequestsSeen > 0 {
 		out = append(out, evidence{Label: "requests", Value: fmt.Sprintf("%d of %d", f.Requests, f.RequestsSeen)})

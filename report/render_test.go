@@ -8,8 +8,6 @@ import (
 	"flag"
 	"fmt"
 	"math"
-	"os"
-	"path/filepath"
 	"strconv"
 	"strings"
 	"testing"
@@ -170,19 +168,7 @@ func TestGolden(t *testing.T) {
 	}{{"rank.md", Markdown{}}, {"rank.csv", CSV{}}, {"rank.html", HTML{}}} {
 		t.Run(g.file, func(t *testing.T) {
 			got := render(t, g.rd, tc)
-			path := filepath.Join("testdata", g.file)
-			if *update {
-				if err := os.WriteFile(path, []byte(got), 0o644); err != nil {
-					t.Fatal(err)
-				}
-			}
-			want, err := os.ReadFile(path)
-			if err != nil {
-				t.Fatalf("%v (run go test -update to create it)", err)
-			}
-			if got != string(want) {
-				t.Errorf("output differs from %s (go test -update rewrites it):\n%s", path, got)
-			}
+			checkGolden(t, g.file, got)
 		})
 	}
 }
@@ -348,6 +334,18 @@ func TestCSV(t *testing.T) {
 				for _, d := range c.Statements {
 					want = append(want, [2]string{c.Function, d.Statement})
 				}
+			}
+			if cut := len(tc.r.Causes) - len(shown(tc.r, tc.opts)); cut > 0 {
+				// An explicit limit ends the file with an "(omitted N)" row.
+				last := recs[len(recs)-1]
+				var share float64
+				for _, c := range tc.r.Causes[len(tc.r.Causes)-cut:] {
+					share += c.Share
+				}
+				if last[col["rank"]] != fmt.Sprintf("(omitted %d)", cut) || last[col["cause_share"]] != csvFloat(share) {
+					t.Errorf("last row %q, want (omitted %d) with share %v", last, cut, share)
+				}
+				recs = recs[:len(recs)-1]
 			}
 			if len(recs)-1 != len(want) {
 				t.Fatalf("%d rows, want %d", len(recs)-1, len(want))

@@ -34,26 +34,6 @@ type Renderer interface {
 	Render(w io.Writer, r *attribute.Result, opts Options) error
 }
 
-// Formats lists the format names ForFormat accepts.
-var Formats = []string{"text", "markdown", "json", "csv", "html"}
-
-// ForFormat returns the renderer of a format name.
-func ForFormat(name string) (Renderer, error) {
-	switch name {
-	case "text":
-		return Text{}, nil
-	case "markdown":
-		return Markdown{}, nil
-	case "json":
-		return JSON{}, nil
-	case "csv":
-		return CSV{}, nil
-	case "html":
-		return HTML{}, nil
-	}
-	return nil, fmt.Errorf("unknown format %q; --format must be one of: %s", name, strings.Join(Formats, ", "))
-}
-
 // shown returns the causes to show under opts.Limit.
 func shown(r *attribute.Result, opts Options) []*attribute.Cause {
 	if opts.Limit > 0 && len(r.Causes) > opts.Limit {
@@ -76,6 +56,9 @@ func FormatValue(v int64, unit string) string {
 
 func formatDuration(ns float64) string {
 	abs := math.Abs(ns)
+	if abs < 0.5 {
+		return "0"
+	}
 	switch {
 	case abs >= 3600e9:
 		return strconv.FormatFloat(ns/3600e9, 'f', 2, 64) + "h"
@@ -92,6 +75,9 @@ func formatDuration(ns float64) string {
 }
 
 func formatBytes(b float64) string {
+	if b == 0 {
+		return "0"
+	}
 	units := []string{"B", "KiB", "MiB", "GiB", "TiB"}
 	i := 0
 	for math.Abs(b) >= 1024 && i < len(units)-1 {

@@ -243,6 +243,16 @@ type Input struct {
 	Format string `json:"format"`
 	Bytes  int64  `json:"bytes"`
 	SHA256 string `json:"sha256"`
+	// Segment identifies a capture segment by what wrote it, whatever
+	// its file is called; nil for other inputs.
+	Segment *SegmentID `json:"segment,omitempty"`
+}
+
+// SegmentID is a capture segment's identity: the listener run that wrote
+// it (hex) and its sequence number in that run.
+type SegmentID struct {
+	Instance string `json:"instance"`
+	Sequence uint64 `json:"sequence"`
 }
 
 // ServiceInfo is what a span source holds of one service (resource

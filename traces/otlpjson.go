@@ -118,15 +118,63 @@ const utf8BOM = "\xEF\xBB\xBF"
 // "malformed-line" warning. Exceeding a limit is always an error wrapping
 // ErrLimit.
 func (c *SpanCollector) Add(name string, r io.Reader) error {
+	cr := &countingReader{r: r, max: c.limits.MaxBytes}
+	split := func(send func(*job) bool, fail func(error), free chan []byte) { c.split(name, cr, send, fail, free) }
+	return c.addInput(name, FormatOTLPJSON, split, func() int64 { return cr.n })
+}
+
+// Record is one OTLP trace export request of an input that holds a
+// sequence of them (a capture segment, a protobuf file).
+type Record struct {
+	Data   []byte
+	JSON   bool  // OTLP/JSON; else the binary protobuf encoding
+	Offset int64 // where Data starts in the input, for errors
+}
+
+// AddRecords reads the export requests that next returns until it
+// returns io.EOF, as one input named name of the given format. Data must
+// stay unchanged until AddRecords returns. A binary request is read as
+// proto.Unmarshal into the official OTLP types would read it; a JSON one
+// as one document of Add. Errors are as for Add, with byte offsets for
+// binary requests; an error of next ends the input with that error.
+// Warnings give a record's number in the input (from 1) as its line.
+func (c *SpanCollector) AddRecords(name, format string, next func() (Record, error)) error {
+	var n, records int64
+	produce := func(send func(*job) bool, fail func(error), _ chan []byte) {
+		for {
+			r, err := next()
+			if errors.Is(err, io.EOF) {
+				return
+			}
+			if err != nil {
+				fail(err)
+				return
+			}
+			if n += int64(len(r.Data)); n > c.limits.MaxBytes {
+				fail(fmt.Errorf("%s: %w: more than %d bytes (raise it with --max-bytes)", name, ErrLimit, c.limits.MaxBytes))
+				return
+			}
+			records++
+			j := &job{data: r.Data, proto: !r.JSON, doc: r.JSON, offset: r.Offset, line: records, col: 1, result: make(chan *batch, 1)}
+			if !send(j) {
+				return
+			}
+		}
+	}
+	return c.addInput(name, format, produce, func() int64 { return n })
+}
+
+// addInput reads one input whose jobs produce makes; size returns its
+// size in bytes once read. On error nothing of the input is kept.
+func (c *SpanCollector) addInput(name, format string, produce producer, size func() int64) error {
 	if c.used {
 		return errors.New("traces: SpanCollector.Add called after Source")
 	}
 	input := int32(len(c.inputs))
-	cr := &countingReader{r: r, max: c.limits.MaxBytes}
 	mark, before, frames, calls, strs := c.spans.mark(), c.spans.len(), len(c.frames), len(c.calls), len(c.strs)
 	traces := len(c.traceIDs)
 	var ws Warnings
-	if err := c.read(name, input, cr, &ws); err != nil {
+	if err := c.read(name, input, produce, &ws); err != nil {
 		c.spans.truncate(mark)
 		for _, f := range c.frames[frames:] {
 			delete(c.frameIndex, f)
@@ -145,10 +193,14 @@ func (c *SpanCollector) Add(name string, r io.Reader) error {
 			slices.Delete(c.calls, calls, len(c.calls)), slices.Delete(c.strs, strs, len(c.strs))
 		return err
 	}
-	c.inputs = append(c.inputs, Input{Name: name, Format: FormatOTLPJSON, Bytes: cr.n})
+	c.inputs = append(c.inputs, Input{Name: name, Format: format, Bytes: size()})
 	if c.spans.len() == before {
 		// Valid JSON with no spans: an empty export, or not OTLP at all.
-		ws.Add(Warning{Kind: WarnNoSpans, File: name, Message: "no spans (is this OTLP/JSON trace data? it needs resourceSpans → scopeSpans → spans)"})
+		what := "OTLP/JSON"
+		if format != FormatOTLPJSON {
+			what = "OTLP"
+		}
+		ws.Add(Warning{Kind: WarnNoSpans, File: name, Message: "no spans (is this " + what + " trace data? it needs resourceSpans → scopeSpans → spans)"})
 	}
 	c.warnings.Merge(ws)
 	return nil
@@ -182,6 +234,8 @@ type job struct {
 	line   int64 // line number of data[0]
 	col    int64 // byte column of data[0] (documents only; 1 for blocks)
 	doc    bool
+	proto  bool  // data is one binary protobuf request
+	offset int64 // where a binary request starts in the input
 	result chan *batch
 }
 
@@ -212,7 +266,7 @@ type globalIDs struct {
 // the input into jobs, c.workers goroutines decode them, and this
 // goroutine merges the batches in input order, so the result does not
 // depend on the number of workers.
-func (c *SpanCollector) read(name string, input int32, r io.Reader, ws *Warnings) error {
+func (c *SpanCollector) read(name string, input int32, produce producer, ws *Warnings) error {
 	// Jobs are merged in input order, so a slow job holds up the ones
 	// after it: with only a few in flight, the reader stops on a full
 	// queue and the decoders run dry (a scheduler trace showed them
@@ -230,12 +284,33 @@ func (c *SpanCollector) read(name string, input int32, r io.Reader, ws *Warnings
 	done := make(chan struct{})
 	var wg sync.WaitGroup
 
+	send := func(j *job) bool {
+		select {
+		case order <- j:
+		case <-done:
+			return false
+		}
+		select {
+		case jobs <- j:
+			return true
+		case <-done:
+			return false
+		}
+	}
+	fail := func(err error) {
+		j := &job{result: make(chan *batch, 1)}
+		j.result <- &batch{err: err}
+		select {
+		case order <- j:
+		case <-done:
+		}
+	}
 	wg.Add(1)
 	go func() {
 		defer wg.Done()
 		defer close(order)
 		defer close(jobs)
-		c.split(name, r, order, jobs, done, free)
+		produce(send, fail, free)
 	}()
 	for range c.workers {
 		wg.Add(1)
@@ -283,30 +358,13 @@ func (c *SpanCollector) read(name string, input int32, r io.Reader, ws *Warnings
 	return err
 }
 
-// split reads r and sends jobs. Every job goes to order (in input order)
-// and, unless it carries a reader error, to jobs.
-func (c *SpanCollector) split(name string, r io.Reader, order, jobs chan<- *job, done <-chan struct{}, free chan []byte) {
-	send := func(j *job) bool {
-		select {
-		case order <- j:
-		case <-done:
-			return false
-		}
-		select {
-		case jobs <- j:
-			return true
-		case <-done:
-			return false
-		}
-	}
-	fail := func(err error) {
-		j := &job{result: make(chan *batch, 1)}
-		j.result <- &batch{err: err}
-		select {
-		case order <- j:
-		case <-done:
-		}
-	}
+// producer makes the jobs of one input, in input order: send queues one
+// (false: stop, the reading failed), fail ends the input with an error,
+// and free holds buffers of merged jobs to reuse.
+type producer func(send func(*job) bool, fail func(error), free chan []byte)
+
+// split reads r, cutting it into jobs of JSON lines or documents.
+func (c *SpanCollector) split(name string, r io.Reader, send func(*job) bool, fail func(error), free chan []byte) {
 
 	br := &blockReader{r: r, size: c.blockSize, maxLine: c.limits.MaxLineBytes, maxBytes: c.limits.MaxBytes, name: name, line: 1, free: free}
 	// Read blocks until the first two non-blank lines are seen, to choose

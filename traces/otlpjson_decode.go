@@ -3,6 +3,7 @@ package traces
 import (
 	"bytes"
 	"encoding/binary"
+	"encoding/hex"
 	"errors"
 	"fmt"
 	"math"
@@ -36,6 +37,9 @@ type decoder struct {
 	// unescaped strings, the values that boolValues point to, its state,
 	// and the field names it knows.
 	scanned []jsonRequest
+	// wire and wreader are the protobuf reader's (otlpproto.go).
+	wire    []jsonRequest
+	wreader wireReader
 	text    []byte
 	bools   [2]bool
 	scanner scanner
@@ -177,6 +181,10 @@ func (d *decoder) run(j *job) *batch {
 		d.b.restart = true
 	}
 	defer d.finish()
+	if j.proto {
+		d.protoRecord(j.data, j.offset, j.line)
+		return d.b
+	}
 	if j.doc {
 		d.record(j.data, j.line, j.col, true)
 		return d.b
@@ -450,24 +458,24 @@ func (d *decoder) span(sp *jsonSpan, service, scope string, line int64) error {
 	if d.doc.rec != nil && sp.at > 0 {
 		line = d.doc.lineAt(sp.at - 1)
 	}
-	start, err := nanos(sp.Start)
-	if err != nil {
-		return err
-	}
-	end, err := nanos(sp.End)
+	start, end, err := spanTimes(sp)
 	if err != nil {
 		return err
 	}
 	var trace, id, parent [16]byte
-	tn, sn, pn := parseID(&trace, sp.TraceID), parseID(&id, sp.SpanID), parseID(&parent, sp.ParentSpanID)
+	readID, describe := parseID, describeID
+	if sp.wire {
+		readID, describe = rawID, describeRawID
+	}
+	tn, sn, pn := readID(&trace, sp.TraceID), readID(&id, sp.SpanID), readID(&parent, sp.ParentSpanID)
 	var problem string
 	switch {
 	case tn != 16 || trace == [16]byte{}:
-		problem = "trace ID " + describeID(sp.TraceID, tn)
+		problem = "trace ID " + describe(sp.TraceID, tn)
 	case sn != 8 || id == [16]byte{}:
-		problem = "span ID " + describeID(sp.SpanID, sn)
+		problem = "span ID " + describe(sp.SpanID, sn)
 	case pn != 0 && pn != 8:
-		problem = "parent span ID " + describeID(sp.ParentSpanID, pn)
+		problem = "parent span ID " + describe(sp.ParentSpanID, pn)
 	}
 	if problem != "" {
 		msg := fmt.Sprintf("span %q skipped: invalid %s", truncate(sp.Name, 60), problem)
@@ -531,6 +539,40 @@ func (d *decoder) span(sp *jsonSpan, service, scope string, line int64) error {
 	}
 	d.b.spans = append(d.b.spans, rec)
 	return nil
+}
+
+// spanTimes returns a span's start and end in ns since the Unix epoch.
+func spanTimes(sp *jsonSpan) (start, end int64, err error) {
+	if sp.wire {
+		for _, t := range [2]uint64{sp.start, sp.end} {
+			if t > math.MaxInt64 {
+				return 0, 0, &valueError{what: "invalid timestamp", raw: strconv.AppendUint(nil, t, 10)}
+			}
+		}
+		return int64(sp.start), int64(sp.end), nil
+	}
+	if start, err = nanos(sp.Start); err != nil {
+		return 0, 0, err
+	}
+	end, err = nanos(sp.End)
+	return start, end, err
+}
+
+// rawID copies a binary trace or span ID (the protobuf encoding's) into
+// b and returns its length, or -1 when it is longer than 16 bytes.
+func rawID(b *[16]byte, s string) int {
+	if len(s) > len(b) {
+		return -1
+	}
+	return copy(b[:], s)
+}
+
+// describeRawID says what is wrong with a binary ID that rawID returned n for.
+func describeRawID(s string, n int) string {
+	if n == 0 {
+		return "(missing)"
+	}
+	return fmt.Sprintf("%s (%d bytes)", truncate(hex.EncodeToString([]byte(s)), 40), len(s))
 }
 
 // intern returns the index of k in *list, appending it if index lacks it.

@@ -430,33 +430,36 @@ func otlpJSON(t testing.TB, td *tracepb.TracesData) string {
 	if err := dec.Decode(&tree); err != nil {
 		t.Fatal(err)
 	}
-	var rewrite func(v any)
-	rewrite = func(v any) {
-		switch v := v.(type) {
-		case map[string]any:
-			for k, x := range v {
-				if s, ok := x.(string); ok && (k == "traceId" || k == "spanId" || k == "parentSpanId") {
-					raw, err := base64.StdEncoding.DecodeString(s)
-					if err != nil {
-						t.Fatalf("%s %q: %v", k, s, err)
-					}
-					v[k] = hex.EncodeToString(raw)
-					continue
-				}
-				rewrite(x)
-			}
-		case []any:
-			for _, x := range v {
-				rewrite(x)
-			}
-		}
-	}
-	rewrite(tree)
+	rewriteIDs(t, tree, func(s string) ([]byte, error) { return base64.StdEncoding.DecodeString(s) }, hex.EncodeToString)
 	out, err := stdjson.Marshal(tree)
 	if err != nil {
 		t.Fatal(err)
 	}
 	return string(out)
+}
+
+// rewriteIDs rewrites every traceId, spanId and parentSpanId string in
+// a decoded JSON tree: decode, then encode.
+func rewriteIDs(t testing.TB, tree any, decode func(string) ([]byte, error), encode func([]byte) string) {
+	t.Helper()
+	switch v := tree.(type) {
+	case map[string]any:
+		for k, x := range v {
+			if s, ok := x.(string); ok && (k == "traceId" || k == "spanId" || k == "parentSpanId") {
+				raw, err := decode(s)
+				if err != nil {
+					t.Fatalf("%s %q: %v", k, s, err)
+				}
+				v[k] = encode(raw)
+				continue
+			}
+			rewriteIDs(t, x, decode, encode)
+		}
+	case []any:
+		for _, x := range v {
+			rewriteIDs(t, x, decode, encode)
+		}
+	}
 }
 
 // sdkWant is what the reader must make of one span of the SDK workload,

@@ -58,6 +58,11 @@ type jsonSpan struct {
 	Start        json.Number    `json:"startTimeUnixNano"`
 	End          json.Number    `json:"endTimeUnixNano"`
 	Attributes   []jsonKeyValue `json:"attributes"`
+	// wire says the span was read from the protobuf encoding
+	// (otlpproto.go): the IDs hold raw bytes and the times are start and
+	// end rather than Start and End.
+	wire       bool
+	start, end uint64
 	// at is the byte offset + 1 of the span in its record, 0 if unknown:
 	// the scanner sets it, the JSON decoder leaves it.
 	at int

@@ -31,6 +31,8 @@ type Loader struct {
 	// in and plain buffer an input and its plain (not gzipped) body; they
 	// are reused from input to input.
 	in, plain *bufio.Reader
+	// capProfiles are the profile records of capture segments.
+	capProfiles []captureProfile
 }
 
 // NewLoader returns a Loader using opts.
@@ -122,6 +124,24 @@ func (l *Loader) add(name string, r io.Reader) error {
 		if err := l.spans.Add(name, bb); err != nil {
 			return readError(name, err, counted.n)
 		}
+	case FormatCapture:
+		if !l.admit(Spans, name) {
+			return nil
+		}
+		if in.Segment, err = l.addSegment(name, bb); err != nil {
+			return readError(name, err, counted.n)
+		}
+	case FormatOTLPProto:
+		if !l.admit(Spans, name) {
+			return nil
+		}
+		data, err := readAll(bb)
+		if err != nil {
+			return readError(name, err, counted.n)
+		}
+		if err := l.addOTLPProto(name, data); err != nil {
+			return readError(name, err, counted.n)
+		}
 	case FormatExecTrace:
 		if !l.admit(ExecTrace, name) {
 			return nil
@@ -199,7 +219,13 @@ func (l *Loader) Source() (*Source, error) {
 		return nil, err
 	}
 	var src *Source
+	capSrc, fromCapture, err := l.captureSource()
+	if err != nil {
+		return nil, err
+	}
 	switch {
+	case fromCapture:
+		src = capSrc
 	case l.profiles != nil && l.profiles.src != nil:
 		src = l.profiles.src
 	case l.spans != nil:

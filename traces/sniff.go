@@ -2,6 +2,8 @@ package traces
 
 import (
 	"bytes"
+
+	"github.com/culprithq/culprit/traces/capture"
 )
 
 // This file decides the format of an input from its first bytes: one
@@ -35,9 +37,11 @@ type format struct {
 // to Loader.add (DEVELOPERS.md, "Adding an input format").
 var formats = []format{
 	{FormatGzip, looksLikeGzip},
+	{FormatCapture, capture.IsSegment},
 	{FormatUTF16, looksLikeUTF16},
 	{FormatExecTrace, LooksLikeExecTrace},
 	{FormatOTLPJSON, looksLikeJSON},
+	{FormatOTLPProto, LooksLikeOTLPProto},
 	// The pprof library reads protobuf and legacy text profiles, and
 	// words the error for anything else: it takes the rest.
 	{FormatPprof, func([]byte) bool { return true }},

@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/report"
 )
 
 func demoFiles(t *testing.T) string {
@@ -21,16 +22,12 @@ func demoFiles(t *testing.T) string {
 
 func TestDiffGateOnDemo(t *testing.T) {
 	dir := demoFiles(t)
-	args := []string{"diff", "--format", "json"}
-	for _, b := range []string{"v41", "v42"} {
-		flag := "--base"
-		if b == "v42" {
-			flag = "--candidate"
-		}
-		for _, i := range []string{"1", "2", "3"} {
-			args = append(args, flag, filepath.Join(dir, "greenhouse-"+b+".goroutine."+i+".pb.gz"))
-		}
-	}
+	// The traces: per-request costs and calls. (On the goroutine profiles
+	// the planted regression reads +30% on 333 vs 250 samples among nine
+	// causes: significant, but its interval at the level that agrees with
+	// the Benjamini–Hochberg step reaches below the 5% budget.)
+	args := []string{"diff", "--format", "json", "--base", filepath.Join(dir, "greenhouse-v41.traces.jsonl.gz"),
+		"--candidate", filepath.Join(dir, "greenhouse-v42.traces.jsonl.gz")}
 	// Without --fail-on the verdicts are reported but nothing gates.
 	code, out, errOut := runTest(t, "", args...)
 	if code != exitOK {
@@ -87,9 +84,7 @@ func TestSnapshotSaveMergeDiff(t *testing.T) {
 	// rank → save → load → identical root causes.
 	var a, b struct{ RootCauses json.RawMessage }
 	json.Unmarshal([]byte(direct), &a)
-	again, _ := json.Marshal(struct {
-		RootCauses any `json:"rootCauses"`
-	}{s.Result().Causes})
+	again, _ := json.Marshal(report.NewRankDocument(s.Result(), report.Options{}))
 	json.Unmarshal(again, &b)
 	if string(a.RootCauses) != string(b.RootCauses) {
 		var x, y any
@@ -101,19 +96,13 @@ func TestSnapshotSaveMergeDiff(t *testing.T) {
 			t.Error("snapshot's root causes differ from the report's")
 		}
 	}
-	// Merging a snapshot with itself doubles every cost.
+	// Merging a snapshot with itself would double every cost: refused.
 	merged := filepath.Join(dir, "merged.json")
-	if code, _, errOut := runTest(t, "", "merge", snap, snap, "-o", merged); code != exitOK {
-		t.Fatalf("merge: %s", errOut)
+	if code, _, errOut := runTest(t, "", "merge", snap, snap, "-o", merged); code != exitError || !strings.Contains(errOut, "twice") {
+		t.Fatalf("merge with itself: exit %d: %s", code, errOut)
 	}
-	fh, _ = os.Open(merged)
-	m, err := attribute.ReadSnapshot(merged, fh)
-	fh.Close()
-	if err != nil {
-		t.Fatal(err)
-	}
-	if m.Result().Totals.Cost != 2*s.Result().Totals.Cost {
-		t.Errorf("merged cost %d, want %d", m.Result().Totals.Cost, 2*s.Result().Totals.Cost)
+	if _, err := os.Stat(merged); err == nil {
+		t.Error("a refused merge wrote its output")
 	}
 	// A snapshot against its own inputs: nothing regressed.
 	code, out, errOut := runTest(t, "", "diff", snap, v42)

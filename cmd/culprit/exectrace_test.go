@@ -134,7 +134,12 @@ func TestExecTraceCommands(t *testing.T) {
 			t.Fatalf("rank --save: exit %d: %s", code, errs)
 		}
 	}
-	if code, _, errs := runTest(t, "", "merge", a, b, "-o", m); code != exitOK {
+	// Two snapshots of the same trace hold the same data: merge refuses
+	// to add them up.
+	if code, _, errs := runTest(t, "", "merge", a, b, "-o", m); code != exitError || !strings.Contains(errs, "twice") {
+		t.Errorf("merge of the same data: exit %d: %s", code, errs)
+	}
+	if code, _, errs := runTest(t, "", "merge", a, "-o", m); code != exitOK {
 		t.Errorf("merge: exit %d: %s", code, errs)
 	}
 	code, out, errs = runTest(t, "", "diff", a, m)

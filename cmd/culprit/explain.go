@@ -54,7 +54,7 @@ the request waited on, indented under its parent, with its time on the path.`,
 		},
 	}
 	opts.analysis.register(cmd)
-	opts.output.register(cmd, []string{"text", "json", "markdown (with --latency)"})
+	opts.output.register(cmd, append(append([]string{}, report.ExplainFormats...), "markdown (with --latency)"))
 	cmd.Flags().BoolVar(&opts.latency, "latency", false, "explain the critical paths of the slowest requests of the entry points matching PATTERN (traces)")
 	cmd.Flags().IntVar(&opts.slowest, "slowest", 3, "with --latency: how many of each entry point's slowest requests to show")
 	return cmd
@@ -69,8 +69,12 @@ func runExplain(ctx context.Context, opts *explainOptions) error {
 	if opts.latency {
 		return runExplainLatency(ctx, opts, re, format)
 	}
-	if format != "" && format != "text" && format != "json" {
-		return usagef("--format must be one of: text, json")
+	if format == "" {
+		format = "text"
+	}
+	renderer, err := report.ForExplainFormat(format)
+	if err != nil {
+		return &usageError{err: err}
 	}
 	ropts, err := opts.output.renderOptions(opts.streams)
 	if err != nil {
@@ -95,7 +99,7 @@ func runExplain(ctx context.Context, opts *explainOptions) error {
 	}
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
 	return opts.output.write(ctx, opts.streams, opts.inputs, func(w io.Writer) error {
-		return report.RenderExplanations(w, format, ex, src.ValueTypes[vi].Unit, ropts)
+		return renderer.RenderExplain(w, ex, src.ValueTypes[vi].Unit, ropts)
 	})
 }
 

@@ -14,6 +14,7 @@ import (
 	"github.com/culprithq/culprit/attribute"
 	"github.com/culprithq/culprit/callgraph"
 	"github.com/culprithq/culprit/traces"
+	"github.com/culprithq/culprit/traces/statement"
 	"github.com/spf13/cobra"
 )
 
@@ -251,7 +252,7 @@ func (f *analysisFlags) read(ctx context.Context, s *streams, names []string, ki
 	if !f.ShowLiterals {
 		// Fingerprint while decoding: literals never reach memory, and calls
 		// that differ only in literals are held once.
-		opts.Statement = attribute.AppendFingerprint
+		opts.Statement = statement.AppendText
 	}
 	loader := traces.NewLoader(opts)
 	testPause(ctx, s, "reading")

@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"io"
 
@@ -131,8 +130,12 @@ func (f *analysisFlags) latency(ctx context.Context, s *streams, inputs []string
 	if err != nil {
 		return nil, err
 	}
-	if src.Kind != traces.Spans {
-		return nil, errors.New(attribute.ErrNoTiming.Error())
+	switch src.Kind {
+	case traces.Spans:
+	case traces.ExecTrace:
+		return nil, attribute.ErrExecTraceLatency
+	default:
+		return nil, attribute.ErrNoTiming
 	}
 	lopts.Options = f.attributeOptions()
 	return await(ctx, func() (*attribute.LatencyResult, error) {

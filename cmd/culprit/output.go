@@ -10,6 +10,7 @@ import (
 	"io/fs"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 
 	"github.com/culprithq/culprit/report"
@@ -22,13 +23,19 @@ type outputFlags struct {
 	Output string
 	Limit  int
 	Color  string
+	Width  int
+	// limitSet records an explicit --limit: without one the JSON and CSV
+	// formats carry every row.
+	limitSet func() bool
 }
 
 func (o *outputFlags) register(cmd *cobra.Command, formats []string) {
 	fl := cmd.Flags()
 	fl.StringVar(&o.Format, "format", "", fmt.Sprintf("output format: %v (default text)", formats))
 	fl.StringVarP(&o.Output, "output", "o", "", "write the report to `FILE` (atomically) instead of standard output")
-	fl.IntVar(&o.Limit, "limit", 20, "show at most N root causes (0 = all)")
+	fl.IntVar(&o.Limit, "limit", 20, "show at most N root causes (0 = all; json and csv show all unless given)")
+	fl.IntVar(&o.Width, "width", 0, "lay the text format out for `N` columns (default: the terminal's, else $COLUMNS, else 100)")
+	o.limitSet = func() bool { return fl.Changed("limit") }
 	fl.StringVar(&o.Color, "color", "auto", "colour the text format: auto, always or never (NO_COLOR is respected)")
 }
 
@@ -37,6 +44,12 @@ func (o *outputFlags) renderOptions(s *streams) (report.Options, error) {
 	opts := report.Options{Limit: o.Limit, Width: s.Width}
 	if o.Limit < 0 {
 		return opts, usagef("--limit must be 0 or more")
+	}
+	if (o.Format == "json" || o.Format == "csv") && (o.limitSet == nil || !o.limitSet()) {
+		opts.Limit = 0
+	}
+	if o.Width < 0 {
+		return opts, usagef("--width must be 0 or more")
 	}
 	switch o.Color {
 	case "always":
@@ -47,8 +60,17 @@ func (o *outputFlags) renderOptions(s *streams) (report.Options, error) {
 	default:
 		return opts, usagef("--color must be one of: auto, always, never")
 	}
+	if !s.OutIsTerminal || opts.Width <= 0 {
+		opts.Width = 0
+		if n, err := strconv.Atoi(s.Getenv("COLUMNS")); err == nil && n > 0 && o.Output == "" {
+			opts.Width = n
+		}
+	}
 	if o.Output != "" {
 		opts.Width = 0
+	}
+	if o.Width > 0 {
+		opts.Width = o.Width
 	}
 	return opts, nil
 }

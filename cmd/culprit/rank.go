@@ -31,7 +31,8 @@ func newRankCmd(s *streams, runF func(context.Context, *rankOptions) error) *cob
 		Use:   "rank INPUT...",
 		Short: "Rank the application functions behind database and network cost",
 		Long: `Rank reads profiles (pprof, gzipped or not) or traces (OTLP/JSON, one export
-request per line or one document), merges them, and charges every database and
+request per line or one document; binary OTLP protobuf, one request per file;
+or a 'culprit listen' capture directory), merges them, and charges every database and
 network call's cost to the nearest application function above it: its root
 cause. Each row shows the root cause's share of all database and network cost
 (the denominator is printed), the call site, and the statements or calls it made.

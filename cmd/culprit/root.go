@@ -35,6 +35,7 @@ Exit status: 0 success, 1 error, 2 usage error, 3 regression gate tripped,
 		newRulesCmd(s, nil),
 		newDiffCmd(s, nil),
 		newMergeCmd(s, nil),
+		newListenCmd(s, nil),
 		newDemoCmd(s, nil),
 		newVersionCmd(s),
 	)

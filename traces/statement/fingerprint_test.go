@@ -1,4 +1,4 @@
-package attribute
+package statement
 
 import (
 	"hash/fnv"
@@ -179,8 +179,8 @@ func runCases(t *testing.T, cases []fingerprintCase) {
 	t.Helper()
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
-			if got := Fingerprint(tc.system, tc.raw); got.Text != tc.want {
-				t.Errorf("Fingerprint(%q, %q).Text\n got %q\nwant %q", tc.system, tc.raw, got.Text, tc.want)
+			if got := Of(tc.system, tc.raw); got.Text != tc.want {
+				t.Errorf("Of(%q, %q).Text\n got %q\nwant %q", tc.system, tc.raw, got.Text, tc.want)
 			}
 		})
 	}
@@ -194,9 +194,9 @@ func TestFingerprintNonSQL(t *testing.T)          { runCases(t, nonSQLCases()) }
 func TestFingerprintIdempotent(t *testing.T) {
 	for _, tc := range allCases() {
 		t.Run(tc.name, func(t *testing.T) {
-			first := Fingerprint(tc.system, tc.raw)
-			if again := Fingerprint(tc.system, first.Text); again != first {
-				t.Errorf("Fingerprint(%q) = %q, but fingerprinting that gives %q", tc.raw, first.Text, again.Text)
+			first := Of(tc.system, tc.raw)
+			if again := Of(tc.system, first.Text); again != first {
+				t.Errorf("Of(%q) = %q, but fingerprinting that gives %q", tc.raw, first.Text, again.Text)
 			}
 		})
 	}
@@ -228,10 +228,10 @@ func TestFingerprintNoLiteralLeak(t *testing.T) {
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			got := strings.ToLower(Fingerprint(tc.system, tc.raw).Text)
+			got := strings.ToLower(Of(tc.system, tc.raw).Text)
 			for _, s := range tc.secrets {
 				if strings.Contains(got, strings.ToLower(s)) {
-					t.Errorf("Fingerprint(%q) = %q still contains %q", tc.raw, got, s)
+					t.Errorf("Of(%q) = %q still contains %q", tc.raw, got, s)
 				}
 			}
 		})
@@ -257,7 +257,7 @@ func TestFingerprintGroupsByShape(t *testing.T) {
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			a, b := Fingerprint(tc.system, tc.a), Fingerprint(tc.system, tc.b)
+			a, b := Of(tc.system, tc.a), Of(tc.system, tc.b)
 			if (a.ID == b.ID) != tc.same || (a.Text == b.Text) != tc.same {
 				t.Errorf("%q -> %q (%x) and %q -> %q (%x): same = %v, want %v",
 					tc.a, a.Text, a.ID, tc.b, b.Text, b.ID, a.ID == b.ID, tc.same)
@@ -270,15 +270,15 @@ func TestFingerprintID(t *testing.T) {
 	// FNV-1a 64-bit test values from the FNV reference (Fowler, Noll, Vo; IETF draft
 	// "The FNV Non-Cryptographic Hash Algorithm"): "" hashes to the offset basis and "a" to
 	// 0xaf63dc4c8601ec8c. Recalled from memory; hash/fnv below is the authoritative check.
-	if got := Fingerprint("", "").ID; got != 0xcbf29ce484222325 {
+	if got := Of("", "").ID; got != 0xcbf29ce484222325 {
 		t.Errorf("ID of empty text = %#x, want %#x", got, uint64(0xcbf29ce484222325))
 	}
-	if got := Fingerprint("", "A").ID; got != 0xaf63dc4c8601ec8c {
+	if got := Of("", "A").ID; got != 0xaf63dc4c8601ec8c {
 		t.Errorf("ID of %q = %#x, want %#x", "a", got, uint64(0xaf63dc4c8601ec8c))
 	}
 	for _, tc := range allCases() {
 		t.Run(tc.name, func(t *testing.T) {
-			s := Fingerprint(tc.system, tc.raw)
+			s := Of(tc.system, tc.raw)
 			if want := stdlibFNV(s.Text); s.ID != want {
 				t.Errorf("ID of %q = %#x, hash/fnv New64a gives %#x", s.Text, s.ID, want)
 			}
@@ -287,23 +287,23 @@ func TestFingerprintID(t *testing.T) {
 }
 
 func TestAppendFingerprint(t *testing.T) {
-	// The decoders normalise every statement with AppendFingerprint into
+	// The decoders normalise every statement with AppendText into
 	// one reused buffer: it must append exactly Fingerprint's text after
 	// whatever the buffer holds, and for SQL allocate nothing once the
 	// buffer has room.
 	buf := make([]byte, 0, 1<<10)
 	for _, tc := range allCases() {
 		t.Run(tc.name, func(t *testing.T) {
-			got := AppendFingerprint(append(buf[:0], "prefix "...), tc.system, tc.raw)
-			if want := "prefix " + Fingerprint(tc.system, tc.raw).Text; string(got) != want {
-				t.Errorf("AppendFingerprint = %q, want %q", got, want)
+			got := AppendText(append(buf[:0], "prefix "...), tc.system, tc.raw)
+			if want := "prefix " + Of(tc.system, tc.raw).Text; string(got) != want {
+				t.Errorf("AppendText = %q, want %q", got, want)
 			}
 		})
 	}
 	raw := "SELECT data, expires_at FROM sessions WHERE token = '5a64ea8a7b0b7a0e' AND n IN (1, 2, 3)"
-	AppendFingerprint(buf[:0], "postgresql", raw) // fill the token pool
-	if n := testing.AllocsPerRun(100, func() { buf = AppendFingerprint(buf[:0], "postgresql", raw) }); n != 0 {
-		t.Errorf("AppendFingerprint allocates %v times a statement, want 0", n)
+	AppendText(buf[:0], "postgresql", raw) // fill the token pool
+	if n := testing.AllocsPerRun(100, func() { buf = AppendText(buf[:0], "postgresql", raw) }); n != 0 {
+		t.Errorf("AppendText allocates %v times a statement, want 0", n)
 	}
 }
 
@@ -317,7 +317,7 @@ func stdlibFNV(s string) uint64 {
 func TestFingerprintLongInput(t *testing.T) {
 	t.Run("beyond the limit is not read", func(t *testing.T) {
 		raw := "SELECT a FROM t WHERE b IN (" + strings.Repeat("1, ", 300_000) + "2) AND zzbeyond = 1"
-		got := Fingerprint("", raw)
+		got := Of("", raw)
 		if want := "select a from t where b in (?,"; !strings.HasPrefix(got.Text, want) {
 			t.Errorf("Text starts %q, want prefix %q", got.Text[:min(40, len(got.Text))], want)
 		}
@@ -331,7 +331,7 @@ func TestFingerprintLongInput(t *testing.T) {
 	t.Run("cut inside a rune", func(t *testing.T) {
 		for pad := range 4 { // put the cut at every byte of a 4-byte rune
 			raw := strings.Repeat("x", maxStatementInput-pad) + strings.Repeat("𝄞", 10)
-			got := Fingerprint("", raw)
+			got := Of("", raw)
 			if !utf8.ValidString(got.Text) {
 				t.Errorf("pad %d: Text is not valid UTF-8 (ends %q)", pad, got.Text[len(got.Text)-8:])
 			}
@@ -342,7 +342,7 @@ func TestFingerprintLongInput(t *testing.T) {
 	})
 	t.Run("deep nesting", func(t *testing.T) {
 		raw := strings.Repeat("(", 30_000) + "1" + strings.Repeat(")", 30_000)
-		if got := Fingerprint("", raw); len(got.Text) != len(raw) {
+		if got := Of("", raw); len(got.Text) != len(raw) {
 			t.Errorf("len(Text) = %d, want %d", len(got.Text), len(raw))
 		}
 	})
@@ -351,9 +351,9 @@ func TestFingerprintLongInput(t *testing.T) {
 // fingerprintCheck checks the properties every result must have: the ID is the FNV-1a hash of
 // Text, Text is a fixed point, valid UTF-8 in gives valid UTF-8 out, and Text is at most twice
 // as long as the input.
-func fingerprintCheck(t *testing.T, system, raw string) Statement {
+func fingerprintCheck(t *testing.T, system, raw string) Fingerprint {
 	t.Helper()
-	got := Fingerprint(system, raw)
+	got := Of(system, raw)
 	if got.ID != stdlibFNV(got.Text) {
 		t.Fatalf("ID %#x is not the FNV-1a hash of %q", got.ID, got.Text)
 	}
@@ -363,7 +363,7 @@ func fingerprintCheck(t *testing.T, system, raw string) Statement {
 	if utf8.ValidString(raw) && !utf8.ValidString(got.Text) {
 		t.Fatalf("valid UTF-8 input %q gave invalid Text %q", raw, got.Text)
 	}
-	if again := Fingerprint(system, got.Text); len(got.Text) <= maxStatementInput && again != got {
+	if again := Of(system, got.Text); len(got.Text) <= maxStatementInput && again != got {
 		t.Fatalf("not idempotent for %s: %q -> %q -> %q", system, raw, got.Text, again.Text)
 	}
 	return got
@@ -408,7 +408,7 @@ func BenchmarkFingerprint(b *testing.B) {
 		b.Run(bc.name, func(b *testing.B) {
 			b.SetBytes(int64(min(len(bc.raw), maxStatementInput)))
 			for b.Loop() {
-				Fingerprint(bc.system, bc.raw)
+				Of(bc.system, bc.raw)
 			}
 		})
 	}
@@ -442,18 +442,18 @@ func BenchmarkFingerprintTypical(b *testing.B) {
 		i := 0
 		for b.Loop() {
 			s := stmts[i%len(stmts)]
-			Fingerprint(s.system, s.raw)
+			Of(s.system, s.raw)
 			i++
 		}
 	})
-	b.Run("AppendFingerprint", func(b *testing.B) {
+	b.Run("AppendText", func(b *testing.B) {
 		b.SetBytes(bytes / int64(len(stmts)))
 		b.ReportAllocs()
 		var buf []byte
 		i := 0
 		for b.Loop() {
 			s := stmts[i%len(stmts)]
-			buf = AppendFingerprint(buf[:0], s.system, s.raw)
+			buf = AppendText(buf[:0], s.system, s.raw)
 			i++
 		}
 	})

@@ -1,4 +1,4 @@
-package attribute
+package statement
 
 import (
 	"bufio"
@@ -56,7 +56,7 @@ func TestFingerprintPostgreSQLGroups(t *testing.T) {
 		}
 		n++
 		groups[r.QueryID] = append(groups[r.QueryID], r)
-		fp := Fingerprint("postgresql", r.Statement).Text
+		fp := Of("postgresql", r.Statement).Text
 		if byPrint[fp] == nil {
 			byPrint[fp] = map[string]bool{}
 		}
@@ -75,9 +75,9 @@ func TestFingerprintPostgreSQLGroups(t *testing.T) {
 		if len(rs) > 1 {
 			multi++
 		}
-		want := Fingerprint("postgresql", rs[0].Statement)
+		want := Of("postgresql", rs[0].Statement)
 		for _, r := range rs[1:] {
-			if got := Fingerprint("postgresql", r.Statement); got != want {
+			if got := Of("postgresql", r.Statement); got != want {
 				t.Errorf("PostgreSQL group %s (%s) splits:\n  %q → %q\n  %q → %q", id, rs[0].Normalized, rs[0].Statement, want.Text, r.Statement, got.Text)
 			}
 		}

@@ -1,4 +1,4 @@
-package attribute
+package statement
 
 // This file keeps the previous implementation of Fingerprint's SQL path, every identifier renamed
 // with an "oracle" prefix, as a differential oracle: FuzzFingerprintOracle requires the current
@@ -22,7 +22,7 @@ import (
 const oracleMaxStatementInput = 64 << 10
 
 // oracleFingerprint is Fingerprint as it was before the single-pass SQL writer.
-func oracleFingerprint(system, raw string) Statement {
+func oracleFingerprint(system, raw string) Fingerprint {
 	if len(raw) > oracleMaxStatementInput {
 		cut := oracleMaxStatementInput
 		for k := 1; k < utf8.UTFMax && !utf8.RuneStart(raw[cut]); k++ {
@@ -540,8 +540,8 @@ func oracleSeeds(tb testing.TB) []string {
 func TestFingerprintMatchesOracle(t *testing.T) {
 	for _, raw := range oracleSeeds(t) {
 		for _, system := range oracleSystems {
-			if got, want := Fingerprint(system, raw), oracleFingerprint(system, raw); got != want {
-				t.Errorf("Fingerprint(%q, %q)\n got %q (%#x)\nwant %q (%#x)", system, raw, got.Text, got.ID, want.Text, want.ID)
+			if got, want := Of(system, raw), oracleFingerprint(system, raw); got != want {
+				t.Errorf("Of(%q, %q)\n got %q (%#x)\nwant %q (%#x)", system, raw, got.Text, got.ID, want.Text, want.ID)
 			}
 		}
 	}
@@ -557,8 +557,8 @@ func FuzzFingerprintOracle(f *testing.F) {
 	}
 	f.Fuzz(func(t *testing.T, sys uint8, raw string) {
 		system := oracleSystems[int(sys)%len(oracleSystems)]
-		if got, want := Fingerprint(system, raw), oracleFingerprint(system, raw); got != want {
-			t.Fatalf("Fingerprint(%q, %q)\n got %q (%#x)\nwant %q (%#x)", system, raw, got.Text, got.ID, want.Text, want.ID)
+		if got, want := Of(system, raw), oracleFingerprint(system, raw); got != want {
+			t.Fatalf("Of(%q, %q)\n got %q (%#x)\nwant %q (%#x)", system, raw, got.Text, got.ID, want.Text, want.ID)
 		}
 	})
 }

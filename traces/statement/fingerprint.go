@@ -1,4 +1,4 @@
-package attribute
+package statement
 
 import (
 	"slices"
@@ -10,18 +10,18 @@ import (
 // maxStatementInput is the number of bytes of a raw statement that Fingerprint reads (64 KiB).
 const maxStatementInput = 64 << 10
 
-// Statement is a fingerprinted statement: literals replaced by "?", comments dropped,
+// Fingerprint is a fingerprinted statement: literals replaced by "?", comments dropped,
 // keywords and unquoted identifiers lower-cased, whitespace folded.
 //
 // Statements that differ only in literal values, bind-parameter style, comments, spacing, keyword
 // case, casts of literals, the length of an IN list of two or more elements or the number of
 // identical rows of a multi-row VALUES clause have the same Text and therefore the same ID. The zero value is not the fingerprint of empty input.
-type Statement struct {
+type Fingerprint struct {
 	Text string // normalised text, safe to show (no literals)
 	ID   uint64 // 64-bit FNV-1a hash of Text
 }
 
-// Fingerprint normalises raw for the given system (db.system.name values like "postgresql",
+// Of normalises raw for the given system (db.system.name values like "postgresql",
 // "mysql", "sqlite", "microsoft.sql_server", "oracle.db", "redis", "mongodb", "memcached"; "" = assume SQL).
 //
 // SQL is split into tokens first and normalised token by token; no regular expression runs over the
@@ -54,11 +54,11 @@ type Statement struct {
 //
 // Only the first 64 KiB of raw are read (cut back to a UTF-8 boundary), which bounds the work:
 // Fingerprint runs in time linear in that prefix. Text is at most twice as long as the part read,
-// is valid UTF-8 when raw is, and Fingerprint(system, s.Text) == s for any result s whose Text fits
+// is valid UTF-8 when raw is, and Of(system, s.Text) == s for any result s whose Text fits
 // in the limit. Empty or all-comment input gives Text "".
-func Fingerprint(system, raw string) Statement {
+func Of(system, raw string) Fingerprint {
 	b := textBufferPool.Get().(*[]byte)
-	*b = AppendFingerprint((*b)[:0], system, raw)
+	*b = AppendText((*b)[:0], system, raw)
 	st := statementOf(string(*b))
 	textBufferPool.Put(b)
 	return st
@@ -67,10 +67,10 @@ func Fingerprint(system, raw string) Statement {
 // textBufferPool keeps the buffers that Fingerprint writes text into.
 var textBufferPool = sync.Pool{New: func() any { return new([]byte) }}
 
-// AppendFingerprint appends Fingerprint(system, raw).Text to dst and returns the extended
+// AppendText appends Of(system, raw).Text to dst and returns the extended
 // slice. For SQL, given a dst with room, it allocates nothing: it is the form for hot loops
 // that need only the text.
-func AppendFingerprint(dst []byte, system, raw string) []byte {
+func AppendText(dst []byte, system, raw string) []byte {
 	if len(raw) > maxStatementInput {
 		cut := maxStatementInput
 		for k := 1; k < utf8.UTFMax && !utf8.RuneStart(raw[cut]); k++ {
@@ -97,13 +97,13 @@ const (
 	fnvPrime  uint64 = 1099511628211
 )
 
-// statementOf returns the Statement with Text text.
-func statementOf(text string) Statement {
+// statementOf returns the Fingerprint with Text text.
+func statementOf(text string) Fingerprint {
 	h := fnvOffset
 	for i := 0; i < len(text); i++ {
 		h = (h ^ uint64(text[i])) * fnvPrime
 	}
-	return Statement{Text: text, ID: h}
+	return Fingerprint{Text: text, ID: h}
 }
 
 // dialect holds the lexical differences between SQL systems.

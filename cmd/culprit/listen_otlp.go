@@ -1,0 +1,399 @@
+package main
+
+import (
+	"bytes"
+	"compress/gzip"
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"mime"
+	"net/http"
+	"strconv"
+	"strings"
+	"sync"
+	"sync/atomic"
+	"time"
+
+	"github.com/culprithq/culprit/traces"
+	"github.com/culprithq/culprit/traces/capture"
+	coltracepb "go.opentelemetry.io/proto/otlp/collector/trace/v1"
+	"google.golang.org/genproto/googleapis/rpc/errdetails"
+	spb "google.golang.org/genproto/googleapis/rpc/status"
+	"google.golang.org/grpc"
+	"google.golang.org/grpc/codes"
+	"google.golang.org/grpc/encoding"
+	_ "google.golang.org/grpc/encoding/gzip" // gzip-compressed requests
+	"google.golang.org/grpc/keepalive"
+	"google.golang.org/grpc/mem"
+	"google.golang.org/grpc/status"
+	"google.golang.org/protobuf/encoding/protojson"
+	"google.golang.org/protobuf/proto"
+	"google.golang.org/protobuf/types/known/durationpb"
+)
+
+// This file is the receiving side of `culprit listen`: the OTLP/HTTP and
+// OTLP/gRPC trace endpoints, answering as the OTLP specification
+// (opentelemetry-proto docs/specification.md) says: success, partial
+// success with the rejected span count, 400/INVALID_ARGUMENT for bodies
+// that do not decode, 413/RESOURCE_EXHAUSTED over the size limit, 415 for
+// other media types, and 503 with Retry-After / UNAVAILABLE with a retry
+// delay when the receiver cannot take the request now (too many in
+// flight, stopping, the disk failing), so that exporters retry.
+
+// retryAfter is the delay that retryable refusals suggest.
+const retryAfter = time.Second
+
+// receiver checks and stores export requests.
+type receiver struct {
+	w        *capture.Writer
+	opts     *listenOptions
+	errOut   io.Writer
+	slots    chan struct{} // one per request in flight
+	checkers sync.Pool
+	bufs     sync.Pool
+
+	mu       sync.Mutex // guards stopping against inflight.Add
+	stopping bool
+	inflight sync.WaitGroup
+
+	// showStatus: the status line is shown, and ranks the recent requests.
+	showStatus bool
+	recent     recentRequests
+
+	requests, spans, profiles, refused atomic.Int64
+	lastDiskWarn                       atomic.Int64 // unix seconds
+	errMu                              sync.Mutex   // one writer of errOut at a time
+}
+
+func newReceiver(w *capture.Writer, opts *listenOptions, errOut io.Writer) *receiver {
+	rc := &receiver{w: w, opts: opts, errOut: errOut, slots: make(chan struct{}, opts.MaxInflight)}
+	topts := traces.Options{Limits: opts.analysis.Limits}
+	rc.checkers.New = func() any { return traces.NewRequestChecker(topts) }
+	return rc
+}
+
+// refusal is why a request is not taken, with the answer it gets.
+type refusal struct {
+	httpStatus int
+	code       codes.Code
+	msg        string
+}
+
+func (r *refusal) Error() string { return r.msg }
+
+func unavailable(msg string) *refusal {
+	return &refusal{httpStatus: http.StatusServiceUnavailable, code: codes.Unavailable, msg: msg}
+}
+
+func invalid(msg string) *refusal {
+	return &refusal{httpStatus: http.StatusBadRequest, code: codes.InvalidArgument, msg: msg}
+}
+
+func tooLarge(msg string) *refusal {
+	return &refusal{httpStatus: http.StatusRequestEntityTooLarge, code: codes.ResourceExhausted, msg: msg}
+}
+
+// enter admits a request unless the receiver is stopping or full; leave
+// must follow a nil return.
+func (rc *receiver) enter() *refusal {
+	rc.mu.Lock()
+	if rc.stopping {
+		rc.mu.Unlock()
+		return unavailable("culprit is stopping; retry later")
+	}
+	rc.inflight.Add(1)
+	rc.mu.Unlock()
+	select {
+	case rc.slots <- struct{}{}:
+		return nil
+	default:
+		rc.inflight.Done()
+		return unavailable(fmt.Sprintf("too many requests in flight (%d); retry later", cap(rc.slots)))
+	}
+}
+
+func (rc *receiver) leave() {
+	<-rc.slots
+	rc.inflight.Done()
+}
+
+// stop makes new requests get a retryable refusal.
+func (rc *receiver) stop() {
+	rc.mu.Lock()
+	rc.stopping = true
+	rc.mu.Unlock()
+}
+
+// drain waits for the requests in flight.
+func (rc *receiver) drain() { rc.inflight.Wait() }
+
+// take checks one request and stores it before returning: the caller
+// acknowledges only after a nil refusal.
+func (rc *receiver) take(data []byte, json bool) (traces.CheckResult, *refusal) {
+	k := rc.checkers.Get().(*traces.RequestChecker)
+	res, err := k.Check(data, json)
+	rc.checkers.Put(k)
+	if err != nil {
+		rc.refused.Add(1)
+		return res, invalid(strings.TrimPrefix(err.Error(), "request: "))
+	}
+	if res.Spans == 0 {
+		return res, nil // an empty request: success, nothing to store
+	}
+	t := capture.TraceProto
+	if json {
+		t = capture.TraceJSON
+	}
+	if err := rc.w.Append(t, data); err != nil {
+		rc.diskProblem(err)
+		return res, unavailable("culprit cannot store the request (" + err.Error() + "); retry later")
+	}
+	rc.requests.Add(1)
+	rc.spans.Add(int64(res.Spans - res.Rejected))
+	if rc.showStatus {
+		rc.recent.add(data, json)
+	}
+	return res, nil
+}
+
+// diskProblem says on stderr, at most every 10 s, that storing fails.
+func (rc *receiver) diskProblem(err error) {
+	now := time.Now().Unix()
+	if last := rc.lastDiskWarn.Load(); now-last < 10 || !rc.lastDiskWarn.CompareAndSwap(last, now) {
+		return
+	}
+	rc.errMu.Lock()
+	defer rc.errMu.Unlock()
+	fmt.Fprintf(rc.errOut, "\nculprit: error: cannot write the capture: %v; answering 503/UNAVAILABLE until it works again (free disk space)\n", err)
+}
+
+// ---------------------------------------------------------------------
+// OTLP/HTTP
+
+func (rc *receiver) httpHandler() http.Handler {
+	mux := http.NewServeMux()
+	mux.HandleFunc("/v1/traces", rc.serveHTTP)
+	return mux
+}
+
+// Media types of OTLP/HTTP bodies.
+const (
+	mediaProto = "application/x-protobuf"
+	mediaJSON  = "application/json"
+)
+
+func (rc *receiver) serveHTTP(w http.ResponseWriter, r *http.Request) {
+	if r.Method != http.MethodPost {
+		w.Header().Set("Allow", http.MethodPost)
+		writeHTTPStatus(w, mediaJSON, &refusal{httpStatus: http.StatusMethodNotAllowed, code: codes.Unimplemented, msg: "use POST"})
+		return
+	}
+	media, _, _ := mime.ParseMediaType(r.Header.Get("Content-Type"))
+	var json bool
+	switch media {
+	case mediaProto:
+	case mediaJSON:
+		json = true
+	default:
+		writeHTTPStatus(w, mediaJSON, &refusal{httpStatus: http.StatusUnsupportedMediaType, code: codes.InvalidArgument,
+			msg: fmt.Sprintf("unsupported Content-Type %q; use %s or %s", r.Header.Get("Content-Type"), mediaProto, mediaJSON)})
+		return
+	}
+	if ref := rc.enter(); ref != nil {
+		writeHTTPStatus(w, media, ref)
+		return
+	}
+	defer rc.leave()
+	buf := rc.getBuf()
+	defer rc.putBuf(buf)
+	body, ref := rc.readBody(w, r, buf)
+	if ref != nil {
+		writeHTTPStatus(w, media, ref)
+		return
+	}
+	res, ref := rc.take(body, json)
+	if ref != nil {
+		writeHTTPStatus(w, media, ref)
+		return
+	}
+	resp := exportResponse(res)
+	var out []byte
+	var err error
+	if json {
+		out, err = protojson.Marshal(resp)
+	} else {
+		out, err = proto.Marshal(resp)
+	}
+	if err != nil {
+		http.Error(w, err.Error(), http.StatusInternalServerError)
+		return
+	}
+	w.Header().Set("Content-Type", media)
+	w.WriteHeader(http.StatusOK)
+	w.Write(out)
+}
+
+// readBody reads a request's body, decompressed, within --max-body.
+func (rc *receiver) readBody(w http.ResponseWriter, r *http.Request, buf *bytes.Buffer) ([]byte, *refusal) {
+	max := rc.opts.MaxBody
+	if r.ContentLength > max {
+		return nil, tooLarge(fmt.Sprintf("request body of %d bytes exceeds the limit of %d (--max-body)", r.ContentLength, max))
+	}
+	var body io.Reader = http.MaxBytesReader(w, r.Body, max)
+	switch enc := strings.ToLower(strings.TrimSpace(r.Header.Get("Content-Encoding"))); enc {
+	case "", "identity":
+	case "gzip":
+		zr, err := gzip.NewReader(body)
+		if err != nil {
+			return nil, readRefusal(err, max)
+		}
+		defer zr.Close()
+		body = zr
+	default:
+		return nil, &refusal{httpStatus: http.StatusUnsupportedMediaType, code: codes.InvalidArgument,
+			msg: fmt.Sprintf("unsupported Content-Encoding %q; use gzip or none", enc)}
+	}
+	// Decompressed, the body must fit the limit too (a gzip bomb).
+	n, err := buf.ReadFrom(io.LimitReader(body, max+1))
+	if err != nil {
+		return nil, readRefusal(err, max)
+	}
+	if n > max {
+		return nil, tooLarge(fmt.Sprintf("request body decompresses to more than %d bytes (--max-body)", max))
+	}
+	return buf.Bytes(), nil
+}
+
+// readRefusal answers a body that could not be read.
+func readRefusal(err error, max int64) *refusal {
+	var mbe *http.MaxBytesError
+	switch {
+	case errors.As(err, &mbe):
+		return tooLarge(fmt.Sprintf("request body exceeds the limit of %d bytes (--max-body)", max))
+	case errors.Is(err, gzip.ErrHeader), errors.Is(err, gzip.ErrChecksum), errors.Is(err, io.ErrUnexpectedEOF):
+		return invalid("request body is not valid gzip: " + err.Error())
+	}
+	// A client that stopped sending (timeout, reset): let it retry.
+	return unavailable("reading the request body: " + err.Error())
+}
+
+func (rc *receiver) getBuf() *bytes.Buffer {
+	if b, ok := rc.bufs.Get().(*bytes.Buffer); ok {
+		b.Reset()
+		return b
+	}
+	return new(bytes.Buffer)
+}
+
+func (rc *receiver) putBuf(b *bytes.Buffer) {
+	if b.Cap() <= 4<<20 {
+		rc.bufs.Put(b)
+	}
+}
+
+// exportResponse is the answer to a stored request: partial success
+// when spans will be skipped.
+func exportResponse(res traces.CheckResult) *coltracepb.ExportTraceServiceResponse {
+	resp := &coltracepb.ExportTraceServiceResponse{}
+	if res.Rejected > 0 {
+		resp.PartialSuccess = &coltracepb.ExportTracePartialSuccess{
+			RejectedSpans: int64(res.Rejected),
+			ErrorMessage:  fmt.Sprintf("%d of %d spans have invalid IDs and will not be analysed; the first: %s", res.Rejected, res.Spans, res.Message),
+		}
+	}
+	return resp
+}
+
+// writeHTTPStatus answers with a google.rpc.Status body in the request's
+// encoding, and Retry-After on 503.
+func writeHTTPStatus(w http.ResponseWriter, media string, ref *refusal) {
+	st := &spb.Status{Code: int32(ref.code), Message: ref.msg}
+	var out []byte
+	if media == mediaProto {
+		out, _ = proto.Marshal(st)
+	} else {
+		media = mediaJSON
+		out, _ = protojson.Marshal(st)
+	}
+	if ref.httpStatus == http.StatusServiceUnavailable {
+		w.Header().Set("Retry-After", strconv.Itoa(int(retryAfter/time.Second)))
+	}
+	w.Header().Set("Content-Type", media)
+	w.WriteHeader(ref.httpStatus)
+	w.Write(out)
+}
+
+// ---------------------------------------------------------------------
+// OTLP/gRPC
+
+// rawRequest is an export request's bytes as received: the gRPC service
+// stores them as they are rather than decoding them twice.
+type rawRequest struct{ data []byte }
+
+// rawCodec is the gRPC "proto" codec, except that a rawRequest receives
+// the message's bytes undecoded.
+type rawCodec struct{ encoding.CodecV2 }
+
+func (c rawCodec) Unmarshal(data mem.BufferSlice, v any) error {
+	if r, ok := v.(*rawRequest); ok {
+		r.data = data.Materialize()
+		return nil
+	}
+	return c.CodecV2.Unmarshal(data, v)
+}
+
+// grpcServer serves TraceService/Export: the official service's name and
+// method (go.opentelemetry.io/proto/otlp/collector/trace/v1), with a
+// handler that stores the request's bytes.
+func (rc *receiver) grpcServer() *grpc.Server {
+	desc := grpc.ServiceDesc{
+		ServiceName: coltracepb.TraceService_ServiceDesc.ServiceName,
+		HandlerType: (*any)(nil),
+		Methods: []grpc.MethodDesc{{
+			MethodName: "Export",
+			Handler: func(_ any, ctx context.Context, dec func(any) error, _ grpc.UnaryServerInterceptor) (any, error) {
+				var req rawRequest
+				if err := dec(&req); err != nil {
+					return nil, err
+				}
+				return rc.export(req.data)
+			},
+		}},
+		Metadata: coltracepb.TraceService_ServiceDesc.Metadata,
+	}
+	gs := grpc.NewServer(
+		grpc.ForceServerCodecV2(rawCodec{encoding.GetCodecV2("proto")}),
+		grpc.MaxRecvMsgSize(int(min(rc.opts.MaxBody, 1<<31-1))),
+		grpc.MaxConcurrentStreams(uint32(rc.opts.MaxInflight)),
+		grpc.ConnectionTimeout(rc.opts.ReadTimeout),
+		grpc.KeepaliveParams(keepalive.ServerParameters{MaxConnectionIdle: rc.opts.IdleTimeout}),
+	)
+	gs.RegisterService(&desc, nil)
+	return gs
+}
+
+// export answers one gRPC export request.
+func (rc *receiver) export(data []byte) (*coltracepb.ExportTraceServiceResponse, error) {
+	if ref := rc.enter(); ref != nil {
+		return nil, grpcStatus(ref)
+	}
+	defer rc.leave()
+	res, ref := rc.take(data, false)
+	if ref != nil {
+		return nil, grpcStatus(ref)
+	}
+	return exportResponse(res), nil
+}
+
+// grpcStatus turns a refusal into a gRPC status; UNAVAILABLE carries the
+// retry delay (google.rpc.RetryInfo).
+func grpcStatus(ref *refusal) error {
+	st := status.New(ref.code, ref.msg)
+	if ref.code == codes.Unavailable {
+		if d, err := st.WithDetails(&errdetails.RetryInfo{RetryDelay: durationpb.New(retryAfter)}); err == nil {
+			st = d
+		}
+	}
+	return st.Err()
+}
