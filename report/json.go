@@ -5,6 +5,7 @@ import (
 	"io"
 
 	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/traces"
 )
 
 // RankSchema is the version tag of the rank JSON document.
@@ -51,6 +52,24 @@ type InputDoc struct {
 	Format string `json:"format"`
 	Bytes  int64  `json:"bytes"`
 	SHA256 string `json:"sha256"`
+	// Segment identifies a capture segment of culprit listen by the run
+	// that wrote it and its number; absent for other inputs.
+	Segment *SegmentDoc `json:"segment,omitempty"`
+}
+
+// SegmentDoc is a capture segment's identity.
+type SegmentDoc struct {
+	Instance string `json:"instance"`
+	Sequence uint64 `json:"sequence"`
+}
+
+// inputDoc converts one input.
+func inputDoc(in traces.Input) InputDoc {
+	d := InputDoc{Name: in.Name, Format: in.Format, Bytes: in.Bytes, SHA256: in.SHA256}
+	if in.Segment != nil {
+		d.Segment = &SegmentDoc{Instance: in.Segment.Instance, Sequence: in.Segment.Sequence}
+	}
+	return d
 }
 
 // ValueTypeDoc is what the costs measure.
@@ -232,7 +251,7 @@ func NewRankDocument(r *attribute.Result, opts Options) *RankDocument {
 		DomainsFile: r.DomainsFile, Warnings: nonNil(r.Warnings), Notes: r.Notes, DurationNanos: r.DurationNanos, Caveats: nonNil(Caveats(r)),
 	}
 	for _, in := range r.Inputs {
-		doc.Inputs = append(doc.Inputs, InputDoc{in.Name, in.Format, in.Bytes, in.SHA256})
+		doc.Inputs = append(doc.Inputs, inputDoc(in))
 	}
 	for _, d := range r.App.Detected {
 		doc.App.Detected = append(doc.App.Detected, DetectionDoc{d.Prefix, d.Functions, d.Reason})

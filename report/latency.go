@@ -176,7 +176,7 @@ func writeMDProvenance(w io.Writer, p Provenance, inputs string) {
 // JSON output types of culprit.latency/v1. Times are nanoseconds.
 type latencyDoc struct {
 	Schema     string            `json:"schema"`
-	Inputs     []inputDoc        `json:"inputs"`
+	Inputs     []InputDoc        `json:"inputs"`
 	Tail       float64           `json:"tail"`
 	Requests   int               `json:"requests"`
 	Headline   string            `json:"headline"`
@@ -184,13 +184,6 @@ type latencyDoc struct {
 	App        attribute.AppInfo `json:"app"`
 	Warnings   []string          `json:"warnings"`
 	ProducedBy Provenance        `json:"producedBy"`
-}
-
-type inputDoc struct {
-	Name   string `json:"name"`
-	Format string `json:"format"`
-	Bytes  int64  `json:"bytes"`
-	SHA256 string `json:"sha256,omitempty"`
 }
 
 type latencyEntry struct {
@@ -246,12 +239,12 @@ type latencyJSON struct{}
 func (latencyJSON) RenderLatency(w io.Writer, r *attribute.LatencyResult, opts Options) error {
 	doc := latencyDoc{Schema: "culprit.latency/v1", Tail: r.Tail, Requests: r.Requests,
 		Headline: newLatencyHeadline(r).Sentence, App: r.App, Warnings: r.Warnings, ProducedBy: opts.Provenance,
-		Inputs: []inputDoc{}, Entries: []latencyEntry{}}
+		Inputs: []InputDoc{}, Entries: []latencyEntry{}}
 	if doc.Warnings == nil {
 		doc.Warnings = []string{}
 	}
 	for _, in := range r.Inputs {
-		doc.Inputs = append(doc.Inputs, inputDoc{in.Name, in.Format, in.Bytes, in.SHA256})
+		doc.Inputs = append(doc.Inputs, inputDoc(in))
 	}
 	for _, e := range r.Entries {
 		causes, cut := latencyCauses(e, opts)
