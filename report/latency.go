@@ -175,15 +175,15 @@ func writeMDProvenance(w io.Writer, p Provenance, inputs string) {
 
 // JSON output types of culprit.latency/v1. Times are nanoseconds.
 type latencyDoc struct {
-	Schema     string            `json:"schema"`
-	Inputs     []InputDoc        `json:"inputs"`
-	Tail       float64           `json:"tail"`
-	Requests   int               `json:"requests"`
-	Headline   string            `json:"headline"`
-	Entries    []latencyEntry    `json:"entries"`
-	App        attribute.AppInfo `json:"app"`
-	Warnings   []string          `json:"warnings"`
-	ProducedBy Provenance        `json:"producedBy"`
+	Schema     string         `json:"schema"`
+	Inputs     []InputDoc     `json:"inputs"`
+	Tail       float64        `json:"tail"`
+	Requests   int            `json:"requests"`
+	Headline   string         `json:"headline"`
+	Entries    []latencyEntry `json:"entries"`
+	App        AppDoc         `json:"app"`
+	Warnings   []string       `json:"warnings"`
+	ProducedBy Provenance     `json:"producedBy"`
 }
 
 type latencyEntry struct {
@@ -238,7 +238,7 @@ type latencyJSON struct{}
 
 func (latencyJSON) RenderLatency(w io.Writer, r *attribute.LatencyResult, opts Options) error {
 	doc := latencyDoc{Schema: "culprit.latency/v1", Tail: r.Tail, Requests: r.Requests,
-		Headline: newLatencyHeadline(r).Sentence, App: r.App, Warnings: r.Warnings, ProducedBy: opts.Provenance,
+		Headline: newLatencyHeadline(r).Sentence, App: appDoc(r.App), Warnings: r.Warnings, ProducedBy: opts.Provenance,
 		Inputs: []InputDoc{}, Entries: []latencyEntry{}}
 	if doc.Warnings == nil {
 		doc.Warnings = []string{}
