@@ -154,7 +154,7 @@ func sideDoc(s attribute.SideSummary) SideDoc {
 			Requests: reqs, Samples: t.Samples, BoundarySamples: t.BoundarySamples},
 		Requests: s.Requests, DurationNanos: s.DurationNanos, Exposure: s.Exposure}
 	for _, in := range s.Inputs {
-		out.Inputs = append(out.Inputs, InputDoc{in.Name, in.Format, in.Bytes, in.SHA256})
+		out.Inputs = append(out.Inputs, inputDoc(in))
 	}
 	return out
 }

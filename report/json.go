@@ -4,6 +4,7 @@ import (
 	"io"
 
 	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/traces"
 )
 
 // RankSchema is the version tag of the rank JSON document.
@@ -50,6 +51,33 @@ type InputDoc struct {
 	Format string `json:"format"`
 	Bytes  int64  `json:"bytes"`
 	SHA256 string `json:"sha256"`
+	// Segment identifies a capture segment of culprit listen by the run
+	// that wrote it and its number; absent for other inputs.
+	Segment *SegmentDoc `json:"segment,omitempty"`
+}
+
+// SegmentDoc is a capture segment's identity.
+type SegmentDoc struct {
+	Instance string `json:"instance"`
+	Sequence uint64 `json:"sequence"`
+}
+
+// appDoc converts what was taken as application code.
+func appDoc(a attribute.AppInfo) AppDoc {
+	d := AppDoc{Prefixes: nonNil(a.Prefixes), Detected: []DetectionDoc{}, RulesFiles: nonNil(a.RulesFiles)}
+	for _, x := range a.Detected {
+		d.Detected = append(d.Detected, DetectionDoc{x.Prefix, x.Functions, x.Reason})
+	}
+	return d
+}
+
+// inputDoc converts one input.
+func inputDoc(in traces.Input) InputDoc {
+	d := InputDoc{Name: in.Name, Format: in.Format, Bytes: in.Bytes, SHA256: in.SHA256}
+	if in.Segment != nil {
+		d.Segment = &SegmentDoc{Instance: in.Segment.Instance, Sequence: in.Segment.Sequence}
+	}
+	return d
 }
 
 // ValueTypeDoc is what the costs measure.
@@ -224,15 +252,12 @@ func NewRankDocument(r *attribute.Result, opts Options) *RankDocument {
 		Sampled: r.Sampled, CPUOnly: r.CPUOnly, Inclusive: r.Inclusive,
 		Totals: TotalsDoc{Cost: t.Cost, Database: t.Database, Network: t.Network, Other: t.Other, Unattributed: t.Unattributed,
 			Requests: reqs(t.Requests), Samples: t.Samples, BoundarySamples: t.BoundarySamples},
-		App:         AppDoc{Prefixes: nonNil(r.App.Prefixes), Detected: []DetectionDoc{}, RulesFiles: nonNil(r.App.RulesFiles)},
+		App:         appDoc(r.App),
 		EntryPoints: []EntryDoc{}, RootCauses: []CauseDoc{}, Findings: []FindingDoc{},
 		DomainsFile: r.DomainsFile, Warnings: nonNil(r.Warnings), Notes: r.Notes, DurationNanos: r.DurationNanos, Caveats: nonNil(Caveats(r)),
 	}
 	for _, in := range r.Inputs {
-		doc.Inputs = append(doc.Inputs, InputDoc{in.Name, in.Format, in.Bytes, in.SHA256})
-	}
-	for _, d := range r.App.Detected {
-		doc.App.Detected = append(doc.App.Detected, DetectionDoc{d.Prefix, d.Functions, d.Reason})
+		doc.Inputs = append(doc.Inputs, inputDoc(in))
 	}
 	for _, e := range r.Entries {
 		doc.EntryPoints = append(doc.EntryPoints, EntryDoc{e.Entry, e.Cost, e.Database, e.Network, reqs(e.Requests)})

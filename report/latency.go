@@ -173,22 +173,15 @@ func writeMDProvenance(w io.Writer, p Provenance, inputs string) {
 
 // JSON output types of culprit.latency/v1. Times are nanoseconds.
 type latencyDoc struct {
-	Schema     string            `json:"schema"`
-	Inputs     []inputDoc        `json:"inputs"`
-	Tail       float64           `json:"tail"`
-	Requests   int               `json:"requests"`
-	Headline   string            `json:"headline"`
-	Entries    []latencyEntry    `json:"entries"`
-	App        attribute.AppInfo `json:"app"`
-	Warnings   []string          `json:"warnings"`
-	ProducedBy Provenance        `json:"producedBy"`
-}
-
-type inputDoc struct {
-	Name   string `json:"name"`
-	Format string `json:"format"`
-	Bytes  int64  `json:"bytes"`
-	SHA256 string `json:"sha256,omitempty"`
+	Schema     string         `json:"schema"`
+	Inputs     []InputDoc     `json:"inputs"`
+	Tail       float64        `json:"tail"`
+	Requests   int            `json:"requests"`
+	Headline   string         `json:"headline"`
+	Entries    []latencyEntry `json:"entries"`
+	App        AppDoc         `json:"app"`
+	Warnings   []string       `json:"warnings"`
+	ProducedBy Provenance     `json:"producedBy"`
 }
 
 type latencyEntry struct {
@@ -243,13 +236,13 @@ type latencyJSON struct{}
 
 func (latencyJSON) RenderLatency(w io.Writer, r *attribute.LatencyResult, opts Options) error {
 	doc := latencyDoc{Schema: "culprit.latency/v1", Tail: r.Tail, Requests: r.Requests,
-		Headline: newLatencyHeadline(r).Sentence, App: r.App, Warnings: r.Warnings, ProducedBy: opts.Provenance,
-		Inputs: []inputDoc{}, Entries: []latencyEntry{}}
+		Headline: newLatencyHeadline(r).Sentence, App: appDoc(r.App), Warnings: r.Warnings, ProducedBy: opts.Provenance,
+		Inputs: []InputDoc{}, Entries: []latencyEntry{}}
 	if doc.Warnings == nil {
 		doc.Warnings = []string{}
 	}
 	for _, in := range r.Inputs {
-		doc.Inputs = append(doc.Inputs, inputDoc{in.Name, in.Format, in.Bytes, in.SHA256})
+		doc.Inputs = append(doc.Inputs, inputDoc(in))
 	}
 	for _, e := range r.Entries {
 		causes, cut := latencyCauses(e, opts)

@@ -80,8 +80,6 @@ type refusal struct {
 	msg        string
 }
 
-func (r *refusal) Error() string { return r.msg }
-
 func unavailable(msg string) *refusal {
 	return &refusal{httpStatus: http.StatusServiceUnavailable, code: codes.Unavailable, msg: msg}
 }

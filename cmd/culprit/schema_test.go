@@ -40,7 +40,7 @@ func compileSchemas(t *testing.T) map[string]*jsonschema.Schema {
 	}
 	out := map[string]*jsonschema.Schema{}
 	for tag, name := range map[string]string{"culprit.rank/v1": "rank", "culprit.diff/v1": "diff",
-		"culprit.explain/v1": "explain", "culprit.snapshot/v1": "snapshot"} {
+		"culprit.explain/v1": "explain", "culprit.snapshot/v1": "snapshot", "culprit.latency/v1": "latency"} {
 		s, err := c.Compile("https://culprit.invalid/schema/" + name + ".schema.json")
 		if err != nil {
 			t.Fatalf("%s: %v", name, err)
@@ -109,6 +109,8 @@ func TestGoldenOutputsMatchSchemas(t *testing.T) {
 		{"explain", "--format", "json", "Build", filepath.Join(dir, "greenhouse-v42.goroutine.1.pb.gz")},
 		{"diff", "--format", "json", "--limit", "3", "--base", filepath.Join(dir, "greenhouse-v41.traces.jsonl.gz"), "--candidate", traces},
 		{"rank", "--format", "json", "--limit", "2", traces},
+		{"latency", "--format", "json", traces},
+		{"latency", "--format", "json", "--limit", "1", traces},
 	} {
 		code, out, errOut := runTest(t, "", args...)
 		if code != exitOK {
