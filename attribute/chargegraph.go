@@ -5,12 +5,11 @@ import (
 
 	"github.com/culprithq/culprit/callgraph"
 	"github.com/culprithq/culprit/traces"
-	"gonum.org/v1/gonum/graph/encoding"
 )
 
 // Node styles of the charge graph by class: culprit's own shapes, so that
 // the classes read apart in greyscale too.
-var classStyle = map[Class][]encoding.Attribute{
+var classStyle = map[Class][]callgraph.Attr{
 	Database:    {{Key: "shape", Value: "cylinder"}, {Key: "style", Value: "filled"}, {Key: "fillcolor", Value: "lightblue"}},
 	Network:     {{Key: "shape", Value: "hexagon"}, {Key: "style", Value: "filled"}, {Key: "fillcolor", Value: "plum"}},
 	Entry:       {{Key: "shape", Value: "house"}},
@@ -33,6 +32,7 @@ func ChargeGraph(t *callgraph.Tree, c *Classifier, opts Options, minShare float6
 
 	type nodeInfo struct {
 		class Class
+		entry bool
 		cost  int64
 		order int
 	}
@@ -65,7 +65,8 @@ func ChargeGraph(t *callgraph.Tree, c *Classifier, opts Options, minShare float6
 			name := src.Frames[f].Function
 			ni := nodes[name]
 			if ni == nil {
-				ni = &nodeInfo{class: c.Verdict(f).Class, order: len(nodes)}
+				v := c.Verdict(f)
+				ni = &nodeInfo{class: v.Class, entry: v.EntryPoint, order: len(nodes)}
 				nodes[name] = ni
 			}
 			if !seenNode[name] {
@@ -88,7 +89,8 @@ func ChargeGraph(t *callgraph.Tree, c *Classifier, opts Options, minShare float6
 	keep := func(name string) bool {
 		return denom > 0 && float64(nodes[name].cost)/float64(denom) >= minShare
 	}
-	g := callgraph.NewDigraph("culprit", encoding.Attribute{Key: "rankdir", Value: "LR"})
+	g := callgraph.NewDigraph("culprit", callgraph.Attr{Key: "rankdir", Value: "LR"})
+	g.Total = float64(denom)
 	// Add nodes in first-seen order, which follows the source's path order.
 	names := make([]string, len(nodes))
 	for name, ni := range nodes {
@@ -100,11 +102,16 @@ func ChargeGraph(t *callgraph.Tree, c *Classifier, opts Options, minShare float6
 			continue
 		}
 		ni := nodes[name]
-		attrs := append([]encoding.Attribute{
+		style := classStyle[ni.class]
+		if ni.entry {
+			style = classStyle[Entry] // trace entry points are application spans
+		}
+		attrs := append([]callgraph.Attr{
 			{Key: "class", Value: ni.class.String()},
 			{Key: "cost", Value: strconv.FormatInt(ni.cost, 10)},
-		}, classStyle[ni.class]...)
+		}, style...)
 		byName[name] = g.AddNode(name, attrs...)
+		byName[name].W = float64(ni.cost)
 	}
 	for _, e := range edgeOrder {
 		from, to := byName[e.from], byName[e.to]
@@ -113,10 +120,7 @@ func ChargeGraph(t *callgraph.Tree, c *Classifier, opts Options, minShare float6
 		}
 		w := edges[e]
 		ge := g.AddWeight(from, to, float64(w))
-		ge.Attrs = []encoding.Attribute{
-			{Key: "weight", Value: strconv.FormatInt(w, 10)},
-			{Key: "label", Value: strconv.FormatInt(w, 10)},
-		}
+		ge.Attrs = []callgraph.Attr{{Key: "cost", Value: strconv.FormatInt(w, 10)}}
 	}
 	return g
 }

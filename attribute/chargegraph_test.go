@@ -119,7 +119,10 @@ func parseDOT(t *testing.T, out []byte) (map[string]map[string]string, map[strin
 		}
 		return s
 	}
+	// Node IDs are numbers; the name is the label's first line. Edge
+	// weights are shares scaled for Graphviz: the cost is in "cost".
 	nodes := map[string]map[string]string{}
+	names := map[string]string{}
 	edges := map[string]string{}
 	for _, st := range file.Graphs[0].Stmts {
 		switch st := st.(type) {
@@ -128,13 +131,15 @@ func parseDOT(t *testing.T, out []byte) (map[string]map[string]string, map[strin
 			for _, a := range st.Attrs {
 				attrs[a.Key] = unquote(a.Val)
 			}
-			nodes[unquote(st.Node.ID)] = attrs
+			name, _, _ := strings.Cut(attrs["label"], "\n")
+			names[unquote(st.Node.ID)] = name
+			nodes[name] = attrs
 		case *ast.EdgeStmt:
-			from := unquote(st.From.(*ast.Node).ID)
-			to := unquote(st.To.Vertex.(*ast.Node).ID)
+			from := names[unquote(st.From.(*ast.Node).ID)]
+			to := names[unquote(st.To.Vertex.(*ast.Node).ID)]
 			for _, a := range st.Attrs {
-				if a.Key == "weight" {
-					edges[from+" -> "+to] = a.Val
+				if a.Key == "cost" {
+					edges[from+" -> "+to] = unquote(a.Val)
 				}
 			}
 		}

@@ -1,7 +1,6 @@
 package report
 
 import (
-	"encoding/csv"
 	"io"
 	"strconv"
 
@@ -46,7 +45,9 @@ import (
 //
 // Numbers are unformatted: integers in base 10, fractions in the shortest
 // representation that round-trips (strconv 'g', -1). Strings are written as
-// they are, quoted by encoding/csv when needed; note that Go's csv.Reader
+// they are, quoted by encoding/csv when needed, except that a string a
+// spreadsheet would run as a formula gets a leading apostrophe and
+// invisible characters are shown as \uXXXX (see csvCell); note that Go's csv.Reader
 // turns a carriage return directly before a line feed inside a quoted
 // field into a bare line feed.
 type CSV struct{}
@@ -62,7 +63,7 @@ var csvHeader = []string{
 
 // Render implements Renderer.
 func (CSV) Render(w io.Writer, r *attribute.Result, opts Options) error {
-	cw := csv.NewWriter(w)
+	cw := newCSVWriter(w)
 	if err := cw.Write(csvHeader); err != nil {
 		return err
 	}

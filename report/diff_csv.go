@@ -1,7 +1,6 @@
 package report
 
 import (
-	"encoding/csv"
 	"io"
 	"strconv"
 	"strings"
@@ -58,7 +57,7 @@ var diffCSVHeader = []string{
 
 // RenderDiff implements DiffRenderer.
 func (DiffCSV) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) error {
-	cw := csv.NewWriter(w)
+	cw := newCSVWriter(w)
 	if err := cw.Write(diffCSVHeader); err != nil {
 		return err
 	}

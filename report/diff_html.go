@@ -36,7 +36,7 @@ type DiffHTML struct{}
 var diffSource string
 
 // diffTemplate is compiled once; a broken template fails every test.
-var diffTemplate = template.Must(template.Must(template.New("diff.tmpl").Parse(diffSource)).Parse(layoutSource))
+var diffTemplate = template.Must(template.Must(template.New("diff.tmpl").Funcs(htmlFuncs).Parse(diffSource)).Parse(layoutSource))
 
 // Change chart geometry in SVG user units (px at 100%).
 const (
@@ -131,7 +131,7 @@ func (DiffHTML) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) e
 	h.Lead, h.Function, h.Change, h.Counts = clean(h.Lead), clean(h.Function), clean(h.Change), clean(h.Counts)
 	for i, ch := range changes {
 		row := diffRow{Rank: i + 1, Verdict: clean(verdictText(ch)), Class: verdictClass(ch.Verdict),
-			Function: clean(ch.Function), Identity: clean(ch.Identity), FnParts: nameParts(clean(ch.Function)),
+			Function: clean(ch.Function), Identity: clean(ch.Identity), FnParts: nameParts(Shorten(clean(ch.Function), htmlNameRunes)),
 			Calls: callsText(ch), CallsRel: callsRelText(ch),
 			Base: rateText(ch.Base, c), Candidate: rateText(ch.Candidate, c), Change: signedRateText(ch.Change, c),
 			Rel: relText(ch), Q: qText(ch.QValue), MDE: mdeText(ch),

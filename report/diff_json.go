@@ -1,7 +1,6 @@
 package report
 
 import (
-	"encoding/json"
 	"io"
 
 	"github.com/culprithq/culprit/attribute"
@@ -115,9 +114,7 @@ type StatementChangeDoc struct {
 
 // RenderDiff implements DiffRenderer.
 func (DiffJSON) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) error {
-	enc := json.NewEncoder(w)
-	enc.SetIndent("", "  ")
-	return enc.Encode(NewDiffDocument(c, opts))
+	return writeJSON(w, NewDiffDocument(c, opts))
 }
 
 // NewDiffDocument converts c into the diff document, cut to opts.Limit.

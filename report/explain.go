@@ -2,7 +2,6 @@ package report
 
 import (
 	"bufio"
-	"encoding/json"
 	"fmt"
 	"io"
 	"strings"
@@ -59,9 +58,7 @@ func (ExplainJSON) RenderExplain(w io.Writer, ex []attribute.Explanation, unit s
 		}
 		doc.Explanations = append(doc.Explanations, ed)
 	}
-	enc := json.NewEncoder(w)
-	enc.SetIndent("", "  ")
-	return enc.Encode(doc)
+	return writeJSON(w, doc)
 }
 
 func explainNodeDoc(n *attribute.ExplainNode) ExplainNodeDoc {

@@ -32,7 +32,7 @@ type HTML struct{}
 var htmlSource string
 
 // htmlTemplate is compiled once; a broken template fails every test.
-var htmlTemplate = template.Must(template.Must(template.New("html.tmpl").Parse(htmlSource)).Parse(layoutSource))
+var htmlTemplate = template.Must(template.Must(template.New("html.tmpl").Funcs(htmlFuncs).Parse(htmlSource)).Parse(layoutSource))
 
 // layoutSource defines the CSS that the rank and diff pages share.
 //
@@ -228,7 +228,7 @@ func (HTML) Render(w io.Writer, r *attribute.Result, opts Options) error {
 	for i, c := range causes {
 		row := htmlRow{Rank: i + 1, Share: shareText(r, c), ShareV: strconv.FormatFloat(c.Share, 'g', -1, 64),
 			Cost: FormatValue(c.Cost, unit), CostV: c.Cost, Count: countOf(r, c), PerRequest: perRequestText(c)[0], PerRequestP95: perRequestText(c)[1],
-			Kind: clean(string(c.Kind)), Class: kindClass(c), Function: clean(c.Function), Site: clean(site(c)), File: clean(c.File), FnParts: nameParts(clean(c.Function))}
+			Kind: clean(string(c.Kind)), Class: kindClass(c), Function: clean(c.Function), Site: clean(site(c)), File: clean(c.File), FnParts: nameParts(Shorten(clean(c.Function), htmlNameRunes))}
 		if c.CallsPerRequest != nil {
 			row.PerRequestV = strconv.FormatFloat(c.CallsPerRequest.Median, 'g', -1, 64)
 		}
@@ -268,7 +268,7 @@ func (HTML) Render(w io.Writer, r *attribute.Result, opts Options) error {
 			Database: FormatValue(d.Database, unit), DatabaseV: d.Database, Network: FormatValue(d.Network, unit), NetworkV: d.Network})
 	}
 	for _, e := range r.Entries {
-		p.Entries = append(p.Entries, htmlEntry{Entry: entryName(e.Entry), EntryParts: nameParts(entryName(e.Entry)),
+		p.Entries = append(p.Entries, htmlEntry{Entry: entryName(e.Entry), EntryParts: nameParts(Shorten(entryName(e.Entry), htmlNameRunes)),
 			Database: FormatValue(e.Database, unit), Network: FormatValue(e.Network, unit),
 			Other: FormatValue(entryOther(e), unit), Total: FormatValue(e.Cost, unit),
 			DatabaseV: e.Database, NetworkV: e.Network, OtherV: entryOther(e), TotalV: e.Cost, Requests: e.Requests})

@@ -1,7 +1,6 @@
 package report
 
 import (
-	"encoding/json"
 	"io"
 
 	"github.com/culprithq/culprit/attribute"
@@ -226,9 +225,7 @@ type OmittedDoc struct {
 // Render implements Renderer.
 func (JSON) Render(w io.Writer, r *attribute.Result, opts Options) error {
 	doc := NewRankDocument(r, opts)
-	enc := json.NewEncoder(w)
-	enc.SetIndent("", "  ")
-	return enc.Encode(doc)
+	return writeJSON(w, doc)
 }
 
 // NewRankDocument converts r into the rank document, cut to opts.Limit.

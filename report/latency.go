@@ -2,7 +2,6 @@ package report
 
 import (
 	"bufio"
-	"encoding/csv"
 	"fmt"
 	"html/template"
 	"io"
@@ -13,7 +12,6 @@ import (
 	_ "embed"
 
 	"github.com/culprithq/culprit/attribute"
-	json "github.com/goccy/go-json"
 )
 
 // LatencyRenderer writes a latency analysis in one format.
@@ -261,10 +259,7 @@ func (latencyJSON) RenderLatency(w io.Writer, r *attribute.LatencyResult, opts O
 		}
 		doc.Entries = append(doc.Entries, je)
 	}
-	enc := json.NewEncoder(w)
-	enc.SetIndent("", "  ")
-	enc.SetEscapeHTML(true)
-	return enc.Encode(doc)
+	return writeJSON(w, doc)
 }
 
 type latencyCSV struct{}
@@ -275,7 +270,7 @@ var latencyCSVHeader = []string{"entry", "entry_requests", "p50_ns", "p95_ns", "
 	"tail_path_per_request_ns", "tail_share", "median_share", "summed_per_request_ns"}
 
 func (latencyCSV) RenderLatency(w io.Writer, r *attribute.LatencyResult, opts Options) error {
-	cw := csv.NewWriter(w)
+	cw := newCSVWriter(w)
 	if err := cw.Write(latencyCSVHeader); err != nil {
 		return err
 	}
@@ -283,11 +278,11 @@ func (latencyCSV) RenderLatency(w io.Writer, r *attribute.LatencyResult, opts Op
 	fl := func(f float64) string { return strconv.FormatFloat(share(f), 'f', -1, 64) }
 	for _, e := range r.Entries {
 		causes, cut := latencyCauses(e, opts)
-		head := []string{csvCell(e.Entry), strconv.Itoa(e.Requests), i64(e.P50), i64(e.P95), i64(e.P99), i64(e.Mean),
+		head := []string{e.Entry, strconv.Itoa(e.Requests), i64(e.P50), i64(e.P95), i64(e.P99), i64(e.Mean),
 			i64(e.TailThreshold), strconv.Itoa(e.TailRequests)}
 		for _, c := range causes {
 			all, tail, median := c.Share(e)
-			row := append(append([]string(nil), head...), csvCell(c.Function), string(c.Kind), strconv.FormatBool(c.NoAppFrame),
+			row := append(append([]string(nil), head...), c.Function, string(c.Kind), strconv.FormatBool(c.NoAppFrame),
 				strconv.Itoa(c.Requests), i64(perReq(c.Path, e.Requests)), fl(all), i64(perReq(c.TailPath, e.TailRequests)),
 				fl(tail), fl(median), i64(perReq(c.Summed, e.Requests)))
 			if err := cw.Write(row); err != nil {
@@ -306,19 +301,10 @@ func (latencyCSV) RenderLatency(w io.Writer, r *attribute.LatencyResult, opts Op
 	return cw.Error()
 }
 
-// csvCell keeps a text cell from being read as a formula by spreadsheets
-// (common practice: a leading ' before =, +, -, @, tab or CR).
-func csvCell(s string) string {
-	if s != "" && strings.ContainsRune("=+-@\t\r", rune(s[0])) {
-		return "'" + s
-	}
-	return s
-}
-
 //go:embed latency.tmpl
 var latencyTemplate string
 
-var latencyPage = template.Must(template.New("latency").Funcs(template.FuncMap{
+var latencyPage = template.Must(template.New("latency").Funcs(htmlFuncs).Funcs(template.FuncMap{
 	"dur":    formatDuration,
 	"pct":    Percent,
 	"perReq": func(t int64, n int) string { return formatDuration(perReq(t, n)) },
@@ -378,9 +364,7 @@ func RenderLatencyPaths(w io.Writer, format string, entries []*attribute.Latency
 				Slowest []*attribute.RequestPath `json:"slowest"`
 			}{e.Entry, e.Slowest})
 		}
-		enc := json.NewEncoder(w)
-		enc.SetIndent("", "  ")
-		return enc.Encode(d)
+		return writeJSON(w, d)
 	case "text", "markdown", "":
 	default:
 		return fmt.Errorf("explain --latency writes text, markdown or json, not %q", format)

@@ -3,7 +3,6 @@ package report
 import (
 	"bufio"
 	"bytes"
-	"encoding/csv"
 	"fmt"
 	"html/template"
 	"io"
@@ -120,9 +119,7 @@ func (latencyDiffJSON) RenderLatencyDiff(w io.Writer, c *attribute.LatencyCompar
 	if doc.Routes == nil {
 		doc.Routes = []attribute.RouteChange{}
 	}
-	enc := json.NewEncoder(w)
-	enc.SetIndent("", "  ")
-	return enc.Encode(doc)
+	return writeJSON(w, doc)
 }
 
 type latencyDiffCSV struct{}
@@ -133,7 +130,7 @@ var latencyDiffCSVHeader = []string{"row", "name", "quantile", "base_ns", "candi
 	"relative_change", "rel_lo", "rel_hi", "q_value", "verdict", "kind"}
 
 func (latencyDiffCSV) RenderLatencyDiff(w io.Writer, c *attribute.LatencyComparison, opts Options) error {
-	cw := csv.NewWriter(w)
+	cw := newCSVWriter(w)
 	if err := cw.Write(latencyDiffCSVHeader); err != nil {
 		return err
 	}
@@ -143,7 +140,7 @@ func (latencyDiffCSV) RenderLatencyDiff(w io.Writer, c *attribute.LatencyCompari
 			name string
 			qc   attribute.QuantileChange
 		}{{"p50", r.P50}, {"p95", r.P95}} {
-			row := []string{"route", csvCell(r.Entry), q.name, num(q.qc.Base), num(q.qc.Candidate), num(q.qc.Candidate - q.qc.Base),
+			row := []string{"route", r.Entry, q.name, num(q.qc.Base), num(q.qc.Candidate), num(q.qc.Candidate - q.qc.Base),
 				csvOptional(q.qc.RelativeChange), csvOptional(q.qc.RelLo), csvOptional(q.qc.RelHi), "", string(r.Verdict), ""}
 			if err := cw.Write(row); err != nil {
 				return err
@@ -151,7 +148,7 @@ func (latencyDiffCSV) RenderLatencyDiff(w io.Writer, c *attribute.LatencyCompari
 		}
 	}
 	for _, ch := range shownChanges(c.Causes, opts) {
-		row := []string{"cause", csvCell(ch.Function), "", num(ch.Base), num(ch.Candidate), num(ch.Change),
+		row := []string{"cause", ch.Function, "", num(ch.Base), num(ch.Candidate), num(ch.Change),
 			csvOptional(ch.RelativeChange), csvOptional(ch.RelLo), csvOptional(ch.RelHi), csvOptional(ch.QValue),
 			string(ch.Verdict), string(ch.Kind)}
 		if err := cw.Write(row); err != nil {

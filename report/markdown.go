@@ -235,7 +235,7 @@ func mdText(s string) string {
 		}
 		b.WriteRune(r)
 	}
-	return b.String()
+	return mdAutolinks(b.String())
 }
 
 // mdCode renders s as a code span outside tables. The fence is one
@@ -268,15 +268,15 @@ func longestRun(s string, c byte) int {
 }
 
 // clean makes s one line of valid UTF-8 for people to read: invalid bytes
-// become U+FFFD and control characters (C0, DEL, C1, line and paragraph
-// separators) become spaces.
+// become U+FFFD, control characters (C0, DEL, C1, line and paragraph
+// separators) become spaces and invisible ones \uXXXX (revealInvisible).
 func clean(s string) string {
-	return strings.Map(func(r rune) rune {
+	return revealInvisible(strings.Map(func(r rune) rune {
 		if unicode.IsControl(r) || r == '\u2028' || r == '\u2029' {
 			return ' '
 		}
 		return r
-	}, strings.ToValidUTF8(s, "\uFFFD"))
+	}, strings.ToValidUTF8(s, "\uFFFD")))
 }
 
 // headline is the one-sentence summary of the Markdown and HTML reports.

@@ -8,6 +8,7 @@ import (
 	"strconv"
 	"strings"
 	"text/tabwriter"
+	"unicode"
 	"unicode/utf8"
 
 	"github.com/culprithq/culprit/attribute"
@@ -299,15 +300,16 @@ func site(c *attribute.Cause) string {
 	return file + ":" + strconv.FormatInt(c.Line, 10)
 }
 
-// oneLine replaces control characters (newlines included) with spaces
-// and cuts s to at most max runes.
+// oneLine replaces control characters (newlines included) with spaces,
+// shows invisible ones as \uXXXX (revealInvisible) and cuts s to at most
+// max runes.
 func oneLine(s string, max int) string {
-	s = strings.Map(func(r rune) rune {
-		if r < 0x20 || r == 0x7f {
+	s = revealInvisible(strings.Map(func(r rune) rune {
+		if unicode.IsControl(r) {
 			return ' '
 		}
 		return r
-	}, s)
+	}, s))
 	if max > 1 && utf8.RuneCountInString(s) > max {
 		rs := []rune(s)
 		return string(rs[:max-1]) + "…"

@@ -36,6 +36,11 @@ type Options struct {
 	// large trace files. Nil keeps the raw text.
 	// Source.StatementsNormalized records which was done.
 	Statement func(dst []byte, system, raw string) []byte
+	// ShowLiterals keeps the literal values in span names, database
+	// operation names and summaries, URLs and peers. By default they are
+	// replaced by "?" as spans are decoded; database span names that
+	// hold statements go through Statement first.
+	ShowLiterals bool
 	// SkipDigest leaves Input.SHA256 empty, for reports that do not show
 	// it: hashing is a fifth of the CPU time of reading OTLP/JSON.
 	SkipDigest bool

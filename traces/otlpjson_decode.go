@@ -479,6 +479,9 @@ func (d *decoder) span(sp *jsonSpan, service, scope string, line int64) error {
 	}
 	if problem != "" {
 		msg := fmt.Sprintf("span %q skipped: invalid %s", truncate(sp.Name, 60), problem)
+		if !d.c.opts.ShowLiterals {
+			msg = redactText(msg)
+		}
 		if d.c.opts.Strict {
 			d.b.err = &ParseError{File: d.name, Line: clampLine(line), Err: fmt.Errorf("%w: %s: %s", ErrSpanRepair, WarnInvalidID, msg)}
 			return nil
@@ -496,11 +499,17 @@ func (d *decoder) span(sp *jsonSpan, service, scope string, line int64) error {
 	frame, call, route := spanDetails(SpanKind(sp.Kind), sp.Name, service, scope, &d.attrs, &d.memo)
 	if frame.SpanKind != SpanKind(sp.Kind) {
 		msg := fmt.Sprintf("database span %q has no known span kind; it is taken as a CLIENT span", truncate(sp.Name, 60))
+		if !d.c.opts.ShowLiterals {
+			msg = redactText(msg) // the name may hold a statement
+		}
 		if d.c.opts.Strict {
 			d.b.err = &ParseError{File: d.name, Line: clampLine(line), Err: fmt.Errorf("%w: %s: %s", ErrSpanRepair, WarnUnknownSpanKind, msg)}
 			return nil
 		}
 		d.b.warnings = append(d.b.warnings, Warning{Kind: WarnUnknownSpanKind, File: d.name, Line: clampLine(line), Message: msg})
+	}
+	if !d.c.opts.ShowLiterals {
+		d.redactSpan(sp.Name, &frame, &call, &route)
 	}
 	if call.Statement != "" && d.c.opts.Statement != nil {
 		// Normalise here, in the parallel decoders, so that calls differing

@@ -5,6 +5,7 @@ import (
 	"io"
 
 	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/report"
 	"github.com/spf13/cobra"
 )
 
@@ -24,10 +25,11 @@ func newGraphCmd(s *streams, runF func(context.Context, *graphOptions) error) *c
 		Short: "Export the attribution graph as DOT",
 		Long: `Graph writes the attribution subgraph in Graphviz DOT: entry points,
 application functions and the database and network calls they reach, with
-library frames elided. Edges are weighted and labelled with the cost charged
-along them. Shapes by class: database cylinder, network hexagon, entry house,
-application bold box. --min-share prunes functions below a share of the
-database and network cost.`,
+library frames elided. Nodes and edges are labelled with the cost charged
+along them and its share of database and network cost. Shapes by class:
+database cylinder, network hexagon, entry house, application bold box.
+Names appear only in quoted labels. --min-share prunes functions below a
+share of the database and network cost.`,
 		Example: `  culprit graph profiles/ -o charge.dot && dot -Tsvg charge.dot > charge.svg
   culprit graph traces.jsonl --min-share 0.05`,
 		Args: minArgs(1),
@@ -61,8 +63,14 @@ func runGraph(ctx context.Context, opts *graphOptions) error {
 	if err != nil {
 		return err
 	}
-	tree, cls := b.tree, b.cls
-	g := attribute.ChargeGraph(tree, cls, opts.analysis.attributeOptions(), opts.minShare)
+	aopts := opts.analysis.attributeOptions()
+	g := attribute.ChargeGraph(b.tree, b.cls, aopts, opts.minShare)
+	vi, err := src.ValueIndex(aopts.Value)
+	if err != nil {
+		vi = src.DefaultValue
+	}
+	unit := src.ValueTypes[vi].Unit
+	g.Format = func(v float64) string { return report.FormatValue(int64(v), unit) }
 	data, err := g.MarshalDOT()
 	if err != nil {
 		return err

@@ -246,6 +246,8 @@ func (f *analysisFlags) read(ctx context.Context, s *streams, names []string, ki
 		Service:    f.Service,
 		SkipDigest: f.skipDigest,
 		Timing:     f.timing,
+
+		ShowLiterals: f.ShowLiterals,
 	}
 	if !f.ShowLiterals {
 		// Fingerprint while decoding: literals never reach memory, and calls
