@@ -46,8 +46,9 @@ or a directory of them; use --base and --candidate (repeatable) to list several
 files per side. Costs are normalised per request when both sides know requests,
 else per second of profile duration, else compared as shares; the report says
 which. Sample counts are compared as Poisson rates (exact conditional test),
-per-request costs with a Mann-Whitney test and a bootstrap interval; p-values
-are adjusted across root causes (Benjamini-Hochberg). "Regressed" needs
+per-request costs and calls (traces) by a percentile bootstrap of the ratio
+of means whose p-value inverts its interval; p-values are adjusted across
+root causes (Benjamini-Hochberg). "Regressed" needs
 q <= --alpha and an interval whose lower bound clears the budget; every
 comparison prints the smallest change it could have detected.
 
