@@ -84,18 +84,15 @@ type latencyText struct{}
 
 func (latencyText) RenderLatency(w io.Writer, r *attribute.LatencyResult, opts Options) error {
 	bw := bufio.NewWriter(w)
-	width := opts.Width
-	if width <= 0 {
-		width = 100
-	}
-	fmt.Fprintln(bw, oneLine(newLatencyHeadline(r).Sentence, 0))
-	fmt.Fprintf(bw, "critical paths of %s from %s; tail: requests at or above their entry point's %s\n",
-		plural(r.Requests, "request", "requests"), oneLine(latencyInputs(r), 200), quantileText(r.Tail))
+	width := textWidth(opts)
+	writeWrapped(bw, newLatencyHeadline(r).Sentence, width, "  ")
+	writeWrapped(bw, fmt.Sprintf("Critical paths of %s from %s; tail: requests at or above their entry point's %s.",
+		plural(r.Requests, "request", "requests"), oneLine(latencyInputs(r), 200), quantileText(r.Tail)), width, "  ")
 	for _, e := range r.Entries {
 		fmt.Fprintln(bw)
-		fmt.Fprintf(bw, "%s — %s; p50 %s, p95 %s, p99 %s, mean %s; tail %s (≥ %s)\n", oneLine(e.Entry, 0),
+		writeWrapped(bw, fmt.Sprintf("%s — %s; p50 %s, p95 %s, p99 %s, mean %s; tail %s (≥ %s)", oneLine(e.Entry, 0),
 			plural(e.Requests, "request", "requests"), formatDuration(e.P50), formatDuration(e.P95), formatDuration(e.P99),
-			formatDuration(e.Mean), plural(e.TailRequests, "request", "requests"), formatDuration(e.TailThreshold))
+			formatDuration(e.Mean), plural(e.TailRequests, "request", "requests"), formatDuration(e.TailThreshold)), width, "  ")
 		causes, cut := latencyCauses(e, opts)
 		// The fixed columns take 55 runes; the name gets the rest.
 		nameW := max(16, width-55)
@@ -112,10 +109,9 @@ func (latencyText) RenderLatency(w io.Writer, r *attribute.LatencyResult, opts O
 		}
 	}
 	fmt.Fprintln(bw)
-	fmt.Fprintln(bw, "ON PATH: mean time per request on the critical path (what requests waited for); TAIL: the same over")
-	fmt.Fprintln(bw, "the tail requests; SUMMED: the cause's whole time per request, parallel work included.")
+	writeWrapped(bw, "ON PATH: mean time per request on the critical path (what requests waited for); TAIL: the same over the tail requests; SUMMED: the cause's whole time per request, parallel work included.", width, "")
 	for _, wn := range r.Warnings {
-		fmt.Fprintln(bw, "warning: "+oneLine(wn, 400))
+		writeWrapped(bw, "warning: "+oneLine(wn, 400), width, "  ")
 	}
 	return bw.Flush()
 }

@@ -51,7 +51,7 @@ func (d latencyDiffDoc) RenderLatencyDiff(w io.Writer, c *attribute.LatencyCompa
 		mdRow(bw, []string{"Entry point", "Verdict (p95)", "Requests", "p50", "p95"})
 		mdRow(bw, []string{"---", "---", "---:", "---", "---"})
 	} else {
-		fmt.Fprintf(bw, "culprit diff --latency: %s (p50 and p95 with %s bootstrap intervals; the verdict follows p95)\n", strings.ToLower(title), pctText(attribute.CompareConfidence))
+		writeWrapped(bw, fmt.Sprintf("culprit diff --latency: %s (p50 and p95 with %s bootstrap intervals; the verdict follows p95)", strings.ToLower(title), pctText(attribute.CompareConfidence)), textWidth(opts), "  ")
 	}
 	for _, r := range c.Routes {
 		reqs := fmt.Sprintf("%d → %d", r.BaseRequests, r.CandRequests)
@@ -74,11 +74,9 @@ func (d latencyDiffDoc) RenderLatencyDiff(w io.Writer, c *attribute.LatencyCompa
 				formatDuration(ch.Candidate), relText(ch), qText(ch.QValue), mdeText(ch)})
 		}
 	} else {
-		width := opts.Width
-		if width <= 0 {
-			width = 100
-		}
-		fmt.Fprintf(bw, "\nTime on the critical path per request of its entry point, per root cause: %s\n", oneLine(newDiffHeadline(cs).Lead, 0))
+		width := textWidth(opts)
+		fmt.Fprintln(bw)
+		writeWrapped(bw, "Time on the critical path per request of its entry point, per root cause: "+newDiffHeadline(cs).Lead, width, "  ")
 		fmt.Fprintf(bw, "%-12s %8s   %8s  %-22s %-8s %s\n", "VERDICT", "BASE", "CAND", "RELATIVE ["+confText(cs.Confidence)+" CI]", "Q", "KIND")
 		fmt.Fprintf(bw, "    ENTRY POINT: ROOT CAUSE\n")
 		for _, ch := range changes {
@@ -91,16 +89,26 @@ func (d latencyDiffDoc) RenderLatencyDiff(w io.Writer, c *attribute.LatencyCompa
 	if more := hiddenChanges(cs, opts); more > 0 {
 		fmt.Fprintf(bw, "\n(%d more not shown; --limit 0 shows all)\n", more)
 	}
+	width := textWidth(opts)
+	line := func(text string) {
+		if md {
+			fmt.Fprintln(bw, oneLine(text, 0))
+		} else {
+			writeWrapped(bw, text, width, "  ")
+		}
+	}
 	if b := belowText(cs, 5); b != "" {
-		fmt.Fprintln(bw, "\n"+oneLine(b, 0))
+		fmt.Fprintln(bw)
+		line(b)
 	}
 	fmt.Fprintln(bw)
 	for _, wn := range cs.Warnings {
-		fmt.Fprintln(bw, "warning: "+oneLine(wn, 400))
+		line("warning: " + oneLine(wn, 400))
 	}
-	fmt.Fprintln(bw, "note: "+unchangedNote(cs))
-	fmt.Fprintf(bw, "Significance: q ≤ %s (Benjamini–Hochberg across causes), one bootstrap per request giving p-value and %s interval; budget %s.\n",
+	line("note: " + unchangedNote(cs))
+	sig := fmt.Sprintf("Significance: q ≤ %s (Benjamini–Hochberg across causes), one bootstrap per request giving p-value and %s interval; budget %s.",
 		strconv.FormatFloat(cs.Alpha, 'g', -1, 64), confText(cs.Confidence), budgetText(cs))
+	line(sig)
 	return bw.Flush()
 }
 
