@@ -2,8 +2,10 @@ package main
 
 import (
 	"encoding/json"
+	"strconv"
 	"strings"
 	"testing"
+	"unicode/utf8"
 )
 
 // TestLatencyCommand runs culprit latency on the demo traces in every
@@ -164,5 +166,28 @@ func TestDiffLatency(t *testing.T) {
 	}
 	if code, _, _ := runTest(t, "", "diff", "--latency", "demo/greenhouse-v41.goroutine.1.pb.gz", v42); code != exitError {
 		t.Errorf("diff --latency with a profile: exit %d, want %d", code, exitError)
+	}
+}
+
+// TestLatencyTextFitsWidth: at 80 and 200 columns no line of the latency
+// report or of its diff is longer than the width.
+func TestLatencyTextFitsWidth(t *testing.T) {
+	const v41, v42 = "demo/greenhouse-v41.traces.jsonl.gz", "demo/greenhouse-v42.traces.jsonl.gz"
+	for _, width := range []int{80, 200} {
+		w := strconv.Itoa(width)
+		for _, args := range [][]string{
+			{"latency", "--width", w, v42},
+			{"diff", "--latency", "--width", w, v41, v42},
+		} {
+			code, out, errOut := runTest(t, "", args...)
+			if code != exitOK {
+				t.Fatalf("%v: exit %d: %s", args, code, errOut)
+			}
+			for _, line := range strings.Split(out, "\n") {
+				if n := utf8.RuneCountInString(line); n > width {
+					t.Errorf("%v: line of %d runes: %q", args, n, line)
+				}
+			}
+		}
 	}
 }
