@@ -1,6 +1,7 @@
 package attribute
 
 import (
+	"github.com/culprithq/culprit/attribute/stats"
 	"sort"
 	"sync"
 
@@ -226,5 +227,5 @@ func requestIDs(src *traces.Source, keys []string) []traces.RequestID {
 // interpolation between order statistics).
 func distribution(xs []float64) *Distribution {
 	sort.Float64s(xs)
-	return &Distribution{Median: Quantile(xs, 0.5), P95: Quantile(xs, 0.95), Max: xs[len(xs)-1]}
+	return &Distribution{Median: stats.Quantile(xs, 0.5), P95: stats.Quantile(xs, 0.95), Max: xs[len(xs)-1]}
 }

@@ -3,6 +3,7 @@ package attribute
 import (
 	"cmp"
 	"fmt"
+	"github.com/culprithq/culprit/attribute/stats"
 	"hash/fnv"
 	"math"
 	"runtime"
@@ -357,7 +358,7 @@ func Compare(base, cand *Snapshot, opts CompareOptions) *Comparison {
 		Confidence: CompareConfidence,
 		Budget:     budget,
 		Seed:       opts.Seed,
-		Resamples:  DefaultBootstrapResamples,
+		Resamples:  stats.DefaultBootstrapResamples,
 		Changes:    []Change{},
 		Warnings:   []string{},
 	}
@@ -398,7 +399,7 @@ func Compare(base, cand *Snapshot, opts CompareOptions) *Comparison {
 		}
 	}
 	slices.Sort(ids)
-	stats := make([]changeStat, len(ids))
+	cstats := make([]changeStat, len(ids))
 	var wg sync.WaitGroup
 	sem := make(chan struct{}, runtime.GOMAXPROCS(0))
 	for i, id := range ids {
@@ -406,7 +407,7 @@ func Compare(base, cand *Snapshot, opts CompareOptions) *Comparison {
 		sem <- struct{}{}
 		go func() {
 			defer func() { <-sem; wg.Done() }()
-			stats[i] = compareCause(id, bg[id], cg[id], bs, cs, perRequest, opts.Seed)
+			cstats[i] = compareCause(id, bg[id], cg[id], bs, cs, perRequest, opts.Seed)
 		}()
 	}
 	wg.Wait()
@@ -422,24 +423,24 @@ func Compare(base, cand *Snapshot, opts CompareOptions) *Comparison {
 	// interval excludes "no change" exactly when q ≤ α.
 	var ps []float64
 	var tests []*test
-	for i := range stats {
-		if stats[i].below {
+	for i := range cstats {
+		if cstats[i].below {
 			// Filtered out before testing (independent of the outcome, so
 			// the procedure stays valid: Bourgon, Gentleman & Huber,
 			// PNAS 107, 2010).
-			stats[i].time.ok, stats[i].time.p = false, math.NaN()
-			stats[i].calls.ok, stats[i].calls.p = false, math.NaN()
+			cstats[i].time.ok, cstats[i].time.p = false, math.NaN()
+			cstats[i].calls.ok, cstats[i].calls.p = false, math.NaN()
 			continue
 		}
-		tests = append(tests, &stats[i].time)
-		if stats[i].hasCalls {
-			tests = append(tests, &stats[i].calls)
+		tests = append(tests, &cstats[i].time)
+		if cstats[i].hasCalls {
+			tests = append(tests, &cstats[i].calls)
 		}
 	}
 	for _, t := range tests {
 		ps = append(ps, t.p)
 	}
-	qs := BenjaminiHochberg(ps)
+	qs := stats.BenjaminiHochberg(ps)
 	m, rejected := 0, 0
 	for i, t := range tests {
 		t.q = qs[i]
@@ -458,9 +459,9 @@ func Compare(base, cand *Snapshot, opts CompareOptions) *Comparison {
 	for _, t := range tests {
 		t.level(gamma)
 	}
-	statementQValues(stats)
-	for i := range stats {
-		st := &stats[i]
+	statementQValues(cstats)
+	for i := range cstats {
+		st := &cstats[i]
 		st.decide(alpha, budget)
 		if st.note != "" {
 			cmpn.Warnings = append(cmpn.Warnings, st.note)
@@ -763,7 +764,7 @@ func compareCause(id string, bg, cg *group, bs, cs *side, perRequest bool, seed 
 	if perRequest {
 		st.note = fmt.Sprintf("%s: no per-request costs on one side; compared span counts as Poisson rates", st.functions[0])
 	}
-	rt := PoissonRateTest(float64(st.baseN), float64(st.candN), bs.exposure, cs.exposure)
+	rt := stats.PoissonRateTest(float64(st.baseN), float64(st.candN), bs.exposure, cs.exposure)
 	if math.IsNaN(rt.P) {
 		st.note = fmt.Sprintf("%s: no valid exposure (requests, seconds or boundary samples) on one side; not tested", st.functions[0])
 		return st
@@ -789,12 +790,12 @@ func (t *test) bootstrap(vb, vc []float64, seed uint64) {
 	if t.base > 0 {
 		t.rel = t.cand/t.base - 1
 	}
-	t.ratios = BootstrapRatios(vb, vc, DefaultBootstrapResamples, seed)
+	t.ratios = stats.BootstrapRatios(vb, vc, stats.DefaultBootstrapResamples, seed)
 	if len(t.ratios) == 0 {
 		return
 	}
 	t.ok = true
-	t.p = BootstrapRatioP(t.ratios)
+	t.p = stats.BootstrapRatioP(t.ratios)
 }
 
 // level sets the interval and the MDE of t at confidence 1 − gamma.
@@ -805,18 +806,18 @@ func (t *test) level(gamma float64) {
 	switch {
 	case t.ratios != nil:
 		if t.base > 0 {
-			lo, hi := BootstrapRatioBounds(t.ratios, gamma)
+			lo, hi := stats.BootstrapRatioBounds(t.ratios, gamma)
 			t.lo, t.hi = lo-1, hi-1
-			t.mde = BootstrapMDE(t.ratios, gamma, ComparePower)
+			t.mde = stats.BootstrapMDE(t.ratios, gamma, ComparePower)
 		}
 	default:
 		if t.n-t.k > 0 {
-			lo, hi := ClopperPearson(t.k, t.n, 1-gamma)
+			lo, hi := stats.ClopperPearson(t.k, t.n, 1-gamma)
 			t.lo, t.hi = lo/(1-lo)*t.odds-1, hi/(1-hi)*t.odds-1
 			if hi == 1 {
 				t.hi = math.Inf(1)
 			}
-			t.mde = MinDetectableRatio(float64(t.n-t.k), float64(t.k), gamma, ComparePower) - 1
+			t.mde = stats.MinDetectableRatio(float64(t.n-t.k), float64(t.k), gamma, ComparePower) - 1
 		}
 	}
 }
@@ -1025,18 +1026,18 @@ func (t *test) pointers(both bool) (rel, lo, hi, p, q, mde *float64) {
 
 // statementQValues adjusts the p-values of every statement of the
 // comparison together by Benjamini–Hochberg.
-func statementQValues(stats []changeStat) {
+func statementQValues(cstats []changeStat) {
 	var ps []float64
 	var at []*StatementChange
-	for i := range stats {
-		for j := range stats[i].statements {
-			if sc := &stats[i].statements[j]; sc.PValue != nil {
+	for i := range cstats {
+		for j := range cstats[i].statements {
+			if sc := &cstats[i].statements[j]; sc.PValue != nil {
 				ps = append(ps, *sc.PValue)
 				at = append(at, sc)
 			}
 		}
 	}
-	for i, q := range BenjaminiHochberg(ps) {
+	for i, q := range stats.BenjaminiHochberg(ps) {
 		at[i].QValue = finite(q)
 	}
 }
@@ -1079,7 +1080,7 @@ func statementChanges(bg, cg *group, nb, nc float64) []StatementChange {
 		sc.New = bg != nil && sc.baseCalls == 0 && sc.candCalls > 0
 		sc.Gone = cg != nil && sc.candCalls == 0 && sc.baseCalls > 0
 		if bg != nil && cg != nil && sc.baseCalls+sc.candCalls > 0 {
-			sc.PValue = finite(PoissonRateTest(float64(sc.baseCalls), float64(sc.candCalls), nb, nc).P)
+			sc.PValue = finite(stats.PoissonRateTest(float64(sc.baseCalls), float64(sc.candCalls), nb, nc).P)
 		}
 	}
 	return out

@@ -3,6 +3,7 @@ package attribute
 import (
 	"cmp"
 	"errors"
+	"github.com/culprithq/culprit/attribute/stats"
 	"slices"
 
 	"github.com/culprithq/culprit/callgraph"
@@ -588,9 +589,9 @@ func (r *latencyRun) quantiles(entries []*LatencyEntry, reqs []reqRecord, tail f
 			sum += l
 		}
 		e.Requests = len(lat)
-		e.P50, e.P95, e.P99 = Quantile(lat, 0.5), Quantile(lat, 0.95), Quantile(lat, 0.99)
+		e.P50, e.P95, e.P99 = stats.Quantile(lat, 0.5), stats.Quantile(lat, 0.95), stats.Quantile(lat, 0.99)
 		e.Mean = sum / float64(len(lat))
-		e.TailThreshold = Quantile(lat, tail)
+		e.TailThreshold = stats.Quantile(lat, tail)
 		if keep {
 			e.latencies = lat
 		}

@@ -4,6 +4,7 @@ import (
 	"cmp"
 	"errors"
 	"fmt"
+	"github.com/culprithq/culprit/attribute/stats"
 	"io"
 	"math"
 	"math/rand/v2"
@@ -266,10 +267,10 @@ func (c *LatencyComparison) Gate() []Change {
 func quantileChange(vb, vc []float64, q float64) QuantileChange {
 	var qc QuantileChange
 	if len(vb) > 0 {
-		qc.Base = Quantile(vb, q)
+		qc.Base = stats.Quantile(vb, q)
 	}
 	if len(vc) > 0 {
-		qc.Candidate = Quantile(vc, q)
+		qc.Candidate = stats.Quantile(vc, q)
 	}
 	if len(vb) > 0 && len(vc) > 0 && qc.Base > 0 {
 		rel := qc.Candidate/qc.Base - 1
@@ -319,10 +320,10 @@ func bootstrapQuantileRatios(b, c []float64, reps int, conf float64, rng *rand.R
 	nan := math.NaN()
 	lo50, hi50, lo95, hi95 = nan, nan, nan, nan
 	if len(r50) > 0 {
-		lo50, hi50 = Quantile(r50, a), Quantile(r50, 1-a)
+		lo50, hi50 = stats.Quantile(r50, a), stats.Quantile(r50, 1-a)
 	}
 	if len(r95) > 0 {
-		lo95, hi95 = Quantile(r95, a), Quantile(r95, 1-a)
+		lo95, hi95 = stats.Quantile(r95, a), stats.Quantile(r95, 1-a)
 	}
 	return
 }

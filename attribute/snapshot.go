@@ -6,6 +6,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"github.com/culprithq/culprit/attribute/stats"
 	"io"
 	"math"
 	"slices"
@@ -361,7 +362,7 @@ func shareOf(cost, samples, denom, boundarySamples int64, sampled bool) (share, 
 	}
 	if sampled && boundarySamples > 0 {
 		k := min(samples, boundarySamples)
-		margin = 1.96 * BinomialSE(int(k), int(boundarySamples))
+		margin = 1.96 * stats.BinomialSE(int(k), int(boundarySamples))
 	}
 	return share, margin
 }

@@ -2,6 +2,7 @@ package attribute
 
 import (
 	"cmp"
+	"github.com/culprithq/culprit/attribute/stats"
 	"math"
 	"math/bits"
 	"slices"
@@ -305,7 +306,7 @@ func (a *causeAcc) finish(src *traces.Source, denom, boundarySamples int64, samp
 	if sampled && boundarySamples > 0 {
 		// In the inclusive view a sample counts for several causes; cap k at n.
 		k := min(c.Samples, boundarySamples)
-		c.ShareMargin = 1.96 * BinomialSE(int(k), int(boundarySamples))
+		c.ShareMargin = 1.96 * stats.BinomialSE(int(k), int(boundarySamples))
 	}
 	c.Requests = len(a.perReq)
 	if keep && len(a.perReq) > 0 {
