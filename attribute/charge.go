@@ -1,10 +1,10 @@
 package attribute
 
 import (
-	"github.com/culprithq/culprit/attribute/stats"
 	"sort"
 	"sync"
 
+	"github.com/culprithq/culprit/attribute/stats"
 	"github.com/culprithq/culprit/callgraph"
 	"github.com/culprithq/culprit/traces"
 )
@@ -223,8 +223,11 @@ func requestIDs(src *traces.Source, keys []string) []traces.RequestID {
 	return out
 }
 
-// distribution returns the median, p95 and max of xs (linear
-// interpolation between order statistics).
+// NewDistribution returns the median, p95 and max of xs (linear
+// interpolation between order statistics); it sorts xs.
+func NewDistribution(xs []float64) *Distribution { return distribution(xs) }
+
+// distribution is NewDistribution.
 func distribution(xs []float64) *Distribution {
 	sort.Float64s(xs)
 	return &Distribution{Median: stats.Quantile(xs, 0.5), P95: stats.Quantile(xs, 0.95), Max: xs[len(xs)-1]}

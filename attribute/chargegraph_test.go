@@ -6,7 +6,6 @@ import (
 	"testing"
 
 	"github.com/culprithq/culprit/callgraph"
-
 	"gonum.org/v1/gonum/graph/formats/dot"
 	"gonum.org/v1/gonum/graph/formats/dot/ast"
 )

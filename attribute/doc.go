@@ -27,11 +27,12 @@
 // graph, callgraph.FuncGraph, confirmed on paths), and many network calls
 // per request to one peer.
 //
-// Statements are fingerprinted (Fingerprint) so that literals never leave
-// the tool unless asked. The statistics (stats.go, bootstrap.go) implement the
-// published tests used to compare two builds.
+// Statements are fingerprinted (traces/statement) so that literals never
+// leave the tool unless asked. The latency view (Latency) walks each
+// request's critical path and charges its pieces with the same records.
+// Snapshots and the comparison of two builds are in attribute/compare,
+// the statistical tests in attribute/stats.
 //
-// The package opens no files: rules, domains and snapshot files are read
-// from an io.Reader, and snapshots written to an io.Writer, that cmd
-// provides.
+// The package opens no files: rules and domains files are read from an
+// io.Reader that cmd provides.
 package attribute

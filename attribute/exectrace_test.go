@@ -19,15 +19,14 @@ import (
 	"testing"
 	"time"
 
+	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/callgraph"
+	"github.com/culprithq/culprit/traces"
 	xtrace "golang.org/x/exp/trace"
 	"golang.org/x/sync/errgroup"
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/credentials/insecure"
 	"google.golang.org/protobuf/types/known/emptypb"
-
-	"github.com/culprithq/culprit/attribute"
-	"github.com/culprithq/culprit/callgraph"
-	"github.com/culprithq/culprit/traces"
 )
 
 // The workload of the execution-trace tests: a plant nursery's HTTP

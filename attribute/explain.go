@@ -168,7 +168,7 @@ func (n *ExplainNode) finish() {
 		for _, d := range x.details {
 			x.Statements = append(x.Statements, *d)
 		}
-		sortDetails(x.Statements)
+		SortDetails(x.Statements)
 		stack = append(stack, x.Children...)
 	}
 }

@@ -270,7 +270,7 @@ func findings(res *Result, accs map[string]*causeAcc, o FindingOptions, denom in
 			out = append(out, f)
 		}
 	}
-	sortFindings(out)
+	SortFindings(out)
 	return out
 }
 

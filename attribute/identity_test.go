@@ -2,8 +2,6 @@ package attribute
 
 import (
 	"testing"
-
-	"github.com/culprithq/culprit/traces"
 )
 
 // The Go names below have the shapes the Go toolchain gives closures,
@@ -132,43 +130,3 @@ func TestIdentityDistinct(t *testing.T) {
 		})
 	}
 }
-
-// TestCompareMovedLines checks that a function whose call site moved
-// (same name, another line) is one cause across builds, not a gone and a
-// new one, and that renumbered closures match too.
-func TestCompareMovedLines(t *testing.T) {
-	tests := []struct {
-		name       string
-		base, cand SnapshotCause
-	}{
-		{"moved line",
-			SnapshotCause{Function: "example.com/shop/store.loadOrders", File: "store/orders.go", Line: 44},
-			SnapshotCause{Function: "example.com/shop/store.loadOrders", File: "store/orders.go", Line: 61}},
-		{"renumbered closure",
-			SnapshotCause{Function: "example.com/shop/api.handler.func2", File: "api/api.go", Line: 30},
-			SnapshotCause{Function: "example.com/shop/api.handler.func3", File: "api/api.go", Line: 35}},
-		{"lambda renumbered",
-			SnapshotCause{Function: "com.example.shop.Orders.lambda$load$1", File: "Orders.java", Line: 88},
-			SnapshotCause{Function: "com.example.shop.Orders.lambda$load$4", File: "Orders.java", Line: 90}},
-	}
-	for _, tt := range tests {
-		t.Run(tt.name, func(t *testing.T) {
-			mk := func(c SnapshotCause) *Snapshot {
-				c.Identity = Identity(c.Function)
-				c.Kind, c.Cost, c.Database, c.Samples = KindDatabase, 100, 100, 100
-				return &Snapshot{Schema: SnapshotSchema, SourceKind: "profile", ValueType: samplesType, Sampled: true,
-					DurationNanos: 10e9, Totals: Totals{Cost: 200, Database: 100, Other: 100, Samples: 200, BoundarySamples: 100},
-					Causes: []SnapshotCause{c}}
-			}
-			cmp := Compare(mk(tt.base), mk(tt.cand), CompareOptions{})
-			if len(cmp.Changes) != 1 {
-				t.Fatalf("got %d changes, want 1: %+v", len(cmp.Changes), cmp.Changes)
-			}
-			if ch := cmp.Changes[0]; ch.Verdict != OutcomeUnchanged || ch.Function != tt.cand.Function {
-				t.Errorf("change = %s %s, want unchanged %s", ch.Function, ch.Verdict, tt.cand.Function)
-			}
-		})
-	}
-}
-
-var samplesType = traces.ValueType{Type: "samples", Unit: "count"}

@@ -3,9 +3,9 @@ package attribute
 import (
 	"cmp"
 	"errors"
-	"github.com/culprithq/culprit/attribute/stats"
 	"slices"
 
+	"github.com/culprithq/culprit/attribute/stats"
 	"github.com/culprithq/culprit/callgraph"
 	"github.com/culprithq/culprit/traces"
 )
@@ -108,6 +108,19 @@ type LatencyCause struct {
 	entry   int32     // index of its entry point while it is being tallied
 	reqPath []float64 // time on the path per request where it has some (Vectors)
 }
+
+// RequestPath returns the cause's time on the critical path in each
+// request where it has some, ascending; nil unless the analysis kept
+// per-request values (LatencyOptions.Vectors). Do not modify it.
+func (c *LatencyCause) RequestPath() []float64 { return c.reqPath }
+
+// Latencies returns the entry point's request latencies, ascending; nil
+// unless the analysis kept per-request values. Do not modify it.
+func (e *LatencyEntry) Latencies() []float64 { return e.latencies }
+
+// HasVectors reports whether the analysis kept per-request values
+// (LatencyOptions.Vectors), which a latency snapshot needs.
+func (r *LatencyResult) HasVectors() bool { return r.vectors }
 
 // Share returns the cause's fraction of the entry point's latency over
 // all requests, the tail and the median requests.

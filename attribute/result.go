@@ -129,6 +129,18 @@ type Cause struct {
 // are not listed. The slice must not be modified.
 func (c *Cause) RequestCosts() []float64 { return c.requestCosts }
 
+// RequestCalls returns the cause's calls (spans) or samples in each
+// request where it appears, in ascending order; nil when requests are
+// unknown. The slice must not be modified.
+func (c *Cause) RequestCalls() []float64 { return c.requestCalls }
+
+// SetRequestVectors sets the per-request costs and calls that
+// RequestCosts and RequestCalls return (ascending; a snapshot read back
+// restores them). The cause keeps the slices.
+func (c *Cause) SetRequestVectors(costs, calls []float64) {
+	c.requestCosts, c.requestCalls = costs, calls
+}
+
 // CallSite is one line in a root-cause function that called out.
 type CallSite struct {
 	File string `json:"file"`
@@ -199,9 +211,9 @@ type Finding struct {
 	Depth int `json:"depth,omitempty"`
 }
 
-// sortDetails orders details by cost (descending), then statement, peer,
+// SortDetails orders details by cost (descending), then statement, peer,
 // kind and system: the one order every report and snapshot uses.
-func sortDetails(ds []Detail) {
+func SortDetails(ds []Detail) {
 	sort.SliceStable(ds, func(i, j int) bool {
 		x, y := ds[i], ds[j]
 		if x.Cost != y.Cost {
@@ -223,9 +235,9 @@ func sortDetails(ds []Detail) {
 	})
 }
 
-// sortFindings orders findings by cost (descending), then kind, function,
+// SortFindings orders findings by cost (descending), then kind, function,
 // statement and peer.
-func sortFindings(fs []Finding) {
+func SortFindings(fs []Finding) {
 	sort.SliceStable(fs, func(i, j int) bool {
 		a, b := fs[i], fs[j]
 		if a.Cost != b.Cost {

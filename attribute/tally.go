@@ -2,11 +2,11 @@ package attribute
 
 import (
 	"cmp"
-	"github.com/culprithq/culprit/attribute/stats"
 	"math"
 	"math/bits"
 	"slices"
 
+	"github.com/culprithq/culprit/attribute/stats"
 	"github.com/culprithq/culprit/traces"
 )
 
@@ -346,7 +346,7 @@ func (a *causeAcc) finish(src *traces.Source, denom, boundarySamples int64, samp
 			c.Statements = append(c.Statements, *d)
 		}
 	}
-	sortDetails(c.Statements)
+	SortDetails(c.Statements)
 	for _, e := range a.entries {
 		if e != nil {
 			c.EntryPoints = append(c.EntryPoints, *e)

@@ -7,7 +7,7 @@ import (
 	"strconv"
 	"strings"
 
-	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 )
 
 // DiffSchema is the version tag of the diff JSON document.
@@ -17,12 +17,12 @@ const DiffSchema = "culprit.diff/v1"
 type DiffRenderer interface {
 	// RenderDiff writes c to w. Options.Limit caps the changes shown (in
 	// the order of c.Changes, most severe first); c is not modified.
-	RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) error
+	RenderDiff(w io.Writer, c *compare.Comparison, opts Options) error
 }
 
 // shownChanges returns the tested changes to show under opts.Limit; the
 // changes below detection (sorted last) are left for belowChanges.
-func shownChanges(c *attribute.Comparison, opts Options) []attribute.Change {
+func shownChanges(c *compare.Comparison, opts Options) []compare.Change {
 	tested := c.Changes
 	for i, ch := range c.Changes {
 		if ch.BelowDetection {
@@ -37,7 +37,7 @@ func shownChanges(c *attribute.Comparison, opts Options) []attribute.Change {
 }
 
 // belowChanges returns the changes with too little evidence to test.
-func belowChanges(c *attribute.Comparison) []attribute.Change {
+func belowChanges(c *compare.Comparison) []compare.Change {
 	for i, ch := range c.Changes {
 		if ch.BelowDetection {
 			return c.Changes[i:]
@@ -47,14 +47,14 @@ func belowChanges(c *attribute.Comparison) []attribute.Change {
 }
 
 // hiddenChanges counts the tested changes that opts.Limit cuts.
-func hiddenChanges(c *attribute.Comparison, opts Options) int {
+func hiddenChanges(c *compare.Comparison, opts Options) int {
 	return len(c.Changes) - len(belowChanges(c)) - len(shownChanges(c, opts))
 }
 
 // belowText is the line that stands for the changes below detection:
 // "3 root causes below detection (too few samples or requests for any
 // change to be significant): a, b, c".
-func belowText(c *attribute.Comparison, names int) string {
+func belowText(c *compare.Comparison, names int) string {
 	below := belowChanges(c)
 	if len(below) == 0 {
 		return ""
@@ -73,7 +73,7 @@ func belowText(c *attribute.Comparison, names int) string {
 
 // verdictText is the verdict with its reasons when calls were compared:
 // "regressed (calls)", "regressed (time, calls)".
-func verdictText(ch attribute.Change) string {
+func verdictText(ch compare.Change) string {
 	if ch.Calls == nil || len(ch.Reasons) == 0 {
 		return string(ch.Verdict)
 	}
@@ -82,7 +82,7 @@ func verdictText(ch attribute.Change) string {
 
 // callsText renders the mean calls per request on both sides, "8.9 →
 // 17.9"; "-" when calls were not compared.
-func callsText(ch attribute.Change) string {
+func callsText(ch compare.Change) string {
 	if ch.Calls == nil {
 		return "-"
 	}
@@ -91,16 +91,16 @@ func callsText(ch attribute.Change) string {
 
 // callsRelText renders the relative change of calls per request with its
 // interval, like relText; "-" when calls were not compared.
-func callsRelText(ch attribute.Change) string {
+func callsRelText(ch compare.Change) string {
 	if ch.Calls == nil {
 		return "-"
 	}
 	cc := ch.Calls
-	return relText(attribute.Change{Verdict: ch.Verdict, RelativeChange: cc.RelativeChange, RelLo: cc.RelLo, RelHi: cc.RelHi})
+	return relText(compare.Change{Verdict: ch.Verdict, RelativeChange: cc.RelativeChange, RelLo: cc.RelLo, RelHi: cc.RelHi})
 }
 
 // anyCalls reports whether any change compared calls per request.
-func anyCalls(changes []attribute.Change) bool {
+func anyCalls(changes []compare.Change) bool {
 	for _, ch := range changes {
 		if ch.Calls != nil {
 			return true
@@ -111,7 +111,7 @@ func anyCalls(changes []attribute.Change) bool {
 
 // limitedChanges returns every change, tested or not, cut to opts.Limit:
 // what the machine formats carry.
-func limitedChanges(c *attribute.Comparison, opts Options) []attribute.Change {
+func limitedChanges(c *compare.Comparison, opts Options) []compare.Change {
 	if opts.Limit > 0 && len(c.Changes) > opts.Limit {
 		return c.Changes[:opts.Limit]
 	}
@@ -126,7 +126,7 @@ type stmtNote struct{ Label, Statement, Detail string }
 // statementNotes lists the statements of a change that are new in the
 // candidate, and those whose calls per request changed significantly
 // (statement q ≤ Alpha).
-func statementNotes(c *attribute.Comparison, ch attribute.Change) []stmtNote {
+func statementNotes(c *compare.Comparison, ch compare.Change) []stmtNote {
 	var out []stmtNote
 	for _, s := range ch.Statements {
 		switch {
@@ -148,8 +148,8 @@ func confText(f float64) string {
 // rateText renders a normalised cost in the comparison's unit: a share as
 // a percentage with one decimal, durations and sizes in readable units, other units as a
 // plain number with about three significant digits.
-func rateText(v float64, c *attribute.Comparison) string {
-	if c.Basis == attribute.BasisShare {
+func rateText(v float64, c *compare.Comparison) string {
+	if c.Basis == compare.BasisShare {
 		return Percent(v)
 	}
 	switch c.ValueType.Unit {
@@ -171,13 +171,13 @@ func rateText(v float64, c *attribute.Comparison) string {
 // signedRateText renders a difference of normalised costs like rateText,
 // with a "+" before positive values; differences of shares are in
 // percentage points ("+0.4 pp").
-func signedRateText(v float64, c *attribute.Comparison) string {
+func signedRateText(v float64, c *compare.Comparison) string {
 	s := rateText(v, c)
-	if c.Basis == attribute.BasisShare {
+	if c.Basis == compare.BasisShare {
 		s = strconv.FormatFloat(v*100, 'f', 1, 64) + " pp"
 	}
 	switch {
-	case !nonZero(s) && c.Basis == attribute.BasisShare:
+	case !nonZero(s) && c.Basis == compare.BasisShare:
 		return "0 pp"
 	case !nonZero(s):
 		return "0"
@@ -194,10 +194,10 @@ func nonZero(s string) bool {
 
 // absText renders an absolute difference with its unit: "+2.0ms per
 // request", "+3 count per second", "+0.5 pp".
-func absText(v float64, c *attribute.Comparison) string {
+func absText(v float64, c *compare.Comparison) string {
 	s := signedRateText(v, c)
 	switch {
-	case c.Basis == attribute.BasisShare:
+	case c.Basis == compare.BasisShare:
 		return s
 	case c.ValueType.Unit == "nanoseconds" || c.ValueType.Unit == "bytes":
 		return s + strings.TrimPrefix(c.Unit, c.ValueType.Unit)
@@ -232,12 +232,12 @@ func signedPctText(f float64) string {
 // relText renders a change's relative change and its interval,
 // "+38% [+30%, +47%]". An unbounded end is "+∞"; a cause present on one
 // side only reads "new" or "gone" (its relative change is undefined).
-func relText(ch attribute.Change) string {
+func relText(ch compare.Change) string {
 	if ch.RelativeChange == nil {
 		switch ch.Verdict {
-		case attribute.OutcomeNew:
+		case compare.OutcomeNew:
 			return "new"
-		case attribute.OutcomeGone:
+		case compare.OutcomeGone:
 			return "gone"
 		}
 		return "-"
@@ -269,11 +269,11 @@ func qText(q *float64) string {
 
 // mdeText renders a change's minimum detectable relative change: "-" for
 // a cause present on one side only, "∞" when nothing was detectable.
-func mdeText(ch attribute.Change) string {
+func mdeText(ch compare.Change) string {
 	switch {
 	case ch.MDE != nil:
 		return pctText(*ch.MDE)
-	case ch.Verdict == attribute.OutcomeNew || ch.Verdict == attribute.OutcomeGone:
+	case ch.Verdict == compare.OutcomeNew || ch.Verdict == compare.OutcomeGone:
 		return "-"
 	}
 	return "∞"
@@ -281,7 +281,7 @@ func mdeText(ch attribute.Change) string {
 
 // budgetText describes the budget in force: "default +5.0%", or the
 // relative and absolute parts the user set.
-func budgetText(c *attribute.Comparison) string {
+func budgetText(c *compare.Comparison) string {
 	b := c.Budget
 	s := signedPctText(b.Relative)
 	if !b.Set {
@@ -294,17 +294,17 @@ func budgetText(c *attribute.Comparison) string {
 }
 
 // basisText names the basis and the unit of every normalised value.
-func basisText(c *attribute.Comparison) string {
+func basisText(c *compare.Comparison) string {
 	return string(c.Basis) + " (" + c.Unit + ")"
 }
 
 // thresholdText states the budget and the significance level.
-func thresholdText(c *attribute.Comparison) string {
+func thresholdText(c *compare.Comparison) string {
 	return "budget " + budgetText(c) + ", q ≤ " + strconv.FormatFloat(c.Alpha, 'g', -1, 64)
 }
 
 // sideText summarises one side: its inputs, requests and duration.
-func sideText(s attribute.SideSummary) string {
+func sideText(s compare.SideSummary) string {
 	names := make([]string, 0, len(s.Inputs))
 	for i, in := range s.Inputs {
 		if i == 3 {
@@ -348,12 +348,12 @@ type diffHeadline struct {
 	Counts string
 }
 
-func newDiffHeadline(c *attribute.Comparison) diffHeadline {
+func newDiffHeadline(c *compare.Comparison) diffHeadline {
 	var h diffHeadline
 	gate := c.Gate()
 	var regressed, newFail int
 	for _, ch := range gate {
-		if ch.Verdict == attribute.OutcomeRegressed {
+		if ch.Verdict == compare.OutcomeRegressed {
 			regressed++
 		} else {
 			newFail++
@@ -375,7 +375,7 @@ func newDiffHeadline(c *attribute.Comparison) diffHeadline {
 		h.Lead = strings.Join(parts, " and ")
 		h.Function = gate[0].Function
 		switch {
-		case gate[0].RelativeChange != nil && len(gate[0].Reasons) == 1 && gate[0].Reasons[0] == attribute.ReasonCalls:
+		case gate[0].RelativeChange != nil && len(gate[0].Reasons) == 1 && gate[0].Reasons[0] == compare.ReasonCalls:
 			h.Change = "calls per request " + callsText(gate[0]) + " " + callsRelText(gate[0])
 		case gate[0].RelativeChange != nil:
 			h.Change = relText(gate[0])
@@ -385,8 +385,8 @@ func newDiffHeadline(c *attribute.Comparison) diffHeadline {
 	}
 	if len(c.Changes) > 0 {
 		var counts []string
-		for _, v := range []attribute.Outcome{attribute.OutcomeRegressed, attribute.OutcomeNew, attribute.OutcomeInconclusive,
-			attribute.OutcomeImproved, attribute.OutcomeGone, attribute.OutcomeUnchanged} {
+		for _, v := range []compare.Outcome{compare.OutcomeRegressed, compare.OutcomeNew, compare.OutcomeInconclusive,
+			compare.OutcomeImproved, compare.OutcomeGone, compare.OutcomeUnchanged} {
 			n := 0
 			for _, ch := range c.Changes {
 				if ch.Verdict == v && !ch.BelowDetection {
@@ -421,11 +421,11 @@ func plural(n int, one, many string) string {
 }
 
 // methodNotes explains the methods the comparison used, in sentences.
-func methodNotes(c *attribute.Comparison) []string {
+func methodNotes(c *compare.Comparison) []string {
 	var poisson, boot, calls bool
 	for _, ch := range c.Changes {
-		poisson = poisson || ch.Method == attribute.MethodPoisson
-		boot = boot || ch.Method == attribute.MethodBootstrap
+		poisson = poisson || ch.Method == compare.MethodPoisson
+		boot = boot || ch.Method == compare.MethodBootstrap
 		calls = calls || ch.Calls != nil
 	}
 	conf := confText(c.Confidence)
@@ -448,18 +448,18 @@ func methodNotes(c *attribute.Comparison) []string {
 	return out
 }
 
-func normalisedHow(b attribute.Basis) string {
+func normalisedHow(b compare.Basis) string {
 	switch b {
-	case attribute.BasisPerRequest:
+	case compare.BasisPerRequest:
 		return "per request of the entry points that reach each root cause (both sides know their requests)"
-	case attribute.BasisPerSecond:
+	case compare.BasisPerSecond:
 		return "per second of profile duration (requests unknown on a side)"
 	}
 	return "as shares of database+network cost (neither requests nor durations known on both sides)"
 }
 
 // unchangedNote says what "unchanged" means.
-func unchangedNote(c *attribute.Comparison) string {
+func unchangedNote(c *compare.Comparison) string {
 	return fmt.Sprintf("\"unchanged\" means no change above the MDE shown: the smallest relative change the test would detect with %s power at q ≤ %s. It is not proof that nothing changed.",
 		strconv.FormatFloat(c.Power*100, 'g', -1, 64)+"%", strconv.FormatFloat(c.Alpha, 'g', -1, 64))
 }
@@ -479,7 +479,7 @@ type producedSide struct {
 	Inputs        []producedInput
 }
 
-func newDiffProduced(c *attribute.Comparison, p Provenance) diffProduced {
+func newDiffProduced(c *compare.Comparison, p Provenance) diffProduced {
 	out := diffProduced{Command: clean(p.Command), Version: p.Version, Basis: basisText(c), ValueType: c.ValueType.String(),
 		Budget: budgetText(c), Alpha: strconv.FormatFloat(c.Alpha, 'g', -1, 64), Seed: strconv.FormatUint(c.Seed, 10),
 		Resamples: strconv.Itoa(c.Resamples), Options: p.Options}
@@ -491,7 +491,7 @@ func newDiffProduced(c *attribute.Comparison, p Provenance) diffProduced {
 	}
 	for _, s := range []struct {
 		label string
-		side  attribute.SideSummary
+		side  compare.SideSummary
 	}{{"base", c.Base}, {"candidate", c.Candidate}} {
 		ps := producedSide{Label: s.label, Source: s.side.SourceKind}
 		for _, in := range s.side.Inputs {

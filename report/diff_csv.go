@@ -5,7 +5,7 @@ import (
 	"strconv"
 	"strings"
 
-	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 )
 
 // DiffCSV renders one row per change of a comparison, in the order of
@@ -56,7 +56,7 @@ var diffCSVHeader = []string{
 }
 
 // RenderDiff implements DiffRenderer.
-func (DiffCSV) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) error {
+func (DiffCSV) RenderDiff(w io.Writer, c *compare.Comparison, opts Options) error {
 	cw := newCSVWriter(w)
 	if err := cw.Write(diffCSVHeader); err != nil {
 		return err

@@ -7,7 +7,7 @@ import (
 	"math"
 	"strconv"
 
-	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 )
 
 // DiffHTML renders a comparison as one self-contained HTML5 page: the
@@ -106,13 +106,13 @@ type diffBar struct {
 }
 
 // verdicts lists the outcomes in the order of Comparison.Changes.
-func verdicts() []attribute.Outcome {
-	return []attribute.Outcome{attribute.OutcomeRegressed, attribute.OutcomeNew, attribute.OutcomeInconclusive,
-		attribute.OutcomeImproved, attribute.OutcomeGone, attribute.OutcomeUnchanged}
+func verdicts() []compare.Outcome {
+	return []compare.Outcome{compare.OutcomeRegressed, compare.OutcomeNew, compare.OutcomeInconclusive,
+		compare.OutcomeImproved, compare.OutcomeGone, compare.OutcomeUnchanged}
 }
 
 // RenderDiff implements DiffRenderer.
-func (DiffHTML) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) error {
+func (DiffHTML) RenderDiff(w io.Writer, c *compare.Comparison, opts Options) error {
 	changes := shownChanges(c, opts)
 	p := diffPage{
 		CSP:        pagePolicy(),
@@ -181,7 +181,7 @@ func (DiffHTML) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) e
 }
 
 // verdictClass is the CSS class that colours and patterns a verdict.
-func verdictClass(v attribute.Outcome) string {
+func verdictClass(v compare.Outcome) string {
 	for _, o := range verdicts() {
 		if o == v {
 			return "v-" + string(v)
@@ -194,7 +194,7 @@ func verdictClass(v attribute.Outcome) string {
 // relative change, ±D, where D covers every relative change, interval end
 // and the budget (with room beyond it), rounded up to a multiple of a
 // 1-2-5 step and capped at diffMaxScale.
-func newDiffChart(c *attribute.Comparison, changes []attribute.Change) *diffChart {
+func newDiffChart(c *compare.Comparison, changes []compare.Change) *diffChart {
 	// The region that matters: the budget and the changes themselves;
 	// intervals reaching beyond it are clipped and marked.
 	top := math.Max(0.1, c.Budget.Relative*3)
@@ -241,18 +241,18 @@ func newDiffChart(c *attribute.Comparison, changes []attribute.Change) *diffChar
 		switch {
 		case chg.RelativeChange != nil:
 			rel = *chg.RelativeChange
-		case chg.Verdict == attribute.OutcomeGone:
+		case chg.Verdict == compare.OutcomeGone:
 			rel = -1
-		case chg.Verdict == attribute.OutcomeNew:
+		case chg.Verdict == compare.OutcomeNew:
 			rel = domain
 		}
 		end := scale(rel)
 		fn, label := clean(chg.Function), relText(chg)
 		switch {
 		case chg.RelativeChange != nil:
-		case chg.Verdict == attribute.OutcomeNew:
+		case chg.Verdict == compare.OutcomeNew:
 			label = "new: " + rateText(chg.Candidate, c)
-		case chg.Verdict == attribute.OutcomeGone:
+		case chg.Verdict == compare.OutcomeGone:
 			label = "gone: was " + rateText(chg.Base, c)
 		}
 		label = clean(label)

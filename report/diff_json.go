@@ -3,7 +3,7 @@ package report
 import (
 	"io"
 
-	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 )
 
 // DiffJSON renders the versioned comparison document, DiffDocument
@@ -58,7 +58,7 @@ type BudgetDoc struct {
 	Set      bool    `json:"set"`
 }
 
-// ChangeDoc is the comparison of one root cause (see attribute.Change).
+// ChangeDoc is the comparison of one root cause (see compare.Change).
 type ChangeDoc struct {
 	Function       string               `json:"function"`
 	Functions      []string             `json:"functions,omitempty"`
@@ -113,12 +113,12 @@ type StatementChangeDoc struct {
 }
 
 // RenderDiff implements DiffRenderer.
-func (DiffJSON) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) error {
+func (DiffJSON) RenderDiff(w io.Writer, c *compare.Comparison, opts Options) error {
 	return writeJSON(w, NewDiffDocument(c, opts))
 }
 
 // NewDiffDocument converts c into the diff document, cut to opts.Limit.
-func NewDiffDocument(c *attribute.Comparison, opts Options) *DiffDocument {
+func NewDiffDocument(c *compare.Comparison, opts Options) *DiffDocument {
 	doc := &DiffDocument{Schema: DiffSchema, ProducedBy: opts.Provenance, Basis: string(c.Basis), Unit: c.Unit,
 		ValueType: ValueTypeDoc{c.ValueType.Type, c.ValueType.Unit}, Base: sideDoc(c.Base), Candidate: sideDoc(c.Candidate),
 		Alpha: c.Alpha, Power: c.Power, Confidence: c.Confidence,
@@ -142,7 +142,7 @@ func NewDiffDocument(c *attribute.Comparison, opts Options) *DiffDocument {
 	return doc
 }
 
-func sideDoc(s attribute.SideSummary) SideDoc {
+func sideDoc(s compare.SideSummary) SideDoc {
 	t := s.Totals
 	var reqs *int
 	if t.Requests > 0 {
@@ -159,7 +159,7 @@ func sideDoc(s attribute.SideSummary) SideDoc {
 	return out
 }
 
-func changeDoc(ch attribute.Change) ChangeDoc {
+func changeDoc(ch compare.Change) ChangeDoc {
 	out := ChangeDoc{Function: ch.Function, Functions: ch.Functions, Identity: ch.Identity, Kind: string(ch.Kind),
 		Base: ch.Base, Candidate: ch.Candidate, Change: ch.Change, RelativeChange: ch.RelativeChange, RelLo: ch.RelLo,
 		RelHi: ch.RelHi, PValue: ch.PValue, QValue: ch.QValue, MDE: ch.MDE, Verdict: string(ch.Verdict),

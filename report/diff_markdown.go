@@ -6,7 +6,7 @@ import (
 	"io"
 	"strings"
 
-	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 )
 
 // DiffMarkdown renders a comparison as GitHub-flavoured Markdown for an
@@ -22,7 +22,7 @@ import (
 type DiffMarkdown struct{}
 
 // RenderDiff implements DiffRenderer.
-func (DiffMarkdown) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) error {
+func (DiffMarkdown) RenderDiff(w io.Writer, c *compare.Comparison, opts Options) error {
 	bw := bufio.NewWriter(w)
 	fmt.Fprintln(bw, "# culprit: comparison of two builds")
 	fmt.Fprintln(bw)
@@ -58,7 +58,7 @@ func (DiffMarkdown) RenderDiff(w io.Writer, c *attribute.Comparison, opts Option
 		mdRow(bw, align)
 		for _, ch := range changes {
 			verdict := mdText(verdictText(ch))
-			if ch.Verdict == attribute.OutcomeRegressed {
+			if ch.Verdict == compare.OutcomeRegressed {
 				verdict = "**" + verdict + "**"
 			}
 			row := []string{verdict, mdText(ch.Function), mdText(rateText(ch.Base, c)), mdText(rateText(ch.Candidate, c)),

@@ -16,10 +16,10 @@ import (
 	"testing"
 	"unicode/utf8"
 
-	"golang.org/x/net/html"
-
 	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 	"github.com/culprithq/culprit/traces"
+	"golang.org/x/net/html"
 )
 
 func fp(f float64) *float64 { return &f }
@@ -27,63 +27,63 @@ func fp(f float64) *float64 { return &f }
 // nurseryDiff is a realistic per-request comparison of two load tests of
 // an invented plant nursery: one change of every verdict, and an unchanged
 // cause whose interval and MDE are unbounded (nil).
-func nurseryDiff() *attribute.Comparison {
+func nurseryDiff() *compare.Comparison {
 	in := func(name string) traces.Input {
 		return traces.Input{Name: name, Format: "otlp-json", Bytes: 51234, SHA256: fmt.Sprintf("%x", sha256.Sum256([]byte(name)))}
 	}
 	dur := traces.ValueType{Type: "duration", Unit: "nanoseconds"}
-	side := func(name string, reqs int) attribute.SideSummary {
-		return attribute.SideSummary{Inputs: []traces.Input{in(name)}, SourceKind: "spans", ValueType: dur,
+	side := func(name string, reqs int) compare.SideSummary {
+		return compare.SideSummary{Inputs: []traces.Input{in(name)}, SourceKind: "spans", ValueType: dur,
 			Totals:   attribute.Totals{Cost: 90e9, Database: 40e9, Network: 9e9, Other: 41e9, Requests: reqs, Samples: 30000, BoundarySamples: 21000},
 			Requests: reqs, DurationNanos: 60e9, Exposure: float64(reqs)}
 	}
 	const app = "example.com/nursery/"
-	boot, poisson := attribute.MethodBootstrap, attribute.MethodPoisson
-	return &attribute.Comparison{
-		Basis: attribute.BasisPerRequest, Unit: "nanoseconds per request", ValueType: dur,
+	boot, poisson := compare.MethodBootstrap, compare.MethodPoisson
+	return &compare.Comparison{
+		Basis: compare.BasisPerRequest, Unit: "nanoseconds per request", ValueType: dur,
 		Base: side("load-v41.jsonl", 1200), Candidate: side("load-v42.jsonl", 1180),
-		Alpha: 0.05, Power: 0.8, Confidence: 0.95, Budget: attribute.Budget{Relative: 0.05}, Seed: 7, Resamples: 2000,
-		Changes: []attribute.Change{
+		Alpha: 0.05, Power: 0.8, Confidence: 0.95, Budget: compare.Budget{Relative: 0.05}, Seed: 7, Resamples: 2000,
+		Changes: []compare.Change{
 			{Function: app + "catalog.(*Repo).VarietyByID", Identity: app + "catalog.(*Repo).VarietyByID", Kind: attribute.KindDatabase,
 				Base: 12.4e6, Candidate: 17.1e6, Change: 4.7e6, RelativeChange: fp(0.379), RelLo: fp(0.30), RelHi: fp(0.47),
-				PValue: fp(1e-9), QValue: fp(7e-9), MDE: fp(0.06), Verdict: attribute.OutcomeRegressed, Reasons: []string{"time", "calls"},
+				PValue: fp(1e-9), QValue: fp(7e-9), MDE: fp(0.06), Verdict: compare.OutcomeRegressed, Reasons: []string{"time", "calls"},
 				BaseSamples: 3100, CandSamples: 4200, BaseRequests: 1100, CandRequests: 1090, Method: boot,
-				Calls: &attribute.CallsChange{Base: 2.6, Candidate: 3.5, RelativeChange: fp(0.346), RelLo: fp(0.31), RelHi: fp(0.38),
-					PValue: fp(1e-12), QValue: fp(1e-11), MDE: fp(0.02), Verdict: attribute.OutcomeRegressed},
-				Statements: []attribute.StatementChange{
+				Calls: &compare.CallsChange{Base: 2.6, Candidate: 3.5, RelativeChange: fp(0.346), RelLo: fp(0.31), RelHi: fp(0.38),
+					PValue: fp(1e-12), QValue: fp(1e-11), MDE: fp(0.02), Verdict: compare.OutcomeRegressed},
+				Statements: []compare.StatementChange{
 					{Statement: "SELECT id, name FROM varieties WHERE id = ?", System: "postgresql", Kind: attribute.KindDatabase, Base: 2.6, Candidate: 2.6},
 					{Statement: "SELECT url FROM variety_photos WHERE variety_id = ?", System: "postgresql", Kind: attribute.KindDatabase, Candidate: 0.9, New: true},
 				}},
 			{Function: app + "catalog.(*Repo).VarietyPhotos", Identity: app + "catalog.(*Repo).VarietyPhotos", Kind: attribute.KindNetwork,
-				Candidate: 2.3e6, Change: 2.3e6, PValue: fp(2e-6), QValue: fp(7e-6), Verdict: attribute.OutcomeNew,
+				Candidate: 2.3e6, Change: 2.3e6, PValue: fp(2e-6), QValue: fp(7e-6), Verdict: compare.OutcomeNew,
 				CandSamples: 1180, CandRequests: 1180, Method: boot},
 			{Function: app + "orders.(*Service).Place.func2", Identity: app + "orders.(*Service).Place.func*",
 				Functions: []string{app + "orders.(*Service).Place.func1", app + "orders.(*Service).Place.func2"}, Kind: attribute.KindMixed,
 				Base: 8.2e6, Candidate: 8.9e6, Change: 0.7e6, RelativeChange: fp(0.085), RelLo: fp(0.012), RelHi: fp(0.16),
-				PValue: fp(0.011), QValue: fp(0.019), MDE: fp(0.07), Verdict: attribute.OutcomeInconclusive,
+				PValue: fp(0.011), QValue: fp(0.019), MDE: fp(0.07), Verdict: compare.OutcomeInconclusive,
 				BaseSamples: 600, CandSamples: 610, BaseRequests: 300, CandRequests: 305, Method: boot},
 			{Function: app + "pricing.(*Client).Quote", Identity: app + "pricing.(*Client).Quote", Kind: attribute.KindNetwork,
 				Base: 6.0e6, Candidate: 4.1e6, Change: -1.9e6, RelativeChange: fp(-0.317), RelLo: fp(-0.38), RelHi: fp(-0.25),
-				PValue: fp(4e-6), QValue: fp(9e-6), MDE: fp(0.05), Verdict: attribute.OutcomeImproved,
+				PValue: fp(4e-6), QValue: fp(9e-6), MDE: fp(0.05), Verdict: compare.OutcomeImproved,
 				BaseSamples: 2400, CandSamples: 2360, BaseRequests: 1200, CandRequests: 1180, Method: boot},
 			{Function: app + "catalog.(*Cache).Warm", Identity: app + "catalog.(*Cache).Warm", Kind: attribute.KindDatabase,
-				Base: 1.2e6, Change: -1.2e6, PValue: fp(0.003), QValue: fp(0.0045), Verdict: attribute.OutcomeGone,
+				Base: 1.2e6, Change: -1.2e6, PValue: fp(0.003), QValue: fp(0.0045), Verdict: compare.OutcomeGone,
 				BaseSamples: 40, BaseRequests: 40, Method: boot},
 			{Function: app + "inventory.(*Repo).Stock", Identity: app + "inventory.(*Repo).Stock", Kind: attribute.KindDatabase,
 				Base: 3.1e6, Candidate: 3.15e6, Change: 0.05e6, RelativeChange: fp(0.016), RelLo: fp(-0.04), RelHi: fp(0.07),
-				PValue: fp(0.58), QValue: fp(0.68), MDE: fp(0.09), Verdict: attribute.OutcomeUnchanged,
+				PValue: fp(0.58), QValue: fp(0.68), MDE: fp(0.09), Verdict: compare.OutcomeUnchanged,
 				BaseSamples: 1200, CandSamples: 1180, BaseRequests: 1200, CandRequests: 1180, Method: boot},
 			{Function: app + "orders.(*Repo).Lines", Identity: app + "orders.(*Repo).Lines", Kind: attribute.KindDatabase,
 				Base: 5.0e6, Candidate: 5.9e6, Change: 0.9e6, RelativeChange: fp(0.18), RelLo: fp(-0.14), RelHi: fp(1.25),
-				PValue: fp(0.3), QValue: fp(0.4), MDE: fp(1.2), Verdict: attribute.OutcomeRegressed, Reasons: []string{"calls"},
+				PValue: fp(0.3), QValue: fp(0.4), MDE: fp(1.2), Verdict: compare.OutcomeRegressed, Reasons: []string{"calls"},
 				BaseSamples: 8900, CandSamples: 17900, BaseRequests: 1000, CandRequests: 1000, Method: boot,
-				Calls: &attribute.CallsChange{Base: 8.9, Candidate: 17.9, RelativeChange: fp(1.01), RelLo: fp(0.95), RelHi: fp(1.07),
-					PValue: fp(1e-12), QValue: fp(1e-11), MDE: fp(0.03), Verdict: attribute.OutcomeRegressed},
-				Statements: []attribute.StatementChange{{Statement: "SELECT * FROM order_lines WHERE order_id = ?", System: "postgresql",
+				Calls: &compare.CallsChange{Base: 8.9, Candidate: 17.9, RelativeChange: fp(1.01), RelLo: fp(0.95), RelHi: fp(1.07),
+					PValue: fp(1e-12), QValue: fp(1e-11), MDE: fp(0.03), Verdict: compare.OutcomeRegressed},
+				Statements: []compare.StatementChange{{Statement: "SELECT * FROM order_lines WHERE order_id = ?", System: "postgresql",
 					Kind: attribute.KindDatabase, Base: 8.9, Candidate: 17.9, PValue: fp(1e-12), QValue: fp(2e-12)}}},
 			{Function: app + "auth.(*Tokens).Verify", Identity: app + "auth.(*Tokens).Verify", Kind: attribute.KindNetwork,
 				Base: 0.02e6, Candidate: 0.03e6, Change: 0.01e6, RelativeChange: fp(0.5), RelLo: fp(-0.4),
-				Verdict: attribute.OutcomeUnchanged, BelowDetection: true,
+				Verdict: compare.OutcomeUnchanged, BelowDetection: true,
 				BaseSamples: 2, CandSamples: 3, BaseRequests: 2, CandRequests: 3, Method: poisson},
 		},
 		Warnings: []string{"load-v42.jsonl: 2 orphan spans attached to their trace root"},
@@ -92,16 +92,16 @@ func nurseryDiff() *attribute.Comparison {
 
 // hostileDiff puts the hostile strings of render_test.go into every
 // string a comparison carries.
-func hostileDiff() *attribute.Comparison {
+func hostileDiff() *compare.Comparison {
 	c := nurseryDiff()
 	h := strings.Join(hostile, " ")
 	c.Unit = "ms<i>\n per request|`"
 	c.ValueType = traces.ValueType{Type: "cpu<b>", Unit: "ms<i>"}
-	c.Budget = attribute.Budget{Relative: 0.1, Absolute: 2, Set: true}
+	c.Budget = compare.Budget{Relative: 0.1, Absolute: 2, Set: true}
 	c.Base.Inputs = []traces.Input{{Name: "<script>alert(1)</script>\r\n|`x`.pprof", Format: "pprof\x1b", Bytes: 10, SHA256: "a|b"}}
 	c.Candidate.SourceKind = h
 	c.Warnings = []string{h, "```\r\n<img src=https://attacker.invalid/x>"}
-	changes := make([]attribute.Change, 0, len(hostile))
+	changes := make([]compare.Change, 0, len(hostile))
 	for i, s := range hostile {
 		ch := c.Changes[i%len(c.Changes)]
 		ch.Function, ch.Identity, ch.Functions = s, s+" "+h, nil
@@ -113,7 +113,7 @@ func hostileDiff() *attribute.Comparison {
 
 type diffCase struct {
 	name string
-	c    *attribute.Comparison
+	c    *compare.Comparison
 	opts Options
 }
 
@@ -121,10 +121,10 @@ func diffCases() []diffCase {
 	prov := Provenance{Command: "culprit diff --format html load-v41.jsonl load-v42.jsonl", Version: "v0.1.0", Options: []string{"--seed 7"}}
 	evil := Provenance{Command: "culprit diff ```\n<script>alert(1)</script> `x`", Version: "v0\x1b", Options: []string{"<b>"}}
 	gated := nurseryDiff() // an absolute budget that the new cause exceeds
-	gated.Budget = attribute.Budget{Relative: 0.1, Absolute: 1e6, Set: true}
+	gated.Budget = compare.Budget{Relative: 0.1, Absolute: 1e6, Set: true}
 	calm := nurseryDiff() // nothing beyond the budget; shares
-	calm.Basis, calm.Unit = attribute.BasisShare, "share of database+network cost"
-	calm.Changes = slices.DeleteFunc(calm.Changes[3:], func(ch attribute.Change) bool { return ch.Verdict == attribute.OutcomeRegressed })
+	calm.Basis, calm.Unit = compare.BasisShare, "share of database+network cost"
+	calm.Changes = slices.DeleteFunc(calm.Changes[3:], func(ch compare.Change) bool { return ch.Verdict == compare.OutcomeRegressed })
 	for i := range calm.Changes {
 		calm.Changes[i].Base /= 1e8
 		calm.Changes[i].Candidate /= 1e8
@@ -137,7 +137,7 @@ func diffCases() []diffCase {
 		{"calm", calm, Options{Provenance: prov}},
 		{"hostile", hostileDiff(), Options{Provenance: evil}},
 		{"hostile/limit2", hostileDiff(), Options{Limit: 2, Provenance: evil}},
-		{"empty", &attribute.Comparison{Basis: attribute.BasisShare, Changes: []attribute.Change{}, Warnings: []string{}}, Options{}},
+		{"empty", &compare.Comparison{Basis: compare.BasisShare, Changes: []compare.Change{}, Warnings: []string{}}, Options{}},
 	}
 }
 
@@ -192,8 +192,8 @@ func TestDiffGolden(t *testing.T) {
 func TestDiffFormatting(t *testing.T) {
 	c := nurseryDiff()
 	ch := c.Changes
-	share := &attribute.Comparison{Basis: attribute.BasisShare, Unit: "share of database+network cost"}
-	count := &attribute.Comparison{Basis: attribute.BasisPerSecond, Unit: "count per second", ValueType: traces.ValueType{Type: "samples", Unit: "count"}}
+	share := &compare.Comparison{Basis: compare.BasisShare, Unit: "share of database+network cost"}
+	count := &compare.Comparison{Basis: compare.BasisPerSecond, Unit: "count per second", ValueType: traces.ValueType{Type: "samples", Unit: "count"}}
 	for _, tt := range []struct{ name, got, want string }{
 		{"rel with interval", relText(ch[0]), "+38% [+30%, +47%]"},
 		{"rel below ten percent", relText(ch[2]), "+8.5% [+1.2%, +16%]"},
@@ -201,8 +201,8 @@ func TestDiffFormatting(t *testing.T) {
 		{"rel unbounded", relText(ch[7]), "+50% [-40%, +∞]"},
 		{"rel new", relText(ch[1]), "new"},
 		{"rel gone", relText(ch[4]), "gone"},
-		{"rel without interval", relText(attribute.Change{RelativeChange: fp(0.1)}), "+10%"},
-		{"rel rounds to zero", relText(attribute.Change{RelativeChange: fp(-0.0004)}), "0%"},
+		{"rel without interval", relText(compare.Change{RelativeChange: fp(0.1)}), "+10%"},
+		{"rel rounds to zero", relText(compare.Change{RelativeChange: fp(-0.0004)}), "0%"},
 		{"q nil", qText(nil), "-"},
 		{"q tiny", qText(fp(7e-9)), "<0.0001"},
 		{"q two digits", qText(fp(0.0123)), "0.012"},
@@ -219,10 +219,10 @@ func TestDiffFormatting(t *testing.T) {
 		{"small count", rateText(0.01234, count), "0.0123"},
 		{"small count change", signedRateText(0.01234, count), "+0.0123"},
 		{"default budget", budgetText(c), "default +5.0%"},
-		{"absolute budget", budgetText(&attribute.Comparison{Basis: attribute.BasisPerRequest, Unit: "nanoseconds per request",
-			ValueType: c.ValueType, Budget: attribute.Budget{Relative: 0.1, Absolute: 2e6, Set: true}}), "+10% and +2.0ms per request"},
-		{"absolute count budget", budgetText(&attribute.Comparison{Basis: attribute.BasisPerSecond, Unit: "count per second",
-			ValueType: count.ValueType, Budget: attribute.Budget{Absolute: 3, Set: true}}), "0% and +3 count per second"},
+		{"absolute budget", budgetText(&compare.Comparison{Basis: compare.BasisPerRequest, Unit: "nanoseconds per request",
+			ValueType: c.ValueType, Budget: compare.Budget{Relative: 0.1, Absolute: 2e6, Set: true}}), "+10% and +2.0ms per request"},
+		{"absolute count budget", budgetText(&compare.Comparison{Basis: compare.BasisPerSecond, Unit: "count per second",
+			ValueType: count.ValueType, Budget: compare.Budget{Absolute: 3, Set: true}}), "0% and +3 count per second"},
 	} {
 		t.Run(tt.name, func(t *testing.T) {
 			if tt.got != tt.want {

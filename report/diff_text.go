@@ -10,7 +10,7 @@ import (
 	"text/tabwriter"
 	"unicode/utf8"
 
-	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 )
 
 // DiffText renders a comparison for a terminal: a header (basis and unit,
@@ -25,22 +25,22 @@ type DiffText struct{}
 // ANSI colours by verdict, culprit's own code: regressed red, new
 // magenta, inconclusive yellow, improved green; gone and unchanged keep
 // the default colour.
-func verdictANSI(v attribute.Outcome) string {
+func verdictANSI(v compare.Outcome) string {
 	switch v {
-	case attribute.OutcomeRegressed:
+	case compare.OutcomeRegressed:
 		return "\x1b[31m"
-	case attribute.OutcomeNew:
+	case compare.OutcomeNew:
 		return "\x1b[35m"
-	case attribute.OutcomeInconclusive:
+	case compare.OutcomeInconclusive:
 		return "\x1b[33m"
-	case attribute.OutcomeImproved:
+	case compare.OutcomeImproved:
 		return "\x1b[32m"
 	}
 	return "\x1b[39m"
 }
 
 // RenderDiff implements DiffRenderer.
-func (DiffText) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) error {
+func (DiffText) RenderDiff(w io.Writer, c *compare.Comparison, opts Options) error {
 	bw := bufio.NewWriter(w)
 	width := textWidth(opts)
 	const indent = "           "
@@ -92,7 +92,7 @@ func (DiffText) RenderDiff(w io.Writer, c *attribute.Comparison, opts Options) e
 // diffTable writes the changes within width: one line per change when
 // the names fit (or get at least 40 columns), else the verdict and name on
 // one line and the numbers indented below.
-func diffTable(bw io.Writer, c *attribute.Comparison, changes []attribute.Change, width int, color bool) error {
+func diffTable(bw io.Writer, c *compare.Comparison, changes []compare.Change, width int, color bool) error {
 	calls := false
 	vw := len("VERDICT")
 	for _, ch := range changes {

@@ -8,12 +8,11 @@ import (
 	"testing"
 	"unicode/utf8"
 
+	"github.com/culprithq/culprit/callgraph"
 	"github.com/yuin/goldmark"
 	"github.com/yuin/goldmark/extension"
 	dotfmt "gonum.org/v1/gonum/graph/formats/dot"
 	"gonum.org/v1/gonum/graph/formats/dot/ast"
-
-	"github.com/culprithq/culprit/callgraph"
 )
 
 // FuzzRenderNames renders a random name, as every function, statement,

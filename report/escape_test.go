@@ -9,11 +9,11 @@ import (
 	"testing"
 	"unicode/utf8"
 
+	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 	"github.com/yuin/goldmark"
 	"github.com/yuin/goldmark/extension"
 	"golang.org/x/net/html"
-
-	"github.com/culprithq/culprit/attribute"
 )
 
 // Names that attack the reader rather than the format: bidirectional
@@ -46,9 +46,9 @@ func attackResult() *attribute.Result {
 	return r
 }
 
-func attackDiff() *attribute.Comparison {
+func attackDiff() *compare.Comparison {
 	c := nurseryDiff()
-	changes := make([]attribute.Change, 0, len(attackNames))
+	changes := make([]compare.Change, 0, len(attackNames))
 	for i, s := range attackNames {
 		ch := c.Changes[i%len(c.Changes)]
 		ch.Function, ch.Identity, ch.Functions = s, s, nil

@@ -7,6 +7,7 @@ import (
 	"testing"
 
 	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 	"github.com/culprithq/culprit/traces"
 )
 
@@ -54,12 +55,12 @@ func TestDocumentsCoverTheModel(t *testing.T) {
 		{attribute.DomainTotal{}, DomainDoc{}, nil},
 		{traces.Input{}, InputDoc{}, nil},
 		{traces.ValueType{}, ValueTypeDoc{}, nil},
-		{attribute.Comparison{}, DiffDocument{}, nil},
-		{attribute.SideSummary{}, SideDoc{}, nil},
-		{attribute.Budget{}, BudgetDoc{}, nil},
-		{attribute.Change{}, ChangeDoc{}, nil},
-		{attribute.CallsChange{}, CallsChangeDoc{}, nil},
-		{attribute.StatementChange{}, StatementChangeDoc{}, nil},
+		{compare.Comparison{}, DiffDocument{}, nil},
+		{compare.SideSummary{}, SideDoc{}, nil},
+		{compare.Budget{}, BudgetDoc{}, nil},
+		{compare.Change{}, ChangeDoc{}, nil},
+		{compare.CallsChange{}, CallsChangeDoc{}, nil},
+		{compare.StatementChange{}, StatementChangeDoc{}, nil},
 		{attribute.Explanation{}, ExplanationDoc{}, nil},
 		// The node's class string is written as a list, "classes".
 		{attribute.ExplainNode{}, ExplainNodeDoc{}, []string{"class"}},

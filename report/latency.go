@@ -2,14 +2,13 @@ package report
 
 import (
 	"bufio"
+	_ "embed"
 	"fmt"
 	"html/template"
 	"io"
 	"math"
 	"strconv"
 	"strings"
-
-	_ "embed"
 
 	"github.com/culprithq/culprit/attribute"
 )

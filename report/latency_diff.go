@@ -3,6 +3,7 @@ package report
 import (
 	"bufio"
 	"bytes"
+	_ "embed"
 	"fmt"
 	"html/template"
 	"io"
@@ -10,15 +11,13 @@ import (
 	"strconv"
 	"strings"
 
-	_ "embed"
-
-	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 	json "github.com/goccy/go-json"
 )
 
 // LatencyDiffRenderer writes a latency comparison (diff --latency).
 type LatencyDiffRenderer interface {
-	RenderLatencyDiff(w io.Writer, c *attribute.LatencyComparison, opts Options) error
+	RenderLatencyDiff(w io.Writer, c *compare.LatencyComparison, opts Options) error
 }
 
 // ForLatencyDiffFormat returns the latency-diff renderer of a format name
@@ -29,9 +28,9 @@ func ForLatencyDiffFormat(name string) (LatencyDiffRenderer, error) {
 }
 
 // routeQText renders one quantile's change: "120ms → 180ms, +50% [+41%, +58%]".
-func routeQText(q attribute.QuantileChange) string {
+func routeQText(q compare.QuantileChange) string {
 	s := formatDuration(q.Base) + " → " + formatDuration(q.Candidate)
-	ch := attribute.Change{RelativeChange: q.RelativeChange, RelLo: q.RelLo, RelHi: q.RelHi}
+	ch := compare.Change{RelativeChange: q.RelativeChange, RelLo: q.RelLo, RelHi: q.RelHi}
 	if q.RelativeChange != nil {
 		s += ", " + relText(ch)
 	}
@@ -42,7 +41,7 @@ func routeQText(q attribute.QuantileChange) string {
 // then the causes' critical-path time as the diff report shows causes.
 type latencyDiffDoc struct{ format string }
 
-func (d latencyDiffDoc) RenderLatencyDiff(w io.Writer, c *attribute.LatencyComparison, opts Options) error {
+func (d latencyDiffDoc) RenderLatencyDiff(w io.Writer, c *compare.LatencyComparison, opts Options) error {
 	bw := bufio.NewWriter(w)
 	md := d.format == "markdown"
 	title := "Latency per entry point"
@@ -51,7 +50,7 @@ func (d latencyDiffDoc) RenderLatencyDiff(w io.Writer, c *attribute.LatencyCompa
 		mdRow(bw, []string{"Entry point", "Verdict (p95)", "Requests", "p50", "p95"})
 		mdRow(bw, []string{"---", "---", "---:", "---", "---"})
 	} else {
-		writeWrapped(bw, fmt.Sprintf("culprit diff --latency: %s (p50 and p95 with %s bootstrap intervals; the verdict follows p95)", strings.ToLower(title), pctText(attribute.CompareConfidence)), textWidth(opts), "  ")
+		writeWrapped(bw, fmt.Sprintf("culprit diff --latency: %s (p50 and p95 with %s bootstrap intervals; the verdict follows p95)", strings.ToLower(title), pctText(compare.CompareConfidence)), textWidth(opts), "  ")
 	}
 	for _, r := range c.Routes {
 		reqs := fmt.Sprintf("%d → %d", r.BaseRequests, r.CandRequests)
@@ -114,18 +113,18 @@ func (d latencyDiffDoc) RenderLatencyDiff(w io.Writer, c *attribute.LatencyCompa
 
 type latencyDiffJSON struct{}
 
-func (latencyDiffJSON) RenderLatencyDiff(w io.Writer, c *attribute.LatencyComparison, opts Options) error {
+func (latencyDiffJSON) RenderLatencyDiff(w io.Writer, c *compare.LatencyComparison, opts Options) error {
 	var causes bytes.Buffer
 	if err := (DiffJSON{}).RenderDiff(&causes, c.Causes, opts); err != nil {
 		return err
 	}
 	doc := struct {
-		Schema string                  `json:"schema"`
-		Routes []attribute.RouteChange `json:"routes"`
-		Causes json.RawMessage         `json:"causes"`
+		Schema string                `json:"schema"`
+		Routes []compare.RouteChange `json:"routes"`
+		Causes json.RawMessage       `json:"causes"`
 	}{Schema: "culprit.latency-diff/v1", Routes: c.Routes, Causes: causes.Bytes()}
 	if doc.Routes == nil {
-		doc.Routes = []attribute.RouteChange{}
+		doc.Routes = []compare.RouteChange{}
 	}
 	return writeJSON(w, doc)
 }
@@ -137,7 +136,7 @@ type latencyDiffCSV struct{}
 var latencyDiffCSVHeader = []string{"row", "name", "quantile", "base_ns", "candidate_ns", "change_ns",
 	"relative_change", "rel_lo", "rel_hi", "q_value", "verdict", "kind"}
 
-func (latencyDiffCSV) RenderLatencyDiff(w io.Writer, c *attribute.LatencyComparison, opts Options) error {
+func (latencyDiffCSV) RenderLatencyDiff(w io.Writer, c *compare.LatencyComparison, opts Options) error {
 	cw := newCSVWriter(w)
 	if err := cw.Write(latencyDiffCSVHeader); err != nil {
 		return err
@@ -146,7 +145,7 @@ func (latencyDiffCSV) RenderLatencyDiff(w io.Writer, c *attribute.LatencyCompari
 	for _, r := range c.Routes {
 		for _, q := range []struct {
 			name string
-			qc   attribute.QuantileChange
+			qc   compare.QuantileChange
 		}{{"p50", r.P50}, {"p95", r.P95}} {
 			row := []string{"route", r.Entry, q.name, num(q.qc.Base), num(q.qc.Candidate), num(q.qc.Candidate - q.qc.Base),
 				csvOptional(q.qc.RelativeChange), csvOptional(q.qc.RelLo), csvOptional(q.qc.RelHi), "", string(r.Verdict), ""}
@@ -180,10 +179,10 @@ var latencyDiffPage = template.Must(template.New("latency-diff").Funcs(template.
 
 type latencyDiffHTML struct{}
 
-func (latencyDiffHTML) RenderLatencyDiff(w io.Writer, c *attribute.LatencyComparison, opts Options) error {
+func (latencyDiffHTML) RenderLatencyDiff(w io.Writer, c *compare.LatencyComparison, opts Options) error {
 	return latencyDiffPage.Execute(w, struct {
-		C       *attribute.LatencyComparison
-		Changes []attribute.Change
+		C       *compare.LatencyComparison
+		Changes []compare.Change
 		Prov    Provenance
 	}{c, shownChanges(c.Causes, opts), opts.Provenance})
 }

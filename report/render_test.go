@@ -13,10 +13,9 @@ import (
 	"testing"
 	"unicode/utf8"
 
-	"golang.org/x/net/html"
-
 	"github.com/culprithq/culprit/attribute"
 	"github.com/culprithq/culprit/traces"
+	"golang.org/x/net/html"
 )
 
 var update = flag.Bool("update", false, "rewrite golden files")

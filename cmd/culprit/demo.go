@@ -10,7 +10,7 @@ import (
 	"path"
 	"path/filepath"
 
-	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 	"github.com/culprithq/culprit/report"
 	"github.com/spf13/cobra"
 )
@@ -87,7 +87,7 @@ func runDemo(ctx context.Context, opts *demoOptions) error {
 			return err
 		}
 		d := &diffOptions{streams: opts.rank.streams, analysis: opts.rank.analysis, output: opts.rank.output,
-			base: base, candidate: cand, alpha: attribute.DefaultAlpha, seed: 1, command: opts.rank.command}
+			base: base, candidate: cand, alpha: compare.DefaultAlpha, seed: 1, command: opts.rank.command}
 		return runDiff(ctx, d)
 	}
 	names, err := files("v42")

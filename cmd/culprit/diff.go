@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 	"github.com/culprithq/culprit/report"
 	"github.com/spf13/cobra"
 )
@@ -91,7 +92,7 @@ on the critical path per request, with the same verdicts, budget and gate.`,
 	fl.StringArrayVar(&opts.base, "base", nil, "a base-side input `FILE` or directory (repeatable)")
 	fl.StringArrayVar(&opts.candidate, "candidate", nil, "a candidate-side input `FILE` or directory (repeatable)")
 	fl.StringVar(&opts.failOn, "fail-on", "", "regression `BUDGET`: relative (10%) and/or absolute per request or second (2ms); exit 3 beyond it")
-	fl.Float64Var(&opts.alpha, "alpha", attribute.DefaultAlpha, "significance level for Benjamini-Hochberg q-values")
+	fl.Float64Var(&opts.alpha, "alpha", compare.DefaultAlpha, "significance level for Benjamini-Hochberg q-values")
 	fl.Uint64Var(&opts.seed, "seed", 1, "bootstrap seed (same inputs and seed give the same report)")
 	fl.BoolVar(&opts.latency, "latency", false, "compare latency: route p50/p95 and critical-path time per root cause (traces)")
 	fl.Float64Var(&opts.tail, "tail", attribute.DefaultTail, "with --latency, for inputs: quantile from which a request is in its route's tail")
@@ -146,10 +147,10 @@ func runDiff(ctx context.Context, opts *diffOptions) error {
 			return err
 		}
 	}
-	if err := attribute.CheckComparable(base, cand); err != nil {
+	if err := compare.CheckComparable(base, cand); err != nil {
 		return err
 	}
-	cmp := attribute.Compare(base, cand, attribute.CompareOptions{Alpha: opts.alpha, Budget: budget, Seed: opts.seed})
+	cmp := compare.Compare(base, cand, compare.CompareOptions{Alpha: opts.alpha, Budget: budget, Seed: opts.seed})
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
 	inputs := append(append([]string(nil), opts.base...), opts.candidate...)
 	if err := opts.output.write(ctx, opts.streams, inputs, func(w io.Writer) error {
@@ -164,7 +165,7 @@ func runDiff(ctx context.Context, opts *diffOptions) error {
 }
 
 // gateError is the error that makes culprit exit 3 when gate is not empty.
-func gateError(gate []attribute.Change, failOn string) error {
+func gateError(gate []compare.Change, failOn string) error {
 	if len(gate) == 0 {
 		return nil
 	}
@@ -180,7 +181,7 @@ func gateError(gate []attribute.Change, failOn string) error {
 }
 
 // runDiffLatency is diff --latency.
-func runDiffLatency(ctx context.Context, opts *diffOptions, budget attribute.Budget, format string) error {
+func runDiffLatency(ctx context.Context, opts *diffOptions, budget compare.Budget, format string) error {
 	renderer, err := report.ForLatencyDiffFormat(format)
 	if err != nil {
 		return &usageError{err: err}
@@ -200,7 +201,7 @@ func runDiffLatency(ctx context.Context, opts *diffOptions, budget attribute.Bud
 	if err != nil {
 		return err
 	}
-	c := attribute.CompareLatency(base, cand, attribute.CompareOptions{Alpha: opts.alpha, Budget: budget, Seed: opts.seed})
+	c := compare.CompareLatency(base, cand, compare.CompareOptions{Alpha: opts.alpha, Budget: budget, Seed: opts.seed})
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
 	inputs := append(append([]string(nil), opts.base...), opts.candidate...)
 	if err := opts.output.write(ctx, opts.streams, inputs, func(w io.Writer) error {
@@ -216,14 +217,14 @@ func runDiffLatency(ctx context.Context, opts *diffOptions, budget attribute.Bud
 
 // latencySide loads one side of diff --latency: a latency snapshot, or
 // traces whose latency is analysed with the command's flags.
-func (opts *diffOptions) latencySide(ctx context.Context, label string, inputs []string) (*attribute.LatencySnapshot, error) {
+func (opts *diffOptions) latencySide(ctx context.Context, label string, inputs []string) (*compare.LatencySnapshot, error) {
 	if len(inputs) == 1 && hasSchema(inputs[0], "culprit.latency-snapshot/") {
 		fh, err := os.Open(inputs[0])
 		if err != nil {
 			return nil, err
 		}
 		defer fh.Close()
-		return attribute.ReadLatencySnapshot(inputs[0], fh)
+		return compare.ReadLatencySnapshot(inputs[0], fh)
 	}
 	if len(inputs) == 1 && isSnapshotFile(inputs[0]) {
 		return nil, usagef("%s: %s is a rank snapshot, which has no latency; save one with culprit latency --save", label, inputs[0])
@@ -232,16 +233,16 @@ func (opts *diffOptions) latencySide(ctx context.Context, label string, inputs [
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", label, err)
 	}
-	return attribute.NewLatencySnapshot(res)
+	return compare.NewLatencySnapshot(res)
 }
 
 // side loads one side of the comparison: a snapshot file, or inputs that
 // are ranked with the command's analysis flags and turned into a snapshot.
 // For inputs it also returns the shared helpers seen through (non-nil,
 // sorted); nil for a snapshot file.
-func (opts *diffOptions) side(ctx context.Context, label string, inputs []string, rules *attribute.Rules) (*attribute.Snapshot, []string, error) {
+func (opts *diffOptions) side(ctx context.Context, label string, inputs []string, rules *attribute.Rules) (*compare.Snapshot, []string, error) {
 	if len(inputs) == 1 && isSnapshotFile(inputs[0]) {
-		s, err := await(ctx, func() (*attribute.Snapshot, error) { return readSnapshotFile(inputs[0]) })
+		s, err := await(ctx, func() (*compare.Snapshot, error) { return readSnapshotFile(inputs[0]) })
 		return s, nil, err
 	}
 	src, err := opts.analysis.load(ctx, opts.streams, inputs)
@@ -257,7 +258,7 @@ func (opts *diffOptions) side(ctx context.Context, label string, inputs []string
 		helpers = append(helpers, h.Function)
 	}
 	slices.Sort(helpers)
-	return attribute.NewSnapshot(res), helpers, nil
+	return compare.NewSnapshot(res), helpers, nil
 }
 
 // helperUnion returns the union of the helpers seen through on two sides
@@ -301,8 +302,8 @@ func hasSchema(name, schema string) bool {
 // parseBudget parses --fail-on: comma-separated parts, each a relative
 // budget ("10%") or an absolute one — a Go duration ("2ms", in
 // nanoseconds) or a plain number in the value's unit.
-func parseBudget(s string) (attribute.Budget, error) {
-	var b attribute.Budget
+func parseBudget(s string) (compare.Budget, error) {
+	var b compare.Budget
 	if strings.TrimSpace(s) == "" {
 		return b, nil
 	}

@@ -7,7 +7,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 	"github.com/culprithq/culprit/report"
 )
 
@@ -76,7 +76,7 @@ func TestSnapshotSaveMergeDiff(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	s, err := attribute.ReadSnapshot(snap, fh)
+	s, err := compare.ReadSnapshot(snap, fh)
 	fh.Close()
 	if err != nil {
 		t.Fatal(err)
@@ -131,7 +131,7 @@ func TestDiffUsage(t *testing.T) {
 }
 
 func TestParseBudget(t *testing.T) {
-	for in, want := range map[string]attribute.Budget{
+	for in, want := range map[string]compare.Budget{
 		"10%":       {Relative: 0.10, Set: true},
 		"2ms":       {Absolute: 2e6, Set: true},
 		"10%, 1.5s": {Relative: 0.10, Absolute: 1.5e9, Set: true},

@@ -6,6 +6,7 @@ import (
 	"io"
 
 	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 	"github.com/culprithq/culprit/report"
 	"github.com/culprithq/culprit/traces"
 	"github.com/spf13/cobra"
@@ -98,7 +99,7 @@ func runLatency(ctx context.Context, opts *latencyOptions) error {
 	}
 	var snapshot func(io.Writer) error
 	if opts.save != "" {
-		snap, err := attribute.NewLatencySnapshot(res)
+		snap, err := compare.NewLatencySnapshot(res)
 		if err != nil {
 			return err
 		}

@@ -4,7 +4,7 @@ import (
 	"context"
 	"os"
 
-	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 	"github.com/spf13/cobra"
 )
 
@@ -38,18 +38,18 @@ The shards must share the value type, source kind, rules and app prefixes.`,
 }
 
 func runMerge(ctx context.Context, opts *mergeOptions) error {
-	snaps := make([]*attribute.Snapshot, 0, len(opts.inputs))
+	snaps := make([]*compare.Snapshot, 0, len(opts.inputs))
 	for _, name := range opts.inputs {
 		if err := ctx.Err(); err != nil {
 			return err
 		}
-		snap, err := await(ctx, func() (*attribute.Snapshot, error) { return readSnapshotFile(name) })
+		snap, err := await(ctx, func() (*compare.Snapshot, error) { return readSnapshotFile(name) })
 		if err != nil {
 			return err
 		}
 		snaps = append(snaps, snap)
 	}
-	merged, err := attribute.MergeSnapshots(snaps...)
+	merged, err := compare.MergeSnapshots(snaps...)
 	if err != nil {
 		return err
 	}
@@ -57,11 +57,11 @@ func runMerge(ctx context.Context, opts *mergeOptions) error {
 	return out.write(ctx, opts.streams, opts.inputs, merged.Write)
 }
 
-func readSnapshotFile(name string) (*attribute.Snapshot, error) {
+func readSnapshotFile(name string) (*compare.Snapshot, error) {
 	fh, err := os.Open(name)
 	if err != nil {
 		return nil, err
 	}
 	defer fh.Close()
-	return attribute.ReadSnapshot(name, fh)
+	return compare.ReadSnapshot(name, fh)
 }

@@ -8,7 +8,7 @@ import (
 	"path/filepath"
 	"strings"
 
-	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/compare"
 	"github.com/culprithq/culprit/report"
 	"github.com/spf13/cobra"
 	"github.com/spf13/pflag"
@@ -102,7 +102,7 @@ func runRank(ctx context.Context, opts *rankOptions) error {
 	ropts.Provenance = report.Provenance{Command: opts.command, Version: version}
 	var snapshot func(io.Writer) error
 	if opts.save != "" {
-		snapshot = attribute.NewSnapshot(res).Write
+		snapshot = compare.NewSnapshot(res).Write
 	}
 	if err := opts.output.writeWithSnapshot(ctx, s, opts.inputs, opts.save, snapshot, func(w io.Writer) error {
 		return renderer.Render(w, res, ropts)

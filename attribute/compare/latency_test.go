@@ -1,4 +1,4 @@
-package attribute
+package compare
 
 import (
 	"bytes"
@@ -7,6 +7,8 @@ import (
 	"reflect"
 	"strings"
 	"testing"
+
+	"github.com/culprithq/culprit/attribute"
 )
 
 // plantsBuild makes n requests of GET /plants/{id} like plantsRequest,
@@ -46,7 +48,7 @@ func otlpLineMicros(svc, traceID string, spans []tspan) string {
 func latencySnapshotOf(t *testing.T, jsonl string) *LatencySnapshot {
 	t.Helper()
 	tree, cls := loadSpans(t, jsonl, true)
-	res, err := Latency(tree, cls, LatencyOptions{Vectors: true})
+	res, err := attribute.Latency(tree, cls, attribute.LatencyOptions{Vectors: true})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -72,17 +74,17 @@ func TestCompareLatencyRegression(t *testing.T) {
 	if *r.P95.RelLo <= 0.05 || *r.P95.RelativeChange < 0.2 || *r.P95.RelativeChange > 0.5 {
 		t.Errorf("p95 change %v [%v, %v]", *r.P95.RelativeChange, *r.P95.RelLo, *r.P95.RelHi)
 	}
-	verdicts := map[Kind]Outcome{}
+	verdicts := map[attribute.Kind]Outcome{}
 	for _, ch := range c.Causes.Changes {
 		verdicts[ch.Kind] = ch.Verdict
 		if !strings.Contains(ch.Function, "in /plants/{id}") {
 			t.Errorf("change %q does not name its entry point", ch.Function)
 		}
 	}
-	if verdicts[KindDatabase] != OutcomeRegressed {
-		t.Errorf("database verdict %s, want regressed: %+v", verdicts[KindDatabase], c.Causes.Changes)
+	if verdicts[attribute.KindDatabase] != OutcomeRegressed {
+		t.Errorf("database verdict %s, want regressed: %+v", verdicts[attribute.KindDatabase], c.Causes.Changes)
 	}
-	if v := verdicts[KindNetwork]; v == OutcomeRegressed || v == OutcomeImproved {
+	if v := verdicts[attribute.KindNetwork]; v == OutcomeRegressed || v == OutcomeImproved {
 		t.Errorf("network verdict %s, want no significant change", v)
 	}
 	if len(c.Gate()) < 2 {

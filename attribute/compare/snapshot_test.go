@@ -1,4 +1,4 @@
-package attribute
+package compare
 
 import (
 	"bytes"
@@ -11,6 +11,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/culprithq/culprit/attribute"
 	"github.com/culprithq/culprit/callgraph"
 	"github.com/culprithq/culprit/traces"
 	"github.com/google/pprof/profile"
@@ -39,7 +40,7 @@ func withDuration(t testing.TB, data []byte, d int64) []byte {
 }
 
 // rankInputs loads the inputs together, as one run, and attributes them.
-func rankInputs(t testing.TB, rules *Rules, opts Options, inputs ...namedInput) *Result {
+func rankInputs(t testing.TB, rules *attribute.Rules, opts attribute.Options, inputs ...namedInput) *attribute.Result {
 	t.Helper()
 	l := traces.NewLoader(traces.Options{})
 	for _, in := range inputs {
@@ -51,11 +52,11 @@ func rankInputs(t testing.TB, rules *Rules, opts Options, inputs ...namedInput) 
 	if err != nil {
 		t.Fatal(err)
 	}
-	return Attribute(callgraph.NewTree(src, callgraph.TreeOptions{}), NewClassifier(src, rules), opts)
+	return attribute.Attribute(callgraph.NewTree(src, callgraph.TreeOptions{}), attribute.NewClassifier(src, rules), opts)
 }
 
-func shopRules() *Rules {
-	r := DefaultRules()
+func shopRules() *attribute.Rules {
+	r := attribute.DefaultRules()
 	r.App = []string{"example.com/shop/"}
 	return r
 }
@@ -169,12 +170,12 @@ func shopTraces(first, last int, items func(r int) int) []spanTrace {
 	return out
 }
 
-func rankSpans(t testing.TB, src *traces.Source) *Result {
+func rankSpans(t testing.TB, src *traces.Source) *attribute.Result {
 	t.Helper()
 	if err := src.Validate(); err != nil {
 		t.Fatal(err)
 	}
-	return Attribute(callgraph.NewTree(src, callgraph.TreeOptions{}), NewClassifier(src, DefaultRules()), Options{})
+	return attribute.Attribute(callgraph.NewTree(src, callgraph.TreeOptions{}), attribute.NewClassifier(src, attribute.DefaultRules()), attribute.Options{})
 }
 
 func mustJSON(t testing.TB, v any) string {
@@ -218,12 +219,12 @@ func TestSnapshotRoundTrip(t *testing.T) {
 	profileRun := withDuration(t, buildProfile(t, requestStacks(1, 40)), 30e9)
 	tests := []struct {
 		name string
-		res  *Result
+		res  *attribute.Result
 	}{
-		{"profile with requests", rankInputs(t, shopRules(), Options{Value: "samples"}, namedInput{"cpu.pb.gz", profileRun})},
-		{"profile auto-detected", rankInputs(t, DefaultRules(), Options{Value: "samples"}, namedInput{"cpu.pb.gz", profileRun})},
-		{"profile inclusive cpu", rankInputs(t, shopRules(), Options{Value: "cpu", Inclusive: true}, namedInput{"cpu.pb.gz", profileRun})},
-		{"profile without requests", rankProfile(t, buildProfile(t, methodsExample()), DefaultRules(), Options{Value: "samples"})},
+		{"profile with requests", rankInputs(t, shopRules(), attribute.Options{Value: "samples"}, namedInput{"cpu.pb.gz", profileRun})},
+		{"profile auto-detected", rankInputs(t, attribute.DefaultRules(), attribute.Options{Value: "samples"}, namedInput{"cpu.pb.gz", profileRun})},
+		{"profile inclusive cpu", rankInputs(t, shopRules(), attribute.Options{Value: "cpu", Inclusive: true}, namedInput{"cpu.pb.gz", profileRun})},
+		{"profile without requests", rankProfile(t, buildProfile(t, methodsExample()), attribute.DefaultRules(), attribute.Options{Value: "samples"})},
 		{"spans with findings", rankSpans(t, spanSource("traces.json", 60e9, shopTraces(1, 30, func(r int) int { return 1 + r%8 })))},
 	}
 	for _, tt := range tests {
@@ -239,10 +240,10 @@ func TestSnapshotRoundTrip(t *testing.T) {
 			}
 			for i, c := range tt.res.Causes {
 				bc := back.Result().Causes[i]
-				if !slices.Equal(bc.RequestCosts(), c.RequestCosts()) || !slices.Equal(bc.requestCalls, c.requestCalls) {
+				if !slices.Equal(bc.RequestCosts(), c.RequestCosts()) || !slices.Equal(bc.RequestCalls(), c.RequestCalls()) {
 					t.Errorf("%s: per-request vectors differ after reload", c.Function)
 				}
-				if back.Causes[i].Identity != Identity(c.Function) {
+				if back.Causes[i].Identity != attribute.Identity(c.Function) {
 					t.Errorf("%s: identity %q", c.Function, back.Causes[i].Identity)
 				}
 			}
@@ -275,7 +276,7 @@ func TestMergeSnapshotsEqualsJointRun(t *testing.T) {
 	t.Run("profiles", func(t *testing.T) {
 		a := namedInput{"shard-a.pb.gz", withDuration(t, buildProfile(t, requestStacks(1, 23)), 20e9)}
 		b := namedInput{"shard-b.pb.gz", withDuration(t, buildProfile(t, requestStacks(24, 60)), 25e9)}
-		for _, opts := range []Options{{Value: "samples"}, {Value: "cpu", Inclusive: true}} {
+		for _, opts := range []attribute.Options{{Value: "samples"}, {Value: "cpu", Inclusive: true}} {
 			sa := NewSnapshot(rankInputs(t, shopRules(), opts, a))
 			sb := NewSnapshot(rankInputs(t, shopRules(), opts, b))
 			joint := NewSnapshot(rankInputs(t, shopRules(), opts, a, b))
@@ -323,7 +324,7 @@ func TestMergeSnapshotsEqualsJointRun(t *testing.T) {
 }
 
 func TestMergeSnapshotsMismatch(t *testing.T) {
-	base := NewSnapshot(rankInputs(t, shopRules(), Options{Value: "samples"},
+	base := NewSnapshot(rankInputs(t, shopRules(), attribute.Options{Value: "samples"},
 		namedInput{"a.pb.gz", buildProfile(t, requestStacks(1, 5))}))
 	tests := []struct {
 		name   string
@@ -485,7 +486,7 @@ func upperBound(x []float64, v float64) int {
 }
 
 func TestReadSnapshotErrors(t *testing.T) {
-	good := NewSnapshot(rankInputs(t, shopRules(), Options{Value: "samples"},
+	good := NewSnapshot(rankInputs(t, shopRules(), attribute.Options{Value: "samples"},
 		namedInput{"a.pb.gz", buildProfile(t, requestStacks(1, 5))}))
 	var buf bytes.Buffer
 	if err := good.Write(&buf); err != nil {
@@ -570,7 +571,7 @@ func TestReadSnapshotRecomputesIdentity(t *testing.T) {
 // FuzzReadSnapshot checks that ReadSnapshot never panics, and that what it
 // accepts survives a write and a read unchanged.
 func FuzzReadSnapshot(f *testing.F) {
-	good := NewSnapshot(rankInputs(f, shopRules(), Options{Value: "samples"},
+	good := NewSnapshot(rankInputs(f, shopRules(), attribute.Options{Value: "samples"},
 		namedInput{"a.pb.gz", buildProfile(f, requestStacks(1, 4))}))
 	var buf bytes.Buffer
 	if err := good.Write(&buf); err != nil {

@@ -1,4 +1,4 @@
-package attribute
+package compare
 
 import (
 	"encoding/json"
@@ -10,6 +10,7 @@ import (
 	"sync"
 	"testing"
 
+	"github.com/culprithq/culprit/attribute"
 	"github.com/culprithq/culprit/traces"
 	"gonum.org/v1/gonum/stat/distuv"
 )
@@ -26,7 +27,7 @@ type countCause struct {
 func countSnapshot(durationNanos int64, requests int, causes ...countCause) *Snapshot {
 	s := &Snapshot{Schema: SnapshotSchema, SourceKind: "profile", ValueType: samplesType, Sampled: true, DurationNanos: durationNanos}
 	for _, c := range causes {
-		s.Causes = append(s.Causes, SnapshotCause{Function: c.fn, Identity: Identity(c.fn), Kind: KindDatabase,
+		s.Causes = append(s.Causes, SnapshotCause{Function: c.fn, Identity: attribute.Identity(c.fn), Kind: attribute.KindDatabase,
 			Cost: c.samples, Database: c.samples, Samples: c.samples})
 		s.Totals.Database += c.samples
 	}
@@ -42,7 +43,7 @@ func countSnapshot(durationNanos int64, requests int, causes ...countCause) *Sna
 // request where it appears.
 type costCause struct {
 	fn    string
-	kind  Kind
+	kind  attribute.Kind
 	costs []int64
 	// calls in each request where the cause appears (same order as
 	// costs); nil when the source did not count them.
@@ -57,7 +58,7 @@ func costSnapshot(n int, causes ...costCause) *Snapshot {
 	s.Totals.Requests = n
 	s.Totals.Samples = int64(n)
 	for _, c := range causes {
-		sc := SnapshotCause{Function: c.fn, Identity: Identity(c.fn), Kind: c.kind, Requests: len(c.costs)}
+		sc := SnapshotCause{Function: c.fn, Identity: attribute.Identity(c.fn), Kind: c.kind, Requests: len(c.costs)}
 		vals := make([]float64, len(c.costs))
 		for i, v := range c.costs {
 			sc.Cost += v
@@ -77,7 +78,7 @@ func costSnapshot(n int, causes ...costCause) *Snapshot {
 			sc.RequestCalls = newCappedValues(calls)
 			sc.Samples = sc.Calls
 		}
-		if c.kind == KindNetwork {
+		if c.kind == attribute.KindNetwork {
 			sc.Network = sc.Cost
 			s.Totals.Network += sc.Cost
 		} else {
@@ -199,8 +200,8 @@ func TestCompareWorkedExamples(t *testing.T) {
 // ratio of means must not call them different either.
 func TestCompareBootstrap(t *testing.T) {
 	const fn = "shop.loadOrders"
-	b := costSnapshot(4, costCause{fn: fn, kind: KindDatabase, costs: []int64{20, 11, 17, 12}})
-	c := costSnapshot(5, costCause{fn: fn, kind: KindDatabase, costs: []int64{19, 22, 16, 29, 24}})
+	b := costSnapshot(4, costCause{fn: fn, kind: attribute.KindDatabase, costs: []int64{20, 11, 17, 12}})
+	c := costSnapshot(5, costCause{fn: fn, kind: attribute.KindDatabase, costs: []int64{19, 22, 16, 29, 24}})
 	cmp := Compare(b, c, CompareOptions{Seed: 1})
 	ch := changeOf(t, cmp, fn)
 	if ch.Method != MethodBootstrap || cmp.Basis != BasisPerRequest {
@@ -213,8 +214,8 @@ func TestCompareBootstrap(t *testing.T) {
 		t.Errorf("bootstrap interval (%s, %s) does not hold the estimate %s", fmtp(ch.RelLo), fmtp(ch.RelHi), fmtp(ch.RelativeChange))
 	}
 	t.Run("zeros are the requests without the cause", func(t *testing.T) {
-		b := costSnapshot(10, costCause{fn: fn, kind: KindDatabase, costs: []int64{20, 11, 17, 12, 15, 14}})
-		c := costSnapshot(10, costCause{fn: fn, kind: KindDatabase, costs: []int64{19, 22, 16, 29, 24}})
+		b := costSnapshot(10, costCause{fn: fn, kind: attribute.KindDatabase, costs: []int64{20, 11, 17, 12, 15, 14}})
+		c := costSnapshot(10, costCause{fn: fn, kind: attribute.KindDatabase, costs: []int64{19, 22, 16, 29, 24}})
 		ch := changeOf(t, Compare(b, c, CompareOptions{}), fn)
 		if ch.BaseRequests != 6 || ch.CandRequests != 5 {
 			t.Errorf("requests %d/%d, want 6/5", ch.BaseRequests, ch.CandRequests)
@@ -381,15 +382,15 @@ func TestCompareStructure(t *testing.T) {
 	})
 	t.Run("mismatched sides warn", func(t *testing.T) {
 		b := countSnapshot(60e9, 0, countCause{"p.f", 3})
-		c := costSnapshot(5, costCause{fn: "p.f", kind: KindDatabase, costs: []int64{1, 2}})
+		c := costSnapshot(5, costCause{fn: "p.f", kind: attribute.KindDatabase, costs: []int64{1, 2}})
 		cmp := Compare(b, c, CompareOptions{})
 		if len(cmp.Warnings) == 0 || !strings.Contains(cmp.Warnings[0], "profile source, the candidate a spans source") {
 			t.Errorf("warnings = %q", cmp.Warnings)
 		}
 	})
 	t.Run("deterministic", func(t *testing.T) {
-		b := costSnapshot(40, costCause{fn: "p.f", kind: KindDatabase, costs: []int64{5, 9, 3, 7, 11, 2, 8}}, costCause{fn: "p.g", kind: KindNetwork, costs: []int64{50, 70}})
-		c := costSnapshot(45, costCause{fn: "p.f", kind: KindDatabase, costs: []int64{6, 9, 4, 7, 12, 2, 8, 9}}, costCause{fn: "p.g", kind: KindNetwork, costs: []int64{55}})
+		b := costSnapshot(40, costCause{fn: "p.f", kind: attribute.KindDatabase, costs: []int64{5, 9, 3, 7, 11, 2, 8}}, costCause{fn: "p.g", kind: attribute.KindNetwork, costs: []int64{50, 70}})
+		c := costSnapshot(45, costCause{fn: "p.f", kind: attribute.KindDatabase, costs: []int64{6, 9, 4, 7, 12, 2, 8, 9}}, costCause{fn: "p.g", kind: attribute.KindNetwork, costs: []int64{55}})
 		x, _ := json.Marshal(Compare(b, c, CompareOptions{Seed: 42}))
 		y, _ := json.Marshal(Compare(b, c, CompareOptions{Seed: 42}))
 		if string(x) != string(y) {
@@ -404,7 +405,7 @@ func TestCompareStructure(t *testing.T) {
 // duration per call.
 type shopCause struct {
 	fn       string
-	kind     Kind
+	kind     attribute.Kind
 	fixed    int     // calls per request when > 0
 	lambda   float64 // mean calls per request (Poisson) otherwise
 	medianMs float64 // median duration of one call
@@ -417,12 +418,12 @@ type shopCause struct {
 // request of ten, a rare notification and a heavy-tailed catalogue search
 // (most requests without it).
 var shopCauses = []shopCause{
-	{fn: "example.com/shop/store.loadOrderItems", kind: KindDatabase, lambda: 8, medianMs: 2, sigma: 0.5, rate: 800.0 / 30},
-	{fn: "example.com/shop/store.loadUser", kind: KindDatabase, fixed: 1, medianMs: 3, sigma: 0.8, rate: 400.0 / 30},
-	{fn: "example.com/shop/pricing.fetchPrices", kind: KindNetwork, lambda: 1.5, medianMs: 15, sigma: 0.9, rate: 250.0 / 30},
-	{fn: "example.com/shop/audit.save", kind: KindDatabase, lambda: 0.1, medianMs: 5, sigma: 0.6, rate: 150.0 / 30},
-	{fn: "example.com/shop/notify.send", kind: KindNetwork, lambda: 0.03, medianMs: 40, sigma: 1.0, rate: 60.0 / 30},
-	{fn: "example.com/shop/catalog.search", kind: KindDatabase, lambda: 0.5, medianMs: 20, sigma: 1.2, rate: 300.0 / 30},
+	{fn: "example.com/shop/store.loadOrderItems", kind: attribute.KindDatabase, lambda: 8, medianMs: 2, sigma: 0.5, rate: 800.0 / 30},
+	{fn: "example.com/shop/store.loadUser", kind: attribute.KindDatabase, fixed: 1, medianMs: 3, sigma: 0.8, rate: 400.0 / 30},
+	{fn: "example.com/shop/pricing.fetchPrices", kind: attribute.KindNetwork, lambda: 1.5, medianMs: 15, sigma: 0.9, rate: 250.0 / 30},
+	{fn: "example.com/shop/audit.save", kind: attribute.KindDatabase, lambda: 0.1, medianMs: 5, sigma: 0.6, rate: 150.0 / 30},
+	{fn: "example.com/shop/notify.send", kind: attribute.KindNetwork, lambda: 0.03, medianMs: 40, sigma: 1.0, rate: 60.0 / 30},
+	{fn: "example.com/shop/catalog.search", kind: attribute.KindDatabase, lambda: 0.5, medianMs: 20, sigma: 1.2, rate: 300.0 / 30},
 }
 
 // simulateSpans draws n requests of the shop service; the call durations of
@@ -671,7 +672,7 @@ func TestCompareCallsRegression(t *testing.T) {
 	const fn = "example.com/lab/results.(*Store).ByID"
 	rng := rand.New(rand.NewPCG(7, 14))
 	draw := func(calls int, slow float64) costCause {
-		cc := costCause{fn: fn, kind: KindDatabase}
+		cc := costCause{fn: fn, kind: attribute.KindDatabase}
 		for range 40 {
 			var cost float64
 			for range calls {
@@ -708,14 +709,14 @@ func TestCompareCallsRegression(t *testing.T) {
 // candidate is listed under its root cause, with calls per request.
 func TestCompareNewStatement(t *testing.T) {
 	const fn = "example.com/lab/results.(*Store).ByID"
-	mk := func(stmts ...Detail) *Snapshot {
-		s := costSnapshot(10, costCause{fn: fn, kind: KindDatabase, costs: []int64{5, 6, 7, 8, 9, 5, 6, 7, 8, 9},
+	mk := func(stmts ...attribute.Detail) *Snapshot {
+		s := costSnapshot(10, costCause{fn: fn, kind: attribute.KindDatabase, costs: []int64{5, 6, 7, 8, 9, 5, 6, 7, 8, 9},
 			calls: []int64{2, 2, 2, 2, 2, 2, 2, 2, 2, 2}})
 		s.Causes[0].Statements = stmts
 		return s
 	}
-	old := Detail{Kind: KindDatabase, System: "postgresql", Statement: "select * from samples where id = ?", Calls: 20}
-	added := Detail{Kind: KindDatabase, System: "postgresql", Statement: "select * from lab_results where sample_id = ?", Calls: 10}
+	old := attribute.Detail{Kind: attribute.KindDatabase, System: "postgresql", Statement: "select * from samples where id = ?", Calls: 20}
+	added := attribute.Detail{Kind: attribute.KindDatabase, System: "postgresql", Statement: "select * from lab_results where sample_id = ?", Calls: 10}
 	old2 := old
 	old2.Calls = 10
 	ch := changeOf(t, Compare(mk(old), mk(old2, added), CompareOptions{}), fn)

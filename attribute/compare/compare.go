@@ -1,15 +1,16 @@
-package attribute
+package compare
 
 import (
 	"cmp"
 	"fmt"
-	"github.com/culprithq/culprit/attribute/stats"
 	"hash/fnv"
 	"math"
 	"runtime"
 	"slices"
 	"sync"
 
+	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/stats"
 	"github.com/culprithq/culprit/traces"
 )
 
@@ -161,7 +162,7 @@ type SideSummary struct {
 	Inputs        []traces.Input   `json:"inputs"`
 	SourceKind    string           `json:"sourceKind"`
 	ValueType     traces.ValueType `json:"valueType"`
-	Totals        Totals           `json:"totals"`
+	Totals        attribute.Totals `json:"totals"`
 	Requests      int              `json:"requests"`
 	DurationNanos int64            `json:"durationNanos"`
 	// Exposure is the divisor of the side's normalised values: requests,
@@ -174,10 +175,10 @@ type Change struct {
 	// Function is the costliest function with this identity (candidate
 	// side first); Functions lists every function with it when there is
 	// more than one (their costs were added up).
-	Function  string   `json:"function"`
-	Functions []string `json:"functions,omitempty"`
-	Identity  string   `json:"identity"`
-	Kind      Kind     `json:"kind"`
+	Function  string         `json:"function"`
+	Functions []string       `json:"functions,omitempty"`
+	Identity  string         `json:"identity"`
+	Kind      attribute.Kind `json:"kind"`
 	// Base and Candidate are the normalised costs (see Comparison.Unit);
 	// Change is Candidate − Base.
 	Base      float64 `json:"base"`
@@ -247,12 +248,12 @@ type CallsChange struct {
 // StatementChange is one statement of a cause with its calls per request
 // on each side (descriptive; the cause's tests decide the verdict).
 type StatementChange struct {
-	Statement string  `json:"statement"`
-	System    string  `json:"system,omitempty"`
-	Peer      string  `json:"peer,omitempty"`
-	Kind      Kind    `json:"kind"`
-	Base      float64 `json:"base"`
-	Candidate float64 `json:"candidate"`
+	Statement string         `json:"statement"`
+	System    string         `json:"system,omitempty"`
+	Peer      string         `json:"peer,omitempty"`
+	Kind      attribute.Kind `json:"kind"`
+	Base      float64        `json:"base"`
+	Candidate float64        `json:"candidate"`
 	// New: only in the candidate; Gone: only in the base.
 	New  bool `json:"new"`
 	Gone bool `json:"gone"`
@@ -543,7 +544,7 @@ func groupCauses(s *Snapshot) map[string]*group {
 		c := &s.Causes[i]
 		id := c.Identity
 		if id == "" {
-			id = Identity(c.Function)
+			id = attribute.Identity(c.Function)
 		}
 		g := out[id]
 		if g == nil {
@@ -696,7 +697,7 @@ func newTest() test {
 type changeStat struct {
 	id               string
 	functions        []string
-	kind             Kind
+	kind             attribute.Kind
 	time, calls      test
 	hasCalls         bool
 	inBase, inCand   bool

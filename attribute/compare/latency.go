@@ -1,19 +1,19 @@
-package attribute
+package compare
 
 import (
 	"cmp"
 	"errors"
 	"fmt"
-	"github.com/culprithq/culprit/attribute/stats"
 	"io"
 	"math"
 	"math/rand/v2"
 	"slices"
 	"strings"
 
-	json "github.com/goccy/go-json"
-
+	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/attribute/stats"
 	"github.com/culprithq/culprit/traces"
+	json "github.com/goccy/go-json"
 )
 
 // LatencySnapshotSchema names the format of a saved latency analysis.
@@ -40,20 +40,20 @@ type RouteLatencies struct {
 }
 
 // latencyIdentity names a cause of one entry point across builds.
-func latencyIdentity(entry string, kind Kind, function string) string {
-	return entry + " | " + string(kind) + " | " + Identity(function)
+func latencyIdentity(entry string, kind attribute.Kind, function string) string {
+	return entry + " | " + string(kind) + " | " + attribute.Identity(function)
 }
 
 // LatencyLabel is how a latency comparison names a cause: its function,
 // kind and entry point.
-func LatencyLabel(entry string, kind Kind, function string) string {
+func LatencyLabel(entry string, kind attribute.Kind, function string) string {
 	return function + " (" + string(kind) + ") in " + entry
 }
 
 // NewLatencySnapshot returns the snapshot of r, which must have been
 // computed with LatencyOptions.Vectors.
-func NewLatencySnapshot(r *LatencyResult) (*LatencySnapshot, error) {
-	if !r.vectors {
+func NewLatencySnapshot(r *attribute.LatencyResult) (*LatencySnapshot, error) {
+	if !r.HasVectors() {
 		return nil, errors.New("latency snapshot: the analysis kept no per-request values (LatencyOptions.Vectors)")
 	}
 	p := &Snapshot{
@@ -63,12 +63,12 @@ func NewLatencySnapshot(r *LatencyResult) (*LatencySnapshot, error) {
 		App:        cloneApp(r.App),
 		Inputs:     slices.Clone(r.Inputs),
 		Warnings:   slices.Clone(r.Warnings),
-		Findings:   []Finding{},
+		Findings:   []attribute.Finding{},
 	}
 	s := &LatencySnapshot{Schema: LatencySnapshotSchema, Tail: r.Tail, Path: p}
 	for _, e := range r.Entries {
-		s.Routes = append(s.Routes, RouteLatencies{Entry: e.Entry, Latencies: newCappedValues(e.latencies)})
-		p.Entries = append(p.Entries, EntryTotal{Entry: e.Entry, Cost: e.Latency, Requests: e.Requests})
+		s.Routes = append(s.Routes, RouteLatencies{Entry: e.Entry, Latencies: newCappedValues(e.Latencies())})
+		p.Entries = append(p.Entries, attribute.EntryTotal{Entry: e.Entry, Cost: e.Latency, Requests: e.Requests})
 		p.Totals.Cost += e.Latency
 		p.Totals.Requests += e.Requests
 		for _, c := range e.Causes {
@@ -80,15 +80,15 @@ func NewLatencySnapshot(r *LatencyResult) (*LatencySnapshot, error) {
 				Cost:         c.Path,
 				Samples:      int64(c.Requests),
 				Requests:     c.Requests,
-				CallSites:    []CallSite{},
-				Statements:   []Detail{},
-				EntryPoints:  []EntryShare{{Entry: e.Entry, Cost: c.Path}},
-				RequestCosts: newCappedValues(c.reqPath),
+				CallSites:    []attribute.CallSite{},
+				Statements:   []attribute.Detail{},
+				EntryPoints:  []attribute.EntryShare{{Entry: e.Entry, Cost: c.Path}},
+				RequestCosts: newCappedValues(c.RequestPath()),
 			}
 			switch c.Kind {
-			case KindDatabase:
+			case attribute.KindDatabase:
 				sc.Database = c.Path
-			case KindNetwork:
+			case attribute.KindNetwork:
 				sc.Network = c.Path
 			}
 			p.Totals.Database += sc.Database
@@ -145,7 +145,7 @@ type LatencyComparison struct {
 // LatencyKey names a cause of a latency comparison.
 type LatencyKey struct {
 	Entry    string
-	Kind     Kind
+	Kind     attribute.Kind
 	Function string
 }
 
@@ -333,7 +333,12 @@ func bootstrapQuantileRatios(b, c []float64, reps int, conf float64, rng *rand.R
 // (interpolated as Quantile does).
 func resampleQuantiles(x []float64, counts *[]int32, rng *rand.Rand) (q50, q95 float64) {
 	n := len(x)
-	cs := grow(*counts, n)
+	cs := *counts
+	if cap(cs) < n {
+		cs = make([]int32, n)
+	}
+	cs = cs[:n]
+	clear(cs)
 	*counts = cs
 	for range n {
 		cs[rng.IntN(n)]++
