@@ -462,12 +462,17 @@ func (d *decoder) span(sp *jsonSpan, service, scope string, line int64) error {
 	if err != nil {
 		return err
 	}
+	// Direct calls, not a function value: the arrays must stay on the stack
+	// (through an indirect call they escape, three allocations a span).
 	var trace, id, parent [16]byte
-	readID, describe := parseID, describeID
+	var tn, sn, pn int
+	describe := describeID
 	if sp.wire {
-		readID, describe = rawID, describeRawID
+		describe = describeRawID
+		tn, sn, pn = rawID(&trace, sp.TraceID), rawID(&id, sp.SpanID), rawID(&parent, sp.ParentSpanID)
+	} else {
+		tn, sn, pn = parseID(&trace, sp.TraceID), parseID(&id, sp.SpanID), parseID(&parent, sp.ParentSpanID)
 	}
-	tn, sn, pn := readID(&trace, sp.TraceID), readID(&id, sp.SpanID), readID(&parent, sp.ParentSpanID)
 	var problem string
 	switch {
 	case tn != 16 || trace == [16]byte{}:

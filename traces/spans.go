@@ -205,6 +205,8 @@ func (c *SpanCollector) Source() (*Source, error) {
 		return nil, errors.New("traces: SpanCollector.Source called twice")
 	}
 	c.used = true
+	// No more inputs: the buffers kept for them go before assembly.
+	c.free, c.spare = nil, nil
 	src := NewSource(Spans, []ValueType{{Type: "duration", Unit: "nanoseconds"}, {Type: "calls", Unit: "count"}})
 	src.StatementsNormalized = c.opts.Statement != nil
 	src.DefaultValue = 0
