@@ -11,10 +11,12 @@ func newRootCmd(s *streams) *cobra.Command {
 	root := &cobra.Command{
 		Use:   "culprit",
 		Short: "Find the application code behind database and network cost",
-		Long: `culprit reads pprof profiles and OpenTelemetry traces (OTLP/JSON) from a load
-test, walks every call path from its entry point to the database and network
-calls, and charges each call's cost to the first application-owned function
-that caused it. It ranks those root causes with their share of the cost.
+		Long: `culprit reads a load test's pprof profiles, OpenTelemetry traces (OTLP files,
+or received live with culprit listen) or Go execution traces, walks every
+call path from its entry point to the database and network calls, and
+charges each call's cost to the first application-owned function that caused
+it. It ranks those root causes with their share of the cost, shows what the
+slow requests waited on (latency), and compares two builds (diff).
 
 Exit status: 0 success, 1 error, 2 usage error, 3 regression gate tripped,
 130 or 143 stopped by SIGINT or SIGTERM.`,
