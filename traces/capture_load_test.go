@@ -30,6 +30,7 @@ type memSegDir struct{ buf bytes.Buffer }
 
 func (d *memSegDir) Create(string) (capture.File, error) { return (*memSegFile)(&d.buf), nil }
 func (d *memSegDir) Sync() error                         { return nil }
+func (d *memSegDir) Rename(string, string) error         { return nil }
 
 type memSegFile bytes.Buffer
 

@@ -354,6 +354,10 @@ func (d *osDir) Create(name string) (capture.File, error) {
 	return os.OpenFile(filepath.Join(d.path, name), os.O_WRONLY|os.O_CREATE|os.O_EXCL|os.O_APPEND, 0o644)
 }
 
+func (d *osDir) Rename(from, to string) error {
+	return os.Rename(filepath.Join(d.path, from), filepath.Join(d.path, to))
+}
+
 func (d *osDir) Sync() error {
 	f, err := os.Open(d.path)
 	if err != nil {

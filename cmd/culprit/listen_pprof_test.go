@@ -30,7 +30,9 @@ func TestListenPprof(t *testing.T) {
 	if !strings.Contains(l.stderr.String(), "\r\x1b[Kculprit: 0 spans/s · 0 requests · 0 spans stored · 0 in flight") {
 		t.Errorf("no status line: %q", l.stderr)
 	}
-	if strings.Count(l.stderr.String(), "404") != 2 {
+	// Once a fetch round at least; how many rounds fit in the time is the
+	// scheduler's business.
+	if !strings.Contains(l.stderr.String(), "404") {
 		t.Errorf("no warning about the missing endpoint: %q", l.stderr)
 	}
 	segs, _ := filepath.Glob(filepath.Join(dir, "*.culprit-capture"))

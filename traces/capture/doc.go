@@ -38,5 +38,8 @@
 // crash cut short finds a torn last record (shorter than its length, or
 // failing its checksum with nothing valid after it), reports it with its
 // byte position, and reads everything before it. A bad record followed by
-// more data is corruption, not a tear, and is an error.
+// more data is corruption, not a tear, and is an error. A new segment is
+// written under a hidden temporary name until its header is written and
+// synced, then renamed, so a crash during a rotation leaves no segment
+// with a partial header.
 package capture

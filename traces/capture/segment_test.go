@@ -43,6 +43,24 @@ func (d *memDir) Create(name string) (File, error) {
 
 func (d *memDir) Sync() error { return nil }
 
+func (d *memDir) Rename(from, to string) error {
+	d.mu.Lock()
+	defer d.mu.Unlock()
+	f, ok := d.files[from]
+	if !ok {
+		return os.ErrNotExist
+	}
+	delete(d.files, from)
+	f.name = to
+	d.files[to] = f
+	for i, n := range d.order {
+		if n == from {
+			d.order[i] = to
+		}
+	}
+	return nil
+}
+
 func (f *memFile) Write(p []byte) (int, error) {
 	if f.d.fail != nil {
 		if err := f.d.fail(f.name, p); err != nil {

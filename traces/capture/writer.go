@@ -21,6 +21,8 @@ type File interface {
 type Dir interface {
 	// Create makes a new, empty file; it fails if the name exists.
 	Create(name string) (File, error)
+	// Rename gives a file created here another name (the file may be open).
+	Rename(from, to string) error
 	// Sync makes the directory's entries durable (new files' names).
 	Sync() error
 }
@@ -123,14 +125,27 @@ func (w *Writer) rotate() error {
 		w.synced.Store(w.written)
 		w.retire()
 	}
-	f, err := w.dir.Create(SegmentName(w.seq + 1))
+	// The segment gets its name only once its header is written and
+	// synced, so that a crash at any point leaves either no segment or one
+	// whose header is whole (the hidden temporary name is not an input).
+	name := SegmentName(w.seq + 1)
+	tmp := "." + name + ".tmp"
+	f, err := w.dir.Create(tmp)
 	if err != nil {
 		return err
 	}
 	hdr := appendHeader(nil, Header{Instance: w.opts.Instance, Sequence: w.seq + 1})
 	if _, err := f.Write(hdr); err != nil {
 		f.Close()
-		return fmt.Errorf("writing %s: %w", SegmentName(w.seq+1), err)
+		return fmt.Errorf("writing %s: %w", name, err)
+	}
+	if err := f.Sync(); err != nil {
+		f.Close()
+		return fmt.Errorf("syncing %s: %w", name, err)
+	}
+	if err := w.dir.Rename(tmp, name); err != nil {
+		f.Close()
+		return fmt.Errorf("naming %s: %w", name, err)
 	}
 	if err := w.dir.Sync(); err != nil {
 		f.Close()
