@@ -5,6 +5,8 @@ import (
 	"math/rand/v2"
 	"testing"
 
+	"github.com/culprithq/culprit/attribute/internal/testinput"
+
 	"github.com/culprithq/culprit/callgraph"
 )
 
@@ -26,7 +28,7 @@ func randomStacks(n int, seed uint64) []fakeStack {
 			fs = append(fs, app[r.IntN(len(app))])
 		}
 		fs = append(fs, leaves[r.IntN(len(leaves))]...)
-		out[i] = fakeStack{frames: fs, count: 1 + int64(r.IntN(50))}
+		out[i] = fakeStack{Frames: fs, Count: 1 + int64(r.IntN(50))}
 	}
 	return out
 }
@@ -60,7 +62,7 @@ func BenchmarkAttributeHelpersOff(b *testing.B) {
 // source of 3,000 traces (about 40,000 spans: enough to be charged on
 // every core), the tree and classification built once.
 func BenchmarkAttributeSpans(b *testing.B) {
-	src := spanSource("shop.jsonl", 60e9, shopTraces(1, 3000, func(r int) int { return 2 + r%9 }))
+	src := testinput.SpanSource("shop.jsonl", 60e9, testinput.ShopTraces(1, 3000, func(r int) int { return 2 + r%9 }))
 	cls := NewClassifier(src, DefaultRules())
 	tree := callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep})
 	b.ReportAllocs()

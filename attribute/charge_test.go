@@ -5,6 +5,8 @@ import (
 	"reflect"
 	"testing"
 
+	"github.com/culprithq/culprit/attribute/internal/testinput"
+
 	"github.com/culprithq/culprit/callgraph"
 	"github.com/culprithq/culprit/traces"
 )
@@ -12,18 +14,19 @@ import (
 // Frames with the file shapes Go's runtime/pprof writes (reference
 // pprof-profiles.md §5): GOROOT files for the standard library, the
 // module's own directory for application code.
+// Frames of the shop service (testinput).
 const (
-	fMain       = "main.main@/home/ci/shop/main.go:20"
-	fHandler    = "example.com/shop/api.handler@/home/ci/shop/api/api.go:31"
-	fLoadUser   = "example.com/shop/store.loadUser@/home/ci/shop/store/user.go:12"
-	fLoadOrders = "example.com/shop/store.loadOrders@/home/ci/shop/store/orders.go:44"
-	fRender     = "example.com/shop/api.render@/home/ci/shop/api/render.go:9"
-	fWalk       = "example.com/shop/tree.walk@/home/ci/shop/tree/walk.go:17"
-	fQuery      = "database/sql.(*DB).Query@/usr/local/go/src/database/sql/sql.go:1720"
-	fDriver     = "github.com/lib/pq.(*conn).query@/home/ci/go/pkg/mod/github.com/lib/pq@v1.10.9/conn.go:870"
-	fHTTP       = "net/http.(*Client).Do@/usr/local/go/src/net/http/client.go:590"
-	fMux        = "net/http.HandlerFunc.ServeHTTP@/usr/local/go/src/net/http/server.go:2220"
-	fServe      = "net/http.(*conn).serve@/usr/local/go/src/net/http/server.go:2090"
+	fMain       = testinput.Main
+	fHandler    = testinput.Handler
+	fLoadUser   = testinput.LoadUser
+	fLoadOrders = testinput.LoadOrders
+	fRender     = testinput.Render
+	fWalk       = testinput.Walk
+	fQuery      = testinput.Query
+	fDriver     = testinput.Driver
+	fHTTP       = testinput.HTTP
+	fMux        = testinput.Mux
+	fServe      = testinput.Serve
 )
 
 // The worked example of the methods reference §1 ("Calling context trees,
@@ -33,10 +36,10 @@ const (
 // Charged: loadUser 10, loadOrders 30, walk 5; database 45 of 65.
 func methodsExample() []fakeStack {
 	return []fakeStack{
-		{frames: []string{fMain, fHandler, fLoadUser, fQuery, fDriver}, count: 10},
-		{frames: []string{fMain, fHandler, fLoadOrders, fQuery, fDriver}, count: 30},
-		{frames: []string{fMain, fHandler, fRender}, count: 20},
-		{frames: []string{fMain, fWalk, fWalk, fWalk, fQuery}, count: 5},
+		{Frames: []string{fMain, fHandler, fLoadUser, fQuery, fDriver}, Count: 10},
+		{Frames: []string{fMain, fHandler, fLoadOrders, fQuery, fDriver}, Count: 30},
+		{Frames: []string{fMain, fHandler, fRender}, Count: 20},
+		{Frames: []string{fMain, fWalk, fWalk, fWalk, fQuery}, Count: 5},
 	}
 }
 
@@ -120,11 +123,11 @@ func TestAttributeInclusive(t *testing.T) {
 func TestAttributeNoAppFrameAndEntries(t *testing.T) {
 	stacks := []fakeStack{
 		// A library calls the network with no application frame above it.
-		{frames: []string{fServe, fMux, fHTTP}, count: 7},
+		{Frames: []string{fServe, fMux, fHTTP}, Count: 7},
 		// Through a handler: the entry point is the handler under the mux.
-		{frames: []string{fServe, fMux, fHandler, fHTTP}, count: 3},
+		{Frames: []string{fServe, fMux, fHandler, fHTTP}, Count: 3},
 		// The route label names the entry point when present.
-		{frames: []string{fServe, fMux, fHandler, fLoadUser, fQuery}, count: 4, labels: map[string][]string{"http.route": {"/users/{id}"}}},
+		{Frames: []string{fServe, fMux, fHandler, fLoadUser, fQuery}, Count: 4, Labels: map[string][]string{"http.route": {"/users/{id}"}}},
 	}
 	res := rankProfile(t, buildProfile(t, stacks), DefaultRules(), Options{Value: "samples"})
 	noApp := causeByName(res, NoAppFramePrefix+"net/http.HandlerFunc.ServeHTTP")
@@ -182,7 +185,7 @@ func abs(x float64) float64 {
 // TestShardedChargingMatches checks that charging a span source in
 // several goroutines gives exactly the result of one.
 func TestShardedChargingMatches(t *testing.T) {
-	src := spanSource("shop.jsonl", 60e9, shopTraces(1, 400, func(r int) int { return 2 + r%9 }))
+	src := testinput.SpanSource("shop.jsonl", 60e9, testinput.ShopTraces(1, 400, func(r int) int { return 2 + r%9 }))
 	cls := NewClassifier(src, DefaultRules())
 	tree := callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep})
 	for _, inclusive := range []bool{false, true} {
@@ -201,7 +204,7 @@ func TestShardedChargingMatches(t *testing.T) {
 // TestDropRequestVectors checks that leaving out the per-request vectors
 // changes nothing else in the result (distributions included).
 func TestDropRequestVectors(t *testing.T) {
-	src := spanSource("shop.jsonl", 60e9, shopTraces(1, 120, func(r int) int { return 2 + r%9 }))
+	src := testinput.SpanSource("shop.jsonl", 60e9, testinput.ShopTraces(1, 120, func(r int) int { return 2 + r%9 }))
 	cls := NewClassifier(src, DefaultRules())
 	tree := callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep})
 	kept := Attribute(tree, cls, Options{})
@@ -236,7 +239,7 @@ func TestKeepMatchesCut(t *testing.T) {
 	}
 	for name, stacks := range map[string][]fakeStack{
 		"random":   randomStacks(3000, 7),
-		"requests": requestStacks(1, 60),
+		"requests": testinput.RequestStacks(1, 60),
 		"methods":  methodsExample(),
 	} {
 		t.Run(name, func(t *testing.T) {
@@ -258,7 +261,7 @@ func TestKeepMatchesCut(t *testing.T) {
 		})
 	}
 	t.Run("spans", func(t *testing.T) {
-		src := spanSource("shop.jsonl", 60e9, shopTraces(1, 80, func(r int) int { return 2 + r%9 }))
+		src := testinput.SpanSource("shop.jsonl", 60e9, testinput.ShopTraces(1, 80, func(r int) int { return 2 + r%9 }))
 		cls := NewClassifier(src, DefaultRules())
 		sameAttribution(t, callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep}),
 			callgraph.NewTree(src, callgraph.TreeOptions{Keep: cutOnly(cls)}), cls)
@@ -286,7 +289,7 @@ func sameAttribution(t *testing.T, a, b *callgraph.Tree, cls *Classifier) {
 // several goroutines gives exactly the result of one: requests named by
 // labels are numbered before the paths are shared out.
 func TestShardedProfileChargingMatches(t *testing.T) {
-	stacks := append(requestStacks(1, 200), randomStacks(2000, 3)...)
+	stacks := append(testinput.RequestStacks(1, 200), randomStacks(2000, 3)...)
 	tree, cls := loadTree(t, buildProfile(t, stacks), DefaultRules())
 	for _, inclusive := range []bool{false, true} {
 		one := Attribute(tree, cls, Options{Inclusive: inclusive, shards: 1})

@@ -5,6 +5,8 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/culprithq/culprit/attribute/internal/testinput"
+
 	"github.com/culprithq/culprit/callgraph"
 	"gonum.org/v1/gonum/graph/formats/dot"
 	"gonum.org/v1/gonum/graph/formats/dot/ast"
@@ -69,7 +71,7 @@ func TestChargeGraphDOT(t *testing.T) {
 // database + network total, and each root cause's node carries at least
 // its charged cost.
 func TestChargeGraphAgreesWithRank(t *testing.T) {
-	src := spanSource("shop.jsonl", 60e9, shopTraces(1, 60, func(r int) int { return 2 + r%9 }))
+	src := testinput.SpanSource("shop.jsonl", 60e9, testinput.ShopTraces(1, 60, func(r int) int { return 2 + r%9 }))
 	cls := NewClassifier(src, DefaultRules())
 	tree := callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep})
 	res := Attribute(tree, cls, Options{})

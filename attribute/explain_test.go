@@ -6,6 +6,8 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/culprithq/culprit/attribute/internal/testinput"
+
 	"github.com/culprithq/culprit/callgraph"
 )
 
@@ -94,7 +96,7 @@ func TestExplainMethodsExample(t *testing.T) {
 // --inclusive, the explanation's cost, calls and statements are the
 // ranked cause's.
 func TestExplainAgreesWithRank(t *testing.T) {
-	src := spanSource("shop.jsonl", 60e9, shopTraces(1, 90, func(r int) int { return 2 + r%9 }))
+	src := testinput.SpanSource("shop.jsonl", 60e9, testinput.ShopTraces(1, 90, func(r int) int { return 2 + r%9 }))
 	cls := NewClassifier(src, DefaultRules())
 	tree := callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep})
 	for _, inclusive := range []bool{false, true} {
@@ -146,7 +148,7 @@ func TestExplainAgreesWithRank(t *testing.T) {
 // steps are elided and counted on the step below them.
 func TestExplainSkipsLibraryFrames(t *testing.T) {
 	lib := "github.com/acme/mw.Wrap@/home/ci/go/pkg/mod/github.com/acme/mw@v1.2.0/mw.go:40"
-	stacks := []fakeStack{{frames: []string{fMain, fHandler, lib, lib + "1", fLoadUser, fQuery}, count: 7}}
+	stacks := []fakeStack{{Frames: []string{fMain, fHandler, lib, lib + "1", fLoadUser, fQuery}, Count: 7}}
 	tree, cls := loadTree(t, buildProfile(t, stacks), DefaultRules())
 	ex := Explain(tree, cls, Options{Value: "samples"}, regexp.MustCompile(`loadUser`))
 	if len(ex) != 1 {

@@ -6,19 +6,15 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/culprithq/culprit/attribute/internal/testinput"
+
 	"github.com/culprithq/culprit/callgraph"
 	"github.com/culprithq/culprit/traces"
 	"github.com/culprithq/culprit/traces/statement"
 )
 
-// tspan is a span of a hand-written OTLP/JSON test trace; times in ms.
-type tspan struct {
-	id, parent string // span IDs (16 hex digits are padded from these)
-	name       string
-	kind       int // OTLP SpanKind
-	start, end int64
-	attrs      map[string]string
-}
+// tspan is a span of a hand-written OTLP/JSON test trace (testinput.Span).
+type tspan = testinput.Span
 
 // otlpLine renders the spans of one trace (traceID) of service svc as one
 // OTLP/JSON ExportTraceServiceRequest line, as the OTLP/JSON encoding
@@ -26,54 +22,10 @@ type tspan struct {
 func otlpLine(svc, traceID string, spans []tspan) string {
 	ns := make([]tspan, len(spans))
 	for i, sp := range spans {
-		sp.start, sp.end = sp.start*1_000_000, sp.end*1_000_000
+		sp.Start, sp.End = sp.Start*1_000_000, sp.End*1_000_000
 		ns[i] = sp
 	}
-	return otlpLineNanos(svc, traceID, ns)
-}
-
-// otlpLineNanos is otlpLine with span times in ns.
-func otlpLineNanos(svc, traceID string, spans []tspan) string {
-	var b strings.Builder
-	fmt.Fprintf(&b, `{"resourceSpans":[{"resource":{"attributes":[{"key":"service.name","value":{"stringValue":%q}}]},"scopeSpans":[{"scope":{"name":"greenhouse"},"spans":[`, svc)
-	for i, s := range spans {
-		if i > 0 {
-			b.WriteByte(',')
-		}
-		fmt.Fprintf(&b, `{"traceId":%q,"spanId":%q,"name":%q,"kind":%d,"startTimeUnixNano":"%d","endTimeUnixNano":"%d"`,
-			fmt.Sprintf("%032s", traceID), fmt.Sprintf("%016s", s.id), s.name, s.kind,
-			1_700_000_000_000_000_000+s.start, 1_700_000_000_000_000_000+s.end)
-		if s.parent != "" {
-			fmt.Fprintf(&b, `,"parentSpanId":%q`, fmt.Sprintf("%016s", s.parent))
-		}
-		b.WriteString(`,"attributes":[`)
-		first := true
-		for _, k := range sortedKeys(s.attrs) {
-			if !first {
-				b.WriteByte(',')
-			}
-			first = false
-			fmt.Fprintf(&b, `{"key":%q,"value":{"stringValue":%q}}`, k, s.attrs[k])
-		}
-		b.WriteString(`]}`)
-	}
-	b.WriteString("]}]}]}\n")
-	return b.String()
-}
-
-func sortedKeys(m map[string]string) []string {
-	var ks []string
-	for k := range m {
-		ks = append(ks, k)
-	}
-	for i := range ks {
-		for j := i + 1; j < len(ks); j++ {
-			if ks[j] < ks[i] {
-				ks[i], ks[j] = ks[j], ks[i]
-			}
-		}
-	}
-	return ks
+	return testinput.Line(svc, traceID, ns)
 }
 
 func loadSpans(t testing.TB, jsonl string, timing bool) (*callgraph.Tree, *Classifier) {
@@ -90,17 +42,6 @@ func loadSpans(t testing.TB, jsonl string, timing bool) (*callgraph.Tree, *Class
 	return callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep}), cls
 }
 
-const (
-	kindInternal = 1
-	kindServer   = 2
-	kindClient   = 3
-)
-
-func dbSpan(id, parent string, start, end int64, query string) tspan {
-	return tspan{id: id, parent: parent, name: "SELECT", kind: kindClient, start: start, end: end,
-		attrs: map[string]string{"db.system.name": "postgresql", "db.query.text": query}}
-}
-
 // plantsRequest is a request of GET /plants/{id}: the server span
 // [0,100] ms; the application span catalog.(*Service).Get [5,95], which
 // runs three queries in parallel, [10,60], [10,80], [10,40], then calls
@@ -108,15 +49,15 @@ func dbSpan(id, parent string, start, end int64, query string) tspan {
 func plantsRequest(trace string, scale int64) string {
 	s := func(x int64) int64 { return x * scale }
 	return otlpLine("greenhouse", trace, []tspan{
-		{id: "1", name: "GET /plants/{id}", kind: kindServer, start: 0, end: s(100),
-			attrs: map[string]string{"http.route": "/plants/{id}", "http.request.method": "GET"}},
-		{id: "2", parent: "1", name: "Get", kind: kindInternal, start: s(5), end: s(95),
-			attrs: map[string]string{"code.namespace": "example.com/greenhouse/catalog.(*Service)", "code.function": "Get"}},
-		dbSpan("3", "2", s(10), s(60), "SELECT * FROM varieties WHERE id = 1"),
-		dbSpan("4", "2", s(10), s(80), "SELECT * FROM stock WHERE plant = 1"),
-		dbSpan("5", "2", s(10), s(40), "SELECT * FROM photos WHERE plant = 1"),
-		{id: "6", parent: "2", name: "POST", kind: kindClient, start: s(82), end: s(92),
-			attrs: map[string]string{"http.request.method": "POST", "url.full": "https://rates.carrier.test/quote", "server.address": "rates.carrier.test"}},
+		{ID: "1", Name: "GET /plants/{id}", Kind: testinput.KindServer, Start: 0, End: s(100),
+			Attrs: map[string]string{"http.route": "/plants/{id}", "http.request.method": "GET"}},
+		{ID: "2", Parent: "1", Name: "Get", Kind: testinput.KindInternal, Start: s(5), End: s(95),
+			Attrs: map[string]string{"code.namespace": "example.com/greenhouse/catalog.(*Service)", "code.function": "Get"}},
+		testinput.DBSpan("3", "2", s(10), s(60), "SELECT * FROM varieties WHERE id = 1"),
+		testinput.DBSpan("4", "2", s(10), s(80), "SELECT * FROM stock WHERE plant = 1"),
+		testinput.DBSpan("5", "2", s(10), s(40), "SELECT * FROM photos WHERE plant = 1"),
+		{ID: "6", Parent: "2", Name: "POST", Kind: testinput.KindClient, Start: s(82), End: s(92),
+			Attrs: map[string]string{"http.request.method": "POST", "url.full": "https://rates.carrier.test/quote", "server.address": "rates.carrier.test"}},
 	})
 }
 

@@ -2,78 +2,21 @@ package compare
 
 import (
 	"bytes"
-	"fmt"
 	"strings"
 	"testing"
+
+	"github.com/culprithq/culprit/attribute/internal/testinput"
 
 	"github.com/culprithq/culprit/attribute"
 	"github.com/culprithq/culprit/callgraph"
 	"github.com/culprithq/culprit/traces"
 	"github.com/culprithq/culprit/traces/statement"
-	"github.com/google/pprof/profile"
 )
 
-// Test inputs made as the attribute package's tests make them (a copy:
-// test helpers cannot be shared across packages): profiles encoded by the
-// pprof library, OTLP/JSON lines written by hand.
+// Test inputs: profiles and span sources from attribute/internal/testinput,
+// which attribute's tests share; OTLP/JSON lines written by hand.
 
 var samplesType = traces.ValueType{Type: "samples", Unit: "count"}
-
-// fakeStack is one sample of a test profile: frames root first, written
-// "function@file:line", and a count.
-type fakeStack struct {
-	frames []string
-	count  int64
-	labels map[string][]string
-}
-
-// buildProfile encodes stacks with the pprof library itself (the reference
-// encoder of profile.proto), as a goroutine-style profile.
-func buildProfile(t testing.TB, stacks []fakeStack) []byte {
-	t.Helper()
-	p := &profile.Profile{
-		SampleType: []*profile.ValueType{{Type: "samples", Unit: "count"}, {Type: "cpu", Unit: "nanoseconds"}},
-		PeriodType: &profile.ValueType{Type: "cpu", Unit: "nanoseconds"},
-		Period:     10_000_000,
-	}
-	funcs := map[string]*profile.Function{}
-	locs := map[string]*profile.Location{}
-	for _, st := range stacks {
-		var sl []*profile.Location
-		for i := len(st.frames) - 1; i >= 0; i-- { // leaf first
-			spec := st.frames[i]
-			loc := locs[spec]
-			if loc == nil {
-				name, file, line := parseFrameSpec(spec)
-				fn := funcs[name+"@"+file]
-				if fn == nil {
-					fn = &profile.Function{ID: uint64(len(funcs) + 1), Name: name, SystemName: name, Filename: file}
-					funcs[name+"@"+file] = fn
-					p.Function = append(p.Function, fn)
-				}
-				loc = &profile.Location{ID: uint64(len(locs) + 1), Line: []profile.Line{{Function: fn, Line: line}}}
-				locs[spec] = loc
-				p.Location = append(p.Location, loc)
-			}
-			sl = append(sl, loc)
-		}
-		p.Sample = append(p.Sample, &profile.Sample{Location: sl, Value: []int64{st.count, st.count * 10_000_000}, Label: st.labels})
-	}
-	var buf bytes.Buffer
-	if err := p.Write(&buf); err != nil {
-		t.Fatal(err)
-	}
-	return buf.Bytes()
-}
-
-func parseFrameSpec(spec string) (name, file string, line int64) {
-	name, rest, _ := strings.Cut(spec, "@")
-	file, ln, _ := strings.Cut(rest, ":")
-	for _, c := range ln {
-		line = line*10 + int64(c-'0')
-	}
-	return name, file, line
-}
 
 // rankProfile loads data and attributes it with rules.
 func rankProfile(t testing.TB, data []byte, rules *attribute.Rules, opts attribute.Options) *attribute.Result {
@@ -105,78 +48,11 @@ func loadTree(t testing.TB, data []byte, rules *attribute.Rules) (*callgraph.Tre
 // Charged: loadUser 10, loadOrders 30, walk 5; database 45 of 65.
 func methodsExample() []fakeStack {
 	return []fakeStack{
-		{frames: []string{fMain, fHandler, fLoadUser, fQuery, fDriver}, count: 10},
-		{frames: []string{fMain, fHandler, fLoadOrders, fQuery, fDriver}, count: 30},
-		{frames: []string{fMain, fHandler, fRender}, count: 20},
-		{frames: []string{fMain, fWalk, fWalk, fWalk, fQuery}, count: 5},
+		{Frames: []string{testinput.Main, testinput.Handler, testinput.LoadUser, testinput.Query, testinput.Driver}, Count: 10},
+		{Frames: []string{testinput.Main, testinput.Handler, testinput.LoadOrders, testinput.Query, testinput.Driver}, Count: 30},
+		{Frames: []string{testinput.Main, testinput.Handler, testinput.Render}, Count: 20},
+		{Frames: []string{testinput.Main, testinput.Walk, testinput.Walk, testinput.Walk, testinput.Query}, Count: 5},
 	}
-}
-
-const (
-	fMain       = "main.main@/home/ci/shop/main.go:20"
-	fHandler    = "example.com/shop/api.handler@/home/ci/shop/api/api.go:31"
-	fLoadUser   = "example.com/shop/store.loadUser@/home/ci/shop/store/user.go:12"
-	fLoadOrders = "example.com/shop/store.loadOrders@/home/ci/shop/store/orders.go:44"
-	fRender     = "example.com/shop/api.render@/home/ci/shop/api/render.go:9"
-	fWalk       = "example.com/shop/tree.walk@/home/ci/shop/tree/walk.go:17"
-	fQuery      = "database/sql.(*DB).Query@/usr/local/go/src/database/sql/sql.go:1720"
-	fDriver     = "github.com/lib/pq.(*conn).query@/home/ci/go/pkg/mod/github.com/lib/pq@v1.10.9/conn.go:870"
-	fHTTP       = "net/http.(*Client).Do@/usr/local/go/src/net/http/client.go:590"
-	fMux        = "net/http.HandlerFunc.ServeHTTP@/usr/local/go/src/net/http/server.go:2220"
-	fServe      = "net/http.(*conn).serve@/usr/local/go/src/net/http/server.go:2090"
-)
-
-// tspan is a span of a hand-written OTLP/JSON test trace; times in ms.
-type tspan struct {
-	id, parent string // span IDs (16 hex digits are padded from these)
-	name       string
-	kind       int // OTLP SpanKind
-	start, end int64
-	attrs      map[string]string
-}
-
-// otlpLineNanos is otlpLine with span times in ns.
-func otlpLineNanos(svc, traceID string, spans []tspan) string {
-	var b strings.Builder
-	fmt.Fprintf(&b, `{"resourceSpans":[{"resource":{"attributes":[{"key":"service.name","value":{"stringValue":%q}}]},"scopeSpans":[{"scope":{"name":"greenhouse"},"spans":[`, svc)
-	for i, s := range spans {
-		if i > 0 {
-			b.WriteByte(',')
-		}
-		fmt.Fprintf(&b, `{"traceId":%q,"spanId":%q,"name":%q,"kind":%d,"startTimeUnixNano":"%d","endTimeUnixNano":"%d"`,
-			fmt.Sprintf("%032s", traceID), fmt.Sprintf("%016s", s.id), s.name, s.kind,
-			1_700_000_000_000_000_000+s.start, 1_700_000_000_000_000_000+s.end)
-		if s.parent != "" {
-			fmt.Fprintf(&b, `,"parentSpanId":%q`, fmt.Sprintf("%016s", s.parent))
-		}
-		b.WriteString(`,"attributes":[`)
-		first := true
-		for _, k := range sortedKeys(s.attrs) {
-			if !first {
-				b.WriteByte(',')
-			}
-			first = false
-			fmt.Fprintf(&b, `{"key":%q,"value":{"stringValue":%q}}`, k, s.attrs[k])
-		}
-		b.WriteString(`]}`)
-	}
-	b.WriteString("]}]}]}\n")
-	return b.String()
-}
-
-func sortedKeys(m map[string]string) []string {
-	var ks []string
-	for k := range m {
-		ks = append(ks, k)
-	}
-	for i := range ks {
-		for j := i + 1; j < len(ks); j++ {
-			if ks[j] < ks[i] {
-				ks[i], ks[j] = ks[j], ks[i]
-			}
-		}
-	}
-	return ks
 }
 
 func loadSpans(t testing.TB, jsonl string, timing bool) (*callgraph.Tree, *attribute.Classifier) {
@@ -192,17 +68,6 @@ func loadSpans(t testing.TB, jsonl string, timing bool) (*callgraph.Tree, *attri
 	cls := attribute.NewClassifier(src, attribute.DefaultRules())
 	return callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep}), cls
 }
-
-func dbSpan(id, parent string, start, end int64, query string) tspan {
-	return tspan{id: id, parent: parent, name: "SELECT", kind: kindClient, start: start, end: end,
-		attrs: map[string]string{"db.system.name": "postgresql", "db.query.text": query}}
-}
-
-const (
-	kindInternal = 1
-	kindServer   = 2
-	kindClient   = 3
-)
 
 // TestCompareMovedLines checks that a function whose call site moved
 // (same name, another line) is one cause across builds, not a gone and a
@@ -241,3 +106,15 @@ func TestCompareMovedLines(t *testing.T) {
 		})
 	}
 }
+
+// fakeStack is one sample of a test profile (testinput.Stack).
+type fakeStack = testinput.Stack
+
+// buildProfile encodes stacks with the pprof library (testinput.Profile).
+func buildProfile(t testing.TB, stacks []fakeStack) []byte {
+	t.Helper()
+	return testinput.MustProfile(t, stacks)
+}
+
+// tspan is a span of a hand-written OTLP/JSON test trace (testinput.Span).
+type tspan = testinput.Span

@@ -8,6 +8,8 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/culprithq/culprit/attribute/internal/testinput"
+
 	"github.com/culprithq/culprit/attribute"
 )
 
@@ -24,14 +26,14 @@ func plantsBuild(n int, stock float64, seed uint64) string {
 		callEnd := end + 2000 + cr
 		appEnd := callEnd + 3000
 		b.WriteString(otlpLineMicros("greenhouse", fmt.Sprintf("%x%04x", seed, i), []tspan{
-			{id: "1", name: "GET /plants/{id}", kind: kindServer, start: 0, end: appEnd + 5000,
-				attrs: map[string]string{"http.route": "/plants/{id}", "http.request.method": "GET"}},
-			{id: "2", parent: "1", name: "Get", kind: kindInternal, start: 5000, end: appEnd,
-				attrs: map[string]string{"code.namespace": "example.com/greenhouse/catalog.(*Service)", "code.function": "Get"}},
-			dbSpan("3", "2", q, q+st, "SELECT * FROM stock WHERE plant = 1"),
-			dbSpan("4", "2", q, q+ph, "SELECT * FROM photos WHERE plant = 1"),
-			{id: "6", parent: "2", name: "POST", kind: kindClient, start: end + 2000, end: callEnd,
-				attrs: map[string]string{"http.request.method": "POST", "server.address": "rates.carrier.test"}},
+			{ID: "1", Name: "GET /plants/{id}", Kind: testinput.KindServer, Start: 0, End: appEnd + 5000,
+				Attrs: map[string]string{"http.route": "/plants/{id}", "http.request.method": "GET"}},
+			{ID: "2", Parent: "1", Name: "Get", Kind: testinput.KindInternal, Start: 5000, End: appEnd,
+				Attrs: map[string]string{"code.namespace": "example.com/greenhouse/catalog.(*Service)", "code.function": "Get"}},
+			testinput.DBSpan("3", "2", q, q+st, "SELECT * FROM stock WHERE plant = 1"),
+			testinput.DBSpan("4", "2", q, q+ph, "SELECT * FROM photos WHERE plant = 1"),
+			{ID: "6", Parent: "2", Name: "POST", Kind: testinput.KindClient, Start: end + 2000, End: callEnd,
+				Attrs: map[string]string{"http.request.method": "POST", "server.address": "rates.carrier.test"}},
 		}))
 	}
 	return b.String()
@@ -40,9 +42,9 @@ func plantsBuild(n int, stock float64, seed uint64) string {
 // otlpLineMicros is otlpLine with span times in µs.
 func otlpLineMicros(svc, traceID string, spans []tspan) string {
 	for i := range spans {
-		spans[i].start, spans[i].end = spans[i].start*1000, spans[i].end*1000
+		spans[i].Start, spans[i].End = spans[i].Start*1000, spans[i].End*1000
 	}
-	return otlpLineNanos(svc, traceID, spans)
+	return testinput.Line(svc, traceID, spans)
 }
 
 func latencySnapshotOf(t *testing.T, jsonl string) *LatencySnapshot {
