@@ -240,6 +240,7 @@ func (r *latencyRun) cause(k pathCause) int32 {
 // reqRecord is one request as the aggregation needs it.
 type reqRecord struct {
 	lo, hi  int // its paths
+	root    int // the path of its root span (pass 1)
 	id      traces.RequestID
 	entry   int32
 	latency int64
@@ -333,9 +334,10 @@ func Latency(t *callgraph.Tree, c *Classifier, opts LatencyOptions) (*LatencyRes
 	return res, nil
 }
 
-// build fills cp with the spans of paths [lo, hi) and returns the root
-// (an index into cp).
-func (r *latencyRun) build(lo, hi int, cp *cpSpans) int32 {
+// build fills cp with the spans of request rq and returns its root (an
+// index into cp).
+func (r *latencyRun) build(rq *reqRecord, cp *cpSpans) int32 {
+	lo, hi := rq.lo, rq.hi
 	src, tm := r.src, r.src.Timing
 	n := hi - lo
 	cp.start, cp.end = cp.start[:0], cp.end[:0]
@@ -361,7 +363,7 @@ func (r *latencyRun) build(lo, hi int, cp *cpSpans) int32 {
 			fill[k]++
 		}
 	}
-	return int32(r.root(lo, hi) - lo)
+	return int32(rq.root - lo)
 }
 
 // request finds the root, entry point and latency of the request of
@@ -380,7 +382,7 @@ func (r *latencyRun) request(lo, hi int, entryIx map[string]int32, entries *[]*L
 		entryIx[name] = ei
 		*entries = append(*entries, &LatencyEntry{Entry: name})
 	}
-	return reqRecord{lo: lo, hi: hi, id: rootPath.Request, entry: ei, latency: max(0, rootPath.Values[0])}, true
+	return reqRecord{lo: lo, hi: hi, root: root, id: rootPath.Request, entry: ei, latency: max(0, rootPath.Values[0])}, true
 }
 
 // root returns the path of the root span of paths [lo, hi): of the spans
@@ -408,7 +410,7 @@ func (r *latencyRun) root(lo, hi int) int {
 // its summed time to the tallies of its entry point's causes.
 func (r *latencyRun) charge(rq *reqRecord, entries []*LatencyEntry, accs map[[2]int32]*LatencyCause, cp *cpSpans, sc *cpScratch) {
 	e := entries[rq.entry]
-	root := r.build(rq.lo, rq.hi, cp)
+	root := r.build(rq, cp)
 	r.assignRoles(rq.lo, cp, root, e.Entry)
 	l := float64(rq.latency)
 	inTail, inMedian := l >= e.TailThreshold, l <= e.P50
@@ -646,7 +648,7 @@ func (r *latencyRun) slowest(entries []*LatencyEntry, reqs []reqRecord, n int, c
 
 // requestPath recomputes one request's critical path as a span tree.
 func (r *latencyRun) requestPath(rq *reqRecord, entry string, cp *cpSpans, sc *cpScratch) *RequestPath {
-	root := r.build(rq.lo, rq.hi, cp)
+	root := r.build(rq, cp)
 	r.assignRoles(rq.lo, cp, root, entry)
 	on := make([]int64, len(cp.start))
 	criticalPath(cp, root, r.enter, func(p cpPiece) { on[p.span] += p.dur }, sc)
