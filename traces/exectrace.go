@@ -3,7 +3,6 @@ package traces
 import (
 	"bufio"
 	"bytes"
-	"errors"
 	"fmt"
 	"io"
 	"maps"
@@ -117,6 +116,7 @@ type stackInfo struct {
 	roundTrip bool      // inside the HTTP/1 client's round trip
 	readLoop  bool      // an HTTP/1 client connection's read loop
 	pool      bool      // waiting for or opening a pooled connection
+	ref       FrameRef  // where the paths of this stack (with no creator's prefix) store their frames
 }
 
 // execStretch is one wait of a request, kept until the request ends.
@@ -132,14 +132,14 @@ type execStretch struct {
 
 // execRequest is one request being read.
 type execRequest struct {
-	g         *execG
+	g         trace.GoID // the connection goroutine
 	start     int64
 	cut       bool
 	closed    bool
 	endT      int64
 	id        RequestID
 	stretches []execStretch
-	children  []*execG
+	children  []trace.GoID // goroutines it created
 }
 
 type execPendKind uint8
@@ -203,11 +203,13 @@ type execReader struct {
 	inPool    []bool // the prefix waits for or opens a pooled connection
 	prefixIDs map[execPrefixKey]int32
 	free      [][]execStretch // emptied stretch slices, for reuse
+	freeGs    []*execG        // goroutines that exited, for reuse
 	edges     []execEdge      // splitWall's scratch space
 	times     []int64
 	counts    []int
 	groups    map[execGroupKey]int
-	writers   map[string]int32 // see writerKey
+	writers   map[string]int32          // see writerKey
+	refs      map[execGroupKey]FrameRef // stored frames of paths with a creator's prefix
 	keyBuf    []byte
 	nreq      map[trace.GoID]int // requests ended per connection goroutine
 	cut       int
@@ -249,7 +251,7 @@ func (c *ExecCollector) Add(name string, r io.Reader) (err error) {
 		src: NewSource(ExecTrace, ExecTraceValueTypes), limits: c.limits, name: name, input: c.inputs,
 		stacks: map[trace.Stack]*stackInfo{}, nreq: map[trace.GoID]int{},
 		first: -1, prefixes: [][]FrameID{nil}, inPool: []bool{false}, prefixIDs: map[execPrefixKey]int32{}, groups: map[execGroupKey]int{},
-		writers: map[string]int32{},
+		writers: map[string]int32{}, refs: map[execGroupKey]FrameRef{},
 	}
 	cr := &countingReader{r: r}
 	defer func() {
@@ -311,34 +313,43 @@ func (x *execReader) read(cr *countingReader) error {
 	if err != nil {
 		return x.headerError(err)
 	}
+	// The library's ReadEvent is the floor of the reader's cost; the
+	// requests are followed on this goroutine while another one reads
+	// the next events (see eventPipe).
+	p := startEventPipe(tr, func() int64 { return cr.n - int64(br.Buffered()) })
+	defer p.stop()
 	for {
-		ev, err := tr.ReadEvent()
-		if errors.Is(err, io.EOF) {
+		batch, ok := p.next()
+		if !ok {
 			break
 		}
-		if err != nil {
-			// The library's message may go on with a dump of its state.
-			msg, _, _ := strings.Cut(err.Error(), "\n")
-			// The library reads through br (its own buffer is br), a batch
-			// at a time: the position is the end of what it had read.
-			return &ParseError{File: x.name, Offset: cr.n - int64(br.Buffered()), Err: fmt.Errorf("malformed Go execution trace: %s", strings.TrimSuffix(msg, ":"))}
+		for i := range batch {
+			ev := &batch[i]
+			t := int64(ev.Time())
+			if x.first < 0 {
+				x.first = t
+			}
+			x.last = t
+			st := ev.StateTransition()
+			if st.Resource.Kind != trace.ResourceGoroutine {
+				continue
+			}
+			x.transition(ev, &st, t)
+			if x.err != nil {
+				return x.err
+			}
 		}
-		if ev.Kind() != trace.EventStateTransition {
-			continue
+		p.done(batch)
+	}
+	if err := p.err; err != nil {
+		if pe, ok := err.(eventPanic); ok {
+			panic(pe.v) // words it as Add does for a panic here
 		}
-		t := int64(ev.Time())
-		if x.first < 0 {
-			x.first = t
-		}
-		x.last = t
-		st := ev.StateTransition()
-		if st.Resource.Kind != trace.ResourceGoroutine {
-			continue
-		}
-		x.transition(ev, st, t)
-		if x.err != nil {
-			return x.err
-		}
+		// The library's message may go on with a dump of its state.
+		msg, _, _ := strings.Cut(err.Error(), "\n")
+		// The library reads through br (its own buffer is br), a batch
+		// at a time: the position is the end of what it had read.
+		return &ParseError{File: x.name, Offset: p.pos, Err: fmt.Errorf("malformed Go execution trace: %s", strings.TrimSuffix(msg, ":"))}
 	}
 	// Requests still open are cut by the end of the trace.
 	for _, g := range x.gs.all() {
@@ -390,7 +401,12 @@ func fmtNanos(ns int64) string {
 func (x *execReader) g(id trace.GoID) *execG {
 	g := x.gs.get(id)
 	if g == nil {
-		g = &execG{id: id}
+		if n := len(x.freeGs); n > 0 {
+			g, x.freeGs = x.freeGs[n-1], x.freeGs[:n-1]
+			*g = execG{id: id}
+		} else {
+			g = &execG{id: id}
+		}
 		x.gs.put(id, g)
 	}
 	return g
@@ -454,7 +470,7 @@ func (t *goTable) all() []*execG {
 }
 
 // transition handles one goroutine state change.
-func (x *execReader) transition(ev trace.Event, st trace.StateTransition, t int64) {
+func (x *execReader) transition(ev *trace.Event, st *trace.StateTransition, t int64) {
 	from, to := st.Goroutine()
 	id := st.Resource.Goroutine()
 	// The goroutine running the event (creator, waker) sees its own stack.
@@ -555,7 +571,7 @@ func (x *execReader) observe(g *execG, info *stackInfo, t int64) {
 	if info.handler {
 		if g.req == nil {
 			start := max(g.runStart, g.lastOut)
-			g.req = &execRequest{g: g, start: start, cut: g.preexisting && !g.sawOut}
+			g.req = &execRequest{g: g.id, start: start, cut: g.preexisting && !g.sawOut}
 		}
 		return
 	}
@@ -590,7 +606,7 @@ func (x *execReader) created(a, c *execG, info *stackInfo) {
 		x.prefixIDs[key] = id
 	}
 	c.prefix = id
-	a.req.children = append(a.req.children, c)
+	a.req.children = append(a.req.children, c.id)
 }
 
 // execPrefixKey names a child goroutine's prefix: its creator's prefix
@@ -667,6 +683,7 @@ func (x *execReader) exit(g *execG, t int64) {
 		g.req = nil
 	}
 	x.gs.del(g.id)
+	x.freeGs = append(x.freeGs, g) // nothing refers to it past its exit
 }
 
 // end closes request r at time t and writes its paths.
@@ -678,8 +695,8 @@ func (x *execReader) end(r *execRequest, t int64) {
 		x.dropCut(r)
 		return
 	}
-	x.nreq[r.g.id]++
-	key := "G" + strconv.Itoa(x.input) + "." + strconv.FormatInt(int64(r.g.id), 10) + "." + strconv.Itoa(x.nreq[r.g.id])
+	x.nreq[r.g]++
+	key := "G" + strconv.Itoa(x.input) + "." + strconv.FormatInt(int64(r.g), 10) + "." + strconv.Itoa(x.nreq[r.g])
 	r.id = x.src.InternRequest(key)
 	x.emit(r, r.stretches, len(r.children) > 0)
 	x.release(r.stretches)
@@ -730,11 +747,6 @@ func (x *execReader) emit(r *execRequest, ss []execStretch, concurrent bool) {
 		if s.info == nil || len(s.info.frames) == 0 {
 			continue
 		}
-		frames := s.info.frames
-		if s.prefix != 0 {
-			frames = append(append(x.scratch[:0], x.prefixes[s.prefix]...), frames...)
-			x.scratch = frames
-		}
 		wait := s.end - s.start
 		vals[execWait], vals[execWall], vals[execRunnable], vals[execCalls] = wait, s.wall, s.runnable, int64(s.calls)
 		x.wait += wait
@@ -743,8 +755,34 @@ func (x *execReader) emit(r *execRequest, ss []execStretch, concurrent bool) {
 		if s.info.pool || x.inPool[s.prefix] {
 			call = x.src.InternCall(Call{Connection: true})
 		}
-		x.src.Paths.Append(Path{Frames: frames, Values: vals[:], Request: r.id, Call: call})
+		p := Path{Values: vals[:], Request: r.id, Call: call}
+		if s.prefix == 0 {
+			x.appendShared(p, &s.info.ref, nil, s.info.frames)
+			continue
+		}
+		k := execGroupKey{s.info, s.prefix}
+		ref := x.refs[k]
+		x.appendShared(p, &ref, x.prefixes[s.prefix], s.info.frames)
+		x.refs[k] = ref
 	}
+}
+
+// appendShared appends p with frames prefix+frames. Requests wait at the
+// same places again and again: the paths of one stack (and creator's
+// prefix) share one copy of their frames, stored by the first and named
+// by *ref after it.
+func (x *execReader) appendShared(p Path, ref *FrameRef, prefix, frames []FrameID) {
+	if *ref != (FrameRef{}) {
+		x.src.Paths.AppendRef(p, *ref)
+		return
+	}
+	p.Frames = frames
+	if len(prefix) > 0 {
+		p.Frames = append(append(x.scratch[:0], prefix...), frames...)
+		x.scratch = p.Frames
+	}
+	x.src.Paths.Append(p)
+	*ref = x.src.Paths.Ref(x.src.Paths.Len() - 1)
 }
 
 func (x *execReader) dropCut(r *execRequest) {
@@ -754,8 +792,8 @@ func (x *execReader) dropCut(r *execRequest) {
 	}
 	x.release(r.stretches)
 	r.stretches = nil
-	for _, c := range r.children {
-		if c.req == r {
+	for _, id := range r.children {
+		if c := x.gs.get(id); c != nil && c.req == r {
 			x.release(c.stretches)
 			c.req, c.stretches = nil, nil
 		}
