@@ -11,6 +11,7 @@ import (
 	"io"
 	"net"
 	"net/http"
+	"os"
 	"runtime/trace"
 	"strconv"
 	"strings"
@@ -714,13 +715,27 @@ var benchTrace struct {
 	data []byte
 }
 
-// BenchmarkExecTrace ranks a large execution trace of the nursery
-// workload (recorded once by runtime/trace) beside the floor: the
-// library's own ReadEvent loop over the same bytes. The target is rank
-// at most 1.3× the loop (README, "Go execution traces").
+// BenchmarkExecTrace ranks an execution trace of the nursery workload
+// (recorded once by runtime/trace) beside the floor: the library's own
+// ReadEvent loop over the same bytes. The target is rank at most 1.3×
+// the loop (README, "Go execution traces"). The trace is about 1.5 MB;
+// CULPRIT_BENCH_TRACE_MB=100 records one of about that many megabytes
+// (a minute of recording), and CULPRIT_BENCH_TRACE=FILE reads one.
 func BenchmarkExecTrace(b *testing.B) {
 	benchTrace.once.Do(func() {
-		benchTrace.data, _, _ = recordNursery(b, 150)
+		if f := os.Getenv("CULPRIT_BENCH_TRACE"); f != "" {
+			data, err := os.ReadFile(f)
+			if err != nil {
+				b.Fatal(err)
+			}
+			benchTrace.data = data
+			return
+		}
+		rounds := 150
+		if mb, err := strconv.Atoi(os.Getenv("CULPRIT_BENCH_TRACE_MB")); err == nil && mb > 0 {
+			rounds = 100 * mb // about 10 KB a round
+		}
+		benchTrace.data, _, _ = recordNursery(b, rounds)
 	})
 	data := benchTrace.data
 	b.Logf("trace of %d bytes", len(data))
@@ -738,6 +753,17 @@ func BenchmarkExecTrace(b *testing.B) {
 					}
 					break
 				}
+			}
+		}
+	})
+	b.Run("Load", func(b *testing.B) {
+		for b.Loop() {
+			l := traces.NewLoader(traces.Options{SkipDigest: true})
+			if err := l.Add("trace.out", bytes.NewReader(data)); err != nil {
+				b.Fatal(err)
+			}
+			if _, err := l.Source(); err != nil {
+				b.Fatal(err)
 			}
 		}
 	})

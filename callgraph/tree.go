@@ -61,7 +61,21 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 	// common prefix and look up only the rest.
 	var prevFrames []traces.FrameID
 	var prevNodes []NodeID
+	// Paths that share stored frames (an execution trace's waits at one
+	// stack) share their leaf: it is looked up once.
+	var leafOf map[uint64]NodeID
+	if src.Paths.Shared() {
+		leafOf = map[uint64]NodeID{}
+	}
 	for pi := range src.Paths.Len() {
+		var key uint64
+		if leafOf != nil {
+			key = src.Paths.FrameKey(pi)
+			if n, ok := leafOf[key]; ok {
+				t.leaf[pi] = n
+				continue
+			}
+		}
 		frames := src.Paths.Frames(pi)
 		if opts.Keep != nil && len(frames) > 0 {
 			frames = frames[:min(max(opts.Keep(frames), 1), len(frames))]
@@ -90,14 +104,22 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 			prevNodes = append(prevNodes, cur)
 		}
 		t.leaf[pi] = cur
+		if leafOf != nil {
+			leafOf[key] = cur
+		}
 	}
 	return t
 }
 
 // newNodesBound returns an upper bound of the nodes NewTree makes: the
-// frames of each path past its common prefix with the previous path
-// (capped at 16M, where growing is cheaper than guessing).
+// frames of each path past its common prefix with the previous path, or
+// with shared frames the frames stored (capped at 16M, where growing is
+// cheaper than guessing).
 func newNodesBound(src *traces.Source) int {
+	if src.Paths.Shared() {
+		// Each stored frame makes at most one node.
+		return min(src.Paths.StoredFrames(), 1<<24)
+	}
 	n := 0
 	var prev []traces.FrameID
 	for i := range src.Paths.Len() {

@@ -3,7 +3,8 @@ package report
 import (
 	"bytes"
 	"encoding/csv"
-	"encoding/json"
+
+	json "github.com/goccy/go-json"
 	"io"
 	"strconv"
 	"strings"
@@ -58,14 +59,13 @@ func revealInvisible(s string) string {
 // hold them only there), so that no reader of the raw file sees text
 // reordered.
 func writeJSON(w io.Writer, v any) error {
-	var buf bytes.Buffer
-	enc := json.NewEncoder(&buf)
-	enc.SetIndent("", "  ")
-	if err := enc.Encode(v); err != nil {
+	data, err := json.MarshalIndent(v, "", "  ")
+	if err != nil {
 		return err
 	}
-	data := buf.Bytes()
-	if bytes.IndexFunc(data, isInvisible) >= 0 {
+	data = append(data, '\n')
+	// Invisible characters are not ASCII: most reports have none to find.
+	if i := nonASCII(data); i >= 0 && bytes.IndexFunc(data[i:], isInvisible) >= 0 {
 		var b strings.Builder
 		for len(data) > 0 {
 			r, n := utf8.DecodeRune(data)
@@ -83,8 +83,19 @@ func writeJSON(w io.Writer, v any) error {
 		}
 		data = []byte(b.String())
 	}
-	_, err := w.Write(data)
+	_, err = w.Write(data)
 	return err
+}
+
+// nonASCII returns the index of the first byte of data past ASCII, -1 if
+// there is none.
+func nonASCII(data []byte) int {
+	for i, c := range data {
+		if c >= utf8.RuneSelf {
+			return i
+		}
+	}
+	return -1
 }
 
 // csvWriter is a csv.Writer whose cells are safe to open in a

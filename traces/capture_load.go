@@ -146,7 +146,7 @@ func (l *Loader) captureSource() (*Source, bool, error) {
 			if err != nil {
 				return nil, true, &ParseError{File: cp.name, Offset: cp.offset, Err: fmt.Errorf("profile record: %w", err)}
 			}
-			if data, err = readAll(&sizeLimitReader{r: zr, max: l.opts.Limits.MaxBytes, name: cp.name}); err != nil {
+			if data, err = readAll(&sizeLimitReader{r: zr, max: l.opts.Limits.MaxBytes, name: cp.name}, firstChunk); err != nil {
 				return nil, true, &ParseError{File: cp.name, Offset: cp.offset, Err: fmt.Errorf("profile record: %w", err)}
 			}
 		}

@@ -4,7 +4,6 @@ import (
 	"bufio"
 	"bytes"
 	"cmp"
-	"errors"
 	"fmt"
 	"io"
 	"maps"
@@ -65,6 +64,9 @@ import (
 //   - Pool waits (a stack through database/sql.(*DB).conn, a semaphore or
 //     a pool's Acquire, or a goroutine started there to open a connection)
 //     are connection waits (Call.Connection), with no calls.
+//   - Read with Options.Timing (the latency view), a request is written as
+//     a tree of spans instead: its goroutine, its waits, and the child
+//     goroutines it waited for (see emitTimed).
 
 // ExecTraceValueTypes are the values of every path of an ExecTrace source.
 var ExecTraceValueTypes = []ValueType{
@@ -118,6 +120,7 @@ type stackInfo struct {
 	roundTrip bool      // inside the HTTP/1 client's round trip
 	readLoop  bool      // an HTTP/1 client connection's read loop
 	pool      bool      // waiting for or opening a pooled connection
+	ref       FrameRef  // where the paths of this stack (with no creator's prefix) store their frames
 }
 
 // execStretch is one wait of a request, kept until the request ends.
@@ -135,16 +138,38 @@ type execStretch struct {
 
 // execRequest is one request being read.
 type execRequest struct {
-	g         *execG
+	g         trace.GoID // the connection goroutine
 	start     int64
 	cut       bool
 	closed    bool
 	endT      int64
 	id        RequestID
 	stretches []execStretch
-	children  []*execG
-	pending   int // with Options.Timing: children alive at its end, not yet resolved (see emitTimed)
+	children  []trace.GoID // goroutines it created
+	// With Options.Timing: what the latency view needs of each child
+	// (kids[k] is children[k]), and how many children alive at its end
+	// are not yet resolved (see emitTimed).
+	kids    []execChild
+	pending int
 }
+
+// execChild is a goroutine created for a request, as the latency view
+// needs it (Options.Timing).
+type execChild struct {
+	creator        int32 // 0: the request's goroutine, k: children[k-1]
+	prefix         int32 // see execStretch.prefix
+	created, exitT int64
+	startFrame     FrameID // the first frame of its first wait's stack: its function
+	state          execChildState
+}
+
+type execChildState uint8
+
+const (
+	childAlive    execChildState = iota
+	childKept                    // exited as the request's: its waits are the request's
+	childDisowned                // waited again after the request ended: not the request's
+)
 
 type execPendKind uint8
 
@@ -168,13 +193,6 @@ type execG struct {
 	stretches   []execStretch // a child's, until it exits
 	runStart    int64
 	lastOut     int64
-	// A child's creation and exit times, its creator (nil: the request's
-	// own goroutine) and its index in its request's children, +1.
-	created, exitT int64
-	creator        *execG
-	childIx        int32
-	disowned       bool    // waited again after its request ended: not the request's
-	startFrame     FrameID // the first frame of its first wait's stack (Options.Timing)
 
 	pend      execPendKind
 	pendInfo  *stackInfo
@@ -182,6 +200,7 @@ type execG struct {
 	pendWake  int64
 	pendCalls int32
 	pendJoin  int32 // the child that ended the wait (its childIx): a join; 0 none
+	childIx   int32 // a child's index in its request's children, +1
 	writing   int32 // the last wait or system call was a socket write by this writer; 0: not a write
 	// The goroutine's last stack and its information: goroutines wait
 	// at the same places again and again.
@@ -214,11 +233,13 @@ type execReader struct {
 	inPool    []bool // the prefix waits for or opens a pooled connection
 	prefixIDs map[execPrefixKey]int32
 	free      [][]execStretch // emptied stretch slices, for reuse
+	freeGs    []*execG        // goroutines that exited, for reuse
 	edges     []execEdge      // splitWall's scratch space
 	times     []int64
 	counts    []int
 	groups    map[execGroupKey]int
-	writers   map[string]int32 // see writerKey
+	writers   map[string]int32          // see writerKey
+	refs      map[execGroupKey]FrameRef // stored frames of paths with a creator's prefix
 	keyBuf    []byte
 	nreq      map[trace.GoID]int // requests ended per connection goroutine
 	timing    bool               // Options.Timing: requests as trees of spans (emitTimed)
@@ -263,7 +284,7 @@ func (c *ExecCollector) Add(name string, r io.Reader) (err error) {
 		src: NewSource(ExecTrace, ExecTraceValueTypes), limits: c.limits, name: name, input: c.inputs,
 		stacks: map[trace.Stack]*stackInfo{}, nreq: map[trace.GoID]int{},
 		first: -1, prefixes: [][]FrameID{nil}, inPool: []bool{false}, prefixIDs: map[execPrefixKey]int32{}, groups: map[execGroupKey]int{},
-		writers: map[string]int32{},
+		writers: map[string]int32{}, refs: map[execGroupKey]FrameRef{},
 	}
 	if c.timing {
 		x.timing = true
@@ -297,12 +318,11 @@ func (c *ExecCollector) merge(o *Source) error {
 			len(dst.Frames), c.limits.MaxFrames, ErrLimit)
 	}
 	var buf []FrameID
-	base := int32(dst.Paths.Len())
 	if tm := o.Timing; tm != nil {
 		if dst.Timing == nil {
 			dst.Timing = &Timing{}
 		}
-		dt := dst.Timing
+		dt, base := dst.Timing, int32(dst.Paths.Len())
 		dt.Start = append(dt.Start, tm.Start...)
 		dt.Goroutine = append(dt.Goroutine, tm.Goroutine...)
 		for _, par := range tm.Parent {
@@ -344,34 +364,43 @@ func (x *execReader) read(cr *countingReader) error {
 	if err != nil {
 		return x.headerError(err)
 	}
+	// The library's ReadEvent is the floor of the reader's cost; the
+	// requests are followed on this goroutine while another one reads
+	// the next events (see eventPipe).
+	p := startEventPipe(tr, func() int64 { return cr.n - int64(br.Buffered()) })
+	defer p.stop()
 	for {
-		ev, err := tr.ReadEvent()
-		if errors.Is(err, io.EOF) {
+		batch, ok := p.next()
+		if !ok {
 			break
 		}
-		if err != nil {
-			// The library's message may go on with a dump of its state.
-			msg, _, _ := strings.Cut(err.Error(), "\n")
-			// The library reads through br (its own buffer is br), a batch
-			// at a time: the position is the end of what it had read.
-			return &ParseError{File: x.name, Offset: cr.n - int64(br.Buffered()), Err: fmt.Errorf("malformed Go execution trace: %s", strings.TrimSuffix(msg, ":"))}
+		for i := range batch {
+			ev := &batch[i]
+			t := int64(ev.Time())
+			if x.first < 0 {
+				x.first = t
+			}
+			x.last = t
+			st := ev.StateTransition()
+			if st.Resource.Kind != trace.ResourceGoroutine {
+				continue
+			}
+			x.transition(ev, &st, t)
+			if x.err != nil {
+				return x.err
+			}
 		}
-		if ev.Kind() != trace.EventStateTransition {
-			continue
+		p.done(batch)
+	}
+	if err := p.err; err != nil {
+		if pe, ok := err.(eventPanic); ok {
+			panic(pe.v) // words it as Add does for a panic here
 		}
-		t := int64(ev.Time())
-		if x.first < 0 {
-			x.first = t
-		}
-		x.last = t
-		st := ev.StateTransition()
-		if st.Resource.Kind != trace.ResourceGoroutine {
-			continue
-		}
-		x.transition(ev, st, t)
-		if x.err != nil {
-			return x.err
-		}
+		// The library's message may go on with a dump of its state.
+		msg, _, _ := strings.Cut(err.Error(), "\n")
+		// The library reads through br (its own buffer is br), a batch
+		// at a time: the position is the end of what it had read.
+		return &ParseError{File: x.name, Offset: p.pos, Err: fmt.Errorf("malformed Go execution trace: %s", strings.TrimSuffix(msg, ":"))}
 	}
 	// Requests still open are cut by the end of the trace.
 	for _, g := range x.gs.all() {
@@ -424,7 +453,12 @@ func fmtNanos(ns int64) string {
 func (x *execReader) g(id trace.GoID) *execG {
 	g := x.gs.get(id)
 	if g == nil {
-		g = &execG{id: id}
+		if n := len(x.freeGs); n > 0 {
+			g, x.freeGs = x.freeGs[n-1], x.freeGs[:n-1]
+			*g = execG{id: id}
+		} else {
+			g = &execG{id: id}
+		}
 		x.gs.put(id, g)
 	}
 	return g
@@ -488,7 +522,7 @@ func (t *goTable) all() []*execG {
 }
 
 // transition handles one goroutine state change.
-func (x *execReader) transition(ev trace.Event, st trace.StateTransition, t int64) {
+func (x *execReader) transition(ev *trace.Event, st *trace.StateTransition, t int64) {
 	from, to := st.Goroutine()
 	id := st.Resource.Goroutine()
 	// The goroutine running the event (creator, waker) sees its own stack.
@@ -589,7 +623,7 @@ func (x *execReader) observe(g *execG, info *stackInfo, t int64) {
 	if info.handler {
 		if g.req == nil {
 			start := max(g.runStart, g.lastOut)
-			g.req = &execRequest{g: g, start: start, cut: g.preexisting && !g.sawOut}
+			g.req = &execRequest{g: g.id, start: start, cut: g.preexisting && !g.sawOut}
 		}
 		return
 	}
@@ -606,10 +640,7 @@ func (x *execReader) created(a, c *execG, info *stackInfo, t int64) {
 	if a.req == nil || a.exited || a.req.closed {
 		return
 	}
-	c.child, c.req, c.created = true, a.req, t
-	if a.child {
-		c.creator = a
-	}
+	c.child, c.req = true, a.req
 	// Children created at one place share their prefix.
 	key := execPrefixKey{a.prefix, info}
 	id, ok := x.prefixIDs[key]
@@ -627,8 +658,11 @@ func (x *execReader) created(a, c *execG, info *stackInfo, t int64) {
 		x.prefixIDs[key] = id
 	}
 	c.prefix = id
-	a.req.children = append(a.req.children, c)
+	a.req.children = append(a.req.children, c.id)
 	c.childIx = int32(len(a.req.children))
+	if x.timing {
+		a.req.kids = append(a.req.kids, execChild{creator: a.childIx, prefix: id, created: t})
+	}
 }
 
 // execPrefixKey names a child goroutine's prefix: its creator's prefix
@@ -646,14 +680,18 @@ func (x *execReader) add(g *execG, s execStretch) {
 	case g.child:
 		if g.req.closed && s.start >= g.req.endT {
 			x.release(g.stretches) // still at work after its request: not its own
-			g.disowned = true
-			x.resolved(g.req)
+			if x.timing {
+				g.req.kids[g.childIx-1].state = childDisowned
+				x.resolved(g.req)
+			}
 			g.req, g.stretches = nil, nil
 			return
 		}
 		s.prefix, s.owner = g.prefix, g.childIx
-		if x.timing && g.startFrame == 0 && len(s.info.frames) > 0 {
-			g.startFrame = s.info.frames[0]
+		if x.timing && len(s.info.frames) > 0 {
+			if k := &g.req.kids[g.childIx-1]; k.startFrame == 0 {
+				k.startFrame = s.info.frames[0]
+			}
 		}
 		if g.stretches == nil {
 			g.stretches = x.stretchSlice()
@@ -687,9 +725,13 @@ func (x *execReader) release(s []execStretch) {
 // exit ends goroutine g: a child hands its stretches to its request if
 // that is still open; a connection goroutine ends its request.
 func (x *execReader) exit(g *execG, t int64) {
-	g.exited, g.exitT = true, t
+	g.exited = true
 	g.pend = pendNone
 	if g.child {
+		if r := g.req; x.timing && r != nil && !r.cut {
+			k := &r.kids[g.childIx-1]
+			k.state, k.exitT = childKept, t
+		}
 		switch r := g.req; {
 		case r == nil:
 		case !r.closed:
@@ -713,6 +755,7 @@ func (x *execReader) exit(g *execG, t int64) {
 		g.req = nil
 	}
 	x.gs.del(g.id)
+	x.freeGs = append(x.freeGs, g) // nothing refers to it past its exit
 }
 
 // end closes request r at time t and writes its paths.
@@ -724,12 +767,12 @@ func (x *execReader) end(r *execRequest, t int64) {
 		x.dropCut(r)
 		return
 	}
-	x.nreq[r.g.id]++
-	key := "G" + strconv.Itoa(x.input) + "." + strconv.FormatInt(int64(r.g.id), 10) + "." + strconv.Itoa(x.nreq[r.g.id])
+	x.nreq[r.g]++
+	key := "G" + strconv.Itoa(x.input) + "." + strconv.FormatInt(int64(r.g), 10) + "." + strconv.Itoa(x.nreq[r.g])
 	r.id = x.src.InternRequest(key)
 	if x.timing {
-		for _, c := range r.children {
-			if c.req == r && !c.exited {
+		for _, k := range r.kids {
+			if k.state == childAlive {
 				r.pending++
 			}
 		}
@@ -787,11 +830,6 @@ func (x *execReader) emit(r *execRequest, ss []execStretch, concurrent bool) {
 		if s.info == nil || len(s.info.frames) == 0 {
 			continue
 		}
-		frames := s.info.frames
-		if s.prefix != 0 {
-			frames = append(append(x.scratch[:0], x.prefixes[s.prefix]...), frames...)
-			x.scratch = frames
-		}
 		wait := s.end - s.start
 		vals[execWait], vals[execWall], vals[execRunnable], vals[execCalls] = wait, s.wall, s.runnable, int64(s.calls)
 		x.wait += wait
@@ -800,8 +838,34 @@ func (x *execReader) emit(r *execRequest, ss []execStretch, concurrent bool) {
 		if s.info.pool || x.inPool[s.prefix] {
 			call = x.src.InternCall(Call{Connection: true})
 		}
-		x.src.Paths.Append(Path{Frames: frames, Values: vals[:], Request: r.id, Call: call})
+		p := Path{Values: vals[:], Request: r.id, Call: call}
+		if s.prefix == 0 {
+			x.appendShared(p, &s.info.ref, nil, s.info.frames)
+			continue
+		}
+		k := execGroupKey{s.info, s.prefix}
+		ref := x.refs[k]
+		x.appendShared(p, &ref, x.prefixes[s.prefix], s.info.frames)
+		x.refs[k] = ref
 	}
+}
+
+// appendShared appends p with frames prefix+frames. Requests wait at the
+// same places again and again: the paths of one stack (and creator's
+// prefix) share one copy of their frames, stored by the first and named
+// by *ref after it.
+func (x *execReader) appendShared(p Path, ref *FrameRef, prefix, frames []FrameID) {
+	if *ref != (FrameRef{}) {
+		x.src.Paths.AppendRef(p, *ref)
+		return
+	}
+	p.Frames = frames
+	if len(prefix) > 0 {
+		p.Frames = append(append(x.scratch[:0], prefix...), frames...)
+		x.scratch = p.Frames
+	}
+	x.src.Paths.Append(p)
+	*ref = x.src.Paths.Ref(x.src.Paths.Len() - 1)
 }
 
 // resolved notes that a child of request r, alive when r ended, exited
@@ -852,15 +916,14 @@ func (x *execReader) flushTimed() {
 // or runnable after a wake. The request is written if rank writes a path
 // of it, so that both count the same requests.
 func (x *execReader) emitTimed(r *execRequest) {
-	ss := r.stretches
+	ss, kids := r.stretches, r.kids
 	defer func() {
 		x.release(r.stretches)
-		r.stretches, r.children = nil, nil
+		r.stretches, r.children, r.kids = nil, nil, nil
 	}()
 	if !slices.ContainsFunc(ss, func(s execStretch) bool { return len(s.info.frames) > 0 }) {
 		return // rank writes nothing of it
 	}
-	kept := func(c *execG) bool { return c.exited && !c.disowned }
 	t := &x.tree
 	// The joins, by goroutine and start.
 	t.joins = t.joins[:0]
@@ -874,22 +937,20 @@ func (x *execReader) emitTimed(r *execRequest) {
 	})
 	// Where each child hangs: the last join of an ancestor that it ended,
 	// else the join of its creator during which it exited.
-	under := fill(&t.under, len(r.children), -1)
+	under := fill(&t.under, len(kids), -1)
 	for _, i := range t.joins {
 		s := &ss[i]
 		w := s.waker - 1
-		if c := r.children[w]; kept(c) && descends(c, s.owner, r.children) && (under[w] < 0 || s.end > ss[under[w]].end) {
+		if kids[w].state == childKept && descends(kids, w, s.owner) && (under[w] < 0 || s.end > ss[under[w]].end) {
 			under[w] = i
 		}
 	}
-	for k, c := range r.children {
-		if under[k] >= 0 || !kept(c) {
+	for k := range kids {
+		c := &kids[k]
+		if under[k] >= 0 || c.state != childKept {
 			continue
 		}
-		var owner int32
-		if c.creator != nil {
-			owner = c.creator.childIx
-		}
+		owner := c.creator
 		j, _ := slices.BinarySearchFunc(t.joins, [2]int64{int64(owner), c.exitT}, func(i int32, key [2]int64) int {
 			return cmp.Or(cmp.Compare(int64(ss[i].owner), key[0]), cmp.Compare(ss[i].start, key[1]+1))
 		})
@@ -903,8 +964,8 @@ func (x *execReader) emitTimed(r *execRequest) {
 	// below a join of a goroutine in the tree), the waits of those.
 	root := int32(x.src.Paths.Len())
 	next := root + 1
-	node := fill(&t.node, len(r.children), -1)
-	for k := range r.children {
+	node := fill(&t.node, len(kids), -1)
+	for k := range kids {
 		if u := under[k]; u >= 0 && (ss[u].owner == 0 || node[ss[u].owner-1] >= 0) {
 			node[k] = next
 			next++
@@ -939,8 +1000,8 @@ func (x *execReader) emitTimed(r *execRequest) {
 			common(s.info.frames)
 		}
 	}
-	for _, c := range r.children {
-		if kept(c) {
+	for _, c := range kids {
+		if c.state == childKept {
 			common(x.prefixes[c.prefix])
 		}
 	}
@@ -954,7 +1015,7 @@ func (x *execReader) emitTimed(r *execRequest) {
 		}
 	}
 	t.lcp = lcp
-	if len(r.children) > 0 {
+	if len(kids) > 0 {
 		x.splitWall(ss)
 	} else {
 		for i := range ss {
@@ -965,19 +1026,16 @@ func (x *execReader) emitTimed(r *execRequest) {
 	}
 
 	tm := x.src.Timing
-	add := func(frames []FrameID, start, end int64, parent int32, g bool, call CallID, vals [4]int64) {
-		vals[execWait] = end - start
+	timed := func(start int64, parent int32, g bool) {
 		tm.Start = append(tm.Start, start)
 		tm.Parent = append(tm.Parent, parent)
 		tm.Goroutine = append(tm.Goroutine, g)
-		x.src.Paths.Append(Path{Frames: frames, Values: vals[:], Request: r.id, Call: call})
 	}
-	pathOf := func(prefix int32, fs []FrameID) []FrameID {
-		if prefix == 0 {
-			return fs
-		}
-		x.scratch = append(append(x.scratch[:0], x.prefixes[prefix]...), fs...)
-		return x.scratch
+	// The goroutines' paths: value 0 is their duration, the others none.
+	add := func(frames []FrameID, start, end int64, parent int32, call CallID) {
+		timed(start, parent, true)
+		vals := [4]int64{execWait: end - start}
+		x.src.Paths.Append(Path{Frames: frames, Values: vals[:], Request: r.id, Call: call})
 	}
 	connection := func(pool bool) CallID {
 		if pool {
@@ -985,16 +1043,18 @@ func (x *execReader) emitTimed(r *execRequest) {
 		}
 		return 0
 	}
-	add(lcp, r.start, r.endT, -1, true, 0, [4]int64{})
-	for k, c := range r.children {
+	add(lcp, r.start, r.endT, -1, 0)
+	for k := range kids {
+		c := &kids[k]
 		if node[k] < 0 {
 			continue
 		}
-		var fs []FrameID
+		frames := append(x.scratch[:0], x.prefixes[c.prefix]...)
 		if c.startFrame != 0 {
-			fs = []FrameID{c.startFrame}
+			frames = append(frames, c.startFrame)
 		}
-		add(pathOf(c.prefix, fs), c.created, c.exitT, wait[under[k]], true, connection(x.inPool[c.prefix]), [4]int64{})
+		x.scratch = frames
+		add(frames, c.created, c.exitT, wait[under[k]], connection(x.inPool[c.prefix]))
 	}
 	for i := range ss {
 		s := &ss[i]
@@ -1010,13 +1070,22 @@ func (x *execReader) emitTimed(r *execRequest) {
 		if s.owner > 0 {
 			parent = node[s.owner-1]
 		}
-		add(pathOf(s.prefix, s.info.frames), s.start, s.end, parent, false, connection(s.info.pool || x.inPool[s.prefix]),
-			[4]int64{0, s.wall, s.runnable, int64(s.calls)})
+		vals := [4]int64{s.end - s.start, s.wall, s.runnable, int64(s.calls)}
+		timed(s.start, parent, false)
+		p := Path{Values: vals[:], Request: r.id, Call: connection(s.info.pool || x.inPool[s.prefix])}
+		if s.prefix == 0 {
+			x.appendShared(p, &s.info.ref, nil, s.info.frames)
+			continue
+		}
+		k := execGroupKey{s.info, s.prefix}
+		ref := x.refs[k]
+		x.appendShared(p, &ref, x.prefixes[s.prefix], s.info.frames)
+		x.refs[k] = ref
 	}
 }
 
-// execTree is emitTimed's scratch space: per child, the join it hangs
-// under and its path; per stretch, its path (-1: none).
+// execTree is emitTimed's scratch space: the joins; per child, the join
+// it hangs under and its path; per stretch, its path (-1: none).
 type execTree struct {
 	joins, under, node, wait []int32
 	lcp                      []FrameID
@@ -1031,15 +1100,14 @@ func fill(s *[]int32, n int, v int32) []int32 {
 	return *s
 }
 
-// descends reports whether child c was created, directly or not, by the
-// goroutine owner (0: the request's own, k: children[k-1]).
-func descends(c *execG, owner int32, children []*execG) bool {
+// descends reports whether kids[k] was created, directly or not, by the
+// goroutine owner (0: the request's own, j: kids[j-1]).
+func descends(kids []execChild, k int32, owner int32) bool {
 	if owner == 0 {
 		return true
 	}
-	g := children[owner-1]
-	for a := c.creator; a != nil; a = a.creator {
-		if a == g {
+	for a := kids[k].creator; a != 0; a = kids[a-1].creator {
+		if a == owner {
 			return true
 		}
 	}
@@ -1053,8 +1121,8 @@ func (x *execReader) dropCut(r *execRequest) {
 	}
 	x.release(r.stretches)
 	r.stretches = nil
-	for _, c := range r.children {
-		if c.req == r {
+	for _, id := range r.children {
+		if c := x.gs.get(id); c != nil && c.req == r {
 			x.release(c.stretches)
 			c.req, c.stretches = nil, nil
 		}

@@ -6,6 +6,7 @@ import (
 	"io"
 	"net"
 	"net/http"
+	"runtime"
 	"runtime/pprof"
 	"runtime/trace"
 	"strings"
@@ -112,6 +113,22 @@ func TestExecTraceDamaged(t *testing.T) {
 		if err := l.Add("bad.trace", bytes.NewReader(bad)); err != nil && !strings.Contains(err.Error(), "bad.trace") {
 			t.Errorf("corrupt at %d: %v does not name the file", at, err)
 		}
+	}
+}
+
+// TestExecTraceLimit: a limit exceeded part way stops the reading (the
+// goroutine that reads events ahead stops too) with ErrLimit.
+func TestExecTraceLimit(t *testing.T) {
+	data := recordSmallTrace(t)
+	before := runtime.NumGoroutine()
+	for range 20 {
+		c := traces.NewExecCollector(traces.Limits{MaxFrames: 8})
+		if err := c.Add("small.trace", bytes.NewReader(data)); !errors.Is(err, traces.ErrLimit) {
+			t.Fatalf("MaxFrames 8: %v, want ErrLimit", err)
+		}
+	}
+	if after := runtime.NumGoroutine(); after > before+2 {
+		t.Errorf("%d goroutines after 20 failed reads, %d before: the event readers did not stop", after, before)
 	}
 }
 

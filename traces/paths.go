@@ -20,6 +20,18 @@ type Paths struct {
 	lastID   int32
 	// long holds the frame counts of paths of 65535 frames or more.
 	long map[int32]int32
+	// shared: some paths were appended with AppendRef, so paths may share
+	// their stored frames (see FrameKey).
+	shared bool
+	stored int // frames stored
+}
+
+// FrameRef names the stored frames of a path (Ref), so that paths with
+// the same frames can share them (AppendRef). The zero FrameRef names
+// none.
+type FrameRef struct {
+	rec pathRec // chunk and atN of the path; labels, request and call unused
+	n   int32   // frame count, +1 (0: no reference)
 }
 
 // pathRec is one path: where its frames are, and its IDs.
@@ -104,6 +116,47 @@ func (ps *Paths) Append(p Path) {
 		labels: ps.labelID(p.Labels), request: p.Request, call: p.Call})
 }
 
+// Ref returns the reference of path i's stored frames.
+func (ps *Paths) Ref(i int) FrameRef {
+	_, _, n := ps.frameRange(i)
+	return FrameRef{rec: ps.recs[i], n: n + 1}
+}
+
+// AppendRef appends p with the frames that ref names instead of
+// p.Frames, which is ignored: the paths share one copy of their frames.
+// A zero ref appends p as Append does.
+func (ps *Paths) AppendRef(p Path, ref FrameRef) {
+	if ref.n == 0 {
+		ps.Append(p)
+		return
+	}
+	ps.shared = true
+	p.Frames = nil
+	ps.Append(p)
+	i := len(ps.recs) - 1
+	r := &ps.recs[i]
+	r.chunk, r.atN = ref.rec.chunk, ref.rec.atN
+	if ref.rec.atN&0xffff == longPath {
+		ps.long[int32(i)] = ref.n - 1
+	}
+}
+
+// Shared reports whether paths may share stored frames: then paths with
+// the same FrameKey have the same frames.
+func (ps *Paths) Shared() bool { return ps.shared }
+
+// FrameKey identifies path i's stored frames: paths with equal keys have
+// equal frames (the converse holds only for paths appended with
+// AppendRef, see Shared).
+func (ps *Paths) FrameKey(i int) uint64 {
+	r := &ps.recs[i]
+	return uint64(uint32(r.chunk))<<32 | uint64(r.atN)
+}
+
+// StoredFrames returns the number of frames stored: at most the sum of
+// the paths' lengths, less with shared frames.
+func (ps *Paths) StoredFrames() int { return ps.stored }
+
 // putFrames copies fs into the frame chunks. A chunk holds frameChunk
 // frames, so a path starts below 65536 in it; a longer path gets a chunk
 // of its own.
@@ -115,6 +168,7 @@ func (ps *Paths) putFrames(fs []FrameID) (chunk, at int32) {
 	}
 	c := &ps.frames[last]
 	at = int32(len(*c))
+	ps.stored += len(fs)
 	*c = append(*c, fs...)
 	return int32(last), at
 }

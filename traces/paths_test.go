@@ -50,6 +50,52 @@ func TestPathsRoundTrip(t *testing.T) {
 	}
 }
 
+// TestPathsAppendRef appends paths that share the frames of earlier
+// ones, of every size class, and reads them back: same frames, their own
+// values and IDs, and a frame key equal exactly where frames are shared.
+func TestPathsAppendRef(t *testing.T) {
+	var ps Paths
+	var want []Path
+	var refs []FrameRef
+	for i, n := range []int{0, 1, 5, frameChunk - 7, longPath, 70_000, 3} {
+		fs := make([]FrameID, n)
+		for k := range fs {
+			fs[k] = FrameID(i*100_000 + k + 1)
+		}
+		p := Path{Frames: fs, Values: []int64{int64(i), 0}, Request: RequestID(i)}
+		ps.Append(p)
+		want = append(want, p)
+		refs = append(refs, ps.Ref(ps.Len()-1))
+	}
+	if ps.Shared() {
+		t.Fatal("Shared before any AppendRef")
+	}
+	stored := ps.StoredFrames()
+	for j := range 3 {
+		for i, r := range refs {
+			p := Path{Values: []int64{int64(i), int64(j + 1)}, Request: RequestID(100 + i), Call: CallID(j)}
+			ps.AppendRef(p, r)
+			p.Frames = want[i].Frames
+			want = append(want, p)
+		}
+	}
+	if !ps.Shared() || ps.StoredFrames() != stored {
+		t.Fatalf("Shared = %v, StoredFrames = %d, want true, %d", ps.Shared(), ps.StoredFrames(), stored)
+	}
+	for i, w := range want {
+		got := ps.At(i)
+		if !slices.Equal(got.Frames, w.Frames) || !slices.Equal(got.Values, w.Values) || got.Request != w.Request || got.Call != w.Call {
+			t.Fatalf("path %d: got %d frames, values %v, request %d, call %d; want %d frames, %v, %d, %d",
+				i, len(got.Frames), got.Values, got.Request, got.Call, len(w.Frames), w.Values, w.Request, w.Call)
+		}
+		for k := range i {
+			if same := ps.FrameKey(i) == ps.FrameKey(k); same != (k%len(refs) == i%len(refs)) {
+				t.Fatalf("FrameKey(%d) == FrameKey(%d) is %v", i, k, same)
+			}
+		}
+	}
+}
+
 // TestValidate checks that Validate finds each broken invariant of a
 // source built by hand.
 func TestValidate(t *testing.T) {

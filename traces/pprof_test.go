@@ -237,3 +237,42 @@ func TestInputDigest(t *testing.T) {
 		}
 	}
 }
+
+// TestAddSized: a profile read with its size known (exact, too small,
+// too large; raw and gzipped) reads as with Add.
+func TestAddSized(t *testing.T) {
+	p := testProfile("cpu/nanoseconds")
+	base := p.Sample[0]
+	for i := range 5000 { // about 100 KB: several pieces when the size is guessed small
+		s := *base
+		s.Value = []int64{int64(i + 1)}
+		s.Label = map[string][]string{"http.route": {"/plants/" + strings.Repeat("x", i%50)}}
+		p.Sample = append(p.Sample, &s)
+	}
+	for _, gz := range []bool{false, true} {
+		data := encode(t, p, gz)
+		want, err := load(t, data)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, size := range []int64{int64(len(data)), 10, int64(len(data)) * 100} {
+			l := NewLoader(Options{})
+			if err := l.AddSized("p.pb.gz", bytes.NewReader(data), size); err != nil {
+				t.Fatalf("gzip %v, size %d: %v", gz, size, err)
+			}
+			got, err := l.Source()
+			if err != nil {
+				t.Fatalf("gzip %v, size %d: %v", gz, size, err)
+			}
+			if got.Paths.Len() != want.Paths.Len() || len(got.Frames) != len(want.Frames) || got.Inputs[0].SHA256 != want.Inputs[0].SHA256 {
+				t.Fatalf("gzip %v, size %d: %d paths, %d frames, digest %s; want %d, %d, %s", gz, size,
+					got.Paths.Len(), len(got.Frames), got.Inputs[0].SHA256, want.Paths.Len(), len(want.Frames), want.Inputs[0].SHA256)
+			}
+			for i := range got.Paths.Len() {
+				if g, w := got.Paths.At(i), want.Paths.At(i); g.Values[0] != w.Values[0] || g.Labels.Labels[0] != w.Labels.Labels[0] {
+					t.Fatalf("gzip %v, size %d: path %d differs", gz, size, i)
+				}
+			}
+		}
+	}
+}

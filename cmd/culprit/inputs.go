@@ -283,7 +283,7 @@ func (f *analysisFlags) read(ctx context.Context, s *streams, names []string, ki
 			}
 			return nil, err
 		}
-		err = loader.Add(name, ctxReader{ctx, prog.reader(fh)})
+		err = loader.AddSized(name, ctxReader{ctx, prog.reader(fh)}, regularSize(fh))
 		fh.Close()
 		if err != nil {
 			return nil, err
@@ -292,6 +292,20 @@ func (f *analysisFlags) read(ctx context.Context, s *streams, names []string, ki
 	src, err := loader.Source()
 	debug.FreeOSMemory()
 	return src, err
+}
+
+// regularSize returns the size of a regular file, -1 for anything else
+// (a FIFO, a device) or when it cannot be known.
+func regularSize(f io.Reader) int64 {
+	st, ok := f.(interface{ Stat() (fs.FileInfo, error) })
+	if !ok {
+		return -1
+	}
+	fi, err := st.Stat()
+	if err != nil || !fi.Mode().IsRegular() {
+		return -1
+	}
+	return fi.Size()
 }
 
 // ctxReader fails its reads once ctx is done, so that an interrupt stops
