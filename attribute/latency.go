@@ -10,23 +10,28 @@ import (
 	"github.com/culprithq/culprit/traces"
 )
 
-// ErrNoTiming is returned by Latency for a source without span timing:
-// profiles have neither requests nor the order of events in time, so
-// they cannot say what a request waited on.
-var ErrNoTiming = errors.New("latency needs traces: a profile has no requests and no timing order, so it cannot tell what made requests slow; record OpenTelemetry traces of the load test and pass those")
-
-// ErrExecTraceLatency is returned by Latency for a Go execution trace:
-// its waits are not spans with a parent and a start, so the critical path
-// is not computed for them yet.
-var ErrExecTraceLatency = errors.New("latency reads OpenTelemetry traces; for a Go execution trace, culprit rank --value wall shows each root cause's share of the requests' wall-clock time (concurrent waits counted once)")
+// ErrNoTiming is returned by Latency for a source without timing (spans
+// or an execution trace not read with traces.Options.Timing): profiles
+// have neither requests nor the order of events in time, so they cannot
+// say what a request waited on.
+var ErrNoTiming = errors.New("latency needs traces: a profile has no requests and no timing order, so it cannot tell what made requests slow; record OpenTelemetry traces or a Go execution trace of the load test and pass those")
 
 // Kinds of critical-path time beside database and network calls.
 const (
-	// KindApplication is an application span's own time on the path.
+	// KindApplication is an application span's own time on the path; in
+	// an execution trace, a wait that is not a call (a lock, a channel, a
+	// sleep) in the application function nearest to it.
 	KindApplication Kind = "application"
 	// KindUnaccounted is time inside the request's server span that no
-	// span covers (queueing, un-instrumented work).
+	// span covers (queueing, un-instrumented work); in an execution
+	// trace, a wait that is not a call with no application function above it.
 	KindUnaccounted Kind = "unaccounted"
+	// KindRunning is, in an execution trace, a goroutine of the request
+	// running or runnable (waiting for a CPU) outside any wait: its own
+	// work, charged to the request's entry point for its own goroutine
+	// and to the nearest application function of its creation for a
+	// child. Without CPU samples, which function ran is not known.
+	KindRunning Kind = "running"
 )
 
 // DefaultTail is the default quantile at and above which a request is in
@@ -51,6 +56,8 @@ type LatencyOptions struct {
 // entry point, the latency distribution and the critical-path time of
 // each root cause. Entries are sorted by p95 latency, slowest first.
 type LatencyResult struct {
+	// Source is the kind of input: traces.Spans or traces.ExecTrace.
+	Source   traces.Kind
 	Inputs   []traces.Input
 	Tail     float64
 	Requests int
@@ -90,7 +97,7 @@ type LatencyCause struct {
 	Function string
 	// Kind is KindDatabase, KindNetwork, KindConnection (waiting for a
 	// pool's database connection, shown apart from the queries),
-	// KindApplication or KindUnaccounted.
+	// KindApplication, KindUnaccounted or (execution traces) KindRunning.
 	Kind Kind
 	// NoAppFrame marks a call with no application frame above it; its
 	// Function is then NoAppFramePrefix and the entry point.
@@ -147,7 +154,7 @@ type RequestPath struct {
 // that have time on it, in start order.
 type PathSpan struct {
 	Function string
-	Kind     Kind   // of the span's own time: database, network, application or unaccounted
+	Kind     Kind   // of the span's own time: database, network, connection, application, unaccounted or running
 	Cause    string // the root cause its time is charged to
 	Start    int64  // ns after the request's start
 	Duration int64
@@ -185,9 +192,12 @@ type latencyRun struct {
 	// its frame.
 	callCause map[callKey]int32
 	appCause  []int32
-	// unaccounted is the current request's unaccounted cause.
-	unaccounted int32
-	vectors     bool // keep per-request values
+	// unaccounted is the current request's unaccounted cause; running,
+	// for an execution trace, the cause of its goroutine's own time.
+	unaccounted, running int32
+	vectors              bool // keep per-request values
+	// exec is set for an execution trace: goroutines and waits as spans.
+	exec bool
 
 	// tallies holds the current request's time per cause, in runs (one
 	// for the critical path, one for the summed time), and pos the
@@ -262,10 +272,7 @@ type cpTally struct {
 // the server or consumer span that lasts longest).
 func Latency(t *callgraph.Tree, c *Classifier, opts LatencyOptions) (*LatencyResult, error) {
 	src := t.Source()
-	switch {
-	case src.Kind == traces.ExecTrace:
-		return nil, ErrExecTraceLatency
-	case src.Kind != traces.Spans || src.Timing == nil:
+	if src.Kind != traces.Spans && src.Kind != traces.ExecTrace || src.Timing == nil {
 		return nil, ErrNoTiming
 	}
 	tail := opts.Tail
@@ -273,8 +280,9 @@ func Latency(t *callgraph.Tree, c *Classifier, opts LatencyOptions) (*LatencyRes
 		tail = DefaultTail
 	}
 	r := &latencyRun{src: src, t: t, c: c, wr: newWalk(t, c, &opts.Options, false).newWalker(), causeIx: map[pathCause]int32{},
-		callCause: map[callKey]int32{}, appCause: make([]int32, len(src.Frames))}
+		callCause: map[callKey]int32{}, appCause: make([]int32, len(src.Frames)), exec: src.Kind == traces.ExecTrace}
 	res := &LatencyResult{
+		Source:   src.Kind,
 		vectors:  opts.Vectors,
 		Inputs:   src.Inputs,
 		Tail:     tail,
@@ -374,7 +382,11 @@ func (r *latencyRun) request(lo, hi int, entryIx map[string]int32, entries *[]*L
 		return reqRecord{}, false
 	}
 	rootPath := r.src.Paths.At(root)
-	r.wr.next(root, &r.rec)
+	if r.exec {
+		r.wr.next(r.entryPath(lo, hi, root), &r.rec)
+	} else {
+		r.wr.next(root, &r.rec)
+	}
 	name := r.wr.entryNames[r.rec.entry]
 	ei, ok := entryIx[name]
 	if !ok {
@@ -383,6 +395,27 @@ func (r *latencyRun) request(lo, hi int, entryIx map[string]int32, entries *[]*L
 		*entries = append(*entries, &LatencyEntry{Entry: name})
 	}
 	return reqRecord{lo: lo, hi: hi, root: root, id: rootPath.Request, entry: ei, latency: max(0, rootPath.Values[0])}, true
+}
+
+// entryPath returns the path that names the entry point of the request
+// of an execution trace, paths [lo, hi): of its waits, the one whose
+// entry point is deepest (the handler, below the router or middleware
+// that may wait too), else its root.
+func (r *latencyRun) entryPath(lo, hi, root int) int {
+	best, depth := root, -1
+	for pi := lo; pi < hi; pi++ {
+		if r.src.Timing.Goroutine[pi] {
+			continue
+		}
+		d := 0
+		if n := r.wr.w.entryNode(r.t.Leaf(pi)); n != 0 {
+			d = r.t.Depth(n)
+		}
+		if d > depth {
+			best, depth = pi, d
+		}
+	}
+	return best
 }
 
 // root returns the path of the root span of paths [lo, hi): of the spans
@@ -462,6 +495,9 @@ func (r *latencyRun) assignRoles(lo int, cp *cpSpans, root int32, entry string) 
 	}
 	unaccounted := r.cause(pathCause{function: entry, kind: KindUnaccounted})
 	r.unaccounted = unaccounted
+	if r.exec {
+		r.running = r.cause(pathCause{function: entry, kind: KindRunning})
+	}
 	stack := append(r.roleStack[:0], [2]int32{root, unaccounted})
 	defer func() { r.roleStack = stack[:0] }()
 	for len(stack) > 0 {
@@ -483,6 +519,11 @@ func (r *latencyRun) assignRoles(lo int, cp *cpSpans, root int32, entry string) 
 // application span to itself, an entry span to unaccounted, anything
 // else as its parent's own time (inherited).
 func (r *latencyRun) role(pi int, inherited int32, isRoot bool) spanRole {
+	if r.exec && isRoot {
+		// The request's goroutine: never a call, even when all its waits
+		// are in one.
+		return spanRole{cause: r.running}
+	}
 	src, t := r.src, r.t
 	ch := &r.rec
 	r.wr.next(pi, ch)
@@ -514,6 +555,9 @@ func (r *latencyRun) role(pi int, inherited int32, isRoot bool) spanRole {
 		}
 		return spanRole{cause: ci, call: true}
 	}
+	if r.exec {
+		return r.execRole(pi)
+	}
 	// Not a call: the span's own time is its function's if it is an
 	// application span, unaccounted for the request's entry span, else
 	// its parent's.
@@ -532,6 +576,36 @@ func (r *latencyRun) role(pi int, inherited int32, isRoot bool) spanRole {
 		return spanRole{cause: ci}
 	}
 	return spanRole{cause: inherited}
+}
+
+// execRole charges a path of an execution trace that is not a call: a
+// child goroutine's own time is running, charged to the application
+// function nearest to its start (its function, or the one whose go
+// statement started it), else to the request's; a wait's time is the
+// nearest application function's own (application), else unaccounted.
+func (r *latencyRun) execRole(pi int) spanRole {
+	fs := r.src.Paths.Frames(pi)
+	app := traces.FrameID(0)
+	for i := len(fs) - 1; i >= 0; i-- {
+		if class, _ := r.c.class(fs[i]); class == Application {
+			app = fs[i]
+			break
+		}
+	}
+	switch {
+	case r.src.Timing.Goroutine[pi] && app == 0:
+		return spanRole{cause: r.running}
+	case r.src.Timing.Goroutine[pi]:
+		return spanRole{cause: r.cause(pathCause{function: r.src.Frames[app].Function, kind: KindRunning})}
+	case app == 0:
+		return spanRole{cause: r.unaccounted}
+	}
+	ci := r.appCause[app] - 1
+	if ci < 0 {
+		ci = r.cause(pathCause{function: r.src.Frames[app].Function, kind: KindApplication})
+		r.appCause[app] = ci + 1
+	}
+	return spanRole{cause: ci}
 }
 
 // callKey identifies the cause of a call: its root-cause node, or with
@@ -668,7 +742,11 @@ func (r *latencyRun) requestPath(rq *reqRecord, entry string, cp *cpSpans, sc *c
 		}
 		slices.SortStableFunc(kids, func(a, b *PathSpan) int { return cmp.Compare(a.Start, b.Start) })
 		p := r.src.Paths.At(rq.lo + int(i))
-		ps := &PathSpan{Function: r.src.Frames[p.Frames[len(p.Frames)-1]].Function,
+		fn := r.src.Frames[p.Frames[len(p.Frames)-1]].Function
+		if r.exec && i == root {
+			fn = entry // its frames are those its waits share
+		}
+		ps := &PathSpan{Function: fn,
 			Start: cp.start[i] - t0, Duration: cp.end[i] - cp.start[i], OnPath: on[i], Children: kids}
 		if ci := r.roles[i].cause; ci >= 0 {
 			ps.Kind, ps.Cause = r.causes[ci].kind, r.causes[ci].function

@@ -29,6 +29,7 @@ import (
 	"fmt"
 	"os"
 	"runtime/pprof"
+	"time"
 
 	_ "modernc.org/sqlite"
 
@@ -69,7 +70,10 @@ func main() {
 	ctx := context.Background()
 	store := &permits.Store{DB: db}
 	n := 0
-	for round := 0; round < 1500; round++ {
+	// At least 1500 rounds and a second: a loaded machine gives the
+	// process less CPU, and the profile needs enough database samples.
+	start := time.Now()
+	for round := 0; round < 1500 || time.Since(start) < time.Second; round++ {
 		for id := 1; id <= 40; id++ {
 			if _, err := store.Lookup(ctx, id); err != nil {
 				panic(err)

@@ -392,17 +392,25 @@ func entryName(src *traces.Source, t *callgraph.Tree, w *walkState, p *traces.Pa
 			return v
 		}
 	}
+	if n := w.entryNode(leaf); n != 0 {
+		return src.Frames[t.Frame(n)].Function
+	}
+	return src.Frames[p.Frames[0]].Function
+}
+
+// entryNode returns the node that names the entry point of the path whose
+// tree leaf is leaf, labels aside: the application function just below the
+// deepest entry-point frame above its boundary, else that frame; 0 if
+// there is neither (the path's first frame names it).
+func (w *walkState) entryNode(leaf callgraph.NodeID) callgraph.NodeID {
 	at := leaf
 	if b := w.boundary[leaf]; b != 0 {
 		at = b
 	}
-	switch {
-	case w.entryApp[at] != 0 && (w.entry[at] == 0 || w.entryApp[at] >= w.entry[at]):
-		return src.Frames[t.Frame(w.entryApp[at])].Function
-	case w.entry[at] != 0:
-		return src.Frames[t.Frame(w.entry[at])].Function
+	if w.entryApp[at] != 0 && (w.entry[at] == 0 || w.entryApp[at] >= w.entry[at]) {
+		return w.entryApp[at]
 	}
-	return src.Frames[p.Frames[0]].Function
+	return w.entry[at]
 }
 
 // detail describes the boundary of a path: its statement fingerprint,

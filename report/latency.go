@@ -11,6 +11,7 @@ import (
 	"strings"
 
 	"github.com/culprithq/culprit/attribute"
+	"github.com/culprithq/culprit/traces"
 )
 
 // LatencyRenderer writes a latency analysis in one format.
@@ -52,8 +53,13 @@ func newLatencyHeadline(r *attribute.LatencyResult) latencyHeadline {
 	_, tail, median := top.Share(e)
 	h.Cause, h.Kind, h.TailShare, h.MedianShare = top.Function, string(top.Kind), Percent(tail), Percent(median)
 	what := "in " + top.Function + " (" + string(top.Kind) + ")"
-	if top.Kind == attribute.KindUnaccounted {
+	switch {
+	case top.Kind == attribute.KindUnaccounted && r.Source == traces.ExecTrace:
+		what = "in waits with no application function above them (unaccounted)"
+	case top.Kind == attribute.KindUnaccounted:
 		what = "in time no span covers (unaccounted: queueing or un-instrumented work)"
+	case top.Kind == attribute.KindRunning:
+		what = "running or waiting for a CPU in " + top.Function + " outside any wait (running)"
 	}
 	slow := fmt.Sprintf("its slowest %d requests (%s and slower) spend", e.TailRequests, h.Tail)
 	if e.TailRequests == 1 {
@@ -394,7 +400,9 @@ func writePathSpan(w io.Writer, s *attribute.PathSpan, latency int64, depth int)
 		return
 	}
 	what := string(s.Kind)
-	if s.Cause != "" && s.Kind != attribute.KindApplication && s.Kind != attribute.KindUnaccounted {
+	// The cause, unless the span is its own (an application span, the
+	// request's goroutine) or it is the entry point's unaccounted time.
+	if s.Cause != "" && s.Cause != s.Function && s.Kind != attribute.KindUnaccounted {
 		what += " → " + Shorten(s.Cause, 60)
 	}
 	fmt.Fprintf(w, "%9s %6s  %s%s  [%s; at +%s, lasted %s]\n",

@@ -3,6 +3,7 @@ package traces
 import (
 	"bufio"
 	"bytes"
+	"cmp"
 	"fmt"
 	"io"
 	"maps"
@@ -63,6 +64,9 @@ import (
 //   - Pool waits (a stack through database/sql.(*DB).conn, a semaphore or
 //     a pool's Acquire, or a goroutine started there to open a connection)
 //     are connection waits (Call.Connection), with no calls.
+//   - Read with Options.Timing (the latency view), a request is written as
+//     a tree of spans instead: its goroutine, its waits, and the child
+//     goroutines it waited for (see emitTimed).
 
 // ExecTraceValueTypes are the values of every path of an ExecTrace source.
 var ExecTraceValueTypes = []ValueType{
@@ -127,7 +131,9 @@ type execStretch struct {
 	wall       int64
 	prefix     int32 // index in execReader.prefixes: the creator's path of a child goroutine; 0 none
 	calls      int32
-	join       bool // ended by one of the request's own goroutines
+	join       bool  // ended by one of the request's own goroutines
+	waker      int32 // for a join, which: children[waker-1]
+	owner      int32 // whose wait: 0 the request's goroutine, k its child children[k-1]
 }
 
 // execRequest is one request being read.
@@ -140,7 +146,30 @@ type execRequest struct {
 	id        RequestID
 	stretches []execStretch
 	children  []trace.GoID // goroutines it created
+	// With Options.Timing: what the latency view needs of each child
+	// (kids[k] is children[k]), and how many children alive at its end
+	// are not yet resolved (see emitTimed).
+	kids    []execChild
+	pending int
 }
+
+// execChild is a goroutine created for a request, as the latency view
+// needs it (Options.Timing).
+type execChild struct {
+	creator        int32 // 0: the request's goroutine, k: children[k-1]
+	prefix         int32 // see execStretch.prefix
+	created, exitT int64
+	startFrame     FrameID // the first frame of its first wait's stack: its function
+	state          execChildState
+}
+
+type execChildState uint8
+
+const (
+	childAlive    execChildState = iota
+	childKept                    // exited as the request's: its waits are the request's
+	childDisowned                // waited again after the request ended: not the request's
+)
 
 type execPendKind uint8
 
@@ -170,7 +199,8 @@ type execG struct {
 	pendStart int64
 	pendWake  int64
 	pendCalls int32
-	pendJoin  bool
+	pendJoin  int32 // the child that ended the wait (its childIx): a join; 0 none
+	childIx   int32 // a child's index in its request's children, +1
 	writing   int32 // the last wait or system call was a socket write by this writer; 0: not a write
 	// The goroutine's last stack and its information: goroutines wait
 	// at the same places again and again.
@@ -212,6 +242,8 @@ type execReader struct {
 	refs      map[execGroupKey]FrameRef // stored frames of paths with a creator's prefix
 	keyBuf    []byte
 	nreq      map[trace.GoID]int // requests ended per connection goroutine
+	timing    bool               // Options.Timing: requests as trees of spans (emitTimed)
+	tree      execTree           // emitTimed's scratch space
 	cut       int
 	cutWait   int64
 	first     int64
@@ -226,6 +258,7 @@ type ExecCollector struct {
 	src    *Source
 	limits Limits
 	inputs int
+	timing bool // Options.Timing
 }
 
 // NewExecCollector returns a collector reading within limits.
@@ -252,6 +285,10 @@ func (c *ExecCollector) Add(name string, r io.Reader) (err error) {
 		stacks: map[trace.Stack]*stackInfo{}, nreq: map[trace.GoID]int{},
 		first: -1, prefixes: [][]FrameID{nil}, inPool: []bool{false}, prefixIDs: map[execPrefixKey]int32{}, groups: map[execGroupKey]int{},
 		writers: map[string]int32{}, refs: map[execGroupKey]FrameRef{},
+	}
+	if c.timing {
+		x.timing = true
+		x.src.Timing = &Timing{}
 	}
 	cr := &countingReader{r: r}
 	defer func() {
@@ -281,6 +318,20 @@ func (c *ExecCollector) merge(o *Source) error {
 			len(dst.Frames), c.limits.MaxFrames, ErrLimit)
 	}
 	var buf []FrameID
+	if tm := o.Timing; tm != nil {
+		if dst.Timing == nil {
+			dst.Timing = &Timing{}
+		}
+		dt, base := dst.Timing, int32(dst.Paths.Len())
+		dt.Start = append(dt.Start, tm.Start...)
+		dt.Goroutine = append(dt.Goroutine, tm.Goroutine...)
+		for _, par := range tm.Parent {
+			if par >= 0 {
+				par += base
+			}
+			dt.Parent = append(dt.Parent, par)
+		}
+	}
 	for i := range o.Paths.Len() {
 		p := o.Paths.At(i)
 		buf = buf[:0]
@@ -358,6 +409,7 @@ func (x *execReader) read(cr *countingReader) error {
 			g.req = nil
 		}
 	}
+	x.flushTimed()
 	if x.first >= 0 {
 		x.src.DurationNanos += x.last - x.first
 	}
@@ -482,7 +534,7 @@ func (x *execReader) transition(ev *trace.Event, st *trace.StateTransition, t in
 			x.observe(a, info, t)
 			switch {
 			case creates:
-				x.created(a, x.g(id), info)
+				x.created(a, x.g(id), info, t)
 			case wakes:
 				// The response handed over between the connection's read
 				// loop and the round trip: one HTTP/1 round trip.
@@ -516,7 +568,7 @@ func (x *execReader) transition(ev *trace.Event, st *trace.StateTransition, t in
 			g.pendWake = t
 			if a := ev.Goroutine(); a != trace.NoGoroutine && a != id {
 				if w := x.gs.get(a); w != nil && g.req != nil && w.req == g.req && w.child {
-					g.pendJoin = true
+					g.pendJoin = w.childIx
 				}
 			}
 		}
@@ -531,7 +583,7 @@ func (x *execReader) transition(ev *trace.Event, st *trace.StateTransition, t in
 				wake = t
 			}
 			x.add(g, execStretch{info: g.pendInfo, start: g.pendStart, end: wake, runnable: t - wake,
-				calls: g.pendCalls, join: g.pendJoin})
+				calls: g.pendCalls, join: g.pendJoin != 0, waker: g.pendJoin})
 		}
 		g.pend = pendNone
 		g.runStart = t
@@ -557,7 +609,7 @@ func (x *execReader) transition(ev *trace.Event, st *trace.StateTransition, t in
 }
 
 func (g *execG) setPend(k execPendKind, info *stackInfo, t int64) {
-	g.pend, g.pendInfo, g.pendStart, g.pendWake, g.pendCalls, g.pendJoin = k, info, t, 0, 0, false
+	g.pend, g.pendInfo, g.pendStart, g.pendWake, g.pendCalls, g.pendJoin = k, info, t, 0, 0, 0
 }
 
 // observe updates a connection goroutine's requests from one of its stacks.
@@ -582,8 +634,8 @@ func (x *execReader) observe(g *execG, info *stackInfo, t int64) {
 	}
 }
 
-// created records goroutine c, created by a.
-func (x *execReader) created(a, c *execG, info *stackInfo) {
+// created records goroutine c, created by a at time t.
+func (x *execReader) created(a, c *execG, info *stackInfo, t int64) {
 	c.preexisting, c.known = false, true
 	if a.req == nil || a.exited || a.req.closed {
 		return
@@ -607,6 +659,10 @@ func (x *execReader) created(a, c *execG, info *stackInfo) {
 	}
 	c.prefix = id
 	a.req.children = append(a.req.children, c.id)
+	c.childIx = int32(len(a.req.children))
+	if x.timing {
+		a.req.kids = append(a.req.kids, execChild{creator: a.childIx, prefix: id, created: t})
+	}
 }
 
 // execPrefixKey names a child goroutine's prefix: its creator's prefix
@@ -624,10 +680,19 @@ func (x *execReader) add(g *execG, s execStretch) {
 	case g.child:
 		if g.req.closed && s.start >= g.req.endT {
 			x.release(g.stretches) // still at work after its request: not its own
+			if x.timing {
+				g.req.kids[g.childIx-1].state = childDisowned
+				x.resolved(g.req)
+			}
 			g.req, g.stretches = nil, nil
 			return
 		}
-		s.prefix = g.prefix
+		s.prefix, s.owner = g.prefix, g.childIx
+		if x.timing && len(s.info.frames) > 0 {
+			if k := &g.req.kids[g.childIx-1]; k.startFrame == 0 {
+				k.startFrame = s.info.frames[0]
+			}
+		}
 		if g.stretches == nil {
 			g.stretches = x.stretchSlice()
 		}
@@ -663,6 +728,10 @@ func (x *execReader) exit(g *execG, t int64) {
 	g.exited = true
 	g.pend = pendNone
 	if g.child {
+		if r := g.req; x.timing && r != nil && !r.cut {
+			k := &r.kids[g.childIx-1]
+			k.state, k.exitT = childKept, t
+		}
 		switch r := g.req; {
 		case r == nil:
 		case !r.closed:
@@ -671,6 +740,9 @@ func (x *execReader) exit(g *execG, t int64) {
 			} else {
 				r.stretches = append(r.stretches, g.stretches...)
 			}
+		case x.timing && !r.cut:
+			r.stretches = append(r.stretches, g.stretches...)
+			x.resolved(r)
 		case !r.cut:
 			// It exited after its request ended without waiting again
 			// (it had woken the handler, which finished first).
@@ -698,6 +770,17 @@ func (x *execReader) end(r *execRequest, t int64) {
 	x.nreq[r.g]++
 	key := "G" + strconv.Itoa(x.input) + "." + strconv.FormatInt(int64(r.g), 10) + "." + strconv.Itoa(x.nreq[r.g])
 	r.id = x.src.InternRequest(key)
+	if x.timing {
+		for _, k := range r.kids {
+			if k.state == childAlive {
+				r.pending++
+			}
+		}
+		if r.pending == 0 {
+			x.emitTimed(r)
+		}
+		return
+	}
 	x.emit(r, r.stretches, len(r.children) > 0)
 	x.release(r.stretches)
 	r.stretches = nil
@@ -783,6 +866,252 @@ func (x *execReader) appendShared(p Path, ref *FrameRef, prefix, frames []FrameI
 	}
 	x.src.Paths.Append(p)
 	*ref = x.src.Paths.Ref(x.src.Paths.Len() - 1)
+}
+
+// resolved notes that a child of request r, alive when r ended, exited
+// or waited again (Options.Timing): once none is left, r is written.
+func (x *execReader) resolved(r *execRequest) {
+	if r.pending > 0 {
+		r.pending--
+		if r.pending == 0 {
+			x.emitTimed(r)
+		}
+	}
+}
+
+// flushTimed writes, at the end of the trace, the requests still waiting
+// for children (Options.Timing); the children still alive are not theirs.
+func (x *execReader) flushTimed() {
+	if !x.timing {
+		return
+	}
+	for _, g := range x.gs.all() {
+		if r := g.req; g.child && r != nil && r.closed && r.pending > 0 {
+			r.pending = 0
+			x.emitTimed(r)
+		}
+	}
+}
+
+// emitTimed writes request r for the latency view (Options.Timing) as a
+// tree of spans, each path's value 0 (wait) its duration:
+//
+//   - first the request's goroutine, from the request's start to its end;
+//     its frames are the longest common prefix of its stacks and of its
+//     children's creators' (down to the handler when its waits happen in
+//     different calls), so that its entry point is rank's;
+//   - one path per wait of the request's goroutines that rank keeps, from
+//     the block to the wake, under its goroutine; its other values are
+//     those rank gives the wait;
+//   - one path per child goroutine that the request waited for, from its
+//     creation to its exit, under the wait of an ancestor that it ended
+//     (a join; the last one if several), else under the join of its
+//     creator during which it exited. Its frames are its creator's path
+//     and the first frame of its own stacks (its function). A child that
+//     no goroutine of the request waited for cannot be on the request's
+//     critical path: it is left out, and so are its waits (rank counts
+//     them).
+//
+// A goroutine's time that none of its paths covers is its own: running,
+// or runnable after a wake. The request is written if rank writes a path
+// of it, so that both count the same requests.
+func (x *execReader) emitTimed(r *execRequest) {
+	ss, kids := r.stretches, r.kids
+	defer func() {
+		x.release(r.stretches)
+		r.stretches, r.children, r.kids = nil, nil, nil
+	}()
+	if !slices.ContainsFunc(ss, func(s execStretch) bool { return len(s.info.frames) > 0 }) {
+		return // rank writes nothing of it
+	}
+	t := &x.tree
+	// The joins, by goroutine and start.
+	t.joins = t.joins[:0]
+	for i := range ss {
+		if s := &ss[i]; s.join && len(s.info.frames) > 0 {
+			t.joins = append(t.joins, int32(i))
+		}
+	}
+	slices.SortFunc(t.joins, func(a, b int32) int {
+		return cmp.Or(cmp.Compare(ss[a].owner, ss[b].owner), cmp.Compare(ss[a].start, ss[b].start))
+	})
+	// Where each child hangs: the last join of an ancestor that it ended,
+	// else the join of its creator during which it exited.
+	under := fill(&t.under, len(kids), -1)
+	for _, i := range t.joins {
+		s := &ss[i]
+		w := s.waker - 1
+		if kids[w].state == childKept && descends(kids, w, s.owner) && (under[w] < 0 || s.end > ss[under[w]].end) {
+			under[w] = i
+		}
+	}
+	for k := range kids {
+		c := &kids[k]
+		if under[k] >= 0 || c.state != childKept {
+			continue
+		}
+		owner := c.creator
+		j, _ := slices.BinarySearchFunc(t.joins, [2]int64{int64(owner), c.exitT}, func(i int32, key [2]int64) int {
+			return cmp.Or(cmp.Compare(int64(ss[i].owner), key[0]), cmp.Compare(ss[i].start, key[1]+1))
+		})
+		if j > 0 {
+			if s := &ss[t.joins[j-1]]; s.owner == owner && s.end >= c.exitT {
+				under[k] = t.joins[j-1]
+			}
+		}
+	}
+	// Path indices: the request, its children that are in the tree (each
+	// below a join of a goroutine in the tree), the waits of those.
+	root := int32(x.src.Paths.Len())
+	next := root + 1
+	node := fill(&t.node, len(kids), -1)
+	for k := range kids {
+		if u := under[k]; u >= 0 && (ss[u].owner == 0 || node[ss[u].owner-1] >= 0) {
+			node[k] = next
+			next++
+		}
+	}
+	wait := fill(&t.wait, len(ss), -1)
+	for i := range ss {
+		if s := &ss[i]; len(s.info.frames) > 0 && (s.owner == 0 || node[s.owner-1] >= 0) {
+			wait[i] = next
+			next++
+		}
+	}
+	// The request's frames.
+	lcp, found := t.lcp[:0], false
+	common := func(fs []FrameID) {
+		if !found {
+			lcp, found = append(lcp, fs...), true
+			return
+		}
+		n := 0
+		for n < len(lcp) && n < len(fs) && lcp[n] == fs[n] {
+			n++
+		}
+		// One function called from different lines is common too.
+		if n < len(lcp) && n < len(fs) && x.src.Frames[lcp[n]].Function == x.src.Frames[fs[n]].Function {
+			n++
+		}
+		lcp = lcp[:n]
+	}
+	for i := range ss {
+		if s := &ss[i]; s.owner == 0 && len(s.info.frames) > 0 {
+			common(s.info.frames)
+		}
+	}
+	for _, c := range kids {
+		if c.state == childKept {
+			common(x.prefixes[c.prefix])
+		}
+	}
+	if len(lcp) == 0 {
+		// Stacks cut at the depth limit share no root: the first wait's.
+		for i := range ss {
+			if s := &ss[i]; len(s.info.frames) > 0 {
+				lcp = append(append(lcp, x.prefixes[s.prefix]...), s.info.frames...)
+				break
+			}
+		}
+	}
+	t.lcp = lcp
+	if len(kids) > 0 {
+		x.splitWall(ss)
+	} else {
+		for i := range ss {
+			if s := &ss[i]; !s.join && s.end > s.start {
+				s.wall = s.end - s.start
+			}
+		}
+	}
+
+	tm := x.src.Timing
+	timed := func(start int64, parent int32, g bool) {
+		tm.Start = append(tm.Start, start)
+		tm.Parent = append(tm.Parent, parent)
+		tm.Goroutine = append(tm.Goroutine, g)
+	}
+	// The goroutines' paths: value 0 is their duration, the others none.
+	add := func(frames []FrameID, start, end int64, parent int32, call CallID) {
+		timed(start, parent, true)
+		vals := [4]int64{execWait: end - start}
+		x.src.Paths.Append(Path{Frames: frames, Values: vals[:], Request: r.id, Call: call})
+	}
+	connection := func(pool bool) CallID {
+		if pool {
+			return x.src.InternCall(Call{Connection: true})
+		}
+		return 0
+	}
+	add(lcp, r.start, r.endT, -1, 0)
+	for k := range kids {
+		c := &kids[k]
+		if node[k] < 0 {
+			continue
+		}
+		frames := append(x.scratch[:0], x.prefixes[c.prefix]...)
+		if c.startFrame != 0 {
+			frames = append(frames, c.startFrame)
+		}
+		x.scratch = frames
+		add(frames, c.created, c.exitT, wait[under[k]], connection(x.inPool[c.prefix]))
+	}
+	for i := range ss {
+		s := &ss[i]
+		if len(s.info.frames) == 0 {
+			continue
+		}
+		x.wait += s.end - s.start
+		x.runnable += s.runnable
+		if wait[i] < 0 {
+			continue
+		}
+		parent := root
+		if s.owner > 0 {
+			parent = node[s.owner-1]
+		}
+		vals := [4]int64{s.end - s.start, s.wall, s.runnable, int64(s.calls)}
+		timed(s.start, parent, false)
+		p := Path{Values: vals[:], Request: r.id, Call: connection(s.info.pool || x.inPool[s.prefix])}
+		if s.prefix == 0 {
+			x.appendShared(p, &s.info.ref, nil, s.info.frames)
+			continue
+		}
+		k := execGroupKey{s.info, s.prefix}
+		ref := x.refs[k]
+		x.appendShared(p, &ref, x.prefixes[s.prefix], s.info.frames)
+		x.refs[k] = ref
+	}
+}
+
+// execTree is emitTimed's scratch space: the joins; per child, the join
+// it hangs under and its path; per stretch, its path (-1: none).
+type execTree struct {
+	joins, under, node, wait []int32
+	lcp                      []FrameID
+}
+
+// fill returns *s resized to n elements, each v.
+func fill(s *[]int32, n int, v int32) []int32 {
+	*s = slices.Grow((*s)[:0], n)[:n]
+	for i := range *s {
+		(*s)[i] = v
+	}
+	return *s
+}
+
+// descends reports whether kids[k] was created, directly or not, by the
+// goroutine owner (0: the request's own, j: kids[j-1]).
+func descends(kids []execChild, k int32, owner int32) bool {
+	if owner == 0 {
+		return true
+	}
+	for a := kids[k].creator; a != 0; a = kids[a-1].creator {
+		if a == owner {
+			return true
+		}
+	}
+	return false
 }
 
 func (x *execReader) dropCut(r *execRequest) {

@@ -160,7 +160,79 @@ func FuzzExecTrace(f *testing.F) {
 		if err := c.Source().Validate(); err != nil {
 			t.Fatalf("invalid source: %v", err)
 		}
+		// Read for the latency view, as trees of spans.
+		l := traces.NewLoader(traces.Options{Timing: true, Limits: traces.Limits{MaxBytes: 1 << 20}})
+		if err := l.Add("fuzz.trace", bytes.NewReader(in)); err != nil {
+			t.Fatalf("read with timing, it fails where it reads without: %v", err)
+		}
+		if src, err := l.Source(); err == nil {
+			if err := src.Validate(); err != nil {
+				t.Fatalf("invalid source with timing: %v", err)
+			}
+		}
 	})
+}
+
+// TestExecTraceTiming reads a trace for the latency view: each request is
+// a tree of spans, its paths contiguous, its goroutine first and every
+// other path below it, the same requests as without timing; a wait lies
+// within its goroutine's span, and the waits of one goroutine never
+// overlap. Two inputs keep their trees apart.
+func TestExecTraceTiming(t *testing.T) {
+	data := recordSmallTrace(t)
+	l := traces.NewLoader(traces.Options{Timing: true})
+	for _, name := range []string{"a.trace", "b.trace"} {
+		if err := l.Add(name, bytes.NewReader(data)); err != nil {
+			t.Fatal(err)
+		}
+	}
+	src, err := l.Source()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := src.Validate(); err != nil {
+		t.Fatal(err)
+	}
+	plain := loadExec(t, data)
+	if plain.Timing != nil {
+		t.Error("timing kept without Options.Timing")
+	}
+	if src.RequestCount() != 2*plain.RequestCount() || plain.RequestCount() != 3 {
+		t.Errorf("%d requests with timing from two inputs, %d without from one, want 6 and 3", src.RequestCount(), plain.RequestCount())
+	}
+	tm := src.Timing
+	seen := map[traces.RequestID]bool{}
+	for lo := 0; lo < src.Paths.Len(); {
+		req := src.Paths.At(lo).Request
+		if seen[req] || req == 0 {
+			t.Fatalf("request %d: paths not contiguous, or none", req)
+		}
+		seen[req] = true
+		hi := lo + 1
+		for hi < src.Paths.Len() && src.Paths.At(hi).Request == req {
+			hi++
+		}
+		if tm.Parent[lo] != -1 || !tm.Goroutine[lo] {
+			t.Fatalf("request %s: its first path is not its goroutine", src.Requests[req])
+		}
+		end := func(i int) int64 { return tm.Start[i] + src.Paths.Value(i, 0) }
+		last := map[int32]int64{}
+		for i := lo + 1; i < hi; i++ {
+			par := tm.Parent[i]
+			if int(par) < lo || int(par) >= hi {
+				t.Fatalf("request %s: path %d has parent %d outside it", src.Requests[req], i, par)
+			}
+			if tm.Goroutine[i] {
+				continue
+			}
+			if tm.Start[i] < tm.Start[par] || end(i) > end(int(par)) || tm.Start[i] < last[par] {
+				t.Errorf("request %s: wait [%d, %d] outside its goroutine [%d, %d] or before the end %d of its previous wait",
+					src.Requests[req], tm.Start[i], end(i), tm.Start[par], end(int(par)), last[par])
+			}
+			last[par] = end(i)
+		}
+		lo = hi
+	}
 }
 
 // TestExecTraceInputs: two traces (two instances of a service) add up,

@@ -29,6 +29,8 @@ const (
 	// ExecTrace sources hold the waits of requests read from a Go
 	// execution trace: like a profile's, a path's values belong to its
 	// leaf and add up, but they are measured, not sampled, and count calls.
+	// Read with Options.Timing, each request is a tree of spans instead,
+	// whose values nest as spans' do (see Timing).
 	ExecTrace
 )
 
@@ -227,6 +229,11 @@ type Path struct {
 // Parent[i] belong to path i. A span ends at Start[i] plus its duration
 // (value 0 of the path). Times are after the repairs recorded in the
 // source's warnings, in nanoseconds since the Unix epoch.
+//
+// An ExecTrace source read with Options.Timing holds each request as a
+// tree of such spans instead of paths grouped by stack (see emitTimed):
+// the request, its child goroutines and its waits, each path's value 0
+// (wait) its duration; times are the trace's clock, in nanoseconds.
 type Timing struct {
 	// Start is when each span started.
 	Start []int64
@@ -235,6 +242,11 @@ type Timing struct {
 	// kept (Options.Service). A parent may come after its child: paths are
 	// in start order and a child may start with or before its parent.
 	Parent []int32
+	// Goroutine marks, in an ExecTrace source, the paths that stand for a
+	// goroutine of a request (the request's own, or a child) rather than
+	// for a wait: a goroutine's time outside its waits is its own, spent
+	// running or runnable. Nil for span sources.
+	Goroutine []bool
 }
 
 // Input describes one file a source was read from.

@@ -45,7 +45,8 @@ type Options struct {
 	// it: hashing is a fifth of the CPU time of reading OTLP/JSON.
 	SkipDigest bool
 	// Timing keeps, for span sources, each span's start time and parent
-	// (Source.Timing), which the latency view needs to place spans in time.
-	// Profiles have no timing; the option is ignored for them.
+	// (Source.Timing), which the latency view needs to place spans in time;
+	// an execution trace is read as a tree of spans per request (see
+	// Timing). Profiles have no timing; the option is ignored for them.
 	Timing bool
 }

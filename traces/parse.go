@@ -155,6 +155,7 @@ func (l *Loader) add(name string, r io.Reader, size int64) error {
 		}
 		if l.exec == nil {
 			l.exec = NewExecCollector(l.opts.Limits)
+			l.exec.timing = l.opts.Timing
 		}
 		if err := l.exec.Add(name, bb); err != nil {
 			return readError(name, err, counted.n)
@@ -292,6 +293,17 @@ func (s *Source) Validate() error {
 		}
 		if r.request < 0 || int(r.request) >= len(s.Requests) {
 			return fmt.Errorf("path %d has request %d out of range", i, r.request)
+		}
+	}
+	if tm := s.Timing; tm != nil {
+		n := ps.Len()
+		if len(tm.Start) != n || len(tm.Parent) != n || tm.Goroutine != nil && len(tm.Goroutine) != n {
+			return fmt.Errorf("timing of %d starts, %d parents and %d goroutine marks for %d paths", len(tm.Start), len(tm.Parent), len(tm.Goroutine), n)
+		}
+		for i, par := range tm.Parent {
+			if par >= 0 && (int(par) >= n || ps.recs[par].request != ps.recs[i].request) {
+				return fmt.Errorf("path %d has parent %d out of range or in another request", i, par)
+			}
 		}
 	}
 	return nil

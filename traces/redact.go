@@ -91,10 +91,20 @@ func redactPeer(s string) string {
 	if i := strings.LastIndexByte(s, ':'); i > 0 && strings.IndexByte(s[:i], ':') < 0 {
 		host, port = s[:i], s[i:]
 	}
-	if host != "" && strings.Trim(host, "0123456789") == "" {
+	if host != "" && allDigits(host) {
 		return "?" + port
 	}
 	return s
+}
+
+// allDigits reports whether s holds only the digits 0-9.
+func allDigits(s string) bool {
+	for i := 0; i < len(s); i++ {
+		if s[i] < '0' || s[i] > '9' {
+			return false
+		}
+	}
+	return true
 }
 
 // mayHoldLiteral reports whether s has a byte that redactText may change.

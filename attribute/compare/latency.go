@@ -58,7 +58,7 @@ func NewLatencySnapshot(r *attribute.LatencyResult) (*LatencySnapshot, error) {
 	}
 	p := &Snapshot{
 		Schema:     SnapshotSchema,
-		SourceKind: traces.Spans.String(),
+		SourceKind: r.Source.String(),
 		ValueType:  traces.ValueType{Type: "critical-path", Unit: "nanoseconds"},
 		App:        cloneApp(r.App),
 		Inputs:     slices.Clone(r.Inputs),

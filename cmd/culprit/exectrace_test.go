@@ -147,3 +147,79 @@ func TestExecTraceCommands(t *testing.T) {
 		t.Errorf("diff: exit %d: %s%s", code, out, errs)
 	}
 }
+
+// TestExecTraceLatencyCommands runs the latency views on a real execution
+// trace: the JSON matches its schema, each route counts the requests sent
+// and its critical paths add up to its latency, the shop's call to the
+// price service is on its path, explain --latency lists a request's path,
+// and a latency snapshot compares with the trace it was made from.
+func TestExecTraceLatencyCommands(t *testing.T) {
+	if testing.Short() {
+		t.Skip("records an execution trace of a loopback service")
+	}
+	const n = 12
+	path, shop := recordSeedShop(t, n)
+	code, out, errs := runTest(t, "", "latency", "--format", "json", "--limit", "0", path)
+	if code != exitOK {
+		t.Fatalf("latency: exit %d: %s", code, errs)
+	}
+	validateDocument(t, compileSchemas(t), "latency of an execution trace", out)
+	var doc struct {
+		Requests int
+		Entries  []struct {
+			Entry    string
+			Requests int
+			Causes   []struct {
+				Function     string
+				Kind         string
+				CriticalPath struct {
+					MeanPerRequest int64
+					Share          float64
+				}
+			}
+		}
+	}
+	if err := json.Unmarshal([]byte(out), &doc); err != nil {
+		t.Fatal(err)
+	}
+	if doc.Requests != 2*n || len(doc.Entries) != 2 {
+		t.Fatalf("%d requests in %d entries, want %d in the shop's and the price service's", doc.Requests, len(doc.Entries), 2*n)
+	}
+	var called bool
+	for _, e := range doc.Entries {
+		var share float64
+		for _, c := range e.Causes {
+			share += c.CriticalPath.Share
+			if strings.HasSuffix(c.Function, ".fetchSeedPrices") && c.Kind == "network" && strings.HasSuffix(e.Entry, ".seeds") {
+				called = c.CriticalPath.MeanPerRequest >= 100_000 // the price service sleeps 100µs
+			}
+		}
+		if e.Requests != n || share < 0.9999 || share > 1.0001 {
+			t.Errorf("%s: %d requests, shares add up to %v; want %d and 1", e.Entry, e.Requests, share, n)
+		}
+	}
+	if !called || shop.calls != n {
+		t.Errorf("the call to the price service (%d made) is not on the shop's critical path: %s", shop.calls, out)
+	}
+	for _, f := range []string{"text", "markdown", "html", "csv"} {
+		if code, out, errs := runTest(t, "", "latency", "--format", f, path); code != exitOK || !strings.Contains(out, "fetchSeedPrices") {
+			t.Errorf("latency --format %s: exit %d: %s", f, code, errs)
+		}
+	}
+	code, out, errs = runTest(t, "", "explain", "--latency", "--slowest", "1", "seeds", path)
+	onPath := false // a line of the path: the call, charged to the shop's function
+	for _, line := range strings.Split(out, "\n") {
+		onPath = onPath || strings.Contains(line, "[network → ") && strings.Contains(line, "(*seedShop).fetchSeedPrices; at +")
+	}
+	if code != exitOK || strings.Count(out, "\nrequest ") != 1 || !onPath {
+		t.Errorf("explain --latency: exit %d: %s%s", code, out, errs)
+	}
+	snap := filepath.Join(t.TempDir(), "latency.json")
+	if code, _, errs := runTest(t, "", "latency", "--save", snap, path); code != exitOK {
+		t.Fatalf("latency --save: exit %d: %s", code, errs)
+	}
+	code, out, errs = runTest(t, "", "diff", "--latency", "--fail-on", "10%", snap, path)
+	if code != exitOK || !strings.Contains(out, "fetchSeedPrices") {
+		t.Errorf("diff --latency of a trace against its own snapshot: exit %d: %s%s", code, out, errs)
+	}
+}

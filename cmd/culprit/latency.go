@@ -38,6 +38,11 @@ time to the application function that made it, an application span's own time
 to itself, and time inside the server span that no span covers to
 "unaccounted" (queueing, un-instrumented work).
 
+A Go execution trace works too: each request is its goroutine, the child
+goroutines it waited for and their waits. A wait that is not a call (a lock,
+a channel, a sleep) is "application" time of the function that waited, and a
+goroutine's time outside its waits is "running" (on a CPU or waiting for one).
+
 Per entry point it shows the latency p50/p95/p99, and per root cause the mean
 time per request on the critical path and its share of the latency, for all
 requests and for the tail (requests at or above the --tail quantile), beside
@@ -49,6 +54,10 @@ Profiles cannot answer this: they have no requests and no order in time.`,
 
   # The slowest 1% as JSON for a notebook
   culprit latency --tail 0.99 --format json -o latency.json traces/
+
+  # The same from a Go execution trace of the service
+  curl -o trace.out 'http://localhost:6060/debug/pprof/trace?seconds=10'
+  culprit latency trace.out
 
   # Keep this build's latency for a later diff --latency
   culprit latency v41.traces.jsonl --save v41.latency.json
@@ -119,8 +128,9 @@ func runLatency(ctx context.Context, opts *latencyOptions) error {
 	return nil
 }
 
-// latency reads the inputs with span timing and computes their critical
-// paths. A profile gets a one-line answer saying why it cannot.
+// latency reads the inputs (spans or execution traces) with timing and
+// computes their critical paths. A profile gets a one-line answer saying
+// why it cannot.
 func (f *analysisFlags) latency(ctx context.Context, s *streams, inputs []string, lopts attribute.LatencyOptions) (*attribute.LatencyResult, error) {
 	rules, err := f.rules()
 	if err != nil {
@@ -131,11 +141,7 @@ func (f *analysisFlags) latency(ctx context.Context, s *streams, inputs []string
 	if err != nil {
 		return nil, err
 	}
-	switch src.Kind {
-	case traces.Spans:
-	case traces.ExecTrace:
-		return nil, attribute.ErrExecTraceLatency
-	default:
+	if src.Kind != traces.Spans && src.Kind != traces.ExecTrace {
 		return nil, attribute.ErrNoTiming
 	}
 	lopts.Options = f.attributeOptions()
