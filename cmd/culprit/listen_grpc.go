@@ -62,6 +62,7 @@ func (rc *receiver) grpcServer() *http.Server {
 func (rc *receiver) serveGRPC(w http.ResponseWriter, r *http.Request) {
 	w.Header().Set("Grpc-Accept-Encoding", grpcAcceptEncoding)
 	if r.Method != http.MethodPost {
+		w.Header().Set("Allow", http.MethodPost)
 		writeGRPCStatus(w, http.StatusMethodNotAllowed, &refusal{code: codeInternal, msg: fmt.Sprintf("method %s; gRPC calls are POST", r.Method)})
 		return
 	}

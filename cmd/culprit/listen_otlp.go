@@ -25,7 +25,9 @@ import (
 // that do not decode, 413/RESOURCE_EXHAUSTED over the size limit, 415 for
 // other media types, and 503 with Retry-After / UNAVAILABLE with a retry
 // delay when the receiver cannot take the request now (too many in
-// flight, stopping, the disk failing), so that exporters retry.
+// flight, stopping, the disk failing), so that exporters retry. The
+// gRPC transport is in listen_grpc.go, the answers' encoding in
+// listen_wire.go.
 
 // retryAfter is the delay that retryable refusals suggest.
 const retryAfter = time.Second
