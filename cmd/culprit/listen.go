@@ -19,7 +19,6 @@ import (
 	"github.com/culprithq/culprit/traces/capture"
 	"github.com/spf13/cobra"
 	"golang.org/x/net/netutil"
-	"google.golang.org/grpc"
 )
 
 // listenOptions holds the flags and dependencies of `culprit listen`.
@@ -217,10 +216,11 @@ func runListen(ctx context.Context, opts *listenOptions) error {
 
 	// Stop: new requests get 503/UNAVAILABLE, the ones in flight finish.
 	rc.stop()
-	shutdown, cancel := context.WithTimeout(context.Background(), opts.ReadTimeout+10*time.Second)
-	hs.Shutdown(shutdown)
-	cancel()
-	stopGRPC(gs, opts.ReadTimeout)
+	var stopping sync.WaitGroup
+	for _, srv := range []*http.Server{hs, gs} {
+		stopping.Go(func() { stopServer(srv, opts.ReadTimeout+10*time.Second) })
+	}
+	stopping.Wait()
 	serving.Wait()
 	rc.drain()
 	stopBG()
@@ -321,17 +321,14 @@ func listenAddrs(httpAddr, grpcAddr string) string {
 	return strings.Join(parts, " and ")
 }
 
-// stopGRPC stops the gRPC server gracefully, or at once after timeout.
-func stopGRPC(gs *grpc.Server, timeout time.Duration) {
-	done := make(chan struct{})
-	go func() {
-		gs.GracefulStop()
-		close(done)
-	}()
-	select {
-	case <-done:
-	case <-time.After(timeout + 10*time.Second):
-		gs.Stop()
+// stopServer stops srv gracefully: it stops accepting, lets the requests
+// in flight finish (HTTP/2 connections are told so with GOAWAY) and
+// closes the connections; after timeout it closes them at once.
+func stopServer(srv *http.Server, timeout time.Duration) {
+	ctx, cancel := context.WithTimeout(context.Background(), timeout)
+	defer cancel()
+	if srv.Shutdown(ctx) != nil {
+		srv.Close()
 	}
 }
 

@@ -10,6 +10,7 @@ import (
 	"net/http/httptest"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"sync/atomic"
 	"syscall"
@@ -286,8 +287,12 @@ func TestListenStopping(t *testing.T) {
 	if rec.Code != 503 || rec.Header().Get("Retry-After") == "" {
 		t.Fatalf("%d %v", rec.Code, rec.Header())
 	}
-	if _, err := rc.export(marshal(t, testRequest(1, 1, 0))); status.Code(err) != codes.Unavailable {
-		t.Fatalf("gRPC while stopping: %v", err)
+	rec = httptest.NewRecorder()
+	req = httptest.NewRequest(http.MethodPost, grpcExportPath, bytes.NewReader(grpcFrame(0, marshal(t, testRequest(1, 1, 0)))))
+	req.Header.Set("Content-Type", "application/grpc")
+	rc.serveGRPC(rec, req)
+	if got := rec.Header().Get("Grpc-Status"); got != strconv.Itoa(int(codes.Unavailable)) {
+		t.Fatalf("gRPC while stopping: grpc-status %q, headers %v", got, rec.Header())
 	}
 }
 

@@ -3,7 +3,6 @@ package main
 import (
 	"bytes"
 	"compress/gzip"
-	"context"
 	"errors"
 	"fmt"
 	"io"
@@ -17,19 +16,6 @@ import (
 
 	"github.com/culprithq/culprit/traces"
 	"github.com/culprithq/culprit/traces/capture"
-	coltracepb "go.opentelemetry.io/proto/otlp/collector/trace/v1"
-	"google.golang.org/genproto/googleapis/rpc/errdetails"
-	spb "google.golang.org/genproto/googleapis/rpc/status"
-	"google.golang.org/grpc"
-	"google.golang.org/grpc/codes"
-	"google.golang.org/grpc/encoding"
-	_ "google.golang.org/grpc/encoding/gzip" // gzip-compressed requests
-	"google.golang.org/grpc/keepalive"
-	"google.golang.org/grpc/mem"
-	"google.golang.org/grpc/status"
-	"google.golang.org/protobuf/encoding/protojson"
-	"google.golang.org/protobuf/proto"
-	"google.golang.org/protobuf/types/known/durationpb"
 )
 
 // This file is the receiving side of `culprit listen`: the OTLP/HTTP and
@@ -39,7 +25,9 @@ import (
 // that do not decode, 413/RESOURCE_EXHAUSTED over the size limit, 415 for
 // other media types, and 503 with Retry-After / UNAVAILABLE with a retry
 // delay when the receiver cannot take the request now (too many in
-// flight, stopping, the disk failing), so that exporters retry.
+// flight, stopping, the disk failing), so that exporters retry. The
+// gRPC transport is in listen_grpc.go, the answers' encoding in
+// listen_wire.go.
 
 // retryAfter is the delay that retryable refusals suggest.
 const retryAfter = time.Second
@@ -52,6 +40,7 @@ type receiver struct {
 	slots    chan struct{} // one per request in flight
 	checkers sync.Pool
 	bufs     sync.Pool
+	gzips    sync.Pool // *gzip.Reader
 
 	mu       sync.Mutex // guards stopping against inflight.Add
 	stopping bool
@@ -76,20 +65,20 @@ func newReceiver(w *capture.Writer, opts *listenOptions, errOut io.Writer) *rece
 // refusal is why a request is not taken, with the answer it gets.
 type refusal struct {
 	httpStatus int
-	code       codes.Code
+	code       rpcCode
 	msg        string
 }
 
 func unavailable(msg string) *refusal {
-	return &refusal{httpStatus: http.StatusServiceUnavailable, code: codes.Unavailable, msg: msg}
+	return &refusal{httpStatus: http.StatusServiceUnavailable, code: codeUnavailable, msg: msg}
 }
 
 func invalid(msg string) *refusal {
-	return &refusal{httpStatus: http.StatusBadRequest, code: codes.InvalidArgument, msg: msg}
+	return &refusal{httpStatus: http.StatusBadRequest, code: codeInvalidArgument, msg: msg}
 }
 
 func tooLarge(msg string) *refusal {
-	return &refusal{httpStatus: http.StatusRequestEntityTooLarge, code: codes.ResourceExhausted, msg: msg}
+	return &refusal{httpStatus: http.StatusRequestEntityTooLarge, code: codeResourceExhausted, msg: msg}
 }
 
 // enter admits a request unless the receiver is stopping or full; leave
@@ -184,7 +173,7 @@ const (
 func (rc *receiver) serveHTTP(w http.ResponseWriter, r *http.Request) {
 	if r.Method != http.MethodPost {
 		w.Header().Set("Allow", http.MethodPost)
-		writeHTTPStatus(w, mediaJSON, &refusal{httpStatus: http.StatusMethodNotAllowed, code: codes.Unimplemented, msg: "use POST"})
+		writeHTTPStatus(w, mediaJSON, &refusal{httpStatus: http.StatusMethodNotAllowed, code: codeUnimplemented, msg: "use POST"})
 		return
 	}
 	media, _, _ := mime.ParseMediaType(r.Header.Get("Content-Type"))
@@ -194,7 +183,7 @@ func (rc *receiver) serveHTTP(w http.ResponseWriter, r *http.Request) {
 	case mediaJSON:
 		json = true
 	default:
-		writeHTTPStatus(w, mediaJSON, &refusal{httpStatus: http.StatusUnsupportedMediaType, code: codes.InvalidArgument,
+		writeHTTPStatus(w, mediaJSON, &refusal{httpStatus: http.StatusUnsupportedMediaType, code: codeInvalidArgument,
 			msg: fmt.Sprintf("unsupported Content-Type %q; use %s or %s", r.Header.Get("Content-Type"), mediaProto, mediaJSON)})
 		return
 	}
@@ -215,21 +204,9 @@ func (rc *receiver) serveHTTP(w http.ResponseWriter, r *http.Request) {
 		writeHTTPStatus(w, media, ref)
 		return
 	}
-	resp := exportResponse(res)
-	var out []byte
-	var err error
-	if json {
-		out, err = protojson.Marshal(resp)
-	} else {
-		out, err = proto.Marshal(resp)
-	}
-	if err != nil {
-		http.Error(w, err.Error(), http.StatusInternalServerError)
-		return
-	}
 	w.Header().Set("Content-Type", media)
 	w.WriteHeader(http.StatusOK)
-	w.Write(out)
+	w.Write(exportResponse(nil, res, json))
 }
 
 // readBody reads a request's body, decompressed, within --max-body.
@@ -242,14 +219,14 @@ func (rc *receiver) readBody(w http.ResponseWriter, r *http.Request, buf *bytes.
 	switch enc := strings.ToLower(strings.TrimSpace(r.Header.Get("Content-Encoding"))); enc {
 	case "", "identity":
 	case "gzip":
-		zr, err := gzip.NewReader(body)
+		zr, err := rc.gzipReader(body)
 		if err != nil {
 			return nil, readRefusal(err, max)
 		}
-		defer zr.Close()
+		defer rc.gzips.Put(zr)
 		body = zr
 	default:
-		return nil, &refusal{httpStatus: http.StatusUnsupportedMediaType, code: codes.InvalidArgument,
+		return nil, &refusal{httpStatus: http.StatusUnsupportedMediaType, code: codeInvalidArgument,
 			msg: fmt.Sprintf("unsupported Content-Encoding %q; use gzip or none", enc)}
 	}
 	// Decompressed, the body must fit the limit too (a gzip bomb).
@@ -290,29 +267,30 @@ func (rc *receiver) putBuf(b *bytes.Buffer) {
 	}
 }
 
-// exportResponse is the answer to a stored request: partial success
-// when spans will be skipped.
-func exportResponse(res traces.CheckResult) *coltracepb.ExportTraceServiceResponse {
-	resp := &coltracepb.ExportTraceServiceResponse{}
+// exportResponse appends the answer to a stored request, in protobuf or
+// JSON: partial success when spans will be skipped.
+func exportResponse(b []byte, res traces.CheckResult, json bool) []byte {
+	var rejected int64
+	var msg string
 	if res.Rejected > 0 {
-		resp.PartialSuccess = &coltracepb.ExportTracePartialSuccess{
-			RejectedSpans: int64(res.Rejected),
-			ErrorMessage:  fmt.Sprintf("%d of %d spans have invalid IDs and will not be analysed; the first: %s", res.Rejected, res.Spans, res.Message),
-		}
+		rejected = int64(res.Rejected)
+		msg = fmt.Sprintf("%d of %d spans have invalid IDs and will not be analysed; the first: %s", res.Rejected, res.Spans, res.Message)
 	}
-	return resp
+	if json {
+		return appendExportResponseJSON(b, rejected, msg)
+	}
+	return appendExportResponse(b, rejected, msg)
 }
 
 // writeHTTPStatus answers with a google.rpc.Status body in the request's
 // encoding, and Retry-After on 503.
 func writeHTTPStatus(w http.ResponseWriter, media string, ref *refusal) {
-	st := &spb.Status{Code: int32(ref.code), Message: ref.msg}
 	var out []byte
 	if media == mediaProto {
-		out, _ = proto.Marshal(st)
+		out = appendStatus(nil, ref.code, ref.msg, 0)
 	} else {
 		media = mediaJSON
-		out, _ = protojson.Marshal(st)
+		out = appendStatusJSON(nil, ref.code, ref.msg)
 	}
 	if ref.httpStatus == http.StatusServiceUnavailable {
 		w.Header().Set("Retry-After", strconv.Itoa(int(retryAfter/time.Second)))
@@ -320,78 +298,4 @@ func writeHTTPStatus(w http.ResponseWriter, media string, ref *refusal) {
 	w.Header().Set("Content-Type", media)
 	w.WriteHeader(ref.httpStatus)
 	w.Write(out)
-}
-
-// ---------------------------------------------------------------------
-// OTLP/gRPC
-
-// rawRequest is an export request's bytes as received: the gRPC service
-// stores them as they are rather than decoding them twice.
-type rawRequest struct{ data []byte }
-
-// rawCodec is the gRPC "proto" codec, except that a rawRequest receives
-// the message's bytes undecoded.
-type rawCodec struct{ encoding.CodecV2 }
-
-func (c rawCodec) Unmarshal(data mem.BufferSlice, v any) error {
-	if r, ok := v.(*rawRequest); ok {
-		r.data = data.Materialize()
-		return nil
-	}
-	return c.CodecV2.Unmarshal(data, v)
-}
-
-// grpcServer serves TraceService/Export: the official service's name and
-// method (go.opentelemetry.io/proto/otlp/collector/trace/v1), with a
-// handler that stores the request's bytes.
-func (rc *receiver) grpcServer() *grpc.Server {
-	desc := grpc.ServiceDesc{
-		ServiceName: coltracepb.TraceService_ServiceDesc.ServiceName,
-		HandlerType: (*any)(nil),
-		Methods: []grpc.MethodDesc{{
-			MethodName: "Export",
-			Handler: func(_ any, ctx context.Context, dec func(any) error, _ grpc.UnaryServerInterceptor) (any, error) {
-				var req rawRequest
-				if err := dec(&req); err != nil {
-					return nil, err
-				}
-				return rc.export(req.data)
-			},
-		}},
-		Metadata: coltracepb.TraceService_ServiceDesc.Metadata,
-	}
-	gs := grpc.NewServer(
-		grpc.ForceServerCodecV2(rawCodec{encoding.GetCodecV2("proto")}),
-		grpc.MaxRecvMsgSize(int(min(rc.opts.MaxBody, 1<<31-1))),
-		grpc.MaxConcurrentStreams(uint32(rc.opts.MaxInflight)),
-		grpc.ConnectionTimeout(rc.opts.ReadTimeout),
-		grpc.KeepaliveParams(keepalive.ServerParameters{MaxConnectionIdle: rc.opts.IdleTimeout}),
-	)
-	gs.RegisterService(&desc, nil)
-	return gs
-}
-
-// export answers one gRPC export request.
-func (rc *receiver) export(data []byte) (*coltracepb.ExportTraceServiceResponse, error) {
-	if ref := rc.enter(); ref != nil {
-		return nil, grpcStatus(ref)
-	}
-	defer rc.leave()
-	res, ref := rc.take(data, false)
-	if ref != nil {
-		return nil, grpcStatus(ref)
-	}
-	return exportResponse(res), nil
-}
-
-// grpcStatus turns a refusal into a gRPC status; UNAVAILABLE carries the
-// retry delay (google.rpc.RetryInfo).
-func grpcStatus(ref *refusal) error {
-	st := status.New(ref.code, ref.msg)
-	if ref.code == codes.Unavailable {
-		if d, err := st.WithDetails(&errdetails.RetryInfo{RetryDelay: durationpb.New(retryAfter)}); err == nil {
-			st = d
-		}
-	}
-	return st.Err()
 }
