@@ -277,8 +277,8 @@ func (s *Source) Validate() error {
 	if ps.Len() > 0 && ps.nv != len(s.ValueTypes) {
 		return fmt.Errorf("paths have %d values for %d value types", ps.nv, len(s.ValueTypes))
 	}
-	for i := range ps.recs {
-		r := &ps.recs[i]
+	for i := range ps.Len() {
+		r := ps.rec(i)
 		fs := ps.Frames(i)
 		if len(fs) == 0 {
 			return fmt.Errorf("path %d has no frames", i)
@@ -301,7 +301,7 @@ func (s *Source) Validate() error {
 			return fmt.Errorf("timing of %d starts, %d parents and %d goroutine marks for %d paths", len(tm.Start), len(tm.Parent), len(tm.Goroutine), n)
 		}
 		for i, par := range tm.Parent {
-			if par >= 0 && (int(par) >= n || ps.recs[par].request != ps.recs[i].request) {
+			if par >= 0 && (int(par) >= n || ps.rec(int(par)).request != ps.rec(i).request) {
 				return fmt.Errorf("path %d has parent %d out of range or in another request", i, par)
 			}
 		}

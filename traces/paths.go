@@ -1,16 +1,20 @@
 package traces
 
+import "slices"
+
 // Paths holds a source's paths in compact storage without pointers: a
-// 20-byte record per path, and the frames and values of all paths in
-// shared chunks. A million spans take about 60 MB instead of 100, and the
-// garbage collector has nothing in them to scan. Append copies a path in;
+// 20-byte record per path, and the records, frames and values of all
+// paths in shared chunks, so that growing copies almost nothing. A
+// million spans take about 60 MB instead of 100, and the garbage
+// collector has nothing in them to scan. Append copies a path in;
 // At returns a view of one.
 //
 // The zero Paths is empty and takes the number of values per path from
 // its first Append; NewSource sets it from the source's value types.
 type Paths struct {
-	nv     int // values per path
-	recs   []pathRec
+	nv     int         // values per path
+	recs   [][]pathRec // chunks of recChunk records
+	n      int         // paths
 	frames [][]FrameID // chunks; a path's frames lie in one chunk
 	values [][]int64   // chunks of valueChunk paths' values
 	// labels maps label set IDs (pathRec.labels) to the sets; [0] is nil.
@@ -49,7 +53,7 @@ const longPath = 0xffff
 
 // frames returns the frame range of record i.
 func (ps *Paths) frameRange(i int) (chunk, at, n int32) {
-	r := &ps.recs[i]
+	r := ps.rec(i)
 	at, n = int32(r.atN>>16), int32(r.atN&0xffff)
 	if n == longPath {
 		n = ps.long[int32(i)]
@@ -60,15 +64,20 @@ func (ps *Paths) frameRange(i int) (chunk, at, n int32) {
 const (
 	frameChunk = 1 << 16 // frame IDs per chunk (a longer path gets a chunk of its own); at most 1<<16
 	valueChunk = 1 << 12 // paths per value chunk
+	recShift   = 14
+	recChunk   = 1 << recShift // records per chunk
 )
 
+// rec returns the record of path i.
+func (ps *Paths) rec(i int) *pathRec { return &ps.recs[i>>recShift][i&(recChunk-1)] }
+
 // Len returns the number of paths.
-func (ps *Paths) Len() int { return len(ps.recs) }
+func (ps *Paths) Len() int { return ps.n }
 
 // At returns path i. Its Frames and Values share the store's memory and
 // must not be modified.
 func (ps *Paths) At(i int) Path {
-	r := &ps.recs[i]
+	r := ps.rec(i)
 	vc := ps.values[i/valueChunk]
 	v := (i % valueChunk) * ps.nv
 	c, at, n := ps.frameRange(i)
@@ -95,10 +104,10 @@ func (ps *Paths) Value(i, v int) int64 {
 // Append copies p in. Its Values are cut or padded with zeros to the
 // store's number of values per path.
 func (ps *Paths) Append(p Path) {
-	if len(ps.recs) == 0 && ps.nv == 0 {
+	if ps.n == 0 && ps.nv == 0 {
 		ps.nv = len(p.Values)
 	}
-	i := len(ps.recs)
+	i := ps.n
 	if i%valueChunk == 0 {
 		ps.values = append(ps.values, make([]int64, valueChunk*ps.nv))
 	}
@@ -112,14 +121,23 @@ func (ps *Paths) Append(p Path) {
 		ps.long[int32(i)] = int32(n)
 		n = longPath
 	}
-	ps.recs = append(ps.recs, pathRec{chunk: chunk, atN: uint32(at)<<16 | n,
+	if i%recChunk == 0 {
+		size := recChunk
+		if i == 0 {
+			size = 64 // a small source stays small: the first chunk grows as a slice does
+		}
+		ps.recs = append(ps.recs, make([]pathRec, 0, size))
+	}
+	c := &ps.recs[len(ps.recs)-1]
+	*c = append(*c, pathRec{chunk: chunk, atN: uint32(at)<<16 | n,
 		labels: ps.labelID(p.Labels), request: p.Request, call: p.Call})
+	ps.n++
 }
 
 // Ref returns the reference of path i's stored frames.
 func (ps *Paths) Ref(i int) FrameRef {
 	_, _, n := ps.frameRange(i)
-	return FrameRef{rec: ps.recs[i], n: n + 1}
+	return FrameRef{rec: *ps.rec(i), n: n + 1}
 }
 
 // AppendRef appends p with the frames that ref names instead of
@@ -133,8 +151,8 @@ func (ps *Paths) AppendRef(p Path, ref FrameRef) {
 	ps.shared = true
 	p.Frames = nil
 	ps.Append(p)
-	i := len(ps.recs) - 1
-	r := &ps.recs[i]
+	i := ps.n - 1
+	r := ps.rec(i)
 	r.chunk, r.atN = ref.rec.chunk, ref.rec.atN
 	if ref.rec.atN&0xffff == longPath {
 		ps.long[int32(i)] = ref.n - 1
@@ -149,7 +167,7 @@ func (ps *Paths) Shared() bool { return ps.shared }
 // equal frames (the converse holds only for paths appended with
 // AppendRef, see Shared).
 func (ps *Paths) FrameKey(i int) uint64 {
-	r := &ps.recs[i]
+	r := ps.rec(i)
 	return uint64(uint32(r.chunk))<<32 | uint64(r.atN)
 }
 
@@ -197,11 +215,9 @@ func (ps *Paths) labelID(set *LabelSet) int32 {
 	return id
 }
 
-// Grow makes room for n more path records.
+// Grow makes room for n more path records in the table of chunks (the
+// chunks themselves are made as paths are appended, so that a source
+// being built takes its memory as it grows).
 func (ps *Paths) Grow(n int) {
-	if cap(ps.recs)-len(ps.recs) < n {
-		recs := make([]pathRec, len(ps.recs), len(ps.recs)+n)
-		copy(recs, ps.recs)
-		ps.recs = recs
-	}
+	ps.recs = slices.Grow(ps.recs, max(0, (ps.n+n+recChunk-1)/recChunk-len(ps.recs)))
 }

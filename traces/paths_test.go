@@ -26,8 +26,8 @@ func TestPathsRoundTrip(t *testing.T) {
 		}
 		want = append(want, p)
 	}
-	// More than a value chunk of paths, so that values span chunks.
-	for i := range valueChunk + 5 {
+	// More than a record chunk of paths, so that records and values span chunks.
+	for i := range recChunk + 5 {
 		want = append(want, Path{Frames: []FrameID{FrameID(i + 1)}, Values: []int64{int64(i), 1}})
 	}
 	var ps Paths

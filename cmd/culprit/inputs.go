@@ -291,6 +291,11 @@ func (f *analysisFlags) read(ctx context.Context, s *streams, names []string, ki
 	}
 	src, err := loader.Source()
 	debug.FreeOSMemory()
+	if _, set := os.LookupEnv("GOGC"); !set {
+		// The source is the live heap from here on, and the analysis
+		// adds tallies to it: collect at 1.25× (see defaultGCPercent).
+		debug.SetGCPercent(analysisGCPercent)
+	}
 	return src, err
 }
 

@@ -15,6 +15,13 @@ import (
 // million spans this keeps about 10 MB less for no measurable time.
 const defaultGCPercent = 50
 
+// analysisGCPercent is the target once the inputs are read: the heap is
+// then mostly the source and the tree, pointer-free, and what the
+// analysis allocates is short-lived tallies, so collecting more often
+// costs little and keeps the peak lower (on a million spans, 143-146 MB
+// of peak memory instead of 152-154, for no measurable CPU).
+const analysisGCPercent = 25
+
 // cpuProfileEnv names a file to write a CPU profile of the run to, for
 // developers (DEVELOPERS.md, "Benchmarks"; default.pgo is made with it).
 const cpuProfileEnv = "CULPRIT_CPUPROFILE"
