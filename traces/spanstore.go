@@ -148,13 +148,23 @@ func (a assemblyKey) less(b assemblyKey) bool {
 	return a.major < b.major || a.major == b.major && (a.id < b.id || a.id == b.id && a.i < b.i)
 }
 
+// compare orders keys as less does (an explicit chain: cmp.Or would
+// compare every field every time).
+func (a assemblyKey) compare(b assemblyKey) int {
+	switch {
+	case a.major != b.major:
+		return cmp.Compare(a.major, b.major)
+	case a.id != b.id:
+		return cmp.Compare(a.id, b.id)
+	}
+	return cmp.Compare(a.i, b.i)
+}
+
 // sortKeys sorts keys: by insertion for the few of a typical trace, else
 // with slices.SortFunc.
 func sortKeys(keys []assemblyKey) {
 	if len(keys) > smallSort {
-		slices.SortFunc(keys, func(a, b assemblyKey) int {
-			return cmp.Or(cmp.Compare(a.major, b.major), cmp.Compare(a.id, b.id), cmp.Compare(a.i, b.i))
-		})
+		slices.SortFunc(keys, assemblyKey.compare)
 		return
 	}
 	for j := 1; j < len(keys); j++ {
