@@ -293,8 +293,8 @@ func (f *analysisFlags) read(ctx context.Context, s *streams, names []string, ki
 	debug.FreeOSMemory()
 	if _, set := os.LookupEnv("GOGC"); !set {
 		// The source is the live heap from here on, and the analysis
-		// adds tallies to it: collect at 1.25× (see defaultGCPercent).
-		debug.SetGCPercent(analysisGCPercent)
+		// adds tallies to it (see analysisGCPercent).
+		debug.SetGCPercent(analysisGCPercent(liveHeap()))
 	}
 	return src, err
 }
