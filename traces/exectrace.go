@@ -121,6 +121,10 @@ type stackInfo struct {
 	readLoop  bool      // an HTTP/1 client connection's read loop
 	pool      bool      // waiting for or opening a pooled connection
 	ref       FrameRef  // where the paths of this stack (with no creator's prefix) store their frames
+	// In emit: the stretch that heads this stack's group (groupAt) in
+	// emit call number groupEmit.
+	groupEmit uint64
+	groupAt   int32
 }
 
 // execStretch is one wait of a request, kept until the request ends.
@@ -202,18 +206,25 @@ type execG struct {
 	pendJoin  int32 // the child that ended the wait (its childIx): a join; 0 none
 	childIx   int32 // a child's index in its request's children, +1
 	writing   int32 // the last wait or system call was a socket write by this writer; 0: not a write
-	// The goroutine's last stack and its information: goroutines wait
-	// at the same places again and again.
-	lastStack trace.Stack
-	lastInfo  *stackInfo
+	// The goroutine's last two stacks and their information: goroutines
+	// wait at the same few places again and again (a connection's read
+	// and write, a worker's receive and send).
+	lastStack, prevStack trace.Stack
+	lastInfo, prevInfo   *stackInfo
 }
 
 // stackOf returns the information of stack s of goroutine g.
 func (x *execReader) stackOf(g *execG, s trace.Stack) *stackInfo {
-	if s == g.lastStack && g.lastInfo != nil {
+	switch {
+	case s == g.lastStack && g.lastInfo != nil:
+		return g.lastInfo
+	case s == g.prevStack && g.prevInfo != nil:
+		g.lastStack, g.prevStack = g.prevStack, g.lastStack
+		g.lastInfo, g.prevInfo = g.prevInfo, g.lastInfo
 		return g.lastInfo
 	}
 	in := x.info(s)
+	g.prevStack, g.prevInfo = g.lastStack, g.lastInfo
 	g.lastStack, g.lastInfo = s, in
 	return in
 }
@@ -237,7 +248,8 @@ type execReader struct {
 	edges     []execEdge      // splitWall's scratch space
 	times     []int64
 	counts    []int
-	groups    map[execGroupKey]int
+	groups    map[execGroupKey]int      // see emit
+	emits     uint64                    // calls of emit
 	writers   map[string]int32          // see writerKey
 	refs      map[execGroupKey]FrameRef // stored frames of paths with a creator's prefix
 	keyBuf    []byte
@@ -809,20 +821,36 @@ func (x *execReader) emit(r *execRequest, ss []execStretch, concurrent bool) {
 			}
 		}
 	}
-	clear(x.groups)
+	// Stretches with no creator's prefix (most) find their group through
+	// their stack's information, marked with this call's number; the
+	// others through a map.
+	x.emits++
+	if len(x.groups) > 0 {
+		clear(x.groups)
+	}
 	for i := range ss {
 		s := &ss[i]
-		k := execGroupKey{s.info, s.prefix}
-		if at, ok := x.groups[k]; ok {
+		at, ok := -1, false
+		if s.prefix == 0 {
+			if ok = s.info.groupEmit == x.emits; ok {
+				at = int(s.info.groupAt)
+			} else {
+				s.info.groupEmit, s.info.groupAt = x.emits, int32(i)
+			}
+		} else {
+			at, ok = x.groups[execGroupKey{s.info, s.prefix}]
+			if !ok {
+				x.groups[execGroupKey{s.info, s.prefix}] = i
+			}
+		}
+		if ok {
 			g := &ss[at]
 			g.end += s.end - s.start // end - start is the summed wait
 			g.runnable += s.runnable
 			g.wall += s.wall
 			g.calls += s.calls
 			s.info = nil
-			continue
 		}
-		x.groups[k] = i
 	}
 	var vals [4]int64
 	for i := range ss {
