@@ -87,9 +87,14 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 	}
 	wg.Wait()
 	ch := chs[0]
-	for _, o := range chs[1:] {
+	for i, o := range chs[1:] {
 		ch.merge(o)
+		chs[i+1] = nil // its tallies are merged: free them
 	}
+	// The walk's per-node state is done with: let it go before the
+	// causes are finished (on large sources it is tens of megabytes).
+	helpers, knowsCalls := wk.w.helpers, spans || wk.callsIx >= 0
+	ch.wr, ch.rec, wk, rec = nil, nil, nil, nil
 	res.Totals = ch.totals
 	accs, entries, requests := ch.accs, ch.entryList, ch.requests
 
@@ -108,7 +113,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		if acc.cause.Cost == 0 && acc.recCost == 0 {
 			continue
 		}
-		cs := acc.finish(src, denom, res.Totals.BoundarySamples, res.Sampled, spans || wk.callsIx >= 0, !opts.DropRequestVectors, &scratch)
+		cs := acc.finish(src, denom, res.Totals.BoundarySamples, res.Sampled, knowsCalls, !opts.DropRequestVectors, &scratch)
 		if cs.Cost > 0 {
 			res.Causes = append(res.Causes, cs)
 		}
@@ -129,7 +134,7 @@ func Attribute(t *callgraph.Tree, c *Classifier, opts Options) *Result {
 		return a.Entry < b.Entry
 	})
 	res.Findings = findings(res, accs, fo, denom)
-	res.Helpers = sharedHelpers(c, wk.w.helpers, ch.viaCost)
+	res.Helpers = sharedHelpers(c, helpers, ch.viaCost)
 	return res
 }
 

@@ -30,7 +30,8 @@ const listedChildren = 8
 // whoever needs a node's value adds up the paths through it.
 type Tree struct {
 	src   *traces.Source
-	nodes []treeNode
+	nodes [][]treeNode // chunks of nodeChunk nodes
+	n     int          // nodes
 	leaf  []NodeID
 }
 
@@ -48,14 +49,9 @@ type TreeOptions struct {
 
 // NewTree merges the paths of src by common prefix.
 func NewTree(src *traces.Source, opts TreeOptions) *Tree {
-	t := &Tree{
-		src: src,
-		// The bound counts whole paths; capacity beyond what is used is
-		// never touched, so it costs address space, not memory.
-		nodes: make([]treeNode, 1, newNodesBound(src)+1),
-		leaf:  make([]NodeID, src.Paths.Len()),
-	}
-	b := treeBuilder{t: t, index: map[uint64]NodeID{}, children: make([]uint8, 1, cap(t.nodes))}
+	t := &Tree{src: src, leaf: make([]NodeID, src.Paths.Len())}
+	t.newNode(treeNode{}) // the root
+	b := treeBuilder{t: t, index: map[uint64]NodeID{}, children: make([]uint8, 1, 64)}
 	// Consecutive paths usually share a prefix (sibling spans of a trace,
 	// samples of one request): reuse the previous path's nodes for the
 	// common prefix and look up only the rest.
@@ -111,29 +107,6 @@ func NewTree(src *traces.Source, opts TreeOptions) *Tree {
 	return t
 }
 
-// newNodesBound returns an upper bound of the nodes NewTree makes: the
-// frames of each path past its common prefix with the previous path, or
-// with shared frames the frames stored (capped at 16M, where growing is
-// cheaper than guessing).
-func newNodesBound(src *traces.Source) int {
-	if src.Paths.Shared() {
-		// Each stored frame makes at most one node.
-		return min(src.Paths.StoredFrames(), 1<<24)
-	}
-	n := 0
-	var prev []traces.FrameID
-	for i := range src.Paths.Len() {
-		fs := src.Paths.Frames(i)
-		common := 0
-		for common < len(prev) && common < len(fs) && fs[common] == prev[common] {
-			common++
-		}
-		n += len(fs) - common
-		prev = fs
-	}
-	return min(n, 1<<24)
-}
-
 // treeBuilder finds and adds children while NewTree runs.
 type treeBuilder struct {
 	t *Tree
@@ -144,20 +117,49 @@ type treeBuilder struct {
 	children []uint8
 }
 
+// nodeChunk is how many nodes a chunk holds: nodes are allocated as the
+// tree grows, never copied (a bound computed ahead overestimated the
+// nodes of a million spans by 75%, and growing one slice would copy it).
+const (
+	nodeShift = 15
+	nodeChunk = 1 << nodeShift
+)
+
+// node returns node n.
+func (t *Tree) node(n NodeID) *treeNode { return &t.nodes[n>>nodeShift][n&(nodeChunk-1)] }
+
+// newNode appends v and returns its ID.
+func (t *Tree) newNode(v treeNode) NodeID {
+	id := NodeID(t.n)
+	if t.n%nodeChunk == 0 {
+		size := nodeChunk
+		if t.n == 0 {
+			size = 64 // a small tree stays small: the first chunk grows as a slice does
+		}
+		t.nodes = append(t.nodes, make([]treeNode, 0, size))
+	}
+	c := &t.nodes[len(t.nodes)-1]
+	*c = append(*c, v)
+	t.n++
+	return id
+}
+
 func childKey(parent NodeID, f traces.FrameID) uint64 {
 	return uint64(uint32(parent))<<32 | uint64(uint32(f))
 }
 
 // child returns the child of parent with frame f, 0 if there is none.
 func (b *treeBuilder) child(parent NodeID, f traces.FrameID) NodeID {
-	nodes := b.t.nodes
+	t := b.t
 	if b.children[parent] > listedChildren {
 		return b.index[childKey(parent, f)]
 	}
-	for c := nodes[parent].firstChild; c != 0; c = nodes[c].nextSibling {
-		if nodes[c].frame == f {
+	for c := t.node(parent).firstChild; c != 0; {
+		n := t.node(c)
+		if n.frame == f {
 			return c
 		}
+		c = n.nextSibling
 	}
 	return 0
 }
@@ -165,15 +167,14 @@ func (b *treeBuilder) child(parent NodeID, f traces.FrameID) NodeID {
 // add appends a child of parent with frame f and returns it.
 func (b *treeBuilder) add(parent NodeID, f traces.FrameID) NodeID {
 	t := b.t
-	child := NodeID(len(t.nodes))
-	p := &t.nodes[parent]
-	t.nodes = append(t.nodes, treeNode{
+	p := t.node(parent)
+	child := t.newNode(treeNode{
 		frame:       f,
 		parent:      parent,
 		nextSibling: p.firstChild,
 		depth:       p.depth + 1,
 	})
-	p = &t.nodes[parent] // append may have moved the nodes
+	p = t.node(parent) // the first chunk may have moved
 	p.firstChild = child
 	b.children = append(b.children, 0)
 	switch n := &b.children[parent]; {
@@ -181,8 +182,8 @@ func (b *treeBuilder) add(parent NodeID, f traces.FrameID) NodeID {
 		*n++
 	case *n == listedChildren:
 		*n++
-		for c := p.firstChild; c != 0; c = t.nodes[c].nextSibling {
-			b.index[childKey(parent, t.nodes[c].frame)] = c
+		for c := p.firstChild; c != 0; c = t.node(c).nextSibling {
+			b.index[childKey(parent, t.node(c).frame)] = c
 		}
 	default:
 		*n = listedChildren + 1
@@ -195,27 +196,28 @@ func (b *treeBuilder) add(parent NodeID, f traces.FrameID) NodeID {
 func (t *Tree) Source() *traces.Source { return t.src }
 
 // Len returns the number of nodes, the virtual root included.
-func (t *Tree) Len() int { return len(t.nodes) }
+func (t *Tree) Len() int { return t.n }
 
 // Leaf returns the node where path index i of the source ends: its last
 // frame, or the last frame TreeOptions.Keep kept.
 func (t *Tree) Leaf(path int) NodeID { return t.leaf[path] }
 
 // Frame returns the frame of node n (0 for the root).
-func (t *Tree) Frame(n NodeID) traces.FrameID { return t.nodes[n].frame }
+func (t *Tree) Frame(n NodeID) traces.FrameID { return t.node(n).frame }
 
 // Parent returns the parent of n; the root's parent is the root.
-func (t *Tree) Parent(n NodeID) NodeID { return t.nodes[n].parent }
+func (t *Tree) Parent(n NodeID) NodeID { return t.node(n).parent }
 
 // Depth returns the number of frames on n's path (0 for the root).
-func (t *Tree) Depth(n NodeID) int { return int(t.nodes[n].depth) }
+func (t *Tree) Depth(n NodeID) int { return int(t.node(n).depth) }
 
 // Path returns the frames from the root's first child down to n.
 func (t *Tree) Path(n NodeID) []traces.FrameID {
-	out := make([]traces.FrameID, t.nodes[n].depth)
+	out := make([]traces.FrameID, t.node(n).depth)
 	for i := len(out) - 1; n != Root; i-- {
-		out[i] = t.nodes[n].frame
-		n = t.nodes[n].parent
+		nd := t.node(n)
+		out[i] = nd.frame
+		n = nd.parent
 	}
 	return out
 }

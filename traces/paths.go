@@ -27,7 +27,7 @@ type Paths struct {
 	// shared: some paths were appended with AppendRef, so paths may share
 	// their stored frames (see FrameKey).
 	shared bool
-	stored int // frames stored
+	stored int // frames stored (fewer than the paths' with shared frames)
 }
 
 // FrameRef names the stored frames of a path (Ref), so that paths with
@@ -170,10 +170,6 @@ func (ps *Paths) FrameKey(i int) uint64 {
 	r := ps.rec(i)
 	return uint64(uint32(r.chunk))<<32 | uint64(r.atN)
 }
-
-// StoredFrames returns the number of frames stored: at most the sum of
-// the paths' lengths, less with shared frames.
-func (ps *Paths) StoredFrames() int { return ps.stored }
 
 // putFrames copies fs into the frame chunks. A chunk holds frameChunk
 // frames, so a path starts below 65536 in it; a longer path gets a chunk

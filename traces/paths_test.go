@@ -70,7 +70,7 @@ func TestPathsAppendRef(t *testing.T) {
 	if ps.Shared() {
 		t.Fatal("Shared before any AppendRef")
 	}
-	stored := ps.StoredFrames()
+	stored := ps.stored
 	for j := range 3 {
 		for i, r := range refs {
 			p := Path{Values: []int64{int64(i), int64(j + 1)}, Request: RequestID(100 + i), Call: CallID(j)}
@@ -79,8 +79,8 @@ func TestPathsAppendRef(t *testing.T) {
 			want = append(want, p)
 		}
 	}
-	if !ps.Shared() || ps.StoredFrames() != stored {
-		t.Fatalf("Shared = %v, StoredFrames = %d, want true, %d", ps.Shared(), ps.StoredFrames(), stored)
+	if !ps.Shared() || ps.stored != stored {
+		t.Fatalf("Shared = %v, stored frames %d, want true, %d", ps.Shared(), ps.stored, stored)
 	}
 	for i, w := range want {
 		got := ps.At(i)
