@@ -120,6 +120,7 @@ type stackInfo struct {
 	roundTrip bool      // inside the HTTP/1 client's round trip
 	readLoop  bool      // an HTTP/1 client connection's read loop
 	pool      bool      // waiting for or opening a pooled connection
+	watcher   bool      // a goroutine that only watches a context (see watcherFrames)
 	ref       FrameRef  // where the paths of this stack (with no creator's prefix) store their frames
 	// In emit: the stretch that heads this stack's group (groupAt) in
 	// emit call number groupEmit.
@@ -687,7 +688,7 @@ type execPrefixKey struct {
 // add records a stretch of goroutine g, if it belongs to a request.
 func (x *execReader) add(g *execG, s execStretch) {
 	switch {
-	case g.req == nil:
+	case g.req == nil, s.info.watcher:
 		return
 	case g.child:
 		if g.req.closed && s.start >= g.req.endT {
@@ -1243,6 +1244,17 @@ var poolFrames = []string{
 	"github.com/jackc/pgx/v5/pgxpool.(*Pool).Acquire",
 }
 
+// watcherFrames are the functions of goroutines that a driver starts
+// beside a query to watch its context (to cancel it): they wait while the
+// application reads the rows, which is not a call. Their waits are not
+// charged.
+var watcherFrames = []string{
+	"database/sql.(*Rows).awaitDone",
+	"database/sql.(*Tx).awaitDone",
+	"github.com/jackc/pgx/v5/pgconn/ctxwatch.(*ContextWatcher).Watch.func1",
+	"github.com/jackc/pgx/v4/pgconn/internal/ctxwatch.(*ContextWatcher).Watch.func1",
+}
+
 // socketWrites are the functions through which every write to a network
 // connection passes (RawWrite: drivers that write through a raw
 // connection, as pgx did before version 5.5).
@@ -1317,6 +1329,8 @@ func (x *execReader) info(s trace.Stack) *stackInfo {
 			in.write = true
 		case slices.Contains(poolFrames, fn):
 			in.pool = true
+		case slices.Contains(watcherFrames, fn):
+			in.watcher = true
 		}
 		in.frames[len(sfs)-1-i] = x.src.InternFrame(Frame{Function: fn, File: f.File, Line: int64(f.Line)})
 	}
