@@ -863,20 +863,30 @@ func (x *execReader) emit(r *execRequest, ss []execStretch, concurrent bool) {
 		vals[execWait], vals[execWall], vals[execRunnable], vals[execCalls] = wait, s.wall, s.runnable, int64(s.calls)
 		x.wait += wait
 		x.runnable += s.runnable
-		var call CallID
-		if s.info.pool || x.inPool[s.prefix] {
-			call = x.src.InternCall(Call{Connection: true})
-		}
-		p := Path{Values: vals[:], Request: r.id, Call: call}
-		if s.prefix == 0 {
-			x.appendShared(p, &s.info.ref, nil, s.info.frames)
-			continue
-		}
-		k := execGroupKey{s.info, s.prefix}
-		ref := x.refs[k]
-		x.appendShared(p, &ref, x.prefixes[s.prefix], s.info.frames)
-		x.refs[k] = ref
+		x.appendStretch(Path{Values: vals[:], Request: r.id, Call: x.connection(s.info.pool || x.inPool[s.prefix])}, s)
 	}
+}
+
+// connection returns the call of a path waiting for or opening a pooled
+// connection (pool), else none.
+func (x *execReader) connection(pool bool) CallID {
+	if pool {
+		return x.src.InternCall(Call{Connection: true})
+	}
+	return 0
+}
+
+// appendStretch appends p with the frames of stretch s: its creator's
+// prefix, if any, and its stack.
+func (x *execReader) appendStretch(p Path, s *execStretch) {
+	if s.prefix == 0 {
+		x.appendShared(p, &s.info.ref, nil, s.info.frames)
+		return
+	}
+	k := execGroupKey{s.info, s.prefix}
+	ref := x.refs[k]
+	x.appendShared(p, &ref, x.prefixes[s.prefix], s.info.frames)
+	x.refs[k] = ref
 }
 
 // appendShared appends p with frames prefix+frames. Requests wait at the
@@ -1066,12 +1076,6 @@ func (x *execReader) emitTimed(r *execRequest) {
 		vals := [4]int64{execWait: end - start}
 		x.src.Paths.Append(Path{Frames: frames, Values: vals[:], Request: r.id, Call: call})
 	}
-	connection := func(pool bool) CallID {
-		if pool {
-			return x.src.InternCall(Call{Connection: true})
-		}
-		return 0
-	}
 	add(lcp, r.start, r.endT, -1, 0)
 	for k := range kids {
 		c := &kids[k]
@@ -1083,7 +1087,7 @@ func (x *execReader) emitTimed(r *execRequest) {
 			frames = append(frames, c.startFrame)
 		}
 		x.scratch = frames
-		add(frames, c.created, c.exitT, wait[under[k]], connection(x.inPool[c.prefix]))
+		add(frames, c.created, c.exitT, wait[under[k]], x.connection(x.inPool[c.prefix]))
 	}
 	for i := range ss {
 		s := &ss[i]
@@ -1101,15 +1105,7 @@ func (x *execReader) emitTimed(r *execRequest) {
 		}
 		vals := [4]int64{s.end - s.start, s.wall, s.runnable, int64(s.calls)}
 		timed(s.start, parent, false)
-		p := Path{Values: vals[:], Request: r.id, Call: connection(s.info.pool || x.inPool[s.prefix])}
-		if s.prefix == 0 {
-			x.appendShared(p, &s.info.ref, nil, s.info.frames)
-			continue
-		}
-		k := execGroupKey{s.info, s.prefix}
-		ref := x.refs[k]
-		x.appendShared(p, &ref, x.prefixes[s.prefix], s.info.frames)
-		x.refs[k] = ref
+		x.appendStretch(Path{Values: vals[:], Request: r.id, Call: x.connection(s.info.pool || x.inPool[s.prefix])}, s)
 	}
 }
 

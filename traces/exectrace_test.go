@@ -133,9 +133,17 @@ func TestExecTraceLimit(t *testing.T) {
 }
 
 func loadExec(t testing.TB, data []byte) *traces.Source {
-	l := traces.NewLoader(traces.Options{})
-	if err := l.Add("small.trace", bytes.NewReader(data)); err != nil {
-		t.Fatal(err)
+	return loadExecAs(t, traces.Options{}, data, "small.trace")
+}
+
+// loadExecAs reads data once per name, with opts.
+func loadExecAs(t testing.TB, opts traces.Options, data []byte, names ...string) *traces.Source {
+	t.Helper()
+	l := traces.NewLoader(opts)
+	for _, name := range names {
+		if err := l.Add(name, bytes.NewReader(data)); err != nil {
+			t.Fatal(err)
+		}
 	}
 	src, err := l.Source()
 	if err != nil {
@@ -180,16 +188,7 @@ func FuzzExecTrace(f *testing.F) {
 // overlap. Two inputs keep their trees apart.
 func TestExecTraceTiming(t *testing.T) {
 	data := recordSmallTrace(t)
-	l := traces.NewLoader(traces.Options{Timing: true})
-	for _, name := range []string{"a.trace", "b.trace"} {
-		if err := l.Add(name, bytes.NewReader(data)); err != nil {
-			t.Fatal(err)
-		}
-	}
-	src, err := l.Source()
-	if err != nil {
-		t.Fatal(err)
-	}
+	src := loadExecAs(t, traces.Options{Timing: true}, data, "a.trace", "b.trace")
 	if err := src.Validate(); err != nil {
 		t.Fatal(err)
 	}
@@ -239,16 +238,7 @@ func TestExecTraceTiming(t *testing.T) {
 // and a trace does not mix with a profile.
 func TestExecTraceInputs(t *testing.T) {
 	data := recordSmallTrace(t)
-	l := traces.NewLoader(traces.Options{})
-	for _, name := range []string{"a.trace", "b.trace"} {
-		if err := l.Add(name, bytes.NewReader(data)); err != nil {
-			t.Fatal(err)
-		}
-	}
-	src, err := l.Source()
-	if err != nil {
-		t.Fatal(err)
-	}
+	src := loadExecAs(t, traces.Options{}, data, "a.trace", "b.trace")
 	one := loadExec(t, data)
 	if src.RequestCount() != 2*one.RequestCount() || src.Paths.Len() != 2*one.Paths.Len() {
 		t.Errorf("two inputs: %d requests, %d paths; one: %d, %d", src.RequestCount(), src.Paths.Len(), one.RequestCount(), one.Paths.Len())
@@ -260,7 +250,7 @@ func TestExecTraceInputs(t *testing.T) {
 	if err := pprof.Lookup("goroutine").WriteTo(&prof, 0); err != nil {
 		t.Fatal(err)
 	}
-	l = traces.NewLoader(traces.Options{})
+	l := traces.NewLoader(traces.Options{})
 	if err := l.Add("a.trace", bytes.NewReader(data)); err != nil {
 		t.Fatal(err)
 	}
