@@ -3,14 +3,14 @@ package report
 import (
 	"bytes"
 	"encoding/csv"
-
-	json "github.com/goccy/go-json"
 	"io"
 	"strconv"
 	"strings"
 	"unicode"
 	"unicode/utf16"
 	"unicode/utf8"
+
+	json "github.com/goccy/go-json"
 )
 
 // This file holds the escaping that every renderer shares. Names,
@@ -57,34 +57,45 @@ func revealInvisible(s string) string {
 // writeJSON writes v as indented JSON. The data is exact, but invisible
 // characters inside strings are written as JSON \u escapes (a string can
 // hold them only there), so that no reader of the raw file sees text
-// reordered.
+// reordered. The encoder writes its buffer to w as it is: a full report
+// is megabytes, which a copy (and a copy to add the final newline) would
+// make fresh memory twice over.
 func writeJSON(w io.Writer, v any) error {
-	data, err := json.MarshalIndent(v, "", "  ")
-	if err != nil {
-		return err
-	}
-	data = append(data, '\n')
+	enc := json.NewEncoder(jsonRevealer{w})
+	enc.SetIndent("", "  ")
+	return enc.Encode(v)
+}
+
+// jsonRevealer writes JSON text to w with its invisible characters as
+// \u escapes. Each Write must hold whole characters, as the encoder's
+// single write of a document does.
+type jsonRevealer struct{ w io.Writer }
+
+func (r jsonRevealer) Write(data []byte) (int, error) {
 	// Invisible characters are not ASCII: most reports have none to find.
-	if i := nonASCII(data); i >= 0 && bytes.IndexFunc(data[i:], isInvisible) >= 0 {
-		var b strings.Builder
-		for len(data) > 0 {
-			r, n := utf8.DecodeRune(data)
-			switch {
-			case !isInvisible(r):
-				b.Write(data[:n])
-			case r > 0xFFFF:
-				r1, r2 := utf16.EncodeRune(r)
-				codePoint(&b, r1)
-				codePoint(&b, r2)
-			default:
-				codePoint(&b, r)
-			}
-			data = data[n:]
-		}
-		data = []byte(b.String())
+	i := nonASCII(data)
+	if i < 0 || bytes.IndexFunc(data[i:], isInvisible) < 0 {
+		return r.w.Write(data)
 	}
-	_, err = w.Write(data)
-	return err
+	var b strings.Builder
+	for rest := data; len(rest) > 0; {
+		c, n := utf8.DecodeRune(rest)
+		switch {
+		case !isInvisible(c):
+			b.Write(rest[:n])
+		case c > 0xFFFF:
+			c1, c2 := utf16.EncodeRune(c)
+			codePoint(&b, c1)
+			codePoint(&b, c2)
+		default:
+			codePoint(&b, c)
+		}
+		rest = rest[n:]
+	}
+	if _, err := io.WriteString(r.w, b.String()); err != nil {
+		return 0, err
+	}
+	return len(data), nil
 }
 
 // nonASCII returns the index of the first byte of data past ASCII, -1 if
