@@ -86,10 +86,10 @@ func newRecursionFinder(t *callgraph.Tree, c *Classifier, w *walkState) *recursi
 	for i := 1; i < t.Len(); i++ {
 		n := callgraph.NodeID(i)
 		fn := r.funcOf[t.Frame(n)]
-		if fn < 0 || w.boundary[n] != 0 {
+		if fn < 0 || w.at[n].boundary != 0 {
 			continue
 		}
-		above := w.lastApp[t.Parent(n)]
+		above := w.at[t.Parent(n)].lastApp
 		if above == 0 {
 			continue
 		}

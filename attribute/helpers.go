@@ -133,7 +133,10 @@ func findHelpers(t *callgraph.Tree, c *Classifier, w *walkState, mode HelperMode
 		// The caller of each application node right above a boundary:
 		// the nearest application node above it of another function,
 		// as helper<<32 | caller (classifier function indices).
+		// Distinct pairs are few (helpers times their callers) next to the
+		// boundary nodes that yield them: they are kept once each.
 		var pairs []uint64
+		seen := newEdgeSet(len(c.fnNames))
 		done := make([]uint64, (t.Len()+63)/64) // bit set of helper nodes seen
 		pkgs := make([]string, len(c.fnNames))  // by function; "\x00" not yet known
 		for i := range pkgs {
@@ -155,10 +158,10 @@ func findHelpers(t *callgraph.Tree, c *Classifier, w *walkState, mode HelperMode
 		calling := make([]int32, len(c.fnNames))
 		for i := 1; i < t.Len(); i++ {
 			n := callgraph.NodeID(i)
-			switch w.boundary[n] {
+			switch w.at[n].boundary {
 			case 0: // above every boundary
-				if w.lastApp[n] == n {
-					if p := w.lastApp[t.Parent(n)]; p != 0 {
+				if w.at[n].lastApp == n {
+					if p := w.at[t.Parent(n)].lastApp; p != 0 {
 						if pf := c.fn[t.Frame(p)]; pf != c.fn[t.Frame(n)] {
 							calling[pf]++
 						}
@@ -169,23 +172,26 @@ func findHelpers(t *callgraph.Tree, c *Classifier, w *walkState, mode HelperMode
 			default: // below one
 				continue
 			}
-			h := w.lastApp[n]
+			h := w.at[n].lastApp
 			if h == 0 || done[h/64]&(1<<(h%64)) != 0 {
 				continue
 			}
 			done[h/64] |= 1 << (h % 64)
 			hf := c.fn[t.Frame(h)]
 			near[hf]++
-			p := w.lastApp[t.Parent(h)]
+			p := w.at[t.Parent(h)].lastApp
 			for p != 0 && c.fn[t.Frame(p)] == hf {
-				p = w.lastApp[t.Parent(p)]
+				p = w.at[t.Parent(p)].lastApp
 			}
-			if p != 0 && !isEntry(c, t, p) && pkgOf(p) != pkgOf(h) {
-				pairs = append(pairs, uint64(uint32(hf))<<32|uint64(uint32(c.fn[t.Frame(p)])))
+			if p == 0 || isEntry(c, t, p) || pkgOf(p) == pkgOf(h) {
+				continue
+			}
+			pf := c.fn[t.Frame(p)]
+			if pair := uint64(uint32(hf))<<32 | uint64(uint32(pf)); seen.add(hf, pf, pair) {
+				pairs = append(pairs, pair)
 			}
 		}
 		slices.Sort(pairs)
-		pairs = slices.Compact(pairs)
 		// Per helper (a run of pairs): its callers and their packages.
 		var callerPkgs []string
 		for i := 0; i < len(pairs); {
@@ -237,7 +243,7 @@ func (w *walkState) seeThroughHelpers(c *Classifier, helpers map[int32]*helperIn
 	top := make([]callgraph.NodeID, t.Len())
 	for i := 1; i < t.Len(); i++ {
 		id := callgraph.NodeID(i)
-		b := w.boundary[id]
+		b := w.at[id].boundary
 		if b == 0 {
 			top[id] = top[t.Parent(id)]
 			if class, _ := c.class(t.Frame(id)); class == Application && !isHelper[c.fn[t.Frame(id)]] {
@@ -247,11 +253,11 @@ func (w *walkState) seeThroughHelpers(c *Classifier, helpers map[int32]*helperIn
 		}
 		if b != id {
 			if w.via != nil {
-				w.lastApp[id], w.via[id] = w.lastApp[b], w.via[b]
+				w.at[id].lastApp, w.via[id] = w.at[b].lastApp, w.via[b]
 			}
 			continue
 		}
-		h := w.lastApp[b]
+		h := w.at[b].lastApp
 		if h == 0 || !helper(h) {
 			continue
 		}
@@ -260,7 +266,7 @@ func (w *walkState) seeThroughHelpers(c *Classifier, helpers map[int32]*helperIn
 				// The first helper seen through: nodes before b hold none.
 				w.via = make([]callgraph.NodeID, t.Len())
 			}
-			w.lastApp[b], w.via[b] = n, h
+			w.at[b].lastApp, w.via[b] = n, h
 		}
 	}
 }

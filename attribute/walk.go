@@ -88,11 +88,11 @@ type charge struct {
 // walkState is what the walk knows at each tree node about the path from
 // the root to it, computed in one pass. Slices are indexed by tree node.
 type walkState struct {
-	t        *callgraph.Tree
-	boundary []callgraph.NodeID // first database/network node on the path, 0 if none
-	lastApp  []callgraph.NodeID // nearest application node above the boundary
-	entry    []callgraph.NodeID // deepest entry-point node above the boundary
-	entryApp []callgraph.NodeID // first application node below entry (or from the root)
+	t *callgraph.Tree
+	// at holds each node's nodeWalk: one array, so that a path's lookups
+	// share a cache line (a million paths reach their leaves in no order
+	// a cache keeps up with).
+	at []nodeWalk
 	// refined holds, for nodes below a boundary whose generic system
 	// ("sql") a more specific driver frame names, that frame. Trees cut at
 	// boundaries have no such nodes, so it is mostly empty.
@@ -105,15 +105,21 @@ type walkState struct {
 	via     []callgraph.NodeID
 }
 
+// nodeWalk is what the walk knows at one node about the path from the
+// root to it. A node below a boundary has its boundary's nodeWalk.
+type nodeWalk struct {
+	boundary callgraph.NodeID // first database/network node on the path, 0 if none
+	lastApp  callgraph.NodeID // nearest application node above the boundary
+	entry    callgraph.NodeID // deepest entry-point node above the boundary
+	entryApp callgraph.NodeID // first application node below entry (or from the root)
+}
+
 func newWalkState(t *callgraph.Tree, c *Classifier, helpers HelperMode) *walkState {
 	n := t.Len()
 	w := &walkState{
-		t:        t,
-		boundary: make([]callgraph.NodeID, n),
-		lastApp:  make([]callgraph.NodeID, n),
-		entry:    make([]callgraph.NodeID, n),
-		entryApp: make([]callgraph.NodeID, n),
-		refined:  map[callgraph.NodeID]traces.FrameID{},
+		t:       t,
+		at:      make([]nodeWalk, n),
+		refined: map[callgraph.NodeID]traces.FrameID{},
 	}
 	// A child's ID is always greater than its parent's, so one pass in ID
 	// order sees every parent before its children.
@@ -122,9 +128,9 @@ func newWalkState(t *callgraph.Tree, c *Classifier, helpers HelperMode) *walkSta
 		p := t.Parent(id)
 		f := t.Frame(id)
 		class, entry := c.class(f)
-		w.boundary[id], w.lastApp[id], w.entry[id], w.entryApp[id] =
-			w.boundary[p], w.lastApp[p], w.entry[p], w.entryApp[p]
-		if w.boundary[p] != 0 {
+		nw := w.at[p]
+		if nw.boundary != 0 {
+			w.at[id] = nw
 			// Below the boundary: only refine a generic system ("sql") with the driver's.
 			if class == Database && isGenericSystem(w.system(c, p)) && !isGenericSystem(c.verdicts[f].System) {
 				w.refined[id] = f
@@ -135,18 +141,17 @@ func newWalkState(t *callgraph.Tree, c *Classifier, helpers HelperMode) *walkSta
 		}
 		switch {
 		case class.IsBoundary():
-			w.boundary[id] = id
-			continue
+			nw.boundary = id
 		case entry:
-			w.entry[id] = id
-			w.entryApp[id] = 0
+			nw.entry, nw.entryApp = id, 0
 		}
 		if class == Application {
-			w.lastApp[id] = id
-			if w.entryApp[id] == 0 {
-				w.entryApp[id] = id
+			nw.lastApp = id
+			if nw.entryApp == 0 {
+				nw.entryApp = id
 			}
 		}
+		w.at[id] = nw
 	}
 	if hs := findHelpers(t, c, w, helpers); hs != nil {
 		w.seeThroughHelpers(c, hs)
@@ -160,7 +165,7 @@ func (w *walkState) system(c *Classifier, n callgraph.NodeID) string {
 	if f, ok := w.refined[n]; ok {
 		return c.verdicts[f].System
 	}
-	if b := w.boundary[n]; b != 0 {
+	if b := w.at[n].boundary; b != 0 {
 		return c.verdicts[w.t.Frame(b)].System
 	}
 	return ""
@@ -293,7 +298,8 @@ func (wr *walker) next(pi int, r *charge) {
 	path := src.Paths.At(pi)
 	p := &path
 	leaf := t.Leaf(pi)
-	*r = charge{path: pi, request: p.Request, cost: p.Values[wr.vi], samples: 1, app: w.lastApp[leaf]}
+	nw := w.at[leaf] // below a boundary, the boundary's
+	*r = charge{path: pi, request: p.Request, cost: p.Values[wr.vi], samples: 1, app: nw.lastApp}
 	if wr.callsIx >= 0 {
 		r.samples = 0 // measured waits, not samples: requests count calls
 	} else if wr.sampleIx >= 0 {
@@ -302,12 +308,8 @@ func (wr *walker) next(pi int, r *charge) {
 	if wr.reqs != nil {
 		r.request = wr.reqs[pi]
 	}
-	b := w.boundary[leaf]
-	at := leaf
-	if b != 0 {
-		at = b
-	}
-	ek := entryKey{w.entry[at], w.entryApp[at], p.Frames[0], p.Labels}
+	b := nw.boundary
+	ek := entryKey{nw.entry, nw.entryApp, p.Frames[0], p.Labels}
 	if ek != wr.lastEK || wr.lastEntry < 0 {
 		id, ok := wr.entryOf[ek]
 		if !ok {
@@ -361,13 +363,13 @@ func (wr *walker) next(pi int, r *charge) {
 		if !ok {
 			from := t.Parent(b)
 			if r.via != 0 {
-				from = w.lastApp[b] // the helpers below the root cause are seen through
+				from = nw.lastApp // the helpers below the root cause are seen through
 			}
 			causes = appFrom(t, wr.c, from)
 			wr.causesOf[b] = causes
 		}
 		r.causes = causes
-	} else if ra := w.lastApp[b]; ra != 0 {
+	} else if ra := nw.lastApp; ra != 0 {
 		wr.one[0] = ra
 		r.causes = wr.one[:]
 	}
@@ -403,14 +405,11 @@ func entryName(src *traces.Source, t *callgraph.Tree, w *walkState, p *traces.Pa
 // deepest entry-point frame above its boundary, else that frame; 0 if
 // there is neither (the path's first frame names it).
 func (w *walkState) entryNode(leaf callgraph.NodeID) callgraph.NodeID {
-	at := leaf
-	if b := w.boundary[leaf]; b != 0 {
-		at = b
+	nw := &w.at[leaf] // below a boundary, the boundary's
+	if nw.entryApp != 0 && (nw.entry == 0 || nw.entryApp >= nw.entry) {
+		return nw.entryApp
 	}
-	if w.entryApp[at] != 0 && (w.entry[at] == 0 || w.entryApp[at] >= w.entry[at]) {
-		return w.entryApp[at]
-	}
-	return w.entry[at]
+	return nw.entry
 }
 
 // detail describes the boundary of a path: its statement fingerprint,
