@@ -3,11 +3,14 @@ package attribute
 import (
 	"fmt"
 	"math/rand/v2"
+	"os"
 	"testing"
 
 	"github.com/culprithq/culprit/attribute/internal/testinput"
 
 	"github.com/culprithq/culprit/callgraph"
+	"github.com/culprithq/culprit/traces"
+	"github.com/culprithq/culprit/traces/statement"
 )
 
 // randomStacks makes n stacks of depth 10–30 over a code base of 300
@@ -65,6 +68,31 @@ func BenchmarkAttributeSpans(b *testing.B) {
 	src := testinput.SpanSource("shop.jsonl", 60e9, testinput.ShopTraces(1, 3000, func(r int) int { return 2 + r%9 }))
 	cls := NewClassifier(src, DefaultRules())
 	tree := callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep})
+	b.ReportAllocs()
+	for b.Loop() {
+		if res := Attribute(tree, cls, Options{}); len(res.Causes) == 0 {
+			b.Fatal("no root causes")
+		}
+	}
+}
+
+// BenchmarkAttributeFile measures the attribution walk alone on the input
+// CULPRIT_BENCH_INPUT names (any input culprit reads: a million-span file
+// of culprit-bench -gen, a large profile), the tree and classification
+// built once, statements fingerprinted as they are read (as culprit
+// does). It is skipped when the variable is unset.
+func BenchmarkAttributeFile(b *testing.B) {
+	name := os.Getenv("CULPRIT_BENCH_INPUT")
+	if name == "" {
+		b.Skip("CULPRIT_BENCH_INPUT is not set")
+	}
+	f, err := os.Open(name)
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer f.Close()
+	tree, cls := loadInput(b, name, f, traces.Options{Statement: statement.AppendText}, DefaultRules())
+	b.Logf("%d paths, %d tree nodes", tree.Source().Paths.Len(), tree.Len())
 	b.ReportAllocs()
 	for b.Loop() {
 		if res := Attribute(tree, cls, Options{}); len(res.Causes) == 0 {

@@ -30,16 +30,8 @@ func otlpLine(svc, traceID string, spans []tspan) string {
 
 func loadSpans(t testing.TB, jsonl string, timing bool) (*callgraph.Tree, *Classifier) {
 	t.Helper()
-	l := traces.NewLoader(traces.Options{Timing: timing, Statement: statement.AppendText})
-	if err := l.Add("test.jsonl", strings.NewReader(jsonl)); err != nil {
-		t.Fatal(err)
-	}
-	src, err := l.Source()
-	if err != nil {
-		t.Fatal(err)
-	}
-	cls := NewClassifier(src, DefaultRules())
-	return callgraph.NewTree(src, callgraph.TreeOptions{Keep: cls.Keep}), cls
+	opts := traces.Options{Timing: timing, Statement: statement.AppendText}
+	return loadInput(t, "test.jsonl", strings.NewReader(jsonl), opts, DefaultRules())
 }
 
 // plantsRequest is a request of GET /plants/{id}: the server span

@@ -2,6 +2,7 @@ package attribute
 
 import (
 	"bytes"
+	"io"
 	"testing"
 
 	"github.com/culprithq/culprit/attribute/internal/testinput"
@@ -31,8 +32,15 @@ func rankProfile(t testing.TB, data []byte, rules *Rules, opts Options) *Result 
 // tree, cut at boundaries as culprit does.
 func loadTree(t testing.TB, data []byte, rules *Rules) (*callgraph.Tree, *Classifier) {
 	t.Helper()
-	l := traces.NewLoader(traces.Options{})
-	if err := l.Add("test.pb.gz", bytes.NewReader(data)); err != nil {
+	return loadInput(t, "test.pb.gz", bytes.NewReader(data), traces.Options{}, rules)
+}
+
+// loadInput reads one input with opts, classifies it with rules and
+// builds its tree, cut at boundaries as culprit does.
+func loadInput(t testing.TB, name string, r io.Reader, opts traces.Options, rules *Rules) (*callgraph.Tree, *Classifier) {
+	t.Helper()
+	l := traces.NewLoader(opts)
+	if err := l.Add(name, r); err != nil {
 		t.Fatal(err)
 	}
 	src, err := l.Source()
