@@ -24,14 +24,15 @@ type decoder struct {
 	// frames, calls and routes outlive jobs: a batch carries only the
 	// entries new to this decoder, so the merge hashes each value about
 	// once a decoder rather than once a batch.
-	frames localTable[Frame]
-	calls  localTable[Call]
-	routes localTable[string]
-	attrs  attrSet
-	memo   memo
-	ids    *globalIDs     // handed to the merge with every batch
-	spare  chan []spanRec // span buffers of merged batches
-	req    jsonRequest    // reused for every record that is one object
+	frames   localTable[Frame]
+	calls    localTable[Call]
+	routes   localTable[string]
+	attrs    attrSet
+	memo     memo
+	redacted redactMemo
+	ids      *globalIDs     // handed to the merge with every batch
+	spare    chan []spanRec // span buffers of merged batches
+	req      jsonRequest    // reused for every record that is one object
 	// scanned, text, bools, scanner and names are the fast path's
 	// (otlpscan.go): the requests it reads (reused), its arena of
 	// unescaped strings, the values that boolValues point to, its state,
@@ -172,7 +173,7 @@ func (d *decoder) run(j *job) *batch {
 	case d.b.spans = <-d.spare:
 	default:
 	}
-	d.memo = memo{}
+	d.memo, d.redacted = memo{}, redactMemo{}
 	clear(d.traceIx)
 	if max(len(d.frames.list), len(d.calls.list), len(d.routes.list)) > d.c.localEntries {
 		d.frames.restart()

@@ -17,22 +17,55 @@ import (
 // was named after the span.
 func (d *decoder) redactSpan(name string, f *Frame, call *Call, route *string) {
 	database := f.Protocol == ProtocolDatabase
+	m := &d.redacted
 	if f.Function == name && database {
 		// Older instrumentations put the whole statement in the span name.
 		f.Function = d.redactStatement(f.System, name)
 	} else {
-		f.Function = redactText(f.Function)
+		f.Function = m.function.get(f.Function, redactText)
 	}
 	// File paths and instrumentation scopes are kept: they locate code, and
 	// classification reads module@version and @scope/package in them.
-	f.Service, *route = redactText(f.Service), redactText(*route)
+	f.Service, *route = m.service.get(f.Service, redactText), m.route.get(*route, redactText)
 	if database {
 		call.Summary = d.redactStatement(f.System, call.Summary)
 		call.Operation = d.redactStatement(f.System, call.Operation)
 	} else {
-		call.Operation = redactText(call.Operation)
+		call.Operation = m.operation.get(call.Operation, redactText)
 	}
-	call.Peer = redactPeer(call.Peer)
+	call.Peer = m.peer.get(call.Peer, redactPeer)
+}
+
+// redactMemo keeps, per field, the texts that redactSpan last redacted
+// and their results: a job's spans repeat a few services, routes, names
+// and peers, and comparing with the last ones is cheaper than judging
+// every byte again. It refers to job data: the decoder clears it for
+// every job.
+type redactMemo struct {
+	function, service, route, operation, peer lastRedacted
+}
+
+// lastRedacted is a field's last 4 texts and their redactions.
+type lastRedacted struct {
+	in, out [4]string
+	next    uint8
+}
+
+// get returns redact(s), from the memo when s is one of its texts.
+func (l *lastRedacted) get(s string, redact func(string) string) string {
+	if s == "" {
+		return ""
+	}
+	for i := range l.in {
+		if l.in[i] == s {
+			return l.out[i]
+		}
+	}
+	r := redact(s)
+	i := l.next % uint8(len(l.in))
+	l.in[i], l.out[i] = s, r
+	l.next++
+	return r
 }
 
 // redactStatement fingerprints text that may be a statement: a database

@@ -54,6 +54,20 @@ func TestRedactTextPlainNoAlloc(t *testing.T) {
 	}
 }
 
+// The memo of recent redactions answers as the redactor does, whichever
+// of its texts comes back and whatever it had to forget.
+func TestLastRedacted(t *testing.T) {
+	var m lastRedacted
+	texts := []string{"GET /orders/1", "db:5432", "", "GET /orders/1", "u@h", "a 2", "b 3", "c 4", "GET /orders/1", "db:5432", "a 2"}
+	for round := range 3 {
+		for _, s := range texts {
+			if got, want := m.get(s, redactText), redactText(s); got != want {
+				t.Errorf("round %d: get(%q) = %q, want %q", round, s, got, want)
+			}
+		}
+	}
+}
+
 // FuzzRedactText: any text redacts without panicking, and no '@' (of an
 // e-mail address or of URL user information) survives.
 func FuzzRedactText(f *testing.F) {
