@@ -262,7 +262,8 @@ func (k *detailKey) newDetail() *Detail {
 }
 
 // entryKey caches a path's entry point: it depends only on the entry
-// nodes the walk found, the path's first frame and its (interned) labels.
+// nodes the walk found, the path's first frame (when there are none) and
+// its (interned) labels.
 type entryKey struct {
 	entry, entryApp callgraph.NodeID
 	root            traces.FrameID
@@ -309,7 +310,12 @@ func (wr *walker) next(pi int, r *charge) {
 		r.request = wr.reqs[pi]
 	}
 	b := nw.boundary
-	ek := entryKey{nw.entry, nw.entryApp, p.Frames[0], p.Labels}
+	ek := entryKey{entry: nw.entry, entryApp: nw.entryApp, labels: p.Labels}
+	if ek.entry == 0 && ek.entryApp == 0 {
+		// Only then does the first frame name the entry point: not
+		// reading it spares a cache miss a path where paths share frames.
+		ek.root = p.Frames[0]
+	}
 	if ek != wr.lastEK || wr.lastEntry < 0 {
 		id, ok := wr.entryOf[ek]
 		if !ok {
