@@ -29,7 +29,7 @@ const (
 )
 
 const usageHead = `usage:
-  culprit-bench -gen DIR [-spans-n N] [-samples N] [-stacks M] [-scale] [-runs K] [-culprit PATH]
+  culprit-bench -gen DIR [-spans-n N] [-samples N] [-stacks M] [-scale] [-runs K] [-culprit PATH] [-pgo FILE]
   culprit-bench [-profile FILE] [-spans FILE] [-spans-big FILE -scale] [-runs K] [-culprit PATH]
 
 Measures culprit rank against its performance targets; run it from inside
@@ -82,6 +82,7 @@ func parseArgs(args []string, stderr io.Writer) (cfg config, phase, in string, e
 	fs.BoolVar(&cfg.Scale, "scale", false, "also rank 10× the spans and report the time ratio")
 	fs.StringVar(&cfg.Culprit, "culprit", "", "culprit binary to measure (`path`; default: go build ./cmd/culprit)")
 	fs.IntVar(&cfg.Runs, "runs", 3, "runs of every phase (`count`); the table shows the median")
+	fs.StringVar(&cfg.PGO, "pgo", "", "write the merged CPU profile of the culprit rank runs to `file` (cmd/culprit/default.pgo); the timings then include the profiler")
 	fs.StringVar(&phase, flagPhase, "", "internal: run one reference phase in this process")
 	fs.StringVar(&in, flagIn, "", "internal: input file of -phase")
 	fs.Usage = func() {

@@ -14,6 +14,8 @@ import (
 	"strconv"
 	"strings"
 	"time"
+
+	"github.com/google/pprof/profile"
 )
 
 // modulePath is the module whose commands culprit-bench builds.
@@ -37,6 +39,9 @@ type config struct {
 	Scale                    bool
 	Culprit                  string
 	Runs                     int
+	// PGO, when set, names the file to write the merged CPU profile of
+	// every culprit rank run to (see profileRuns).
+	PGO string
 }
 
 // phase is one measured command.
@@ -46,6 +51,9 @@ type phase struct {
 	argv  []string
 	self  bool   // a culprit-bench child
 	out   string // culprit's report file, checked after every run
+	// cpuProfile, when set, is where culprit writes a CPU profile of the
+	// run (through its CULPRIT_CPUPROFILE variable).
+	cpuProfile string
 }
 
 // phaseResult holds the measurements of one phase, one entry per run.
@@ -114,8 +122,12 @@ func runHarness(ctx context.Context, cfg config, log io.Writer) (*report, error)
 	}
 	out := filepath.Join(tmp, "rank.json")
 	rank := func(name, in string) phase {
-		return phase{Name: name, Input: in, out: out,
+		p := phase{Name: name, Input: in, out: out,
 			argv: []string{culprit, "rank", in, "--format", "json", "-o", out, "--max-bytes", strconv.Itoa(maxBytes)}}
+		if cfg.PGO != "" {
+			p.cpuProfile = filepath.Join(tmp, name+".cpu.pprof")
+		}
+		return p
 	}
 	child := func(name, in string) phase {
 		argv := []string{self, "-" + flagPhase, name}
@@ -142,6 +154,7 @@ func runHarness(ctx context.Context, cfg config, log io.Writer) (*report, error)
 	for i, p := range phases {
 		results[i] = &phaseResult{Name: p.Name, Input: p.Input}
 	}
+	var profiles []string
 	for r := 1; r <= cfg.Runs; r++ {
 		for i, p := range phases {
 			if err := ctx.Err(); err != nil {
@@ -150,10 +163,24 @@ func runHarness(ctx context.Context, cfg config, log io.Writer) (*report, error)
 			if err := measure(ctx, p, results[i]); err != nil {
 				return nil, fmt.Errorf("run %d, phase %s: %w", r, p.Name, err)
 			}
+			if p.cpuProfile != "" {
+				kept := fmt.Sprintf("%s.%d", p.cpuProfile, r)
+				if err := os.Rename(p.cpuProfile, kept); err != nil {
+					return nil, fmt.Errorf("run %d, phase %s: CPU profile: %w", r, p.Name, err)
+				}
+				profiles = append(profiles, kept)
+			}
 			res := results[i]
 			fmt.Fprintf(log, "run %d/%d %-16s %9.3fs %9s  %s\n", r, cfg.Runs, p.Name,
 				res.Walls[r-1].Seconds(), formatBytes(res.RSS[r-1]), res.Decoded)
 		}
+	}
+	if cfg.PGO != "" {
+		if err := mergeProfiles(cfg.PGO, profiles); err != nil {
+			return nil, err
+		}
+		fmt.Fprintf(log, "wrote the CPU profile of %d culprit runs to %s\n", len(profiles), cfg.PGO)
+		rep.Notes = append(rep.Notes, "culprit rank ran with its CPU profiler on (-pgo): its timings include the profiler's cost")
 	}
 	rep.Phases = results
 	rep.ParentRSS = selfPeakRSS()
@@ -332,8 +359,11 @@ func measure(ctx context.Context, p phase, res *phaseResult) error {
 	var stdout, stderr cappedBuffer
 	cmd.Stdout = &stdout
 	cmd.Stderr = &stderr
-	if p.self {
+	switch {
+	case p.self:
 		cmd.Env = append(os.Environ(), childEnv+"=1")
+	case p.cpuProfile != "":
+		cmd.Env = append(os.Environ(), "CULPRIT_CPUPROFILE="+p.cpuProfile)
 	}
 	start := time.Now()
 	err := cmd.Run()
@@ -411,4 +441,31 @@ func (c *cappedBuffer) Write(p []byte) (int, error) {
 		c.Buffer.Write(p[:min(len(p), room)])
 	}
 	return len(p), nil
+}
+
+// mergeProfiles merges the CPU profiles in files into one, written to
+// out: the profile that profile-guided optimisation builds culprit with
+// (go build reads cmd/culprit/default.pgo).
+func mergeProfiles(out string, files []string) error {
+	var ps []*profile.Profile
+	for _, f := range files {
+		data, err := os.ReadFile(f)
+		if err != nil {
+			return err
+		}
+		p, err := profile.ParseData(data)
+		if err != nil {
+			return fmt.Errorf("%s: %w", f, err)
+		}
+		ps = append(ps, p)
+	}
+	merged, err := profile.Merge(ps)
+	if err != nil {
+		return fmt.Errorf("merging CPU profiles: %w", err)
+	}
+	var buf bytes.Buffer
+	if err := merged.Write(&buf); err != nil {
+		return err
+	}
+	return os.WriteFile(out, buf.Bytes(), 0o644)
 }

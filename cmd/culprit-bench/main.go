@@ -4,7 +4,7 @@
 //
 // Usage:
 //
-//	culprit-bench -gen DIR [-spans-n N] [-samples N] [-stacks M] [-scale] [-runs K] [-culprit PATH]
+//	culprit-bench -gen DIR [-spans-n N] [-samples N] [-stacks M] [-scale] [-runs K] [-culprit PATH] [-pgo FILE]
 //	culprit-bench [-profile FILE] [-spans FILE] [-spans-big FILE -scale] [-runs K] [-culprit PATH]
 //
 // Run it from inside the culprit module: it builds ./cmd/culprit (unless
@@ -43,6 +43,11 @@
 // find it in the page cache. The "net" columns subtract the baseline of
 // the same binary (median time, highest peak RSS); the targets are judged
 // on the raw, end-to-end numbers.
+//
+// With -pgo FILE, every culprit rank run writes a CPU profile, and their
+// merge is written to FILE: cmd/culprit/default.pgo, with which go build
+// optimises culprit for these workloads (profile-guided optimisation).
+// The timings of such a run include the profiler's cost.
 //
 // On Linux, os/exec starts children with vfork, and the kernel then
 // carries the parent's own peak RSS into the child's ru_maxrss; so a
