@@ -120,7 +120,6 @@ func packageOf(f *traces.Frame) string {
 // function index (nil when there are none). w must have its first pass
 // done: lastApp is still the nearest application node.
 func findHelpers(t *callgraph.Tree, c *Classifier, w *walkState, mode HelperMode) map[int32]*helperInfo {
-	src := t.Source()
 	out := map[int32]*helperInfo{}
 	if names := c.rules.Helpers; len(names) > 0 {
 		for fn, name := range c.fnNames {
@@ -130,90 +129,11 @@ func findHelpers(t *callgraph.Tree, c *Classifier, w *walkState, mode HelperMode
 		}
 	}
 	if mode == HelpersAuto {
-		// The caller of each application node right above a boundary:
-		// the nearest application node above it of another function,
-		// as helper<<32 | caller (classifier function indices).
-		// Distinct pairs are few (helpers times their callers) next to the
-		// boundary nodes that yield them: they are kept once each.
-		var pairs []uint64
-		seen := newEdgeSet(len(c.fnNames))
-		done := make([]uint64, (t.Len()+63)/64) // bit set of helper nodes seen
-		pkgs := make([]string, len(c.fnNames))  // by function; "\x00" not yet known
-		for i := range pkgs {
-			pkgs[i] = "\x00"
-		}
-		pkgOf := func(n callgraph.NodeID) string {
-			fn := c.fn[t.Frame(n)]
-			if pkgs[fn] == "\x00" {
-				pkgs[fn] = packageOf(&src.Frames[t.Frame(n)])
-			}
-			return pkgs[fn]
-		}
-		// In the same pass, how often each function calls another
-		// application function above a boundary (once per calling node and
-		// callee node), against how often it is right above one: an access
-		// helper calls out itself, it does not merely end some paths of
-		// code that calls further.
-		near := make([]int32, len(c.fnNames))
-		calling := make([]int32, len(c.fnNames))
-		for i := 1; i < t.Len(); i++ {
-			n := callgraph.NodeID(i)
-			switch w.at[n].boundary {
-			case 0: // above every boundary
-				if w.at[n].lastApp == n {
-					if p := w.at[t.Parent(n)].lastApp; p != 0 {
-						if pf := c.fn[t.Frame(p)]; pf != c.fn[t.Frame(n)] {
-							calling[pf]++
-						}
-					}
-				}
-				continue
-			case n: // a boundary
-			default: // below one
-				continue
-			}
-			h := w.at[n].lastApp
-			if h == 0 || done[h/64]&(1<<(h%64)) != 0 {
-				continue
-			}
-			done[h/64] |= 1 << (h % 64)
-			hf := c.fn[t.Frame(h)]
-			near[hf]++
-			p := w.at[t.Parent(h)].lastApp
-			for p != 0 && c.fn[t.Frame(p)] == hf {
-				p = w.at[t.Parent(p)].lastApp
-			}
-			if p == 0 || isEntry(c, t, p) || pkgOf(p) == pkgOf(h) {
-				continue
-			}
-			pf := c.fn[t.Frame(p)]
-			if pair := uint64(uint32(hf))<<32 | uint64(uint32(pf)); seen.add(hf, pf, pair) {
-				pairs = append(pairs, pair)
-			}
-		}
-		slices.Sort(pairs)
-		// Per helper (a run of pairs): its callers and their packages.
-		var callerPkgs []string
-		for i := 0; i < len(pairs); {
-			hf := int32(pairs[i] >> 32)
-			j := i
-			callerPkgs = callerPkgs[:0]
-			for ; j < len(pairs) && int32(pairs[j]>>32) == hf; j++ {
-				callerPkgs = append(callerPkgs, pkgs[int32(uint32(pairs[j]))])
-			}
-			callers := j - i
-			i = j
-			if callers < helperMinCallers || calling[hf] > near[hf] {
-				continue
-			}
-			slices.Sort(callerPkgs)
-			if np := len(slices.Compact(callerPkgs)); np >= helperMinPackages {
-				hi := out[hf]
-				if hi == nil {
-					hi = &helperInfo{}
-					out[hf] = hi
-				}
-				hi.callers, hi.packages = callers, np
+		for hf, found := range detectHelpers(t, c, w) {
+			if hi := out[hf]; hi != nil {
+				hi.callers, hi.packages = found.callers, found.packages
+			} else {
+				out[hf] = found
 			}
 		}
 	}
@@ -221,6 +141,113 @@ func findHelpers(t *callgraph.Tree, c *Classifier, w *walkState, mode HelperMode
 		return nil
 	}
 	return out
+}
+
+// detectHelpers returns the application functions that the walk state
+// w shows to be shared helpers (see SharedHelper), by classifier
+// function index.
+func detectHelpers(t *callgraph.Tree, c *Classifier, w *walkState) map[int32]*helperInfo {
+	src := t.Source()
+	// Packages are numbered as they are met (from 1): pkgs holds each
+	// function's, 0 while not yet known.
+	pkgs := make([]int32, len(c.fnNames))
+	pkgIDs := map[string]int32{}
+	pkgOf := func(n callgraph.NodeID) int32 {
+		fn := c.fn[t.Frame(n)]
+		if pkgs[fn] == 0 {
+			name := packageOf(&src.Frames[t.Frame(n)])
+			id, ok := pkgIDs[name]
+			if !ok {
+				id = int32(len(pkgIDs) + 1)
+				pkgIDs[name] = id
+			}
+			pkgs[fn] = id
+		}
+		return pkgs[fn]
+	}
+	// The caller of each application node right above a boundary: the
+	// nearest application node above it of another function, as
+	// helper<<32 | caller (classifier function indices). Distinct pairs
+	// are few (helpers times their callers) next to the boundary nodes
+	// that yield them: they are kept once each. near counts, per
+	// function, its nodes right above a boundary.
+	var pairs []uint64
+	seen := newEdgeSet(len(c.fnNames))
+	done := make([]uint64, (t.Len()+63)/64) // bit set of helper nodes seen
+	near := make([]int32, len(c.fnNames))
+	for i := 1; i < t.Len(); i++ {
+		n := callgraph.NodeID(i)
+		if w.at[n].boundary != n {
+			continue
+		}
+		h := w.at[n].lastApp
+		if h == 0 || done[h/64]&(1<<(h%64)) != 0 {
+			continue
+		}
+		done[h/64] |= 1 << (h % 64)
+		hf := c.fn[t.Frame(h)]
+		near[hf]++
+		p := w.at[t.Parent(h)].lastApp
+		for p != 0 && c.fn[t.Frame(p)] == hf {
+			p = w.at[t.Parent(p)].lastApp
+		}
+		if p == 0 || isEntry(c, t, p) || pkgOf(p) == pkgOf(h) {
+			continue
+		}
+		pf := c.fn[t.Frame(p)]
+		if pair := uint64(uint32(hf))<<32 | uint64(uint32(pf)); seen.add(hf, pf, pair) {
+			pairs = append(pairs, pair)
+		}
+	}
+	// Candidates: callers and their packages, per function (a run of
+	// pairs).
+	slices.Sort(pairs)
+	found := map[int32]*helperInfo{}
+	pkgSeen := make([]int32, len(pkgIDs)+1) // by package: the last run that counted it, +1
+	for i, run := 0, int32(1); i < len(pairs); run++ {
+		hf := int32(pairs[i] >> 32)
+		j, np := i, 0
+		for ; j < len(pairs) && int32(pairs[j]>>32) == hf; j++ {
+			if pk := pkgs[int32(uint32(pairs[j]))]; pkgSeen[pk] != run {
+				pkgSeen[pk] = run
+				np++
+			}
+		}
+		callers := j - i
+		i = j
+		if callers >= helperMinCallers && np >= helperMinPackages {
+			found[hf] = &helperInfo{callers: callers, packages: np}
+		}
+	}
+	if len(found) == 0 {
+		return nil // the common case: no second pass
+	}
+	// How often each candidate calls another application function above a
+	// boundary (once per calling node and callee node), against how often
+	// it is right above one: an access helper calls out itself, it does
+	// not merely end some paths of code that calls further.
+	candidate := make([]bool, len(c.fnNames))
+	for hf := range found {
+		candidate[hf] = true
+	}
+	calling := make([]int32, len(c.fnNames))
+	for i := 1; i < t.Len(); i++ {
+		n := callgraph.NodeID(i)
+		if nw := &w.at[n]; nw.boundary != 0 || nw.lastApp != n {
+			continue // not an application node above every boundary
+		}
+		if p := w.at[t.Parent(n)].lastApp; p != 0 {
+			if pf := c.fn[t.Frame(p)]; candidate[pf] && pf != c.fn[t.Frame(n)] {
+				calling[pf]++
+			}
+		}
+	}
+	for hf := range found {
+		if calling[hf] > near[hf] {
+			delete(found, hf)
+		}
+	}
+	return found
 }
 
 // seeThroughHelpers moves each boundary's root cause from a chain of
