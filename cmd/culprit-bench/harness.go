@@ -463,6 +463,16 @@ func mergeProfiles(out string, files []string) error {
 	if err != nil {
 		return fmt.Errorf("merging CPU profiles: %w", err)
 	}
+	// Profile-guided optimisation matches functions by name and lines by
+	// their offset in the function; the paths of the source files and of
+	// the binary would only write this machine's directories into the
+	// repository.
+	for _, f := range merged.Function {
+		f.Filename = ""
+	}
+	for _, m := range merged.Mapping {
+		m.File = filepath.Base(m.File)
+	}
 	var buf bytes.Buffer
 	if err := merged.Write(&buf); err != nil {
 		return err

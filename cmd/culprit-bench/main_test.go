@@ -3,13 +3,17 @@ package main
 import (
 	"bytes"
 	"context"
+	"fmt"
 	"io"
 	"math"
 	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 	"testing/iotest"
 	"time"
+
+	"github.com/google/pprof/profile"
 )
 
 // TestMain lets the test binary stand in for culprit-bench when the
@@ -236,5 +240,60 @@ func TestParseArgs(t *testing.T) {
 				t.Errorf("parseArgs(%q) error = %v, want error: %v", tt.args, err, tt.wantErr)
 			}
 		})
+	}
+}
+
+// The profile for profile-guided optimisation adds up the runs' samples
+// and keeps no path of this machine: it is committed to the repository.
+func TestMergeProfiles(t *testing.T) {
+	dir := t.TempDir()
+	var files []string
+	for i, n := range []int64{3, 4} {
+		fn := &profile.Function{ID: 1, Name: "main.work", Filename: "/home/someone/culprit/cmd/culprit/main.go"}
+		m := &profile.Mapping{ID: 1, File: "/tmp/culprit-bench-123/culprit", HasFunctions: true}
+		loc := &profile.Location{ID: 1, Mapping: m, Line: []profile.Line{{Function: fn, Line: 7}}}
+		p := &profile.Profile{
+			SampleType: []*profile.ValueType{{Type: "cpu", Unit: "nanoseconds"}},
+			Sample:     []*profile.Sample{{Location: []*profile.Location{loc}, Value: []int64{n}}},
+			Location:   []*profile.Location{loc}, Function: []*profile.Function{fn}, Mapping: []*profile.Mapping{m},
+		}
+		f := filepath.Join(dir, fmt.Sprintf("cpu%d.pprof", i))
+		var buf bytes.Buffer
+		if err := p.Write(&buf); err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(f, buf.Bytes(), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		files = append(files, f)
+	}
+	out := filepath.Join(dir, "default.pgo")
+	if err := mergeProfiles(out, files); err != nil {
+		t.Fatal(err)
+	}
+	data, err := os.ReadFile(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := profile.ParseData(data)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var total int64
+	for _, s := range p.Sample {
+		total += s.Value[0]
+	}
+	if total != 7 {
+		t.Errorf("merged samples add up to %d, want 7", total)
+	}
+	for _, f := range p.Function {
+		if f.Name != "main.work" || f.Filename != "" {
+			t.Errorf("function %q in file %q, want main.work in none", f.Name, f.Filename)
+		}
+	}
+	for _, m := range p.Mapping {
+		if m.File != "culprit" {
+			t.Errorf("mapping file %q, want culprit", m.File)
+		}
 	}
 }
