@@ -202,14 +202,20 @@ func runListen(ctx context.Context, opts *listenOptions) error {
 		defer t.Stop()
 		timeout = t.C
 	}
+	// echo: the signal that cancelled ctx (run's handler saw it) has yet
+	// to reach sigs. The runtime hands a signal to each channel in turn,
+	// so it may arrive later: it is this stop, not a second signal.
+	echo := false
 	select {
 	case <-sigs:
 	case <-ctx.Done():
-		// The interrupt that cancelled ctx reached sigs too: it is this
-		// stop, not a second signal.
-		select {
-		case <-sigs:
-		default:
+		var se *signalError
+		if errors.As(context.Cause(ctx), &se) {
+			select {
+			case <-sigs:
+			default:
+				echo = true
+			}
 		}
 	case <-timeout:
 	}
@@ -248,10 +254,17 @@ func runListen(ctx context.Context, opts *listenOptions) error {
 	rctx, abort := context.WithCancel(context.WithoutCancel(ctx))
 	defer abort()
 	go func() {
-		select {
-		case <-sigs:
-			abort()
-		case <-rctx.Done():
+		for {
+			select {
+			case <-sigs:
+				if echo {
+					echo = false
+					continue
+				}
+				abort()
+			case <-rctx.Done():
+			}
+			return
 		}
 	}()
 	ro := &rankOptions{streams: s, analysis: opts.analysis, output: opts.output, inputs: []string{dirName},

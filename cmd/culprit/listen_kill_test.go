@@ -3,6 +3,7 @@ package main
 import (
 	"bufio"
 	"bytes"
+	"context"
 	"net/http"
 	"os"
 	"os/exec"
@@ -183,5 +184,45 @@ func TestListenUsage(t *testing.T) {
 	os.WriteFile(filepath.Join(dir, "seg-000001.culprit-capture"), nil, 0o644)
 	if code, _, errOut := runTest(t, "", "listen", "--http", "127.0.0.1:0", "--grpc", "", "--dir", dir); code != exitUsage || !strings.Contains(errOut, "already holds a capture") {
 		t.Errorf("reused capture directory: exit %d: %s", code, errOut)
+	}
+}
+
+// A stop by SIGTERM reaches listen twice: through run's context and on
+// listen's own channel, in either order. The copy that comes late, while
+// the report is written, is the same stop, not a second signal that
+// aborts the report.
+func TestListenStopSignalArrivingLate(t *testing.T) {
+	dir := t.TempDir()
+	report := filepath.Join(dir, "rank.json")
+	s, _, _ := testStreams("")
+	errb := &syncBuffer{}
+	s.Err = errb
+	sigs := make(chan os.Signal, 2)
+	ctx, cancel := context.WithCancelCause(context.Background())
+	defer cancel(nil)
+	ready := make(chan string, 1)
+	cmd := newListenCmd(s, func(ctx context.Context, o *listenOptions) error {
+		o.signals = sigs
+		o.ready = func(h, _ string) { ready <- h }
+		return runListen(ctx, o)
+	})
+	cmd.SetArgs([]string{"--http", "127.0.0.1:0", "--grpc", "", "--dir", filepath.Join(dir, "capture"), "--format", "json", "-o", report})
+	done := make(chan error, 1)
+	go func() { done <- cmd.ExecuteContext(ctx) }()
+	addr := <-ready
+	if code, _, body := post(t, addr, mediaProto, "", bytes.NewReader(marshal(t, benchRequest(0, 30)))); code != 200 {
+		t.Fatalf("%d %s", code, body)
+	}
+	cancel(&signalError{sig: syscall.SIGTERM})
+	// The echo arrives once the capture is closed, as the report starts.
+	for !strings.Contains(errb.String(), "stored 30 spans") {
+		time.Sleep(time.Millisecond)
+	}
+	sigs <- syscall.SIGTERM
+	if err := <-done; err != nil {
+		t.Fatalf("listen: %v\n%s", err, errb)
+	}
+	if causes, _ := jsonDoc(t, report)["rootCauses"].([]any); len(causes) == 0 {
+		t.Fatalf("the report has no root causes\n%s", errb)
 	}
 }
