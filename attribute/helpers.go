@@ -203,7 +203,7 @@ func detectHelpers(t *callgraph.Tree, c *Classifier, w *walkState) map[int32]*he
 	// pairs).
 	slices.Sort(pairs)
 	found := map[int32]*helperInfo{}
-	pkgSeen := make([]int32, len(pkgIDs)+1) // by package: the last run that counted it, +1
+	pkgSeen := make([]int32, len(pkgIDs)+1) // by package ID: the run (from 1) that last counted it
 	for i, run := 0, int32(1); i < len(pairs); run++ {
 		hf := int32(pairs[i] >> 32)
 		j, np := i, 0

@@ -25,6 +25,10 @@ const modulePath = "github.com/culprithq/culprit"
 // a test binary standing in for culprit-bench knows to run the phase.
 const childEnv = "CULPRIT_BENCH_CHILD"
 
+// cpuProfileEnv is the variable that makes culprit write a CPU profile
+// of its run (cmd/culprit's constant of the same name).
+const cpuProfileEnv = "CULPRIT_CPUPROFILE"
+
 // maxBytes is passed to culprit as --max-bytes: large enough for any input.
 const maxBytes = 1 << 40
 
@@ -40,7 +44,7 @@ type config struct {
 	Culprit                  string
 	Runs                     int
 	// PGO, when set, names the file to write the merged CPU profile of
-	// every culprit rank run to (see profileRuns).
+	// every culprit rank run to (see mergeProfiles).
 	PGO string
 }
 
@@ -52,7 +56,7 @@ type phase struct {
 	self  bool   // a culprit-bench child
 	out   string // culprit's report file, checked after every run
 	// cpuProfile, when set, is where culprit writes a CPU profile of the
-	// run (through its CULPRIT_CPUPROFILE variable).
+	// run (through cpuProfileEnv).
 	cpuProfile string
 }
 
@@ -363,7 +367,7 @@ func measure(ctx context.Context, p phase, res *phaseResult) error {
 	case p.self:
 		cmd.Env = append(os.Environ(), childEnv+"=1")
 	case p.cpuProfile != "":
-		cmd.Env = append(os.Environ(), "CULPRIT_CPUPROFILE="+p.cpuProfile)
+		cmd.Env = append(os.Environ(), cpuProfileEnv+"="+p.cpuProfile)
 	}
 	start := time.Now()
 	err := cmd.Run()
